@@ -1,0 +1,1 @@
+"""HDL-side harnesses and testbench templates, shipped inside the package as thresh2hdl.sim."""

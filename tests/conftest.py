@@ -1,0 +1,30 @@
+import os
+import shutil
+
+import pytest
+
+from thresh2hdl.model import FeatureFormat, Model, Unit
+
+IN_CI = os.environ.get("CI", "").lower() in ("1", "true", "yes")
+
+
+def require_tool(*names):
+    """Skip locally when a tool is missing, but fail in CI, where every tool must be present."""
+    missing = [name for name in names if shutil.which(name) is None]
+    if missing:
+        message = f"{', '.join(missing)} not found on PATH"
+        if IN_CI:
+            pytest.fail(f"{message}; CI must have it (see .ci/run)")
+        pytest.skip(message)
+
+
+def make_model(weights, bias=0, *, bits=8, signed=False, ranges=None, module="dut",
+               ports=None, score_bits=None):
+    """A small model for tests: every feature of one format unless ``ranges`` tightens it."""
+    features = []
+    for index in range(len(weights)):
+        lo, hi = ranges[index] if ranges else (None, None)
+        features.append(FeatureFormat(f"f{index}", bits, signed, lo, hi))
+    kwargs = {} if ports is None else {"ports": ports}
+    return Model(module=module, features=features, units=[Unit("u", tuple(weights), bias)],
+                 score_bits=score_bits, **kwargs)

@@ -1,0 +1,121 @@
+"""The Amaranth component against a deliberately simple gold model, in Amaranth's simulator."""
+
+import numpy as np
+import pytest
+from amaranth.hdl import ClockDomain, Module
+from amaranth.sim import Simulator
+from hypothesis import given, settings, strategies as st
+
+from conftest import make_model
+from thresh2hdl.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.errors import InputError
+from thresh2hdl.model import PortNames
+from thresh2hdl.ranges import analyse
+from thresh2hdl.reference import ReferenceModel
+from thresh2hdl.simulate import simulate_amaranth
+from thresh2hdl.stimulus import make_stimulus
+from thresh2hdl.vectors import make_vectors
+
+
+def gold(weights, bias, x):
+    score = sum(w * v for w, v in zip(weights, x)) + bias
+    return int(score > 0), score
+
+
+def run_always_ready(dut, rows):
+    """Feed one row per cycle with out_ready high; collect (y, score) as they come out."""
+    results = []
+    top = Module()
+    top.submodules.dut = dut
+    if dut.latency:
+        top.domains.sync = ClockDomain("sync")
+
+    async def testbench(ctx):
+        for t in range(len(rows) + dut.latency):
+            row = rows[t] if t < len(rows) else [0] * len(rows[0])
+            ctx.set(dut.in_valid, int(t < len(rows)))
+            ctx.set(dut.out_ready, 1)
+            for port, value in zip(dut.feature_ports, row):
+                ctx.set(port, int(value))
+            assert ctx.get(dut.in_ready) == 1
+            if ctx.get(dut.out_valid):
+                results.append((ctx.get(dut.y), ctx.get(dut.score)))
+            if dut.latency:
+                await ctx.tick()
+
+    sim = Simulator(top)
+    if dut.latency:
+        sim.add_clock(1e-6, domain="sync")
+    sim.add_testbench(testbench)
+    sim.run()
+    return results
+
+
+@pytest.mark.parametrize("pipeline", [0, 1, 2, 3, 4])
+def test_matches_gold_model_through_every_pipeline_depth(pipeline):
+    weights, bias = [7, -3, 0, 12, -9], -40
+    model = make_model(weights, bias, bits=6, signed=True)
+    dut = ThresholdUnit(UnitConfig(model, pipeline=pipeline))
+    assert dut.latency == pipeline
+    rng = np.random.default_rng(pipeline)
+    rows = rng.integers(-32, 32, (60, 5)).tolist() + [[31, -32, 0, 31, -32], [-32, 31, 0, -32, 31]]
+    assert run_always_ready(dut, rows) == [gold(weights, bias, row) for row in rows]
+
+
+def test_too_many_stages_is_refused():
+    model = make_model([1, 2, 3, 4])
+    with pytest.raises(InputError, match="at most 4"):
+        ThresholdUnit(UnitConfig(model, pipeline=5))
+    with pytest.raises(InputError, match="non-negative"):
+        UnitConfig(model, pipeline=-1)
+
+
+def test_ports_follow_the_computed_widths():
+    model = make_model([100, -100], 3, bits=8)
+    dut = ThresholdUnit(UnitConfig(model, score_bits=20))
+    assert len(dut.score) == 20 and dut.score.shape().signed
+    assert [len(p) for p in dut.feature_ports] == [8, 8]
+
+
+def check_design(model, pipeline, *, vectors=300, seed=0):
+    dut = ThresholdUnit(UnitConfig(model, pipeline=pipeline))
+    reference = ReferenceModel.from_model(model)
+    rows = make_vectors(dut.analysis, random_count=vectors, seed=seed).array
+    stimulus = make_stimulus(reference, rows, latency=dut.latency, seed=seed,
+                             valid_probability=0.7, ready_probability=0.6)
+    return simulate_amaranth(dut, stimulus).check(stimulus), stimulus
+
+
+random_models = st.integers(1, 7).flatmap(lambda n: st.tuples(
+    st.lists(st.integers(-300, 300), min_size=n, max_size=n),
+    st.integers(-5000, 5000), st.integers(1, 12), st.booleans(), st.booleans(),
+    st.integers(0, 6)))
+
+
+@settings(max_examples=25, deadline=None)
+@given(random_models)
+def test_random_models_agree_with_reference_under_backpressure(case):
+    weights, bias, bits, is_signed, with_score, pipeline_wish = case
+    ports = PortNames() if with_score else PortNames(score="")
+    model = make_model(weights, bias, bits=bits, signed=is_signed, ports=ports)
+    most = analyse(model).final_level + 1
+    result, _ = check_design(model, min(pipeline_wish, most), vectors=100)
+    assert result.mismatch_count == 0
+    assert result.vectors_checked >= 100
+
+
+def test_checker_catches_a_wrong_reference():
+    # The check must be able to fail: compare the circuit with a reference whose bias is off by one.
+    model = make_model([5, -3, 2], -7, bits=4)
+    dut = ThresholdUnit(UnitConfig(model, pipeline=1))
+    wrong = ReferenceModel(weights=[5, -3, 2], bias=-6, feature_ranges=model.feature_ranges)
+    rows = make_vectors(dut.analysis, random_count=200).array
+    stimulus = make_stimulus(wrong, rows, latency=1)
+    result = simulate_amaranth(dut, stimulus).check(stimulus)
+    assert result.mismatch_count > 0
+    assert result.mismatches[0].signal in ("score", "decision")
+
+
+def test_constant_unit_when_every_weight_is_zero():
+    result, _ = check_design(make_model([0, 0, 0], 9), 1)
+    assert result.mismatch_count == 0

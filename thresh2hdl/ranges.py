@@ -1,0 +1,232 @@
+"""Exact range and width analysis of a threshold unit over the declared input ranges.
+
+The score ``w . x + b`` is a sum of independent terms, so interval arithmetic over it is exact:
+every bound below is reached by some input inside the declared ranges (the witnesses). The adder
+tree is planned here, once, and both the circuit and the report read the plan, so the width
+the report states is the width the circuit has.
+
+Products are formed from the weight's magnitude, ``x * |w|``, and the weight's sign is carried
+into the adder that consumes them (``a - b`` instead of ``a + (-b)``): a negative constant then
+costs no more than a positive one.
+"""
+
+from dataclasses import dataclass
+
+from .errors import InputError
+
+__all__ = ["signed_bits", "unsigned_bits", "value_bits", "Node", "Analysis", "analyse",
+           "bit_growth_bound", "MAX_SCORE_BITS"]
+
+MAX_SCORE_BITS = 128
+
+
+def signed_bits(lo, hi):
+    """Fewest bits of two's complement that hold every integer in ``[lo, hi]``."""
+    if lo > hi:
+        raise ValueError(f"empty range [{lo}, {hi}]")
+    bits = 1
+    while not (-(1 << (bits - 1)) <= lo and hi <= (1 << (bits - 1)) - 1):
+        bits += 1
+    return bits
+
+
+def unsigned_bits(hi):
+    """Fewest bits of unsigned binary that hold ``hi`` (at least 1)."""
+    if hi < 0:
+        raise ValueError(f"negative value {hi} has no unsigned width")
+    return max(1, hi.bit_length())
+
+
+def value_bits(lo, hi):
+    """Width and signedness of a node: unsigned when it cannot be negative, else signed."""
+    if lo >= 0:
+        return unsigned_bits(hi), False
+    return signed_bits(lo, hi), True
+
+
+def bit_growth_bound(input_bits, weight_bits, count):
+    """The textbook bound on a signed dot product's width: ``a + b + ceil(log2 N)``.
+
+    Common practice (bit growth of a sum of N products of a-bit and b-bit two's complement
+    numbers); the exact analysis must never need more than this.
+    """
+    return input_bits + weight_bits + max(0, (count - 1).bit_length())
+
+
+@dataclass(frozen=True)
+class Node:
+    """One value of the datapath: a constant product, an adder/subtractor, or the bias adder.
+
+    ``lo``/``hi`` bound the value the node computes; the true contribution of the node to the
+    score is ``sign`` times that value. ``level`` is the combinational depth: 0 for products,
+    ``k`` for the k-th adder level, one past the tree for the bias node.
+    """
+
+    index: int
+    name: str
+    kind: str            # "product", "add", "sub", "rsub" (right minus left), "bias"
+    children: tuple
+    lo: int
+    hi: int
+    level: int
+    sign: int = 1
+    feature: int | None = None
+    magnitude: int = 0   # |weight| of a product
+    constant: int = 0    # the bias of a "bias" node
+
+    @property
+    def bits(self):
+        return value_bits(self.lo, self.hi)[0]
+
+    @property
+    def is_signed(self):
+        return self.lo < 0
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """Ranges, widths and the adder-tree plan of one unit."""
+
+    feature_ranges: tuple
+    weights: tuple
+    bias: int
+    nodes: tuple          # in dependency order; children before parents
+    tree_root: int | None  # index of the node holding +-(w . x), None when every weight is zero
+    score_node: int | None  # index of the node holding the score, None when it is a constant
+    score_range: tuple
+    score_bits_min: int
+    score_bits: int
+    witness_min: tuple
+    witness_max: tuple
+    tree_levels: int       # adder levels of the tree (0 for one product)
+    has_score: bool
+
+    @property
+    def headroom_bits(self):
+        """Bits of the score port beyond the fewest that can hold every reachable score."""
+        return self.score_bits - self.score_bits_min
+
+    @property
+    def final_level(self):
+        """Level of the last combinational step (bias and decision)."""
+        return self.tree_levels + 1
+
+    @property
+    def threshold(self):
+        """When the score is not output, y = (root > threshold) (sign +1) or (root < threshold).
+
+        Comparing against a constant saves the bias adder.
+        """
+        root = self.nodes[self.tree_root]
+        return -self.bias if root.sign > 0 else self.bias
+
+    def node(self, name):
+        for node in self.nodes:
+            if node.name == name:
+                return node
+        raise KeyError(name)
+
+    def score_interval_of(self, node):
+        """The range of the node's true contribution to the score, ``sign * value``."""
+        if node.sign > 0:
+            return node.lo, node.hi
+        return -node.hi, -node.lo
+
+
+def _term_range(weight, lo, hi):
+    a, b = weight * lo, weight * hi
+    return min(a, b), max(a, b)
+
+
+def analyse(model, *, score_bits=None):
+    """Plan the adder tree of ``model.unit`` and size every node exactly.
+
+    ``score_bits`` (default: the model's, else the minimum) may be wider than needed; the extra
+    bits are reported as headroom. A narrower request is refused: it could overflow.
+    """
+    unit = model.unit
+    ranges = model.feature_ranges
+    weights = unit.weights
+    if score_bits is None:
+        score_bits = model.score_bits
+
+    nodes = []
+
+    def add(**kwargs):
+        node = Node(index=len(nodes), **kwargs)
+        nodes.append(node)
+        return node
+
+    layer = []
+    for index, (weight, (lo, hi)) in enumerate(zip(weights, ranges)):
+        if weight == 0:
+            continue
+        magnitude = abs(weight)
+        layer.append(add(name=f"p{index}", kind="product", children=(), lo=lo * magnitude,
+                         hi=hi * magnitude, level=0, sign=1 if weight > 0 else -1,
+                         feature=index, magnitude=magnitude))
+
+    level = 0
+    while len(layer) > 1:
+        level += 1
+        next_layer = []
+        for position in range(0, len(layer) - 1, 2):
+            left, right = layer[position], layer[position + 1]
+            if left.sign == right.sign:
+                kind, sign = "add", left.sign
+                lo, hi = left.lo + right.lo, left.hi + right.hi
+            elif left.sign > 0:
+                kind, sign = "sub", 1
+                lo, hi = left.lo - right.hi, left.hi - right.lo
+            else:
+                kind, sign = "rsub", 1
+                lo, hi = right.lo - left.hi, right.hi - left.lo
+            next_layer.append(add(name=f"s{level}_{position // 2}", kind=kind,
+                                  children=(left.index, right.index), lo=lo, hi=hi,
+                                  level=level, sign=sign))
+        if len(layer) % 2:
+            next_layer.append(layer[-1])
+        layer = next_layer
+
+    tree_root = layer[0].index if layer else None
+    terms = [_term_range(w, lo, hi) for w, (lo, hi) in zip(weights, ranges)]
+    score_lo = sum(t[0] for t in terms) + unit.bias
+    score_hi = sum(t[1] for t in terms) + unit.bias
+    has_score = model.ports.has_score
+
+    score_node = None
+    if tree_root is not None:
+        root = nodes[tree_root]
+        if has_score and (unit.bias != 0 or root.sign < 0):
+            score_node = add(name="score_sum", kind="bias", children=(tree_root,), lo=score_lo,
+                             hi=score_hi, level=level + 1, sign=1, constant=unit.bias).index
+        else:
+            score_node = tree_root
+        # The tree must be exact: its root's contribution is the sum of every term.
+        assert _root_is_exact(nodes, tree_root, score_lo - unit.bias, score_hi - unit.bias)
+
+    score_bits_min = signed_bits(score_lo, score_hi)
+    if score_bits_min > MAX_SCORE_BITS:
+        raise InputError(f"the score needs {score_bits_min} bits, more than the limit of "
+                         f"{MAX_SCORE_BITS}; use narrower weights or input ranges", field="unit")
+    if score_bits is None:
+        score_bits = score_bits_min
+    elif score_bits < score_bits_min:
+        raise InputError(f"score_bits {score_bits} cannot hold the score range "
+                         f"[{score_lo}, {score_hi}]; it needs at least {score_bits_min}",
+                         field="score_bits")
+
+    witness_max = tuple(hi if w > 0 else lo for w, (lo, hi) in zip(weights, ranges))
+    witness_min = tuple(lo if w > 0 else hi for w, (lo, hi) in zip(weights, ranges))
+    return Analysis(feature_ranges=tuple(ranges), weights=tuple(weights), bias=unit.bias,
+                    nodes=tuple(nodes), tree_root=tree_root, score_node=score_node,
+                    score_range=(score_lo, score_hi), score_bits_min=score_bits_min,
+                    score_bits=score_bits, witness_min=witness_min, witness_max=witness_max,
+                    tree_levels=level, has_score=has_score)
+
+
+def _root_is_exact(nodes, root, lo, hi):
+    node = nodes[root]
+    if node.sign > 0:
+        return (node.lo, node.hi) == (lo, hi)
+    return (-node.hi, -node.lo) == (lo, hi)

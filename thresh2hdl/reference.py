@@ -1,0 +1,104 @@
+"""The integer reference model: the single source of truth for every simulator and proof.
+
+``score = w . x + b`` and ``y = score > 0``, computed exactly. numpy int64 is used only when the
+range analysis proves that no partial sum can leave int64; otherwise Python integers are used.
+"""
+
+import numpy as np
+
+__all__ = ["ReferenceModel", "cycle_model"]
+
+_INT64_LIMIT = (1 << 63) - 1
+
+
+class ReferenceModel:
+    """Exact integer evaluation of one threshold unit.
+
+    Parameters
+    ----------
+    weights : sequence of int
+    bias : int
+    feature_ranges : sequence of (int, int)
+        The declared input ranges; they decide whether int64 is provably exact.
+
+    Examples
+    --------
+    >>> ref = ReferenceModel(weights=[2, -3], bias=1, feature_ranges=[(0, 15), (0, 15)])
+    >>> ref.scores([[4, 3], [0, 1]]).tolist()
+    [0, -2]
+    >>> ref.decisions([[5, 3]]).tolist()
+    [1]
+    """
+
+    def __init__(self, *, weights, bias, feature_ranges):
+        self.weights = tuple(int(w) for w in weights)
+        self.bias = int(bias)
+        self.feature_ranges = tuple((int(lo), int(hi)) for lo, hi in feature_ranges)
+        # Worst case of any partial sum in any evaluation order: the sum of absolute terms.
+        bound = abs(self.bias) + sum(abs(w) * max(abs(lo), abs(hi))
+                                     for w, (lo, hi) in zip(self.weights, self.feature_ranges))
+        self.exact_in_int64 = bound <= _INT64_LIMIT
+
+    @classmethod
+    def from_model(cls, model):
+        return cls(weights=model.unit.weights, bias=model.unit.bias,
+                   feature_ranges=model.feature_ranges)
+
+    def scores(self, vectors):
+        """Scores of input vectors (rows), as int64 when provably exact, else Python ints."""
+        if self.exact_in_int64:
+            x = np.asarray(vectors, dtype=np.int64)
+            x = x.reshape(-1, len(self.weights))
+            # Integer matmul in numpy is exact (no BLAS, wraps only on overflow, which the bound
+            # above rules out).
+            return x @ np.asarray(self.weights, dtype=np.int64) + np.int64(self.bias)
+        x = np.asarray(vectors, dtype=object).reshape(-1, len(self.weights))
+        w = np.asarray(self.weights, dtype=object)
+        return np.array([int(sum(row * w)) + self.bias for row in x], dtype=object)
+
+    def decisions(self, vectors):
+        """``1`` where the score is strictly positive, else ``0``."""
+        return (self.scores(vectors) > 0).astype(np.uint8)
+
+
+def cycle_model(latency, count, *, offer, accept):
+    """Cycle-exact model of the valid/ready handshake of a pipeline of ``latency`` stages.
+
+    The pipeline advances as a whole when its last stage is empty or being read
+    (``advance = out_ready or not out_valid``), and ``in_ready`` is ``advance``. With no register
+    stages the unit is combinational: ``out_valid = in_valid`` and ``in_ready = out_ready``.
+
+    ``offer(t)`` says whether the source wants to send in cycle ``t`` (it does only while inputs
+    are left) and ``accept(t)`` is the sink's ``out_ready``. The run stops when all ``count``
+    inputs have come out. Returns per-cycle arrays ``in_valid``, ``in_ready``, ``out_valid``,
+    ``out_ready``, ``in_index`` (which input is presented) and ``out_index`` (which input is on
+    the output, -1 where ``out_valid`` is low).
+    """
+    rows = {key: [] for key in ("in_valid", "in_ready", "out_valid", "out_ready", "in_index",
+                                "out_index")}
+    stages = [-1] * latency       # input index held by each stage, -1 when empty
+    accepted = emitted = 0
+    t = 0
+    while emitted < count:
+        valid = accepted < count and bool(offer(t))
+        ready = bool(accept(t))
+        if latency == 0:
+            out_valid, out_index, advance = valid, (accepted if valid else -1), ready
+        else:
+            out_index = stages[-1]
+            out_valid = out_index >= 0
+            advance = ready or not out_valid
+        for key, value in (("in_valid", valid), ("in_ready", advance), ("out_valid", out_valid),
+                           ("out_ready", ready), ("in_index", min(accepted, count - 1)),
+                           ("out_index", out_index)):
+            rows[key].append(value)
+        if out_valid and ready:
+            emitted += 1
+        if advance:
+            if latency:
+                stages = [accepted if valid else -1] + stages[:-1]
+            if valid:
+                accepted += 1
+        t += 1
+    return {key: np.asarray(value, dtype=np.int64 if key.endswith("index") else bool)
+            for key, value in rows.items()}

@@ -1,0 +1,128 @@
+"""Per-cycle stimulus and expected responses, shared by every simulator.
+
+A run is built once from the vectors and the cycle-exact handshake model; each simulator only
+replays the inputs and records the outputs, and :func:`compare` judges every cycle against the
+reference. Seeded gaps in ``in_valid`` and stalls on ``out_ready`` exercise the handshake.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .reference import cycle_model
+
+__all__ = ["Stimulus", "make_stimulus", "Mismatch", "CompareResult", "compare"]
+
+
+@dataclass(frozen=True)
+class Stimulus:
+    """Inputs per cycle (after one reset cycle) and what the reference expects per cycle."""
+
+    latency: int
+    vectors: np.ndarray        # (count, features)
+    in_valid: np.ndarray       # (cycles,)
+    out_ready: np.ndarray
+    in_index: np.ndarray       # which vector is presented on the inputs in each cycle
+    expect_in_ready: np.ndarray
+    expect_out_valid: np.ndarray
+    expect_out_index: np.ndarray
+    expect_scores: np.ndarray  # per vector
+    expect_decisions: np.ndarray
+
+    @property
+    def cycles(self):
+        return len(self.in_valid)
+
+    @property
+    def inputs(self):
+        """Feature values presented in each cycle, shape (cycles, features)."""
+        return self.vectors[self.in_index]
+
+
+def make_stimulus(reference, vectors, *, latency, seed=0, valid_probability=0.9,
+                  ready_probability=0.9):
+    vectors = np.asarray(vectors, dtype=np.int64)
+    rng = np.random.default_rng(seed)
+    chunk = 4096
+    offers, accepts = [], []
+
+    def draw(store, probability, t):
+        while t >= len(store):
+            store.extend((rng.random(chunk) < probability).tolist())
+        return store[t]
+
+    trace = cycle_model(latency, len(vectors),
+                        offer=lambda t: draw(offers, valid_probability, t),
+                        accept=lambda t: draw(accepts, ready_probability, t))
+    return Stimulus(latency=latency, vectors=vectors, in_valid=trace["in_valid"],
+                    out_ready=trace["out_ready"], in_index=trace["in_index"],
+                    expect_in_ready=trace["in_ready"], expect_out_valid=trace["out_valid"],
+                    expect_out_index=trace["out_index"],
+                    expect_scores=reference.scores(vectors),
+                    expect_decisions=reference.decisions(vectors))
+
+
+@dataclass(frozen=True)
+class Mismatch:
+    cycle: int
+    signal: str
+    expected: int
+    got: int
+    vector_index: int | None
+
+    def describe(self, stimulus, feature_names=None, origin=None):
+        text = f"cycle {self.cycle}: {self.signal} = {self.got}, expected {self.expected}"
+        if self.vector_index is not None and self.vector_index >= 0:
+            row = stimulus.vectors[self.vector_index].tolist()
+            names = feature_names or [f"x{i}" for i in range(len(row))]
+            text += f" for vector {self.vector_index}"
+            if origin is not None:
+                text += f" ({origin(self.vector_index)[0]})"
+            text += ": " + ", ".join(f"{n}={v}" for n, v in zip(names, row))
+        return text
+
+
+@dataclass(frozen=True)
+class CompareResult:
+    mismatches: tuple       # the first few, in cycle order
+    mismatch_count: int     # every mismatching (cycle, signal)
+    vectors_checked: int    # vectors that came out and were compared
+
+
+def compare(stimulus, in_ready, out_valid, decisions, scores, *, limit=10):
+    """Every cycle's handshake outputs, and the results of every valid output cycle.
+
+    ``scores`` may be None when the design has no score port.
+    """
+    mismatches = []
+    total = 0
+
+    def note(cycles, signal, expected, got, index):
+        nonlocal total
+        total += len(cycles)
+        for t in cycles[: limit - len(mismatches)]:
+            mismatches.append(Mismatch(int(t), signal, int(expected[t]), int(got[t]),
+                                       int(index[t])))
+
+    in_ready = np.asarray(in_ready).astype(bool)
+    out_valid = np.asarray(out_valid).astype(bool)
+    index = stimulus.expect_out_index
+    note(np.flatnonzero(in_ready != stimulus.expect_in_ready), "in_ready",
+         stimulus.expect_in_ready, in_ready, stimulus.in_index)
+    note(np.flatnonzero(out_valid != stimulus.expect_out_valid), "out_valid",
+         stimulus.expect_out_valid, out_valid, index)
+    shown = np.flatnonzero(stimulus.expect_out_valid & out_valid)
+    expected_y = np.zeros(stimulus.cycles, dtype=np.int64)
+    expected_y[shown] = stimulus.expect_decisions[index[shown]]
+    got_y = np.asarray(decisions).astype(np.int64)
+    note(shown[got_y[shown] != expected_y[shown]], "decision", expected_y, got_y, index)
+    if scores is not None:
+        expected_s = np.zeros(stimulus.cycles, dtype=object)
+        expected_s[shown] = stimulus.expect_scores[index[shown]]
+        got_s = np.asarray(scores, dtype=object)
+        bad = shown[got_s[shown] != expected_s[shown]]
+        note(bad, "score", expected_s, got_s, index)
+    mismatches.sort(key=lambda m: m.cycle)
+    transfers = int(np.count_nonzero(stimulus.expect_out_valid & stimulus.out_ready))
+    return CompareResult(mismatches=tuple(mismatches[:limit]), mismatch_count=total,
+                         vectors_checked=transfers)

@@ -1,0 +1,100 @@
+"""Input vectors for verification: the corners the range analysis names, then random ones."""
+
+import numpy as np
+
+__all__ = ["VectorSet", "make_vectors"]
+
+DEFAULT_RANDOM_VECTORS = 10_000
+
+
+class VectorSet:
+    """Named groups of input vectors (rows), kept in order so a failure can say where it came from.
+
+    Values are int64 when every feature fits (always, for inputs of at most 32 bits).
+    """
+
+    def __init__(self, feature_count):
+        self.feature_count = feature_count
+        self._groups = []
+
+    def add(self, name, rows):
+        rows = np.asarray(rows, dtype=np.int64).reshape(-1, self.feature_count)
+        if len(rows):
+            self._groups.append((name, rows))
+
+    @property
+    def groups(self):
+        return tuple((name, len(rows)) for name, rows in self._groups)
+
+    @property
+    def array(self):
+        if not self._groups:
+            return np.zeros((0, self.feature_count), dtype=np.int64)
+        return np.concatenate([rows for _, rows in self._groups])
+
+    def origin(self, index):
+        """Which group vector ``index`` belongs to, as ``(group name, index inside it)``."""
+        for name, rows in self._groups:
+            if index < len(rows):
+                return name, index
+            index -= len(rows)
+        raise IndexError(index)
+
+    def __len__(self):
+        return sum(len(rows) for _, rows in self._groups)
+
+
+def _random_within(rng, ranges, count):
+    lo = np.array([r[0] for r in ranges], dtype=np.int64)
+    hi = np.array([r[1] for r in ranges], dtype=np.int64)
+    # integers() takes an exclusive upper bound; the inclusive form avoids hi + 1 overflow.
+    return rng.integers(lo, hi, size=(count, len(ranges)), endpoint=True, dtype=np.int64)
+
+
+def _near_threshold(rng, analysis, count):
+    """Random vectors moved, along one feature, to the score closest to the decision boundary.
+
+    The decision flips between score 0 and 1, so these vectors check ``score > 0`` exactly.
+    """
+    weights = np.array(analysis.weights, dtype=object)
+    nonzero = [i for i, w in enumerate(analysis.weights) if w != 0]
+    if not nonzero:
+        return np.zeros((0, len(weights)), dtype=np.int64)
+    rows = _random_within(rng, analysis.feature_ranges, count)
+    for row_index, row in enumerate(rows):
+        j = nonzero[rng.integers(len(nonzero))]
+        lo, hi = analysis.feature_ranges[j]
+        w = analysis.weights[j]
+        rest = int(sum(int(x) * int(v) for x, v in zip(row, weights))) - int(row[j]) * w \
+            + analysis.bias
+        # Want rest + w * x_j in {0, 1}: choose x_j nearest to -rest / w, then nudge by one.
+        target = -rest // w + int(rng.integers(0, 2))
+        rows[row_index, j] = min(max(target, lo), hi)
+    return rows
+
+
+def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=None):
+    """Corner vectors (witnesses, all-min, all-max, per-feature extremes), boundary vectors,
+    random vectors within the declared ranges, then optional dataset rows."""
+    ranges = analysis.feature_ranges
+    n = len(ranges)
+    vectors = VectorSet(n)
+    vectors.add("witness of the score maximum", [analysis.witness_max])
+    vectors.add("witness of the score minimum", [analysis.witness_min])
+    los = [lo for lo, _ in ranges]
+    his = [hi for _, hi in ranges]
+    vectors.add("all features at their minimum", [los])
+    vectors.add("all features at their maximum", [his])
+    extremes = []
+    for i in range(n):
+        for base, value in ((los, his[i]), (his, los[i])):
+            row = list(base)
+            row[i] = value
+            extremes.append(row)
+    vectors.add("one feature at the opposite extreme", extremes)
+    rng = np.random.default_rng(seed)
+    vectors.add("near the decision threshold", _near_threshold(rng, analysis, min(1000, random_count)))
+    vectors.add("random within the declared ranges", _random_within(rng, ranges, random_count))
+    if data is not None:
+        vectors.add("dataset rows", data)
+    return vectors
