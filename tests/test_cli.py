@@ -142,3 +142,36 @@ def test_help_for_each_command():
     demo_help, build_help = run("demo", "--help").stdout, run("build", "--help").stdout
     options = lambda text: sorted(set(w for w in text.split() if w.startswith("--")))
     assert options(demo_help) == options(build_help)
+
+
+def test_mismatch_writes_files_and_exits_1(tmp_path, monkeypatch, capsys):
+    # Feed the flow a reference whose bias is off by one: the check must fail, say so, keep the
+    # files for inspection, and exit 1.
+    import thresh2hdl.flow as flow
+    from thresh2hdl.cli import main
+    from thresh2hdl.reference import ReferenceModel
+
+    real = ReferenceModel.from_model
+
+    def off_by_one(model):
+        ref = real(model)
+        return ReferenceModel(weights=ref.weights, bias=ref.bias + 1,
+                              feature_ranges=ref.feature_ranges)
+
+    monkeypatch.setattr(flow.ReferenceModel, "from_model", staticmethod(off_by_one))
+    with pytest.raises(SystemExit) as info:
+        main(["demo", "--out", str(tmp_path / "o"), "--vectors", "2000"])
+    assert info.value.code == 1
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "mismatch" in err and "vector" in err
+    report = json.loads((tmp_path / "o" / "report.json").read_text())
+    assert report["mismatches"] > 0 and report["verification"]["first_mismatches"]
+
+
+def test_console_script_is_installed(tmp_path):
+    import shutil
+    from conftest import require_tool
+    require_tool("thresh2hdl")          # the console script of the installed package
+    script = shutil.which("thresh2hdl")
+    result = subprocess.run([script, "--version"], capture_output=True, text=True)
+    assert result.returncode == 0 and "0.1.0" in result.stdout

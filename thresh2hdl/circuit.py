@@ -62,6 +62,7 @@ class ThresholdUnit(wiring.Component):
         self._analysis = analyse(config.model, score_bits=config.score_bits)
         most = self._analysis.final_level + 1
         if config.pipeline > most:
+            self._MustUse__silence = True   # refused before use: no "never elaborated" warning
             raise InputError(f"{config.pipeline} register stages requested, but this unit has "
                              f"{most - 1} combinational levels after the products, so at most "
                              f"{most} ({MAX_PIPELINE_NOTE})", field="pipeline")

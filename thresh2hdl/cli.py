@@ -44,8 +44,18 @@ def _options(kwargs):
                         seed=kwargs["seed"], force=kwargs["force"])
 
 
+def _progress():
+    """A progress callback for long simulations, drawn only on an interactive terminal."""
+    if not sys.stderr.isatty():
+        return None
+    def show(done, total):
+        if total > 20_000:
+            click.echo(f"\r  simulating {done * 100 // total:3d}%", err=True, nl=done >= total)
+    return show
+
+
 def _run_build(model, kwargs):
-    result = build(model, kwargs["out_dir"], _options(kwargs))
+    result = build(model, kwargs["out_dir"], _options(kwargs), progress=_progress())
     for line in result.summary():
         click.echo(line)
     click.echo(f"wrote {result.out_dir}")

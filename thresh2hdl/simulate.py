@@ -70,8 +70,8 @@ def simulate_amaranth(component, stimulus, *, progress=None):
             recorded.append(ctx.get(output_bus))
             if component.latency:
                 await ctx.tick()
-            if progress is not None and t % 1024 == 0:
-                progress(t)
+            if progress is not None and (t % 4096 == 0 or t + 1 == len(packed)):
+                progress(t + 1, len(packed))
 
     top = Module()
     top.submodules.dut = component
