@@ -76,7 +76,7 @@ BAD = [
     (GOOD.replace("weights = [3, -2]\n", ""), "missing key 'weights'"),
     (GOOD.replace("score_bits = 20", "score_bits = 500"), "score_bits must be an integer from 1 to 128"),
     (GOOD.replace("bias = -5", "bias = -5\nbias = 3"), "not valid TOML"),
-    (GOOD + "\n[[unit]]\nweights = [1, 1]\n", "banks of units are not supported yet"),
+    (GOOD.replace("model_format = 1", "model_format = 1\nclass_labels = [1]"), "class_labels must be 2 integers"),
     ("model_format = 1\n[[unit]]\nweights=[1]\n", "missing [[feature]]"),
 ]
 

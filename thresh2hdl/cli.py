@@ -9,7 +9,9 @@ import sys
 import click
 
 from .errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
+from .fitting import fit_csv, quantize_npz
 from .flow import BuildOptions, build, demo_model
+from .train import FitOptions
 
 __all__ = ["main"]
 
@@ -32,6 +34,11 @@ def _build_options(command):
         click.option("--seed", type=int, default=0, show_default=True,
                      help="Seed of the random vectors and handshake gaps."),
         click.option("--force", is_flag=True, help="Replace a non-empty output folder."),
+        click.option("--data", type=click.Path(dir_okay=False), default=None,
+                     help="CSV of labelled rows (columns named as the model's features): "
+                     "report accuracy and verify these rows too."),
+        click.option("--label", default="label", show_default=True,
+                     help="Name of the label column in --data."),
     ]
     for option in reversed(options):
         command = option(command)
@@ -41,7 +48,8 @@ def _build_options(command):
 def _options(kwargs):
     return BuildOptions(pipeline=kwargs["pipeline"], module=kwargs["module_name"],
                         score_bits=kwargs["score_bits"], vectors=kwargs["vectors"],
-                        seed=kwargs["seed"], force=kwargs["force"])
+                        seed=kwargs["seed"], force=kwargs["force"], data=kwargs["data"],
+                        label=kwargs["label"])
 
 
 def _progress():
@@ -80,6 +88,80 @@ def build_command(model_file, **kwargs):
 def demo_command(**kwargs):
     """Run the whole flow on the embedded synthetic pump-vibration scenario."""
     _run_build(demo_model(), kwargs)
+
+
+@cli.command("fit")
+@click.argument("data_file", type=click.Path())
+@click.option("--out", "out_path", type=click.Path(), required=True,
+              help="Model file to write (a <name>.fit.json training log goes beside it).")
+@click.option("--label", default="label", show_default=True, help="Label column.")
+@click.option("--input-bits", type=int, default=None,
+              help="Code width of every feature column (the ADC's bits).")
+@click.option("--signed", is_flag=True, help="With --input-bits: two's complement codes.")
+@click.option("--formats", "formats_file", type=click.Path(), default=None,
+              help="TOML file of [[feature]] tables declaring each column's format.")
+@click.option("--rule", type=click.Choice(["classic", "symmetric"]), default="classic",
+              show_default=True, help="classic: w += (y - y_hat) x; symmetric: w += s x when s z <= 0.")
+@click.option("--keep", type=click.Choice(["last", "pocket", "averaged"]), default="last",
+              show_default=True, help="Which weights to keep.")
+@click.option("--epochs", type=int, default=100, show_default=True)
+@click.option("--all-epochs", is_flag=True, help="Run every epoch, even after one with no mistakes.")
+@click.option("--no-shuffle", is_flag=True, help="Visit rows in file order.")
+@click.option("--seed", type=int, default=0, show_default=True)
+@click.option("--holdout", type=float, default=0.0, show_default=True,
+              help="Fraction of rows held out to measure accuracy.")
+@click.option("--weight-bits", type=int, default=None, help="Keep weights in B-bit signed range.")
+@click.option("--module", "module_name", default="thresh_unit", show_default=True)
+@click.option("--force", is_flag=True, help="Replace existing output files.")
+def fit_command(data_file, out_path, label, input_bits, signed, formats_file, rule, keep, epochs,
+                all_epochs, no_shuffle, seed, holdout, weight_bits, module_name, force):
+    """Train integer threshold units on raw codes in DATA_FILE (CSV with a header)."""
+    options = FitOptions(rule=rule, keep=keep, epochs=epochs, until_clean=not all_epochs,
+                         shuffle=not no_shuffle, seed=seed, holdout=holdout,
+                         weight_bits=weight_bits)
+    model, log = fit_csv(data_file, out_path, label=label, input_bits=input_bits,
+                         signed=signed, formats_file=formats_file, options=options,
+                         module=module_name, force=force)
+    for warning in log.warnings:
+        click.echo(f"warning: {warning}", err=True)
+    kind = f"bank of {len(model.units)} units" if model.is_bank else "one unit"
+    click.echo(f"trained {kind}: epochs {log.epochs_run}, train accuracy {log.train_accuracy:.4f}"
+               + (f", held-out {log.holdout_accuracy:.4f}" if log.holdout_accuracy is not None
+                  else ""))
+    click.echo(f"wrote {out_path}")
+
+
+@cli.command("quantize")
+@click.argument("float_file", type=click.Path())
+@click.option("--out", "out_path", type=click.Path(), required=True,
+              help="Model file to write (a <name>.quantize.json log goes beside it).")
+@click.option("--bits", type=int, default=None, help="Signed bits per weight (2..32).")
+@click.option("--data", "data_file", type=click.Path(), default=None,
+              help="CSV of labelled raw-code rows to choose the scale on and refine with.")
+@click.option("--label", default="label", show_default=True, help="Label column of --data.")
+@click.option("--sweep", is_flag=True, help="Try 2..12 bits and recommend the smallest close enough.")
+@click.option("--tolerance", type=float, default=0.01, show_default=True,
+              help="How far below the float model a recommended width may be.")
+@click.option("--refine-epochs", type=int, default=20, show_default=True)
+@click.option("--module", "module_name", default="thresh_unit", show_default=True)
+@click.option("--seed", type=int, default=0, show_default=True)
+@click.option("--force", is_flag=True, help="Replace existing output files.")
+def quantize_command(float_file, out_path, bits, data_file, label, sweep, tolerance,
+                     refine_epochs, module_name, seed, force):
+    """Fold a float model (FLOAT_FILE, .npz) onto raw codes as integer weights."""
+    result = quantize_npz(float_file, out_path, bits=bits, data_path=data_file, label=label,
+                          sweep=sweep, tolerance=tolerance, refine_epochs=refine_epochs,
+                          module=module_name, seed=seed, force=force)
+    for b, agreement, accuracy in result.sweep:
+        extra = f", accuracy {accuracy:.4f}" if accuracy is not None else ""
+        click.echo(f"  {b:2d} bits: agreement {agreement:.4f}{extra}")
+    if result.recommended_bits is not None:
+        click.echo(f"recommended: {result.recommended_bits} bits")
+    extra = f", accuracy {result.accuracy:.4f} (float {result.float_accuracy:.4f})" \
+        if result.accuracy is not None else ""
+    click.echo(f"{result.bits}-bit weights: agreement with the float model "
+               f"{result.agreement:.4f} on {result.rows_source}{extra}")
+    click.echo(f"wrote {out_path}")
 
 
 def _fail(message, code):

@@ -10,8 +10,11 @@ from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
 
+import numpy as np
+
 from . import __version__
 from .circuit import ThresholdUnit, UnitConfig
+from .data import dataset_for_model, read_csv
 from .errors import InputError, MismatchError
 from .model import Model, load_model, model_to_toml, parse_model
 from .outdir import check_output_folder, staged_folder, write_text
@@ -37,6 +40,8 @@ class BuildOptions:
     vectors: int = 10_000
     seed: int = 0
     force: bool = False
+    data: str | None = None      # CSV of labelled rows: accuracy, and extra vectors
+    label: str = "label"
 
     def __post_init__(self):
         for key in ("pipeline", "vectors", "seed"):
@@ -85,6 +90,19 @@ def _tool_versions():
     return versions
 
 
+def data_summary(model, reference, dataset):
+    """Accuracy of the integer model on labelled rows, with per-class counts."""
+    predicted = np.asarray(model.labels)[reference.decisions(dataset.x).astype(np.int64)]
+    per_class = {}
+    for label in model.labels:
+        rows = dataset.labels == label
+        per_class[str(label)] = {"rows": int(rows.sum()),
+                                 "correct": int((predicted[rows] == label).sum()),
+                                 "predicted": int((predicted == label).sum())}
+    return {"file": Path(dataset.source).name, "rows": len(dataset),
+            "accuracy": float(np.mean(predicted == dataset.labels)), "per_class": per_class}
+
+
 def build(model, out_dir, options=BuildOptions(), *, progress=None):
     """Build, verify and report one model into ``out_dir``; returns a :class:`BuildResult`.
 
@@ -115,8 +133,12 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     verilog_text = emit_verilog(component, model, header=header)
     timing["verilog_s"] = time.perf_counter() - started
 
+    dataset = None
+    if options.data is not None:
+        dataset = dataset_for_model(read_csv(options.data, label=options.label), model)
     reference = ReferenceModel.from_model(model)
-    vectors = make_vectors(analysis, random_count=options.vectors, seed=options.seed)
+    vectors = make_vectors(analysis, random_count=options.vectors, seed=options.seed,
+                           data=None if dataset is None else dataset.x)
     stimulus = make_stimulus(reference, vectors.array, latency=component.latency,
                              seed=options.seed)
     started = time.perf_counter()
@@ -161,6 +183,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
             "seed": options.seed,
             "first_mismatches": first,
         },
+        "data": None if dataset is None else data_summary(model, reference, dataset),
         "caution": SAFETY_CAUTION,
         "timing": {key: round(value, 3) for key, value in timing.items()},
     }

@@ -14,7 +14,7 @@ from .names import check_identifier
 
 __all__ = ["MODEL_FORMAT", "MAX_FEATURES", "MAX_UNITS", "MAX_INPUT_BITS", "MAX_WEIGHT_BITS",
            "MAX_BIAS_BITS", "FeatureFormat", "Unit", "PortNames", "Model", "load_model",
-           "parse_model", "model_to_toml"]
+           "parse_model", "parse_features", "load_toml", "model_to_toml"]
 
 MODEL_FORMAT = 1
 MAX_FEATURES = 4096
@@ -139,6 +139,7 @@ class Model:
     units: tuple
     ports: PortNames = field(default_factory=PortNames)
     score_bits: int | None = None
+    class_labels: tuple | None = None
 
     def __post_init__(self):
         check_identifier(self.module, "module name")
@@ -147,11 +148,19 @@ class Model:
         if not 1 <= len(self.features) <= MAX_FEATURES:
             raise ValueError(f"a model needs 1 to {MAX_FEATURES} features, "
                              f"not {len(self.features)}")
-        if not self.units:
-            raise ValueError("a model needs at least one [[unit]]")
-        if len(self.units) > 1:
-            raise ValueError(f"this version builds one unit, the file has {len(self.units)}; "
-                             f"banks of units are not supported yet")
+        if not 1 <= len(self.units) <= MAX_UNITS:
+            raise ValueError(f"a model needs 1 to {MAX_UNITS} [[unit]] tables, "
+                             f"not {len(self.units)}")
+        object.__setattr__(self, "class_labels", tuple(self.class_labels)
+                           if self.class_labels is not None else None)
+        if self.class_labels is not None:
+            wanted = 2 if len(self.units) == 1 else len(self.units)
+            if len(self.class_labels) != wanted or not all(_is_int(v) for v in self.class_labels):
+                raise ValueError(f"class_labels must be {wanted} integers (for one unit: the "
+                                 f"label of decision 0, then of decision 1; for a bank: one per "
+                                 f"unit), not {list(self.class_labels)!r}")
+            if len(set(self.class_labels)) != len(self.class_labels):
+                raise ValueError(f"class_labels must differ, not {list(self.class_labels)!r}")
         for index, unit in enumerate(self.units):
             if len(unit.weights) != len(self.features):
                 raise ValueError(f"unit[{index}] has {len(unit.weights)} weights but the model "
@@ -176,8 +185,23 @@ class Model:
             raise ValueError(f"module name {self.module!r} is also a port name; rename one")
 
     @property
+    def is_bank(self):
+        """Several units sharing the inputs, decided by argmax (ties to the lowest index)."""
+        return len(self.units) > 1
+
+    @property
+    def labels(self):
+        """Data label of each decision: [label of y=0, label of y=1], or one per unit."""
+        if self.class_labels is not None:
+            return self.class_labels
+        return (0, 1) if not self.is_bank else tuple(range(len(self.units)))
+
+    @property
     def unit(self):
         """The single unit of a one-unit model."""
+        if self.is_bank:
+            raise InputError(f"this is a bank of {len(self.units)} units; building banks is not "
+                             f"supported yet (one [[unit]] per model for now)", field="unit")
         return self.units[0]
 
     @property
@@ -198,7 +222,7 @@ class Model:
             raise InputError(str(error), field="--score-bits") from None
 
 
-_TOP_KEYS = {"model_format", "module", "feature", "unit"}
+_TOP_KEYS = {"model_format", "module", "feature", "unit", "class_labels"}
 _MODULE_KEYS = {"name", "score_bits", "ports"}
 _FEATURE_KEYS = {"name", "bits", "signed", "min", "max"}
 _UNIT_KEYS = {"name", "weights", "bias"}
@@ -220,23 +244,8 @@ def _build(factory, kwargs, source, where):
         raise InputError(str(error), source=source, field=where) from None
 
 
-def parse_model(data, *, source="<model>"):
-    """Validate a model given as a parsed TOML document (a dict) and return a :class:`Model`."""
-    _check_keys(data, _TOP_KEYS, source, "top level")
-    if "model_format" not in data:
-        raise InputError(f"missing key 'model_format'; add 'model_format = {MODEL_FORMAT}' at "
-                         f"the top", source=source)
-    if data["model_format"] != MODEL_FORMAT or not _is_int(data["model_format"]):
-        raise InputError(f"this version reads model_format {MODEL_FORMAT}, not "
-                         f"{data['model_format']!r}", source=source, field="model_format")
-
-    module = data.get("module", {})
-    _check_keys(module, _MODULE_KEYS, source, "module")
-    ports_table = module.get("ports", {})
-    _check_keys(ports_table, set(PortNames.__dataclass_fields__), source, "module.ports")
-    ports = _build(PortNames, ports_table, source, "module.ports")
-
-    features_data = data.get("feature")
+def parse_features(features_data, *, source):
+    """The ``[[feature]]`` tables of a model (or input-formats) file, validated."""
     if not isinstance(features_data, list) or not features_data:
         raise InputError("missing [[feature]] tables; declare one per input", source=source,
                          field="feature")
@@ -256,6 +265,27 @@ def parse_model(data, *, source="<model>"):
                              source=source, field=f"feature[{index}]")
         seen[feature.name] = index
 
+    return tuple(features)
+
+
+def parse_model(data, *, source="<model>"):
+    """Validate a model given as a parsed TOML document (a dict) and return a :class:`Model`."""
+    _check_keys(data, _TOP_KEYS, source, "top level")
+    if "model_format" not in data:
+        raise InputError(f"missing key 'model_format'; add 'model_format = {MODEL_FORMAT}' at "
+                         f"the top", source=source)
+    if data["model_format"] != MODEL_FORMAT or not _is_int(data["model_format"]):
+        raise InputError(f"this version reads model_format {MODEL_FORMAT}, not "
+                         f"{data['model_format']!r}", source=source, field="model_format")
+
+    module = data.get("module", {})
+    _check_keys(module, _MODULE_KEYS, source, "module")
+    ports_table = module.get("ports", {})
+    _check_keys(ports_table, set(PortNames.__dataclass_fields__), source, "module.ports")
+    ports = _build(PortNames, ports_table, source, "module.ports")
+
+    features = parse_features(data.get("feature"), source=source)
+
     units_data = data.get("unit")
     if not isinstance(units_data, list) or not units_data:
         raise InputError("missing [[unit]] table with weights and bias", source=source,
@@ -273,20 +303,24 @@ def parse_model(data, *, source="<model>"):
         kwargs.setdefault("name", "unit" if len(units_data) == 1 else f"unit{index}")
         units.append(_build(Unit, kwargs, source, where))
 
+    labels = data.get("class_labels")
+    if labels is not None and not isinstance(labels, list):
+        raise InputError("class_labels must be an array of integers", source=source,
+                         field="class_labels")
     kwargs = dict(module=module.get("name", "thresh_unit"), features=features, units=units,
-                  ports=ports, score_bits=module.get("score_bits"))
+                  ports=ports, score_bits=module.get("score_bits"), class_labels=labels)
     return _build(Model, kwargs, source, "module")
 
 
-def load_model(path):
-    """Read and validate a model file; every problem is an :class:`InputError` naming the field."""
+def load_toml(path, what="model file"):
+    """Read a TOML file; a missing, unreadable or malformed file is one :class:`InputError`."""
     path = Path(path)
     try:
         raw = path.read_bytes()
     except FileNotFoundError:
         raise InputError("no such file", source=path) from None
     except IsADirectoryError:
-        raise InputError("is a folder, not a model file", source=path) from None
+        raise InputError(f"is a folder, not a {what}", source=path) from None
     except OSError as error:
         raise InputError(f"cannot read: {error.strerror}", source=path) from None
     try:
@@ -294,10 +328,14 @@ def load_model(path):
     except UnicodeDecodeError as error:
         raise InputError(f"not UTF-8 text (byte {error.start})", source=path) from None
     try:
-        data = tomllib.loads(text)
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise InputError(f"not valid TOML: {error}", source=path) from None
-    return parse_model(data, source=path)
+
+
+def load_model(path):
+    """Read and validate a model file; every problem is an :class:`InputError` naming the field."""
+    return parse_model(load_toml(path), source=Path(path))
 
 
 def _toml_value(value):
@@ -317,7 +355,10 @@ def model_to_toml(model, *, comment=None):
     lines = []
     if comment:
         lines += [f"# {line}".rstrip() for line in comment.splitlines()]
-    lines += [f"model_format = {MODEL_FORMAT}", "", "[module]",
+    lines += [f"model_format = {MODEL_FORMAT}"]
+    if model.class_labels is not None:
+        lines.append(f"class_labels = {_toml_value(model.class_labels)}")
+    lines += ["", "[module]",
               f"name = {_toml_value(model.module)}"]
     if model.score_bits is not None:
         lines.append(f"score_bits = {model.score_bits}")

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from .errors import InputError
 
-__all__ = ["staged_folder", "check_output_folder", "write_text"]
+__all__ = ["staged_folder", "check_output_folder", "write_text", "write_files"]
 
 
 def check_output_folder(path, *, force=False):
@@ -35,9 +35,7 @@ def staged_folder(path, *, force=False):
     try:
         parent.mkdir(parents=True, exist_ok=True)
         staging = Path(tempfile.mkdtemp(prefix=f".{path.name}.partial-", dir=parent))
-        umask = os.umask(0)
-        os.umask(umask)
-        staging.chmod(0o777 & ~umask)   # mkdtemp makes it private; the output should not be
+        staging.chmod(0o777 & ~_umask())   # mkdtemp makes it private; the output should not be
     except OSError as error:
         raise InputError(f"cannot create the output folder: {error.strerror}",
                          source=path) from None
@@ -58,3 +56,39 @@ def staged_folder(path, *, force=False):
 def write_text(path, text):
     """Write a text file with Unix newlines, whatever the platform."""
     Path(path).write_text(text, encoding="utf-8", newline="\n")
+
+
+def write_files(contents, *, force=False):
+    """Write several files so that each appears whole, and none if any is refused.
+
+    ``contents`` maps paths to text. Existing files are replaced only with ``force``.
+    """
+    paths = [Path(p) for p in contents]
+    for path in paths:
+        if path.is_dir():
+            raise InputError("is a folder; give a file name", source=path)
+        if path.exists() and not force:
+            raise InputError("exists; choose another name or pass --force to replace it",
+                             source=path)
+        if not path.parent.is_dir():
+            raise InputError(f"folder {path.parent} does not exist", source=path)
+    staged = []
+    try:
+        for path, text in zip(paths, contents.values()):
+            handle, name = tempfile.mkstemp(prefix=f".{path.name}.partial-", dir=path.parent)
+            with os.fdopen(handle, "w", encoding="utf-8", newline="\n") as stream:
+                stream.write(text)
+            os.chmod(name, 0o666 & ~_umask())
+            staged.append((name, path))
+    except BaseException:
+        for name, _ in staged:
+            os.unlink(name)
+        raise
+    for name, path in staged:
+        os.replace(name, path)
+
+
+def _umask():
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask

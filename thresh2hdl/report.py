@@ -44,6 +44,9 @@ def summary_lines(report):
         f"  verified in {verification['simulator']}: {report['vectors_checked']} vectors over "
         f"{verification['cycles']} cycles, {report['mismatches']} mismatches",
     ]
+    if report.get("data"):
+        data = report["data"]
+        lines.append(f"  accuracy on {data['file']}: {data['accuracy']:.4f} over {data['rows']} rows")
     for text in verification.get("first_mismatches", [])[:3]:
         lines.append(f"  MISMATCH {text}")
     lines.append(f"  caution: {SAFETY_CAUTION}")

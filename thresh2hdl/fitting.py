@@ -1,0 +1,189 @@
+"""File-level calls behind ``thresh2hdl fit`` and ``thresh2hdl quantize``.
+
+They read the user's files, run :mod:`thresh2hdl.train` or :mod:`thresh2hdl.quantize`, and
+write the model file and its log together, atomically.
+"""
+
+import json
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .data import read_csv
+from .errors import InputError
+from .model import FeatureFormat, Model, Unit, load_toml, model_to_toml, parse_features
+from .outdir import write_files
+from .quantize import decide, fold_normalisation, load_float_model, to_integer_weights
+from .train import FitOptions, fit
+
+__all__ = ["fit_csv", "quantize_npz", "input_formats", "QuantizeResult", "SWEEP_BITS"]
+
+SWEEP_BITS = tuple(range(2, 13))
+
+
+def log_path_for(model_path, kind):
+    model_path = Path(model_path)
+    return model_path.with_name(f"{model_path.stem}.{kind}.json")
+
+
+def input_formats(names, *, input_bits=None, signed=False, formats_file=None):
+    """Declared input formats: one width for all columns, or a TOML file of [[feature]] tables."""
+    if formats_file is not None:
+        data = load_toml(formats_file, "formats file")
+        unknown = sorted(set(data) - {"feature"})
+        if unknown:
+            raise InputError(f"unknown key {unknown[0]!r}; only [[feature]] tables belong here",
+                             source=formats_file)
+        formats = parse_features(data.get("feature"), source=formats_file)
+        declared = tuple(f.name for f in formats)
+        if declared != tuple(names):
+            raise InputError(f"declares features {', '.join(declared[:5])}..., but the data has "
+                             f"columns {', '.join(names[:5])}...; they must match in order",
+                             source=formats_file)
+        return list(formats)
+    if input_bits is None:
+        return None
+    try:
+        return [FeatureFormat(name, input_bits, signed) for name in names]
+    except ValueError as error:
+        raise InputError(str(error), field="--input-bits") from None
+
+
+def fit_csv(data_path, out_path, *, label="label", input_bits=None, signed=False,
+            formats_file=None, options=FitOptions(), module="thresh_unit", force=False):
+    """Train on a CSV and write ``out_path`` (model file) and ``<stem>.fit.json`` (the log)."""
+    out_path = Path(out_path)
+    dataset = read_csv(data_path, label=label)
+    formats = input_formats(dataset.feature_names, input_bits=input_bits, signed=signed,
+                            formats_file=formats_file)
+    model, log = fit(dataset, formats=formats, options=options, module=module)
+    record = {"data": Path(data_path).name, "rows": len(dataset), "options": options.__dict__,
+              **log.as_dict()}
+    comment = (f"Trained by thresh2hdl fit on {Path(data_path).name} ({len(dataset)} rows); "
+               f"train accuracy {log.train_accuracy:.4f}")
+    write_files({out_path: model_to_toml(model, comment=comment),
+                 log_path_for(out_path, "fit"): json.dumps(record, indent=2) + "\n"},
+                force=force)
+    return model, log
+
+
+@dataclass(frozen=True)
+class QuantizeResult:
+    model: Model
+    bits: int
+    agreement: float
+    accuracy: float | None
+    float_accuracy: float | None
+    sweep: tuple            # ((bits, agreement, accuracy), ...) when swept
+    recommended_bits: int | None
+    rows: int
+    rows_source: str
+
+
+def _formats_for(float_model, names):
+    formats = []
+    for name, lo, hi in zip(names, float_model.input_lo.tolist(), float_model.input_hi.tolist()):
+        is_signed = lo < 0
+        bits = 1
+        while not ((-(1 << (bits - 1)) <= lo and hi <= (1 << (bits - 1)) - 1) if is_signed
+                   else hi <= (1 << bits) - 1):
+            bits += 1
+        if bits > 32:
+            raise InputError(f"the code range [{lo}, {hi}] needs more than 32 bits",
+                             source=float_model.source, field="input_lo")
+        formats.append(FeatureFormat(name, bits, is_signed, int(lo), int(hi)))
+    return formats
+
+
+def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label", sweep=False,
+                 tolerance=0.01, refine_epochs=20, module="thresh_unit", seed=0, force=False):
+    """Fold a float model onto raw codes and write it as an integer model file."""
+    if bits is None and not sweep:
+        raise InputError("give --bits B (2..32) or --sweep", field="--bits")
+    if bits is not None and not 2 <= bits <= 32:
+        raise InputError(f"must be an integer from 2 to 32, not {bits}", field="--bits")
+    if not 0 <= tolerance < 1:
+        raise InputError(f"must be a fraction from 0 to below 1, not {tolerance}",
+                         field="--tolerance")
+    float_model = load_float_model(npz_path)
+    units, count = float_model.coef.shape
+    names = [f"x{i}" for i in range(count)]
+    labels = None
+    if data_path is not None:
+        dataset = read_csv(data_path, label=label)
+        if len(dataset.feature_names) != count:
+            raise InputError(f"has {len(dataset.feature_names)} feature columns, the float model "
+                             f"{count}", source=dataset.source, field="line 1")
+        names = list(dataset.feature_names)
+    formats = _formats_for(float_model, names)
+    classes = float_model.classes or ((0, 1) if units == 1 else tuple(range(units)))
+    if data_path is not None:
+        x = dataset.x
+        for j, f in enumerate(formats):
+            bad = np.flatnonzero((x[:, j] < f.min) | (x[:, j] > f.max))
+            if len(bad):
+                raise InputError(f"{f.name!r} = {int(x[bad[0], j])} is outside the model's "
+                                 f"input range [{f.min}, {f.max}]", source=dataset.source,
+                                 field=f"line {int(bad[0]) + 2}")
+        lookup = {c: i for i, c in enumerate(classes)}
+        unknown = sorted(set(dataset.classes) - set(lookup))
+        if unknown:
+            raise InputError(f"label {unknown[0]} is not one of the model's classes "
+                             f"{list(classes)}", source=dataset.source, field="label")
+        labels = np.array([lookup[int(v)] for v in dataset.labels], dtype=np.int64)
+        rows_source = f"{Path(data_path).name} ({len(x)} rows)"
+    else:
+        rng = np.random.default_rng(seed)
+        x = rng.integers(float_model.input_lo, float_model.input_hi, size=(10_000, count),
+                         endpoint=True)
+        rows_source = "10000 random vectors within the input ranges"
+    weights, bias = fold_normalisation(float_model)
+    float_decisions = decide(x.astype(np.float64) @ weights.T + bias)
+    float_accuracy = float(np.mean(float_decisions == labels)) if labels is not None else None
+    centre = np.array([(f.min + f.max) // 2 for f in formats])
+
+    def at(b):
+        result = to_integer_weights(weights, bias, b, x, labels=labels,
+                                    refine_epochs=refine_epochs if labels is not None else 0,
+                                    seed=seed, centre=centre)
+        decided = decide(x.astype(np.float64) @ result.weights.T.astype(np.float64)
+                         + result.biases.astype(np.float64))
+        agreement = float(np.mean(decided == float_decisions))
+        accuracy = float(np.mean(decided == labels)) if labels is not None else None
+        return result, agreement, accuracy
+
+    table, recommended = [], None
+    if sweep:
+        for b in SWEEP_BITS:
+            _, agreement, accuracy = at(b)
+            table.append((b, agreement, accuracy))
+        for b, agreement, accuracy in table:
+            close = (accuracy >= float_accuracy - tolerance) if labels is not None \
+                else agreement >= 1 - tolerance
+            if close:
+                recommended = b
+                break
+        if recommended is None:
+            recommended = SWEEP_BITS[-1]
+    chosen = bits if bits is not None else recommended
+    result, agreement, accuracy = at(chosen)
+    unit_names = ["unit"] if units == 1 else [f"class_{c}" for c in classes]
+    model = Model(module=module, features=formats,
+                  units=[Unit(n, tuple(int(v) for v in w), int(b))
+                         for n, w, b in zip(unit_names, result.weights, result.biases)],
+                  class_labels=classes)
+    outcome = QuantizeResult(model, chosen, agreement, accuracy, float_accuracy, tuple(table),
+                             recommended, len(x), rows_source)
+    record = {"float_model": Path(npz_path).name, "bits": chosen, "rows": rows_source,
+              "agreement_with_float": agreement, "accuracy": accuracy,
+              "float_accuracy": float_accuracy, "scale": result.scale,
+              "sweep": [{"bits": b, "agreement": a, "accuracy": c} for b, a, c in table],
+              "recommended_bits": recommended, "tolerance": tolerance}
+    comment = (f"Folded and quantized by thresh2hdl quantize from {Path(npz_path).name} at "
+               f"{chosen}-bit weights; agreement with the float model {agreement:.4f} on "
+               f"{rows_source}")
+    write_files({Path(out_path): model_to_toml(model, comment=comment),
+                 log_path_for(out_path, "quantize"): json.dumps(record, indent=2) + "\n"},
+                force=force)
+    return outcome

@@ -1,0 +1,232 @@
+"""From real-valued weights to B-bit integer weights on raw codes, keeping the decisions.
+
+A threshold unit's decision is unchanged by a positive scale of its weights and bias, so the
+only thing integer rounding can change is which inputs land on which side. The scale is chosen,
+from a list of candidates, to agree best with the real-valued decisions on the data; candidates
+past the point where the largest weights clip are included, because one near-constant feature
+(a tiny normalisation ``scale``) can fold into a weight so large that scaling by it rounds every
+other weight to zero. A bank of units decided by argmax shares one scale, since only a common
+scale leaves an argmax unchanged. With labelled data the integer weights are then refined by
+perceptron-style corrections of one step, clipped to B bits, keeping the best (pocket).
+"""
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = ["FloatModel", "load_float_model", "fold_normalisation", "IntegerWeights",
+           "to_integer_weights", "decide"]
+
+
+@dataclass(frozen=True)
+class FloatModel:
+    coef: np.ndarray        # (units, features)
+    intercept: np.ndarray   # (units,)
+    offset: np.ndarray      # (features,): the model saw (code - offset) / scale
+    scale: np.ndarray
+    input_lo: np.ndarray    # raw integer code range of each feature
+    input_hi: np.ndarray
+    source: str = "<float model>"
+    classes: tuple | None = None   # data label of each decision, as in the model file
+
+
+def load_float_model(path):
+    """Read ``coef``, ``intercept``, optional ``offset``/``scale``, ``input_lo``/``input_hi``."""
+    path = Path(path)
+    source = str(path)
+    try:
+        archive = np.load(path, allow_pickle=False)
+    except FileNotFoundError:
+        raise InputError("no such file", source=source) from None
+    except (OSError, ValueError) as error:
+        raise InputError(f"not a readable .npz archive ({error})", source=source) from None
+    with archive:
+        arrays = {}
+        for name in archive.files:
+            try:
+                arrays[name] = archive[name]
+            except Exception as error:
+                raise InputError(f"array {name!r} cannot be read ({error})",
+                                 source=source) from None
+    known = {"coef", "intercept", "offset", "scale", "input_lo", "input_hi", "classes"}
+    unknown = sorted(set(arrays) - known)
+    if unknown:
+        raise InputError(f"unknown array {unknown[0]!r}; expected {', '.join(sorted(known))}",
+                         source=source)
+    for name in ("coef", "intercept", "input_lo", "input_hi"):
+        if name not in arrays:
+            raise InputError(f"missing array {name!r}", source=source)
+
+    def real(name, shape):
+        value = arrays[name]
+        if value.dtype.kind not in "iuf" or value.dtype == bool:
+            raise InputError(f"must hold numbers, not {value.dtype}", source=source, field=name)
+        value = value.astype(np.float64)
+        if value.shape != shape:
+            raise InputError(f"has shape {value.shape}, expected {shape}", source=source,
+                             field=name)
+        if not np.all(np.isfinite(value)):
+            raise InputError("holds NaN or infinity", source=source, field=name)
+        return value
+
+    coef = arrays["coef"]
+    if coef.ndim == 1:
+        coef = coef.reshape(1, -1)
+    if coef.ndim != 2 or coef.shape[0] < 1 or coef.shape[1] < 1:
+        raise InputError(f"must be (units, features), not shape {coef.shape}", source=source,
+                         field="coef")
+    units, features = coef.shape
+    arrays["coef"] = coef
+    coef = real("coef", (units, features))
+    intercept = real("intercept", (units,)) if np.ndim(arrays["intercept"]) else \
+        real("intercept", ()).reshape(1)
+    if intercept.shape != (units,):
+        raise InputError(f"has {intercept.shape[0]} values for {units} units", source=source,
+                         field="intercept")
+    offset = real("offset", (features,)) if "offset" in arrays else np.zeros(features)
+    scale = real("scale", (features,)) if "scale" in arrays else np.ones(features)
+    if np.any(scale <= 0):
+        raise InputError(f"must be positive, not {scale[scale <= 0][0]}", source=source,
+                         field="scale")
+    lo, hi = real("input_lo", (features,)), real("input_hi", (features,))
+    for name, value in (("input_lo", lo), ("input_hi", hi)):
+        if np.any(value != np.round(value)):
+            raise InputError("must hold integer codes", source=source, field=name)
+    if np.any(lo > hi):
+        j = int(np.flatnonzero(lo > hi)[0])
+        raise InputError(f"input_lo[{j}] = {lo[j]:g} is above input_hi[{j}] = {hi[j]:g}",
+                         source=source, field="input_lo")
+    classes = None
+    if "classes" in arrays:
+        values = arrays["classes"]
+        wanted = 2 if units == 1 else units
+        if values.dtype.kind not in "iu" or values.shape != (wanted,):
+            raise InputError(f"must be {wanted} integer labels (one unit: the labels of "
+                             f"decisions 0 and 1; a bank: one per unit)", source=source,
+                             field="classes")
+        classes = tuple(int(v) for v in values)
+    return FloatModel(coef, intercept, offset, scale, lo.astype(np.int64), hi.astype(np.int64),
+                      source, classes)
+
+
+def fold_normalisation(model):
+    """Weights and bias on raw codes: ``coef.((x - offset)/scale) + b = W.x + b'``."""
+    weights = model.coef / model.scale
+    bias = model.intercept - weights @ model.offset
+    return weights, bias
+
+
+def decide(scores):
+    """y = score > 0 for one unit; argmax (ties to the lowest index) for a bank."""
+    scores = np.asarray(scores)
+    if scores.ndim == 1 or scores.shape[1] == 1:
+        return (scores.reshape(len(scores), -1)[:, 0] > 0).astype(np.int64)
+    return np.argmax(scores, axis=1)
+
+
+@dataclass(frozen=True)
+class IntegerWeights:
+    weights: np.ndarray     # (units, features) int64, each inside B-bit signed range
+    biases: np.ndarray      # (units,) Python ints (object)
+    scale: float            # the common (bank) or first unit's scale chosen
+    agreement: float        # with the real-valued decisions on the rows used
+    refined: bool
+
+
+def _round_weights(weights, bias, k, limit):
+    w = np.clip(np.rint(weights * k), -limit, limit).astype(np.int64)
+    b = np.rint(bias * k)
+    return w, b
+
+
+def _scores(w, b, x):
+    return x.astype(np.float64) @ w.T.astype(np.float64) + b
+
+
+def _candidates(weights, limit):
+    magnitudes = np.sort(np.abs(weights[weights != 0]))[::-1]
+    if len(magnitudes) == 0:
+        return [1.0]
+    base = limit / magnitudes[0]
+    found = {base}
+    # Scales that let the largest 1, 2, ... weights clip (near-constant features).
+    for m in magnitudes[1: min(len(magnitudes), 24)]:
+        found.add(limit / m)
+    found.update(base * f for f in np.geomspace(0.25, 1.0, 9))
+    return sorted(found)
+
+
+def to_integer_weights(weights, bias, bits, x, *, labels=None, refine_epochs=0, seed=0,
+                       centre=None):
+    """Integer weights within ``bits`` (signed) and integer biases for real ``weights``/``bias``.
+
+    ``x`` are raw-code rows on which decisions are compared: the scale is chosen to agree best
+    with the real-valued decisions there. With ``labels`` (decision indices: 0/1 for one unit,
+    the unit index for a bank) and ``refine_epochs``, the weights are then corrected on those
+    rows, one step at a time, clipped to ``bits``, keeping the most accurate.
+    """
+    weights = np.atleast_2d(np.asarray(weights, dtype=np.float64))
+    bias = np.atleast_1d(np.asarray(bias, dtype=np.float64))
+    x = np.asarray(x, dtype=np.int64)
+    limit = (1 << (bits - 1)) - 1
+    wanted = decide(_scores(weights, bias, x))
+
+    def agreement_of(w, b):
+        return float(np.mean(decide(_scores(w, b, x)) == wanted))
+
+    # One scale for all units: exact for a bank (argmax), and for one unit the only unit.
+    best = None
+    for k in _candidates(weights, limit):
+        w, b = _round_weights(weights, bias, k, limit)
+        score = agreement_of(w, b)
+        if best is None or score > best[0] + 1e-12:
+            best = (score, k, w, b)
+    agreement, k, w, b = best
+    refined = False
+    if labels is not None and refine_epochs:
+        w, b = _refine(w, b, x, np.asarray(labels), limit, refine_epochs, seed, centre)
+        refined = True
+        agreement = agreement_of(w, b)
+    biases = np.array([int(v) for v in b], dtype=object)
+    return IntegerWeights(w, biases, float(k), agreement, refined)
+
+
+def _refine(w, b, x, labels, limit, epochs, seed, centre):
+    """Perceptron-style corrections of one step per weight (the sign of the centred code)."""
+    rng = np.random.default_rng(seed)
+    w = w.copy()
+    b = b.astype(np.float64).copy()
+    centre = np.zeros(x.shape[1]) if centre is None else np.asarray(centre)
+    step_rows = np.sign(x - centre).astype(np.int64)
+    units = w.shape[0]
+
+    def accuracy(wc, bc):
+        return float(np.mean(decide(_scores(wc, bc, x)) == labels))
+
+    best = (accuracy(w, b), w.copy(), b.copy())
+    bias_step = max(1.0, float(np.abs(x - centre).mean()))
+    for _ in range(epochs):
+        for i in rng.permutation(len(x)):
+            scores = w.astype(np.float64) @ x[i] + b
+            if units == 1:
+                predicted = int(scores[0] > 0)
+                if predicted == labels[i]:
+                    continue
+                sign = 1 if labels[i] else -1
+                w[0] = np.clip(w[0] + sign * step_rows[i], -limit, limit)
+                b[0] += sign * bias_step
+            else:
+                predicted = int(np.argmax(scores))
+                if predicted == labels[i]:
+                    continue
+                w[labels[i]] = np.clip(w[labels[i]] + step_rows[i], -limit, limit)
+                w[predicted] = np.clip(w[predicted] - step_rows[i], -limit, limit)
+                b[labels[i]] += bias_step
+                b[predicted] -= bias_step
+        current = accuracy(w, b)
+        if current > best[0]:
+            best = (current, w.copy(), b.copy())
+    return best[1], np.rint(best[2])

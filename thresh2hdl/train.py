@@ -1,0 +1,260 @@
+"""Perceptron training on raw integer codes, giving an integer model that is exact on raw codes.
+
+Training runs on centred codes with a bias input at the codes' scale: ``a = (x - c, S)``, where
+``c`` is the midpoint of each feature's declared range and ``S`` half the widest span. A bias input
+of 1 beside 10-12-bit codes makes the bias learn thousands of times slower than the weights, and
+the rule can take hundreds of epochs on separable data; at the codes' scale it converges in a
+few. Because ``w . (x - c) + w_b S = w . x + (w_b S - w . c)``, the trained integers fold into an
+integer model on raw codes exactly.
+"""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import InputError
+from .model import FeatureFormat, Model, Unit
+from .quantize import to_integer_weights
+
+__all__ = ["FitOptions", "FitLog", "train_unit", "fit", "RULES", "KEEP"]
+
+RULES = ("classic", "symmetric")
+KEEP = ("last", "pocket", "averaged")
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """How to train. ``rule``: ``classic`` updates by ``(y - y_hat) x`` with ``y_hat = z > 0``;
+    ``symmetric`` updates by ``s x`` whenever ``s z <= 0`` (``s = +-1``), as reference libraries
+    do. ``keep``: the last weights, the ``pocket`` ones (best training accuracy at the end of an
+    epoch) or the ``averaged`` ones (mean over every step, rounded).
+
+    ``weight_bits`` B: training runs at full integer precision, the result is scaled into B-bit
+    signed range (the scale that best keeps its decisions on the training rows, letting the
+    largest weights clip), then training continues inside the budget for ``refine_epochs``
+    epochs with every correction one step per weight and clipped to B bits, keeping the most
+    accurate weights. Halving or clipping during the first phase instead was measured to lose
+    far more (digits, B = 6: 0.54 test accuracy with halving)."""
+
+    rule: str = "classic"
+    keep: str = "last"
+    epochs: int = 100
+    until_clean: bool = True
+    shuffle: bool = True
+    seed: int = 0
+    holdout: float = 0.0
+    weight_bits: int | None = None
+    centre: bool = True
+    bias_input: int | None = None     # default: half the widest declared span
+    refine_epochs: int = 20
+
+    def __post_init__(self):
+        if self.rule not in RULES:
+            raise InputError(f"must be one of {', '.join(RULES)}, not {self.rule!r}",
+                             field="--rule")
+        if self.keep not in KEEP:
+            raise InputError(f"must be one of {', '.join(KEEP)}, not {self.keep!r}",
+                             field="--keep")
+        if not isinstance(self.epochs, int) or not 1 <= self.epochs <= 100_000:
+            raise InputError(f"must be an integer from 1 to 100000, not {self.epochs!r}",
+                             field="--epochs")
+        if not 0.0 <= self.holdout < 1.0:
+            raise InputError(f"must be a fraction from 0 to below 1, not {self.holdout!r}",
+                             field="--holdout")
+        if self.weight_bits is not None and not 2 <= self.weight_bits <= 32:
+            raise InputError(f"must be an integer from 2 to 32, not {self.weight_bits!r}",
+                             field="--weight-bits")
+        if self.bias_input is not None and self.bias_input < 1:
+            raise InputError(f"must be a positive integer, not {self.bias_input!r}",
+                             field="--bias-input")
+
+
+@dataclass
+class FitLog:
+    mistakes_per_epoch: list = field(default_factory=list)   # per unit: list of counts
+    train_accuracy: float | None = None
+    holdout_accuracy: float | None = None
+    epochs_run: list = field(default_factory=list)
+    warnings: list = field(default_factory=list)
+
+    def as_dict(self):
+        return {"mistakes_per_epoch": self.mistakes_per_epoch, "epochs_run": self.epochs_run,
+                "train_accuracy": self.train_accuracy, "holdout_accuracy": self.holdout_accuracy,
+                "warnings": self.warnings}
+
+
+def train_unit(a, target, options, rng):
+    """Train one unit on augmented integer rows ``a`` (last column the bias input).
+
+    Returns the kept weights (int64, same length as a row), the mistakes of each epoch, and
+    for ``keep="averaged"`` the exact mean weights (floats) before rounding, else None.
+
+    The rule visits rows one at a time, but rows before the next mistake leave the weights
+    unchanged, so their scores are computed a block at a time with the current weights and
+    the walk jumps to the first mistake in the block. The result is the same, step for step,
+    as the one-row loop (tests compare it with a literal loop and with scikit-learn).
+    """
+    a = np.ascontiguousarray(a, dtype=np.int64)
+    target = np.asarray(target).astype(bool)
+    n, d = a.shape
+    w = np.zeros(d, dtype=np.int64)
+    sign = np.where(target, 1, -1).astype(np.int64)
+    total = np.zeros(d, dtype=np.int64) if options.keep == "averaged" else None
+    steps = 0
+    best, best_correct = w.copy(), -1
+    mistakes_log = []
+    classic = options.rule == "classic"
+    for _ in range(options.epochs):
+        order = rng.permutation(n) if options.shuffle else np.arange(n)
+        rows, signs, targets = a[order], sign[order], target[order]
+        mistakes = 0
+        position = 0
+        block = 16
+        while position < n:
+            stop = min(n, position + block)
+            z = rows[position:stop] @ w
+            if classic:
+                wrong = (z > 0) != targets[position:stop]
+            else:
+                wrong = signs[position:stop] * z <= 0
+            hits = np.flatnonzero(wrong)
+            if len(hits) == 0:
+                if total is not None:
+                    total += (stop - position) * w
+                position = stop
+                block = min(block * 2, 4096)
+                continue
+            first = position + int(hits[0])
+            if total is not None:
+                total += (first - position) * w     # rows before the mistake, unchanged w
+            w += signs[first] * rows[first]
+            if total is not None:
+                total += w                          # the mistake's own step, after updating
+            mistakes += 1
+            position = first + 1
+            block = max(8, block // 2)
+        steps += n
+        mistakes_log.append(mistakes)
+        if options.keep == "pocket":
+            correct = int(np.count_nonzero((a @ w > 0) == target))
+            if correct > best_correct:
+                best, best_correct = w.copy(), correct
+        if options.until_clean and mistakes == 0:
+            break
+    if options.keep == "pocket":
+        return best, mistakes_log, None
+    if options.keep == "averaged":
+        mean = total / max(steps, 1)
+        return np.rint(mean).astype(np.int64), mistakes_log, mean
+    return w, mistakes_log, None
+
+
+def _formats_from_data(x, names, log):
+    formats = []
+    for j, name in enumerate(names):
+        lo, hi = int(x[:, j].min()), int(x[:, j].max())
+        is_signed = lo < 0
+        bits = 1
+        while True:
+            code_lo, code_hi = ((-(1 << (bits - 1)), (1 << (bits - 1)) - 1) if is_signed
+                                else (0, (1 << bits) - 1))
+            if code_lo <= lo and hi <= code_hi:
+                break
+            bits += 1
+        if bits > 32:
+            raise InputError(f"column {name!r} spans [{lo}, {hi}], more than 32 bits",
+                             field="data")
+        formats.append(FeatureFormat(name, bits, is_signed, lo, hi))
+    log.warnings.append("no input formats declared: the hardware is sized only for the ranges "
+                        "seen in the data; declare --input-bits (or a formats file) to size it "
+                        "for every code the sensor can send")
+    return formats
+
+
+def predict(weights, biases, x):
+    """Decisions of integer units: y for one unit, argmax (ties to the lowest) for a bank."""
+    scores = np.asarray(x, dtype=np.int64) @ np.asarray(weights, dtype=np.int64).T \
+        + np.asarray(biases, dtype=np.int64)
+    if scores.shape[1] == 1:
+        return (scores[:, 0] > 0).astype(np.int64)
+    return np.argmax(scores, axis=1)
+
+
+def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
+    """Train integer threshold units on ``dataset`` and fold them onto raw codes.
+
+    One unit for two classes; one unit per class (one-vs-rest, argmax) for more. ``formats``
+    (a list of :class:`FeatureFormat`, one per column) declares the input ranges; without it the
+    ranges come from the data, with a warning. Returns ``(model, log)``.
+    """
+    log = FitLog()
+    x, labels = dataset.x, dataset.labels
+    classes = dataset.classes
+    if len(classes) < 2:
+        raise InputError(f"has one class only ({classes[0] if classes else 'none'}); training "
+                         f"needs at least two", source=dataset.source, field="label")
+    if len(classes) > 256:
+        raise InputError(f"has {len(classes)} classes, more than the limit of 256 units",
+                         source=dataset.source, field="label")
+    if formats is None:
+        formats = _formats_from_data(x, dataset.feature_names, log)
+    elif len(formats) != x.shape[1]:
+        raise InputError(f"{len(formats)} input formats declared for {x.shape[1]} feature "
+                         f"columns", source=dataset.source)
+    for j, feature in enumerate(formats):
+        bad = np.flatnonzero((x[:, j] < feature.min) | (x[:, j] > feature.max))
+        if len(bad):
+            raise InputError(f"{feature.name!r} = {int(x[bad[0], j])} is outside its declared "
+                             f"range [{feature.min}, {feature.max}]", source=dataset.source,
+                             field=f"line {int(bad[0]) + 2}")
+
+    rng = np.random.default_rng(options.seed)
+    order = rng.permutation(len(labels)) if options.holdout else np.arange(len(labels))
+    held = int(round(options.holdout * len(labels)))
+    train_idx, held_idx = order[: len(labels) - held], order[len(labels) - held:]
+    if options.holdout and (held == 0 or len(train_idx) == 0):
+        raise InputError("the held-out split leaves no rows on one side; use more data or "
+                         "another --holdout", source=dataset.source)
+
+    centre = np.array([(f.min + f.max) // 2 for f in formats], dtype=np.int64) \
+        if options.centre else np.zeros(len(formats), dtype=np.int64)
+    scale = options.bias_input or max(1, max((f.max - f.min + 1) // 2 for f in formats))
+    a = np.hstack([x - centre, np.full((len(x), 1), scale, dtype=np.int64)])
+
+    unit_classes = [classes[1]] if len(classes) == 2 else list(classes)
+    weights, biases = [], []
+    for k, positive in enumerate(unit_classes):
+        w, mistakes, _ = train_unit(a[train_idx], labels[train_idx] == positive, options,
+                                 np.random.default_rng([options.seed, k]))
+        log.mistakes_per_epoch.append(mistakes)
+        log.epochs_run.append(len(mistakes))
+        weights.append(w[:-1])
+        # Fold centring and the bias input into one integer bias on raw codes (exact).
+        biases.append(int(w[-1]) * int(scale) - int(w[:-1] @ centre))
+
+    if options.weight_bits is not None:
+        # Into the bit budget, then go on training inside it (see FitOptions).
+        targets = labels[train_idx] == unit_classes[0] if len(unit_classes) == 1 else \
+            np.searchsorted(unit_classes, labels[train_idx])
+        budget = to_integer_weights(np.array(weights, dtype=np.float64),
+                                    np.array(biases, dtype=np.float64), options.weight_bits,
+                                    x[train_idx], labels=targets.astype(np.int64),
+                                    refine_epochs=options.refine_epochs, seed=options.seed,
+                                    centre=centre)
+        weights, biases = list(budget.weights), [int(v) for v in budget.biases]
+
+    units = [Unit(f"class_{c}" if len(unit_classes) > 1 else "unit",
+                  tuple(int(v) for v in w), b) for c, w, b in zip(unit_classes, weights, biases)]
+    labels_out = tuple(classes) if len(classes) > 2 else (classes[0], classes[1])
+    model = Model(module=module, features=formats, units=units, class_labels=labels_out)
+    log.train_accuracy = accuracy(model, x[train_idx], labels[train_idx])
+    if held:
+        log.holdout_accuracy = accuracy(model, x[held_idx], labels[held_idx])
+    return model, log
+
+
+def accuracy(model, x, labels):
+    """Fraction of rows whose decision's class label equals the row's label."""
+    decided = predict([u.weights for u in model.units], [u.bias for u in model.units], x)
+    predicted = np.asarray(model.labels)[decided]
+    return float(np.mean(predicted == np.asarray(labels)))
