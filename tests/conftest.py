@@ -1,9 +1,13 @@
 import os
 import shutil
+import tempfile
 
 import pytest
 
 from thresh2hdl.model import FeatureFormat, Model, Unit
+
+# Compiled Verilator harnesses go to a cache of the test run's own, not the user's.
+os.environ.setdefault("THRESH2HDL_CACHE", tempfile.mkdtemp(prefix="thresh2hdl-test-cache-"))
 
 IN_CI = os.environ.get("CI", "").lower() in ("1", "true", "yes")
 

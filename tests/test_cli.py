@@ -31,7 +31,7 @@ def assert_one_line_error(result, code=2, contains=None):
 
 def test_demo_end_to_end(tmp_path):
     out = tmp_path / "demo"
-    result = run("demo", "--out", out)
+    result = run("demo", "--out", out, "--simulator", "amaranth")
     assert result.returncode == 0, result.stderr
     assert "0 mismatches" in result.stdout and "not a safety-rated function" in result.stdout
     report = json.loads((out / "report.json").read_text())
@@ -49,7 +49,8 @@ def test_demo_end_to_end(tmp_path):
     assert lo == expected_lo
     assert (out / report["verilog"]).read_text().startswith("// pump_fault")
     assert sorted(p.name for p in out.iterdir()) == sorted(
-        ["pump_fault.v", "pump_fault_instance.vh", "model.toml", "report.json"])
+        ["pump_fault.v", "pump_fault_instance.vh", "model.toml", "report.json",
+         "pump_fault_tb.v", "stimulus.hex", "expected.hex"])
 
 
 def test_build_example_twice_is_byte_identical(tmp_path):
@@ -59,7 +60,8 @@ def test_build_example_twice_is_byte_identical(tmp_path):
                      "--vectors", "2000", cwd=tmp_path)
         assert result.returncode == 0, result.stderr
         outs.append(tmp_path / name)
-    for file in ("pump_fault.v", "pump_fault_instance.vh", "model.toml"):
+    for file in ("pump_fault.v", "pump_fault_instance.vh", "model.toml", "pump_fault_tb.v",
+                 "stimulus.hex", "expected.hex"):
         assert (outs[0] / file).read_bytes() == (outs[1] / file).read_bytes()
     reports = [json.loads((o / "report.json").read_text()) for o in outs]
     for report in reports:

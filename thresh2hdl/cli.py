@@ -10,7 +10,7 @@ import click
 
 from .errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
 from .fitting import fit_csv, quantize_npz
-from .flow import BuildOptions, build, demo_model
+from .flow import BuildOptions, build, check, demo_model
 from .train import FitOptions
 
 __all__ = ["main"]
@@ -29,8 +29,13 @@ def _build_options(command):
                      help="Verilog module name (default: the model file's)."),
         click.option("--score-bits", type=int, default=None,
                      help="Width of the score port; wider than needed gives headroom."),
-        click.option("--vectors", type=int, default=10_000, show_default=True,
-                     help="Random vectors to verify, on top of the corner cases."),
+        click.option("--vectors", type=int, default=None,
+                     help="Random vectors to verify, on top of the corner cases (default: "
+                     "1000000 with Verilator, 10000 otherwise)."),
+        click.option("--simulator", type=click.Choice(["auto", "amaranth", "verilator",
+                                                       "icarus"]), default="auto",
+                     show_default=True, help="auto: Verilator if present, else Icarus, else "
+                     "Amaranth's simulator (which runs the Amaranth design, not the file)."),
         click.option("--seed", type=int, default=0, show_default=True,
                      help="Seed of the random vectors and handshake gaps."),
         click.option("--force", is_flag=True, help="Replace a non-empty output folder."),
@@ -48,6 +53,7 @@ def _build_options(command):
 def _options(kwargs):
     return BuildOptions(pipeline=kwargs["pipeline"], module=kwargs["module_name"],
                         score_bits=kwargs["score_bits"], vectors=kwargs["vectors"],
+                        simulator=kwargs["simulator"],
                         seed=kwargs["seed"], force=kwargs["force"], data=kwargs["data"],
                         label=kwargs["label"])
 
@@ -162,6 +168,22 @@ def quantize_command(float_file, out_path, bits, data_file, label, sweep, tolera
     click.echo(f"{result.bits}-bit weights: agreement with the float model "
                f"{result.agreement:.4f} on {result.rows_source}{extra}")
     click.echo(f"wrote {out_path}")
+
+
+@cli.command("check")
+@click.argument("out_dir", type=click.Path())
+@click.option("--netlist", type=click.Path(), default=None,
+              help="Verify this Verilog file (same module and ports) instead of the folder's.")
+@click.option("--simulator", type=click.Choice(["auto", "verilator", "icarus"]), default="auto",
+              show_default=True)
+@click.option("--vectors", type=int, default=None,
+              help="Random vectors (default: 1000000 with Verilator, 10000 with Icarus).")
+@click.option("--seed", type=int, default=0, show_default=True)
+def check_command(out_dir, netlist, simulator, vectors, seed):
+    """Re-verify the Verilog of build folder OUT_DIR against its model."""
+    result = check(out_dir, netlist=netlist, simulator=simulator, vectors=vectors, seed=seed)
+    click.echo(f"{result.netlist}: {result.vectors_checked} vectors in {result.simulator_version}"
+               f", {result.mismatches} mismatches")
 
 
 def _fail(message, code):

