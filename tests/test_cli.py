@@ -15,7 +15,7 @@ EXAMPLE = Path(__file__).parents[1] / "examples" / "pump_vibration" / "pump_faul
 
 
 def run(*args, cwd=None):
-    return subprocess.run([sys.executable, "-m", "thresh2hdl", *map(str, args)], cwd=cwd,
+    return subprocess.run([sys.executable, "-P", "-m", "thresh2hdl", *map(str, args)], cwd=cwd,
                           capture_output=True, text=True, timeout=600)
 
 

@@ -105,10 +105,10 @@ def test_check_refuses_a_file_with_other_ports(built, tmp_path):
 def test_missing_simulator_is_one_line(built, tmp_path):
     env = dict(os.environ, PATH="/nonexistent")
     import sys
-    result = subprocess.run([sys.executable, "-m", "thresh2hdl", "check", str(built),
+    result = subprocess.run([sys.executable, "-P", "-m", "thresh2hdl", "check", str(built),
                              "--simulator", "icarus"], capture_output=True, text=True, env=env)
     assert_one_line_error(result, 2, "iverilog")
-    result = subprocess.run([sys.executable, "-m", "thresh2hdl", "demo", "--out",
+    result = subprocess.run([sys.executable, "-P", "-m", "thresh2hdl", "demo", "--out",
                              str(tmp_path / "x"), "--simulator", "verilator"],
                             capture_output=True, text=True, env=env)
     assert_one_line_error(result, 2, "Verilator was not found")
