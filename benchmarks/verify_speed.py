@@ -55,9 +55,12 @@ def main():
     total = sum(timings.values())
     for step, seconds in timings.items():
         print(f"  {step}: {seconds:.2f} s")
-    verilator_rate = len(rows) / timings["Verilator run"]
+    path_rate = len(rows) / timings["Verilator run"]
+    verilator_rate = len(rows) / result.run_seconds
     print(f"Verilator: {len(rows)} vectors end to end in {total:.1f} s (target <= 10 s for 1e7), "
-          f"{checked.mismatch_count} mismatches; simulation {verilator_rate:.3e} vectors/s")
+          f"{checked.mismatch_count} mismatches")
+    print(f"  the compiled model alone: {verilator_rate:.3e} vectors/s; with the vector files "
+          f"written and read: {path_rate:.3e} vectors/s")
 
     small = make_vectors(dut.analysis, random_count=5000).array
     small_stimulus = make_stimulus(reference, small, latency=dut.latency)
@@ -65,7 +68,8 @@ def main():
     simulate_amaranth(ThresholdUnit(UnitConfig(model, pipeline=2)), small_stimulus)
     amaranth_rate = len(small) / (time.perf_counter() - start)
     print(f"Amaranth simulator: {amaranth_rate:.3e} vectors/s")
-    print(f"ratio Verilator / Amaranth: {verilator_rate / amaranth_rate:.0f}x (target >= 1000x)")
+    print(f"ratio Verilator / Amaranth: {verilator_rate / amaranth_rate:.0f}x for the model alone, "
+          f"{path_rate / amaranth_rate:.0f}x with file transfer (target >= 1000x)")
     print("64-input 10-unit bank: not measured, banks are not built into hardware yet")
 
 

@@ -119,3 +119,23 @@ def test_checker_catches_a_wrong_reference():
 def test_constant_unit_when_every_weight_is_zero():
     result, _ = check_design(make_model([0, 0, 0], 9), 1)
     assert result.mismatch_count == 0
+
+
+@pytest.mark.parametrize("pipeline", [0, 1, 3])
+def test_free_flowing_segment_matches_the_design(pipeline):
+    # Past the stalled segment the stimulus is computed as a delay line; it must still agree
+    # with the design cycle for cycle, and a wrong latency in it must be caught.
+    model = make_model([9, -4, 6, 1], -20, bits=5)
+    dut = ThresholdUnit(UnitConfig(model, pipeline=pipeline))
+    reference = ReferenceModel.from_model(model)
+    rows = make_vectors(dut.analysis, random_count=400).array
+    stimulus = make_stimulus(reference, rows, latency=dut.latency, stall_vectors=50,
+                             valid_probability=0.7)
+    assert stimulus.out_ready[-100:].all()
+    result = simulate_amaranth(dut, stimulus)
+    checked = result.check(stimulus)
+    assert checked.mismatch_count == 0 and checked.vectors_checked == len(rows)
+    wrong = make_stimulus(reference, rows, latency=dut.latency + 1, stall_vectors=50,
+                          valid_probability=0.7)
+    assert simulate_amaranth(ThresholdUnit(UnitConfig(model, pipeline=pipeline)),
+                             wrong).check(wrong).mismatch_count > 0

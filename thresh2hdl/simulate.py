@@ -23,6 +23,7 @@ class SimulationResult:
     out_valid: np.ndarray
     decisions: np.ndarray
     scores: np.ndarray | None
+    run_seconds: float | None = None     # the simulator's own run, without data marshalling
 
     def check(self, stimulus, *, limit=10):
         return compare(stimulus, self.in_ready, self.out_valid, self.decisions, self.scores,

@@ -39,8 +39,37 @@ class Stimulus:
         return self.vectors[self.in_index]
 
 
+STALL_SEGMENT = 20_000   # vectors run with random out_ready stalls; the rest without
+
+
+def _free_flowing(first_index, count, latency, rng, valid_probability):
+    """Cycles for ``count`` vectors with random gaps on in_valid and out_ready held high.
+
+    With the sink always ready the pipeline never stalls, so the handshake model reduces to a
+    delay line and the whole segment is computed with array operations.
+    """
+    cycles = int(count / valid_probability * 1.05) + 64
+    offered = rng.random(cycles) < valid_probability
+    while np.count_nonzero(offered) < count:
+        offered = np.concatenate([offered, rng.random(cycles) < valid_probability])
+    last = int(np.flatnonzero(offered)[count - 1])
+    in_valid = np.concatenate([offered[: last + 1], np.zeros(latency, dtype=bool)])
+    accepted_before = np.cumsum(in_valid) - in_valid
+    in_index = first_index + np.minimum(accepted_before, count - 1)
+    out_valid = np.zeros(len(in_valid), dtype=bool)
+    out_index = np.full(len(in_valid), -1, dtype=np.int64)
+    out_valid[latency:] = in_valid[: len(in_valid) - latency]
+    out_index[latency:] = np.where(in_valid[: len(in_valid) - latency],
+                                   in_index[: len(in_valid) - latency], -1)
+    ones = np.ones(len(in_valid), dtype=bool)
+    return {"in_valid": in_valid, "in_ready": ones, "out_valid": out_valid, "out_ready": ones,
+            "in_index": in_index.astype(np.int64), "out_index": out_index}
+
+
 def make_stimulus(reference, vectors, *, latency, seed=0, valid_probability=0.9,
-                  ready_probability=0.9):
+                  ready_probability=0.9, stall_vectors=STALL_SEGMENT):
+    """Cycles for every vector: the first ``stall_vectors`` through the full handshake model
+    with random gaps and stalls, the rest with gaps only (a long random run)."""
     vectors = np.asarray(vectors, dtype=np.int64)
     rng = np.random.default_rng(seed)
     chunk = 4096
@@ -51,9 +80,16 @@ def make_stimulus(reference, vectors, *, latency, seed=0, valid_probability=0.9,
             store.extend((rng.random(chunk) < probability).tolist())
         return store[t]
 
-    trace = cycle_model(latency, len(vectors),
-                        offer=lambda t: draw(offers, valid_probability, t),
-                        accept=lambda t: draw(accepts, ready_probability, t))
+    stalled = min(len(vectors), stall_vectors)
+    segments = [cycle_model(latency, stalled,
+                            offer=lambda t: draw(offers, valid_probability, t),
+                            accept=lambda t: draw(accepts, ready_probability, t))]
+    if len(vectors) > stalled:
+        # The first segment ends drained (every result out), so this one starts empty.
+        segments.append(_free_flowing(stalled, len(vectors) - stalled, latency, rng,
+                                      valid_probability))
+    trace = {key: np.concatenate([segment[key] for segment in segments])
+             for key in segments[0]}
     return Stimulus(latency=latency, vectors=vectors, in_valid=trace["in_valid"],
                     out_ready=trace["out_ready"], in_index=trace["in_index"],
                     expect_in_ready=trace["in_ready"], expect_out_valid=trace["out_valid"],

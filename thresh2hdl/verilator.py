@@ -1,7 +1,8 @@
 """Verilator for the emitted Verilog: a C++ harness compiled once per design, cached by hash.
 
-The harness (``sim/verilator_harness.cpp.in``) streams binary stimulus records in and response
-records out, cycle by cycle through the handshake, so numpy makes and judges millions of vectors.
+The harness (``sim/verilator_harness.cpp.in``) reads binary vector and per-cycle control files
+and writes per-cycle output files, through the handshake, so numpy makes and judges millions of
+vectors.
 Compiled harnesses are kept under the cache folder (``$THRESH2HDL_CACHE``, else
 ``$XDG_CACHE_HOME/thresh2hdl``, else ``~/.cache/thresh2hdl``), keyed by the hash of the Verilog,
 the harness and the Verilator version; a build is done in a temporary folder and renamed into
@@ -13,6 +14,7 @@ import os
 import shutil
 import subprocess
 import tempfile
+import time
 from importlib import resources
 from pathlib import Path
 
@@ -64,7 +66,7 @@ def harness_text(ports, module):
     lines = []
     for index, (name, width) in enumerate(features):
         mask = "0xffffffffu" if width == 32 else f"0x{(1 << width) - 1:x}u"
-        lines.append(f"            top.{name} = static_cast<uint32_t>(f[{2 + index}]) & {mask};")
+        lines.append(f"        top.{name} = static_cast<uint32_t>(f[{index}]) & {mask};")
     clocked = "clk" in by_role
     reset = tick = ""
     if clocked:
@@ -72,8 +74,9 @@ def harness_text(ports, module):
         reset = (f"    top.{rst} = 1;\n    top.{by_role['in_valid'][0]} = 0;\n"
                  f"    top.{clk} = 0;\n    top.eval();\n    top.{clk} = 1;\n    top.eval();\n"
                  f"    top.{clk} = 0;\n    top.eval();\n    top.{rst} = 0;")
-        tick = (f"            top.{clk} = 1;\n            top.eval();\n"
-                f"            top.{clk} = 0;\n            top.eval();")
+        # The falling edge is folded into the next cycle's settle: two evaluations a cycle.
+        tick = (f"        top.{clk} = 1;\n        top.eval();\n"
+                f"        top.{clk} = 0;")
     score = f"static_cast<int64_t>(top.{by_role['score'][0]})" if "score" in by_role else "0"
     values = {"MODULE": module, "FEATURES": str(len(features)), "RESET": reset, "TICK": tick,
               "IN_VALID": by_role["in_valid"][0], "OUT_READY": by_role["out_ready"][0],
@@ -132,29 +135,36 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
         raise ToolError(f"the Verilator harness reads scores of up to 64 bits, this one has "
                         f"{score_bits}; use --simulator icarus")
     binary = compiled_harness(verilog_text, ports, module, progress=progress)
-    inputs = stimulus.inputs
-    records = np.empty((stimulus.cycles, 2 + inputs.shape[1]), dtype="<i4")
-    records[:, 0] = stimulus.in_valid
-    records[:, 1] = stimulus.out_ready
-    # Codes of up to 32 bits: keep their bit pattern (the harness masks to the port width).
-    records[:, 2:] = (inputs & 0xFFFFFFFF).astype(np.uint32).view(np.int32)
-    with tempfile.TemporaryDirectory(prefix="thresh2hdl-verilator-") as folder:
-        stim_path, resp_path = Path(folder) / "stimulus.bin", Path(folder) / "responses.bin"
-        records.tofile(stim_path)
-        result = subprocess.run([str(binary), str(stim_path), str(resp_path)],
+    # Codes of up to 32 bits keep their bit pattern (the harness masks to the port width).
+    vectors = (stimulus.vectors & 0xFFFFFFFF).astype(np.uint32).view(np.int32)
+    control = np.empty((stimulus.cycles, 3), dtype="<i4")
+    control[:, 0] = stimulus.in_valid
+    control[:, 1] = stimulus.out_ready
+    control[:, 2] = stimulus.in_index
+    # Vector files can be hundreds of MB: keep them in memory-backed /dev/shm where there is one.
+    scratch = "/dev/shm" if os.path.isdir("/dev/shm") and os.access("/dev/shm", os.W_OK) else None
+    with tempfile.TemporaryDirectory(prefix="thresh2hdl-verilator-", dir=scratch) as folder:
+        folder = Path(folder)
+        vectors.tofile(folder / "vectors.bin")
+        control.tofile(folder / "control.bin")
+        started = time.perf_counter()
+        result = subprocess.run([str(binary)] + [str(folder / name) for name in
+                                ("vectors.bin", "control.bin", "flags.bin", "scores.bin")],
                                 capture_output=True, text=True)
+        run_seconds = time.perf_counter() - started
         if result.returncode != 0:
             raise ToolError(f"the Verilator harness failed: {result.stderr.strip()[:200]}")
-        responses = np.fromfile(resp_path, dtype="<i8").reshape(-1, 4)
-    if len(responses) != stimulus.cycles:
-        raise ToolError(f"the Verilator harness returned {len(responses)} cycles, not "
+        flags = np.fromfile(folder / "flags.bin", dtype=np.uint8)
+        raw = np.fromfile(folder / "scores.bin", dtype="<i8")
+    if len(flags) != stimulus.cycles or len(raw) != stimulus.cycles:
+        raise ToolError(f"the Verilator harness returned {len(flags)} cycles, not "
                         f"{stimulus.cycles}")
     scores = None
-    if score_bits is not None:
-        raw = responses[:, 3].astype(np.uint64) & np.uint64((1 << score_bits) - 1 if score_bits < 64 else (1 << 64) - 1)
-        scores = raw.astype(np.int64) if score_bits == 64 else np.where(
-            raw >> np.uint64(score_bits - 1), raw.astype(np.int64) - (1 << score_bits),
-            raw.astype(np.int64))
-    return SimulationResult("verilator", responses[:, 0].astype(bool),
-                            responses[:, 1].astype(bool), responses[:, 2].astype(np.uint8),
-                            scores)
+    if score_bits is not None and score_bits < 64:
+        # Verilator keeps a signed port's bits zero-extended in its C++ word: sign-extend.
+        shift = 64 - score_bits
+        scores = (raw << shift) >> shift
+    elif score_bits == 64:
+        scores = raw
+    return SimulationResult("verilator", (flags & 1).astype(bool), (flags & 2).astype(bool),
+                            ((flags >> 2) & 1).astype(np.uint8), scores, run_seconds)
