@@ -77,8 +77,8 @@ def test_ports_follow_the_computed_widths():
     assert [len(p) for p in dut.feature_ports] == [8, 8]
 
 
-def check_design(model, pipeline, *, vectors=300, seed=0):
-    dut = ThresholdUnit(UnitConfig(model, pipeline=pipeline))
+def check_design(model, pipeline, *, vectors=300, seed=0, arch="tree"):
+    dut = ThresholdUnit(UnitConfig(model, pipeline=pipeline, arch=arch))
     reference = ReferenceModel.from_model(model)
     rows = make_vectors(dut.analysis, random_count=vectors, seed=seed).array
     stimulus = make_stimulus(reference, rows, latency=dut.latency, seed=seed,
@@ -139,3 +139,21 @@ def test_free_flowing_segment_matches_the_design(pipeline):
                           valid_probability=0.7)
     assert simulate_amaranth(ThresholdUnit(UnitConfig(model, pipeline=pipeline)),
                              wrong).check(wrong).mismatch_count > 0
+
+
+def test_verification_in_chunks_covers_every_vector_and_catches_late_errors(monkeypatch):
+    import thresh2hdl.flow as flow
+    from thresh2hdl.verilog import port_table
+    monkeypatch.setattr(flow, "CHUNK_VECTORS", 300)
+    model = make_model([5, -3, 2, 7], -11, bits=6)
+    dut = ThresholdUnit(UnitConfig(model, pipeline=2))
+    ports = port_table(dut, model)
+    verified = flow.verify("amaranth", dut, "", ports, model, count=1000)
+    assert verified.mismatches == 0
+    corners = sum(n for name, n in verified.vector_groups if not name.startswith("random"))
+    assert verified.vectors_checked == 1000 + corners
+    assert dict(verified.vector_groups)["random within the declared ranges"] == 1000
+    # Judged against a model whose bias is one off, the run must fail and say where.
+    wrong = make_model([5, -3, 2, 7], -10, bits=6)
+    verified = flow.verify("amaranth", dut, "", ports, wrong, count=1000)
+    assert verified.mismatches > 0 and verified.first_mismatches

@@ -21,8 +21,8 @@ from thresh2hdl.verilog import emit_verilog, port_table
 pytestmark = pytest.mark.icarus
 
 
-def prepare(model, pipeline, folder, *, vectors=500, seed=0):
-    dut = ThresholdUnit(UnitConfig(model, pipeline=pipeline))
+def prepare(model, pipeline, folder, *, vectors=500, seed=0, arch="tree"):
+    dut = ThresholdUnit(UnitConfig(model, pipeline=pipeline, arch=arch))
     path = folder / f"{model.module}.v"
     path.write_text(emit_verilog(dut, model))
     rows = make_vectors(dut.analysis, random_count=vectors, seed=seed).array

@@ -29,6 +29,7 @@ class UnitConfig:
     model: Model
     pipeline: int = 1
     score_bits: int | None = None
+    arch: str = "tree"
 
     def __post_init__(self):
         if not isinstance(self.model, Model):
@@ -59,7 +60,7 @@ class ThresholdUnit(wiring.Component):
         if not isinstance(config, UnitConfig):
             raise TypeError(f"config must be a UnitConfig, not {type(config).__name__}")
         self._config = config
-        self._analysis = analyse(config.model, score_bits=config.score_bits)
+        self._analysis = analyse(config.model, score_bits=config.score_bits, arch=config.arch)
         most = self._analysis.final_level + 1
         if config.pipeline > most:
             self._MustUse__silence = True   # refused before use: no "never elaborated" warning

@@ -22,6 +22,9 @@ def _build_options(command):
         click.option("--out", "out_dir", type=click.Path(file_okay=True, dir_okay=True),
                      required=True, help="Output folder (created; must be empty or absent "
                      "unless --force)."),
+        click.option("--arch", type=click.Choice(["tree", "shiftadd"]), default="tree",
+                     show_default=True, help="tree: constant multipliers into an adder tree; "
+                     "shiftadd: no multipliers, weights recoded in canonical signed digits."),
         click.option("--pipeline", type=int, default=1, show_default=True,
                      help="Register stages: 0 is combinational, 1 registers the outputs, more "
                      "split the adder tree."),
@@ -53,7 +56,7 @@ def _build_options(command):
 def _options(kwargs):
     return BuildOptions(pipeline=kwargs["pipeline"], module=kwargs["module_name"],
                         score_bits=kwargs["score_bits"], vectors=kwargs["vectors"],
-                        simulator=kwargs["simulator"],
+                        simulator=kwargs["simulator"], arch=kwargs["arch"],
                         seed=kwargs["seed"], force=kwargs["force"], data=kwargs["data"],
                         label=kwargs["label"])
 

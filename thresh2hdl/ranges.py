@@ -14,10 +14,31 @@ from dataclasses import dataclass
 
 from .errors import InputError
 
-__all__ = ["signed_bits", "unsigned_bits", "value_bits", "Node", "Analysis", "analyse",
+__all__ = ["csd_digits", "ARCHITECTURES", "signed_bits", "unsigned_bits", "value_bits", "Node", "Analysis", "analyse",
            "bit_growth_bound", "MAX_SCORE_BITS"]
 
 MAX_SCORE_BITS = 128
+ARCHITECTURES = ("tree", "shiftadd")
+
+
+def csd_digits(value):
+    """Canonical signed digits (non-adjacent form) of ``value >= 0``: ``[(shift, +-1), ...]``.
+
+    No two nonzero digits are adjacent, which makes the count of nonzero digits minimal
+    (Reitwiesner 1960); ``value == sum(d << shift)``.
+    """
+    if value < 0:
+        raise ValueError(f"value must be non-negative, not {value}")
+    digits = []
+    shift = 0
+    while value:
+        if value & 1:
+            digit = 2 - (value & 3)      # +1 when value = 1 (mod 4), -1 when value = 3 (mod 4)
+            digits.append((shift, digit))
+            value -= digit
+        value >>= 1
+        shift += 1
+    return digits
 
 
 def signed_bits(lo, hi):
@@ -100,6 +121,7 @@ class Analysis:
     witness_max: tuple
     tree_levels: int       # adder levels of the tree (0 for one product)
     has_score: bool
+    arch: str = "tree"
 
     @property
     def headroom_bits(self):
@@ -138,12 +160,17 @@ def _term_range(weight, lo, hi):
     return min(a, b), max(a, b)
 
 
-def analyse(model, *, score_bits=None):
+def analyse(model, *, score_bits=None, arch="tree"):
     """Plan the adder tree of ``model.unit`` and size every node exactly.
 
     ``score_bits`` (default: the model's, else the minimum) may be wider than needed; the extra
     bits are reported as headroom. A narrower request is refused: it could overflow.
+    ``arch="shiftadd"`` has no multipliers: each weight's magnitude is recoded in canonical
+    signed digits and every nonzero digit becomes a shifted input, a leaf of the same tree.
     """
+    if arch not in ARCHITECTURES:
+        raise InputError(f"must be one of {', '.join(ARCHITECTURES)}, not {arch!r}",
+                         field="arch")
     unit = model.unit
     ranges = model.feature_ranges
     weights = unit.weights
@@ -157,14 +184,45 @@ def analyse(model, *, score_bits=None):
         nodes.append(node)
         return node
 
+    coefficients = {}    # node index -> {feature: coefficient} of the value the node computes
+
+    def exact(coeffs, constant=0):
+        # A node computes a linear form in independent features: its exact range is the sum
+        # of each term's range. With shift-add leaves a feature can appear in several leaves,
+        # so the coefficients are merged first (plain interval arithmetic would overestimate).
+        lo = hi = constant
+        for feature, c in coeffs.items():
+            a, b = c * ranges[feature][0], c * ranges[feature][1]
+            lo, hi = lo + min(a, b), hi + max(a, b)
+        return lo, hi
+
+    def combine(left, right, kind):
+        merged = dict(coefficients[left.index])
+        factor = {"add": 1, "sub": -1, "rsub": -1}[kind]
+        if kind == "rsub":
+            merged = {f: -c for f, c in merged.items()}
+            factor = 1
+        for f, c in coefficients[right.index].items():
+            merged[f] = merged.get(f, 0) + factor * c
+        return {f: c for f, c in merged.items() if c}
+
     layer = []
     for index, (weight, (lo, hi)) in enumerate(zip(weights, ranges)):
         if weight == 0:
             continue
         magnitude = abs(weight)
-        layer.append(add(name=f"p{index}", kind="product", children=(), lo=lo * magnitude,
-                         hi=hi * magnitude, level=0, sign=1 if weight > 0 else -1,
-                         feature=index, magnitude=magnitude))
+        sign = 1 if weight > 0 else -1
+        if arch == "tree":
+            layer.append(add(name=f"p{index}", kind="product", children=(), lo=lo * magnitude,
+                             hi=hi * magnitude, level=0, sign=sign, feature=index,
+                             magnitude=magnitude))
+            coefficients[layer[-1].index] = {index: magnitude}
+            continue
+        for shift, digit in csd_digits(magnitude):
+            layer.append(add(name=f"p{index}_{shift}", kind="product", children=(),
+                             lo=lo << shift, hi=hi << shift, level=0, sign=sign * digit,
+                             feature=index, magnitude=1 << shift))
+            coefficients[layer[-1].index] = {index: 1 << shift}
 
     level = 0
     while len(layer) > 1:
@@ -174,16 +232,16 @@ def analyse(model, *, score_bits=None):
             left, right = layer[position], layer[position + 1]
             if left.sign == right.sign:
                 kind, sign = "add", left.sign
-                lo, hi = left.lo + right.lo, left.hi + right.hi
             elif left.sign > 0:
                 kind, sign = "sub", 1
-                lo, hi = left.lo - right.hi, left.hi - right.lo
             else:
                 kind, sign = "rsub", 1
-                lo, hi = right.lo - left.hi, right.hi - left.lo
+            coeffs = combine(left, right, kind)
+            lo, hi = exact(coeffs)
             next_layer.append(add(name=f"s{level}_{position // 2}", kind=kind,
                                   children=(left.index, right.index), lo=lo, hi=hi,
                                   level=level, sign=sign))
+            coefficients[next_layer[-1].index] = coeffs
         if len(layer) % 2:
             next_layer.append(layer[-1])
         layer = next_layer
@@ -222,7 +280,7 @@ def analyse(model, *, score_bits=None):
                     nodes=tuple(nodes), tree_root=tree_root, score_node=score_node,
                     score_range=(score_lo, score_hi), score_bits_min=score_bits_min,
                     score_bits=score_bits, witness_min=witness_min, witness_max=witness_max,
-                    tree_levels=level, has_score=has_score)
+                    tree_levels=level, has_score=has_score, arch=arch)
 
 
 def _root_is_exact(nodes, root, lo, hi):
