@@ -56,15 +56,29 @@ def test_fit_without_formats_warns_and_sizes_from_data(tmp_path):
     assert "sized only for the ranges seen" in result.stderr
 
 
-def test_multiclass_fit_makes_a_bank_that_build_refuses_for_now(tmp_path):
+def test_multiclass_fit_makes_a_bank_that_builds(tmp_path):
     rng = np.random.default_rng(2)
-    rows = [[*rng.integers(0, 16, 3), int(rng.integers(0, 3))] for _ in range(90)]
+    rows = []
+    for _ in range(150):
+        label = int(rng.integers(0, 3))
+        centre = [(3, 3, 12), (12, 4, 4), (6, 13, 8)][label]
+        rows.append([int(np.clip(c + rng.integers(-2, 3), 0, 15)) for c in centre] + [label])
     data = write_csv(tmp_path / "d.csv", ["a", "b", "c", "label"], rows)
     model = tmp_path / "m.toml"
-    assert run("fit", data, "--out", model, "--input-bits", "4", "--epochs", "5").returncode == 0
+    assert run("fit", data, "--out", model, "--input-bits", "4", "--epochs", "50").returncode == 0
     text = model.read_text()
     assert text.count("[[unit]]") == 3 and "class_labels = [0, 1, 2]" in text
-    assert_one_line_error(run("build", model, "--out", tmp_path / "o"), 2, "bank of 3 units")
+    out = tmp_path / "o"
+    result = run("build", model, "--out", out, "--data", data, "--vectors", "3000",
+                 "--pipeline", "2")
+    assert result.returncode == 0, result.stderr
+    report = json.loads((out / "report.json").read_text())
+    assert report["mismatches"] == 0 and len(report["units"]) == 3
+    assert report["data"]["accuracy"] == 1.0
+    verilog = (out / "thresh_unit.v").read_text()
+    assert "output reg [1:0] y" in verilog
+    for unit in ("class_0", "class_1", "class_2"):
+        assert f"score_{unit}" in verilog
 
 
 BAD_CSV = {

@@ -75,13 +75,13 @@ def test_testbench_fails_on_a_corrupted_expectation(tmp_path):
     assert "PASS" in printed
     run = tmp_path / "run"
     lines = (run / "expected.hex").read_text().splitlines()
-    # Flip the lowest score bit of the first cycle with a valid output.
+    # Flip the lowest score bit of the first cycle with a valid output. The expected word
+    # holds, from bit 0: in_ready, out_valid, the decision (1 bit here), then the score.
     width = len(lines[0])
     for i, line in enumerate(lines):
         value = int(line, 16)
-        score_bits = dut.analysis.score_bits
-        if (value >> (score_bits + 1)) & 1:        # out_valid expected
-            lines[i] = f"{value ^ 1:0{width}x}"
+        if (value >> 1) & 1:                       # out_valid expected
+            lines[i] = f"{value ^ (1 << 3):0{width}x}"
             break
     (run / "expected.hex").write_text("\n".join(lines) + "\n")
     subprocess.run(["vvp", "-n", f"{model.module}_tb.vvp"], cwd=run, check=True,

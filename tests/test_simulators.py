@@ -125,8 +125,9 @@ def test_exported_testbench_passes_and_fails_on_a_corrupted_expectation(built, t
     result = subprocess.run(command, shell=True, cwd=folder, capture_output=True, text=True)
     assert result.returncode == 0 and "PASS pump_fault" in result.stdout, result.stdout
     lines = (folder / "expected.hex").read_text().splitlines()
-    index = next(i for i, line in enumerate(lines) if (int(line, 16) >> 19) & 1)
-    lines[index] = f"{int(lines[index], 16) ^ 2:0{len(lines[0])}x}"
+    # Bits from 0: in_ready, out_valid, decision, score. Flip a score bit where valid.
+    index = next(i for i, line in enumerate(lines) if (int(line, 16) >> 1) & 1)
+    lines[index] = f"{int(lines[index], 16) ^ (1 << 4):0{len(lines[0])}x}"
     (folder / "expected.hex").write_text("\n".join(lines) + "\n")
     result = subprocess.run(command, shell=True, cwd=folder, capture_output=True, text=True)
     assert "FAIL pump_fault" in result.stdout and "MISMATCH" in result.stdout

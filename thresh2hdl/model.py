@@ -181,6 +181,16 @@ class Model:
                 raise ValueError(f"feature name {feature.name!r} clashes with "
                                  f"{names[feature.name]}; rename one of them")
             names[feature.name] = "a feature"
+        if len(self.units) > 1 and self.ports.has_score:
+            for unit in self.units:
+                port = f"{self.ports.score}_{unit.name}"
+                if port in names:
+                    raise ValueError(f"score port {port!r} of unit {unit.name!r} clashes with "
+                                     f"{names[port]}; rename one of them")
+                names[port] = f"the score port of unit {unit.name}"
+        unit_names = [unit.name for unit in self.units]
+        if len(set(unit_names)) != len(unit_names):
+            raise ValueError("unit names must differ")
         if self.module in names:
             raise ValueError(f"module name {self.module!r} is also a port name; rename one")
 

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 from .errors import InputError
 
-__all__ = ["csd_digits", "ARCHITECTURES", "signed_bits", "unsigned_bits", "value_bits", "Node", "Analysis", "analyse",
+__all__ = ["BankPlan", "analyse_bank", "csd_digits", "ARCHITECTURES", "signed_bits", "unsigned_bits", "value_bits", "Node", "Analysis", "analyse",
            "bit_growth_bound", "MAX_SCORE_BITS"]
 
 MAX_SCORE_BITS = 128
@@ -160,7 +160,7 @@ def _term_range(weight, lo, hi):
     return min(a, b), max(a, b)
 
 
-def analyse(model, *, score_bits=None, arch="tree"):
+def analyse(model, *, score_bits=None, arch="tree", unit_index=None):
     """Plan the adder tree of ``model.unit`` and size every node exactly.
 
     ``score_bits`` (default: the model's, else the minimum) may be wider than needed; the extra
@@ -171,7 +171,7 @@ def analyse(model, *, score_bits=None, arch="tree"):
     if arch not in ARCHITECTURES:
         raise InputError(f"must be one of {', '.join(ARCHITECTURES)}, not {arch!r}",
                          field="arch")
-    unit = model.unit
+    unit = model.unit if unit_index is None else model.units[unit_index]
     ranges = model.feature_ranges
     weights = unit.weights
     if score_bits is None:
@@ -250,7 +250,8 @@ def analyse(model, *, score_bits=None, arch="tree"):
     terms = [_term_range(w, lo, hi) for w, (lo, hi) in zip(weights, ranges)]
     score_lo = sum(t[0] for t in terms) + unit.bias
     score_hi = sum(t[1] for t in terms) + unit.bias
-    has_score = model.ports.has_score
+    # A bank needs every unit's score for its argmax, whether or not the ports show them.
+    has_score = model.ports.has_score or model.is_bank
 
     score_node = None
     if tree_root is not None:
@@ -288,3 +289,44 @@ def _root_is_exact(nodes, root, lo, hi):
     if node.sign > 0:
         return (node.lo, node.hi) == (lo, hi)
     return (-node.hi, -node.lo) == (lo, hi)
+
+
+@dataclass(frozen=True)
+class BankPlan:
+    """Several units sharing the inputs; the decision is the argmax of their scores."""
+
+    units: tuple          # one Analysis per unit
+    class_bits: int       # width of the class index
+    argmax_levels: int
+
+    @property
+    def tree_levels(self):
+        return max(unit.tree_levels for unit in self.units)
+
+    @property
+    def score_level(self):
+        """Level of the bias adders, common to every unit."""
+        return self.tree_levels + 1
+
+    @property
+    def final_level(self):
+        return self.score_level + self.argmax_levels
+
+
+def analyse_bank(model, *, score_bits=None, arch="tree"):
+    """Analyse every unit of a bank; ``score_bits`` (if given) is the width of every score port."""
+    if score_bits is None:
+        score_bits = model.score_bits
+    units = []
+    for index in range(len(model.units)):
+        own = analyse(model, arch=arch, unit_index=index)
+        if score_bits is not None:
+            if score_bits < own.score_bits_min:
+                raise InputError(f"score_bits {score_bits} cannot hold the score range "
+                                 f"{list(own.score_range)} of unit {model.units[index].name}; "
+                                 f"it needs at least {own.score_bits_min}", field="score_bits")
+            own = analyse(model, arch=arch, unit_index=index, score_bits=score_bits)
+        units.append(own)
+    count = len(units)
+    return BankPlan(units=tuple(units), class_bits=max(1, (count - 1).bit_length()),
+                    argmax_levels=(count - 1).bit_length())

@@ -6,7 +6,7 @@ range analysis proves that no partial sum can leave int64; otherwise Python inte
 
 import numpy as np
 
-__all__ = ["ReferenceModel", "cycle_model"]
+__all__ = ["ReferenceModel", "BankReference", "cycle_model"]
 
 _INT64_LIMIT = (1 << 63) - 1
 
@@ -41,6 +41,11 @@ class ReferenceModel:
 
     @classmethod
     def from_model(cls, model):
+        """The reference for a model: a :class:`BankReference` when it has several units."""
+        if model.is_bank:
+            return BankReference([cls(weights=u.weights, bias=u.bias,
+                                      feature_ranges=model.feature_ranges)
+                                  for u in model.units])
         return cls(weights=model.unit.weights, bias=model.unit.bias,
                    feature_ranges=model.feature_ranges)
 
@@ -59,6 +64,35 @@ class ReferenceModel:
     def decisions(self, vectors):
         """``1`` where the score is strictly positive, else ``0``."""
         return (self.scores(vectors) > 0).astype(np.uint8)
+
+
+class BankReference:
+    """Units sharing the inputs: scores per unit, decision = index of the largest score, ties
+    going to the lowest index.
+
+    Examples
+    --------
+    >>> bank = BankReference([ReferenceModel(weights=[1, 0], bias=0, feature_ranges=[(0, 9)] * 2),
+    ...                       ReferenceModel(weights=[0, 1], bias=0, feature_ranges=[(0, 9)] * 2)])
+    >>> bank.decisions([[3, 5], [5, 3], [4, 4]]).tolist()
+    [1, 0, 0]
+    """
+
+    def __init__(self, units):
+        self.units = tuple(units)
+
+    def scores(self, vectors):
+        """Scores, shape (rows, units)."""
+        columns = [unit.scores(vectors) for unit in self.units]
+        if all(c.dtype != object for c in columns):
+            return np.stack(columns, axis=1)
+        return np.stack([np.asarray(c, dtype=object) for c in columns], axis=1)
+
+    def decisions(self, vectors):
+        scores = self.scores(vectors)
+        if scores.dtype != object:
+            return np.argmax(scores, axis=1)     # first maximum: ties to the lowest index
+        return np.array([max(range(len(row)), key=lambda i: (row[i], -i)) for row in scores])
 
 
 def cycle_model(latency, count, *, offer, accept):

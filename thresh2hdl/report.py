@@ -35,7 +35,7 @@ def summary_lines(report):
     lo, hi = report["score_range"]
     verification = report["verification"]
     lines = [
-        f"module {report['module']}: {len(report['weights'])} features -> "
+        f"module {report['module']}: {len(report['features'])} features -> "
         f"{report['verilog']}",
         f"  score range [{lo}, {hi}] needs {report['score_bits_min']} bits; port "
         f"{report['score_bits']} bits (headroom {report['headroom_bits']})",

@@ -51,13 +51,11 @@ def simulate_amaranth(component, stimulus, *, progress=None):
     columns = [stimulus.in_valid.astype(np.int64), stimulus.out_ready.astype(np.int64),
                *stimulus.inputs.T]
     packed = _pack_columns(columns, widths)
-    has_score = hasattr(component, "score")
-    outputs = [component.in_ready, component.out_valid, component.y]
-    if has_score:
-        outputs.append(component.score)
+    score_ports = component.score_ports
+    outputs = [component.in_ready, component.out_valid, component.y, *score_ports]
     input_bus = Cat(*inputs)
     output_bus = Cat(*outputs)
-    score_bits = len(component.score) if has_score else 0
+    decision_bits = len(component.y)
     recorded = []
 
     async def testbench(ctx):
@@ -88,11 +86,18 @@ def simulate_amaranth(component, stimulus, *, progress=None):
     raw = np.array(recorded, dtype=object)
     in_ready = (raw & 1).astype(bool)
     out_valid = ((raw >> 1) & 1).astype(bool)
-    decisions = ((raw >> 2) & 1).astype(np.uint8)
+    decisions = ((raw >> 2) & ((1 << decision_bits) - 1)).astype(np.int64)
     scores = None
-    if has_score:
-        unsigned = (raw >> 3) & ((1 << score_bits) - 1)
-        sign = 1 << (score_bits - 1)
-        scores = np.array([int(v) - (1 << score_bits) if v & sign else int(v) for v in unsigned],
-                          dtype=object)
+    if score_ports:
+        columns = []
+        shift = 2 + decision_bits
+        for port in score_ports:
+            width = len(port)
+            unsigned = (raw >> shift) & ((1 << width) - 1)
+            sign = 1 << (width - 1)
+            columns.append([int(v) - (1 << width) if v & sign else int(v) for v in unsigned])
+            shift += width
+        scores = np.array(columns, dtype=object).T
+        if not component.config.model.is_bank:
+            scores = scores[:, 0]
     return SimulationResult("amaranth", in_ready, out_valid, decisions, scores)

@@ -103,7 +103,7 @@ class Mismatch:
     cycle: int
     signal: str
     expected: int
-    got: int
+    got: int | None     # None: the simulator showed an unknown (x) value
     vector_index: int | None
 
     def describe(self, stimulus, feature_names=None, origin=None):
@@ -137,8 +137,9 @@ def compare(stimulus, in_ready, out_valid, decisions, scores, *, limit=10):
         nonlocal total
         total += len(cycles)
         for t in cycles[: limit - len(mismatches)]:
-            mismatches.append(Mismatch(int(t), signal, int(expected[t]), int(got[t]),
-                                       int(index[t])))
+            value = got[t]
+            mismatches.append(Mismatch(int(t), signal, int(expected[t]),
+                                       None if value is None else int(value), int(index[t])))
 
     in_ready = np.asarray(in_ready).astype(bool)
     out_valid = np.asarray(out_valid).astype(bool)
@@ -153,11 +154,17 @@ def compare(stimulus, in_ready, out_valid, decisions, scores, *, limit=10):
     got_y = np.asarray(decisions).astype(np.int64)
     note(shown[got_y[shown] != expected_y[shown]], "decision", expected_y, got_y, index)
     if scores is not None:
-        expected_s = np.zeros(stimulus.cycles, dtype=object)
-        expected_s[shown] = stimulus.expect_scores[index[shown]]
-        got_s = np.asarray(scores, dtype=object)
-        bad = shown[got_s[shown] != expected_s[shown]]
-        note(bad, "score", expected_s, got_s, index)
+        expect = stimulus.expect_scores.reshape(len(stimulus.expect_scores), -1)
+        got_all = np.asarray(scores).reshape(stimulus.cycles, -1)
+        for unit in range(expect.shape[1]):
+            signal = "score" if expect.shape[1] == 1 else f"score[{unit}]"
+            got_s = got_all[:, unit]
+            expected_s = np.zeros(stimulus.cycles, dtype=expect.dtype)
+            expected_s[shown] = expect[index[shown], unit]
+            if got_s.dtype == object or expected_s.dtype == object:
+                got_s, expected_s = got_s.astype(object), expected_s.astype(object)
+            bad = shown[got_s[shown] != expected_s[shown]]
+            note(bad, signal, expected_s, got_s, index)
     mismatches.sort(key=lambda m: m.cycle)
     transfers = int(np.count_nonzero(stimulus.expect_out_valid & stimulus.out_ready))
     return CompareResult(mismatches=tuple(mismatches[:limit]), mismatch_count=total,

@@ -47,10 +47,20 @@ def _range(width):
     return "" if width == 1 else f"[{width - 1}:0] "
 
 
+def _score_ports(ports):
+    return [(name, width) for internal, name, _, width, _ in ports
+            if internal.startswith("score")]
+
+
+def _pad(expression, width):
+    return expression if width == 128 else f"{{{128 - width}'d0, {expression}}}"
+
+
 def testbench_text(ports, module, cycles, files, verilog_name):
     """Testbench source for a module with ``ports`` (from :func:`thresh2hdl.verilog.port_table`)."""
     by_role = {internal: (name, width, signed) for internal, name, _, width, signed in ports}
     features = [(name, width) for internal, name, _, width, _ in ports if internal.startswith("x")]
+    scores = _score_ports(ports)
     tb = lambda role: f"tb_{by_role[role][0]}"
     input_regs = [f"  reg {_range(w)}tb_{n};" for i, n, d, w, s in ports
                   if d == "input" and i not in ("clk", "rst")]
@@ -62,23 +72,30 @@ def testbench_text(ports, module, cycles, files, verilog_name):
     stim_concat = ", ".join([tb("out_ready"), tb("in_valid")]
                             + [f"tb_{n}" for n, _ in reversed(features)])
     stim_bits = 2 + sum(w for _, w in features)
-    has_score = "score" in by_role
-    score_bits = by_role["score"][1] if has_score else 1
-    score_check = ""
-    if has_score:
-        score_check = (f"        if ({tb('score')} !== want[SCORE_BITS-1:0])\n"
-                       f"          report_mismatch(\"score\", {{{{{128 - score_bits}{{1'b0}}}}, "
-                       f"{tb('score')}}}, {{{{{128 - score_bits}{{1'b0}}}}, "
-                       f"want[SCORE_BITS-1:0]}});")
+    decision_bits = by_role["y"][1]
+    # Expected word, low bits first: in_ready, out_valid, decision, then each score.
+    fields = [("in_ready", tb("in_ready"), 1), ("out_valid", tb("out_valid"), 1),
+              ("decision", tb("y"), decision_bits)] + \
+        [(f"score {name}" if len(scores) > 1 else "score", f"tb_{name}", width)
+         for name, width in scores]
+    checks, offset = [], 0
+    for position, (label, signal, width) in enumerate(fields):
+        want = f"want[{offset + width - 1}:{offset}]" if width > 1 else f"want[{offset}]"
+        test = (f"if ({signal} !== {want})\n"
+                f"  report_mismatch(\"{label[:10]}\", {_pad(signal, width)}, {_pad(want, width)});")
+        if position >= 2:            # results count only while out_valid is expected high
+            test = "if (want[1]) " + test.replace("\n", "\n  ")
+        checks += ["      " + line for line in test.splitlines()]
+        offset += width
+    response_format = " ".join(["%b", "%b"] + ["%h"] * (1 + len(scores)))
+    response_fields = ", ".join(signal for _, signal, _ in fields)
     values = {
         "MODULE": module, "TB_MODULE": f"{module}_tb", "CYCLES": str(cycles),
-        "STIM_BITS": str(stim_bits), "EXPECT_BITS": str(3 + score_bits),
-        "SCORE_BITS": str(score_bits), "INPUT_REGS": "\n".join(input_regs),
-        "OUTPUT_WIRES": "\n".join(output_wires), "CONNECTIONS": ",\n".join(connections),
-        "STIM_CONCAT": stim_concat, "IN_READY": tb("in_ready"), "OUT_VALID": tb("out_valid"),
-        "DECISION": tb("y"), "SCORE_CHECK": score_check,
-        "RESPONSE_FIELDS": ", ".join([tb("in_ready"), tb("out_valid"), tb("y"),
-                                      tb("score") if has_score else "1'b0"]),
+        "STIM_BITS": str(stim_bits), "EXPECT_BITS": str(offset),
+        "INPUT_REGS": "\n".join(input_regs), "OUTPUT_WIRES": "\n".join(output_wires),
+        "CONNECTIONS": ",\n".join(connections), "STIM_CONCAT": stim_concat,
+        "CHECKS": "\n".join(checks), "RESPONSE_FORMAT": response_format,
+        "RESPONSE_FIELDS": response_fields,
         "STIMULUS": files.stimulus, "EXPECTED": files.expected, "RESPONSES": files.responses,
         "RUN_COMMAND": files.run_command(verilog_name),
     }
@@ -111,16 +128,18 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     columns = [inputs[:, i] for i in range(inputs.shape[1])]
     columns += [stimulus.in_valid.astype(np.int64), stimulus.out_ready.astype(np.int64)]
     write_text(folder / files.stimulus, _hex_lines(columns, features + [1, 1]))
-    score_port = [w for internal, _, _, w, _ in ports if internal == "score"]
-    score_bits = score_port[0] if score_port else 1
+    scores = _score_ports(ports)
+    decision_bits = next(w for internal, _, _, w, _ in ports if internal == "y")
     index = np.maximum(stimulus.expect_out_index, 0)
     valid = stimulus.expect_out_valid
-    scores = np.where(valid, stimulus.expect_scores[index], 0) if score_port else \
-        np.zeros(stimulus.cycles, dtype=np.int64)
     decisions = np.where(valid, stimulus.expect_decisions[index], 0)
-    columns = [scores, decisions, valid.astype(np.int64),
-               stimulus.expect_in_ready.astype(np.int64)]
-    write_text(folder / files.expected, _hex_lines(columns, [score_bits, 1, 1, 1]))
+    columns = [stimulus.expect_in_ready.astype(np.int64), valid.astype(np.int64), decisions]
+    widths = [1, 1, decision_bits]
+    expect = stimulus.expect_scores.reshape(len(stimulus.expect_scores), -1)
+    for unit, (_, width) in enumerate(scores):
+        columns.append(np.where(valid, expect[index, unit], 0))
+        widths.append(width)
+    write_text(folder / files.expected, _hex_lines(columns, widths))
     write_text(folder / files.testbench,
                testbench_text(ports, module, stimulus.cycles, files, verilog_name))
     return files
@@ -166,14 +185,18 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
             raise ToolError(f"{Path(command[0]).name} failed: "
                             f"{message[0] if message else result.returncode}")
         outputs.append(result.stdout)
-    score_bits = next((w for i, _, _, w, _ in ports if i == "score"), None)
+    scores_ports = _score_ports(ports)
     rows = (workdir / files.responses).read_text().split("\n")
     rows = [row.split() for row in rows if row]
     in_ready = np.array([row[0] == "1" for row in rows])
     out_valid = np.array([row[1] == "1" for row in rows])
-    decisions = np.array([1 if row[2] == "1" else (0 if row[2] == "0" else -1) for row in rows])
+    decisions = np.array([-1 if any(c in row[2] for c in "xXzZ") else int(row[2], 16)
+                          for row in rows])
     scores = None
-    if score_bits:
-        scores = np.array([_decode(row[3], score_bits) for row in rows], dtype=object)
+    if scores_ports:
+        scores = np.array([[_decode(row[3 + k], width) for k, (_, width) in
+                            enumerate(scores_ports)] for row in rows], dtype=object)
+        if len(scores_ports) == 1 and not any(i.startswith("score0") for i, *_ in ports):
+            scores = scores[:, 0]
     result = SimulationResult("icarus", in_ready, out_valid, decisions, scores)
     return result, outputs[-1]

@@ -87,14 +87,19 @@ def _near_threshold(rng, analysis, count):
     return rows
 
 
-def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=None):
+def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=None,
+                 others=()):
     """Corner vectors (witnesses, all-min, all-max, per-feature extremes), boundary vectors,
-    random vectors within the declared ranges, then optional dataset rows."""
+    random vectors within the declared ranges, then optional dataset rows. ``others`` are the
+    analyses of a bank's other units, whose witnesses join the corners."""
     ranges = analysis.feature_ranges
     n = len(ranges)
     vectors = VectorSet(n)
     vectors.add("witness of the score maximum", [analysis.witness_max])
     vectors.add("witness of the score minimum", [analysis.witness_min])
+    if others:
+        vectors.add("witnesses of the other units",
+                    [w for other in others for w in (other.witness_max, other.witness_min)])
     los = [lo for lo, _ in ranges]
     his = [hi for _, hi in ranges]
     vectors.add("all features at their minimum", [los])

@@ -82,12 +82,14 @@ def harness_text(ports, module):
         # The falling edge is folded into the next cycle's settle: two evaluations a cycle.
         tick = (f"        top.{clk} = 1;\n        top.eval();\n"
                 f"        top.{clk} = 0;")
-    score = f"static_cast<int64_t>(top.{by_role['score'][0]})" if "score" in by_role else "0"
+    scores = [name for internal, name, _, _, _ in ports if internal.startswith("score")]
+    reads = "\n".join(f"        scores[t * kScores + {k}] = static_cast<int64_t>(top.{name});"
+                      for k, name in enumerate(scores))
     values = {"MODULE": module, "FEATURES": str(len(features)), "RESET": reset, "TICK": tick,
               "IN_VALID": by_role["in_valid"][0], "OUT_READY": by_role["out_ready"][0],
               "IN_READY": by_role["in_ready"][0], "OUT_VALID": by_role["out_valid"][0],
               "DECISION": by_role["y"][0], "SET_FEATURES": "\n".join(lines),
-              "SCORE_READ": score}
+              "SCORE_READS": reads, "SCORE_PORTS": str(len(scores))}
     text = resources.files("thresh2hdl.sim").joinpath("verilator_harness.cpp.in").read_text("utf-8")
     for key, value in values.items():
         text = text.replace(f"@{key}@", value)
@@ -135,10 +137,10 @@ def compiled_harness(verilog_text, ports, module, *, progress=None):
 
 def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
     """Run ``stimulus`` through the emitted Verilog in Verilator; record every cycle."""
-    score_bits = next((w for i, _, _, w, _ in ports if i == "score"), None)
-    if score_bits is not None and score_bits > 64:
+    score_widths = [w for i, _, _, w, _ in ports if i.startswith("score")]
+    if score_widths and max(score_widths) > 64:
         raise ToolError(f"the Verilator harness reads scores of up to 64 bits, this one has "
-                        f"{score_bits}; use --simulator icarus")
+                        f"{max(score_widths)}; use --simulator icarus")
     binary = compiled_harness(verilog_text, ports, module, progress=progress)
     # Codes of up to 32 bits keep their bit pattern (the harness masks to the port width).
     vectors = (stimulus.vectors & 0xFFFFFFFF).astype(np.uint32).view(np.int32)
@@ -159,17 +161,18 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
         run_seconds = time.perf_counter() - started
         if result.returncode != 0:
             raise ToolError(f"the Verilator harness failed: {result.stderr.strip()[:200]}")
-        flags = np.fromfile(folder / "flags.bin", dtype=np.uint8)
+        flags = np.fromfile(folder / "flags.bin", dtype="<u2")
         raw = np.fromfile(folder / "scores.bin", dtype="<i8")
-    if len(flags) != stimulus.cycles or len(raw) != stimulus.cycles:
+    if len(flags) != stimulus.cycles or len(raw) != stimulus.cycles * len(score_widths):
         raise ToolError(f"the Verilator harness returned {len(flags)} cycles, not "
                         f"{stimulus.cycles}")
     scores = None
-    if score_bits is not None and score_bits < 64:
+    if score_widths:
+        raw = raw.reshape(stimulus.cycles, len(score_widths))
         # Verilator keeps a signed port's bits zero-extended in its C++ word: sign-extend.
-        shift = 64 - score_bits
-        scores = (raw << shift) >> shift
-    elif score_bits == 64:
-        scores = raw
+        shifts = np.array([64 - w for w in score_widths], dtype=np.int64)
+        scores = (raw << shifts) >> shifts
+        if not any(i == "score0" for i, *_ in ports):
+            scores = scores[:, 0]
     return SimulationResult("verilator", (flags & 1).astype(bool), (flags & 2).astype(bool),
-                            ((flags >> 2) & 1).astype(np.uint8), scores, run_seconds)
+                            (flags >> 2).astype(np.int64), scores, run_seconds)

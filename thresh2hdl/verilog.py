@@ -293,6 +293,9 @@ def port_table(component, model):
              "out_ready": ports.out_ready, "y": ports.decision, "score": ports.score}
     for index, feature in enumerate(model.features):
         names[f"x{index}"] = feature.name
+    if model.is_bank:
+        for index, unit in enumerate(model.units):
+            names[f"score{index}"] = f"{ports.score}_{unit.name}"
     table = []
     if component.latency > 0:
         table += [("clk", names["clk"], "input", 1, False), ("rst", names["rst"], "input", 1, False)]

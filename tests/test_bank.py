@@ -1,0 +1,127 @@
+"""Banks of units sharing the inputs, decided by argmax with ties to the lowest index."""
+
+import itertools
+
+import numpy as np
+import pytest
+from amaranth.hdl import ClockDomain, Module
+from amaranth.sim import Simulator
+from hypothesis import HealthCheck, given, settings, strategies as st
+
+from conftest import require_tool
+from test_verilog import lint_icarus, lint_verilator
+from thresh2hdl.circuit import ThresholdBank, UnitConfig, make_component
+from thresh2hdl.flow import run_simulator
+from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
+from thresh2hdl.ranges import analyse_bank
+from thresh2hdl.reference import ReferenceModel
+from thresh2hdl.stimulus import make_stimulus
+from thresh2hdl.vectors import make_vectors
+from thresh2hdl.verilog import emit_verilog, port_table
+
+
+def bank_model(weights, biases, *, bits=4, is_signed=False, ports=PortNames()):
+    features = [FeatureFormat(f"f{i}", bits, is_signed) for i in range(len(weights[0]))]
+    units = [Unit(f"c{k}", tuple(w), b) for k, (w, b) in enumerate(zip(weights, biases))]
+    return Model(module="bank", features=features, units=units, ports=ports)
+
+
+def gold(weights, biases, x):
+    """Argmax as written: the first index among the largest scores."""
+    scores = [sum(w * v for w, v in zip(row, x)) + b for row, b in zip(weights, biases)]
+    best = max(scores)
+    return scores.index(best), scores
+
+
+def test_argmax_ties_go_to_the_lowest_index():
+    # Units 1 and 2 are identical, so they always tie; unit 0 never wins on these inputs.
+    weights = [[-1, -1], [2, 1], [2, 1]]
+    biases = [-40, 0, 0]
+    model = bank_model(weights, biases)
+    dut = ThresholdBank(UnitConfig(model, pipeline=2))
+    rows = [list(x) for x in itertools.product(range(16), repeat=2)]
+    top = Module()
+    top.submodules.dut = dut
+    top.domains.sync = ClockDomain("sync")
+    seen = []
+
+    async def testbench(ctx):
+        for t in range(len(rows) + dut.latency):
+            ctx.set(dut.in_valid, int(t < len(rows)))
+            ctx.set(dut.out_ready, 1)
+            for port, value in zip(dut.feature_ports, rows[min(t, len(rows) - 1)]):
+                ctx.set(port, value)
+            if ctx.get(dut.out_valid):
+                seen.append((ctx.get(dut.y), [ctx.get(p) for p in dut.score_ports]))
+            await ctx.tick()
+
+    sim = Simulator(top)
+    sim.add_clock(1e-6, domain="sync")
+    sim.add_testbench(testbench)
+    sim.run()
+    assert seen == [gold(weights, biases, x) for x in rows]
+    assert {y for y, _ in seen} <= {0, 1}
+
+
+def test_bank_reference_matches_gold():
+    weights, biases = [[3, -1, 2], [0, 4, -2], [1, 1, 1], [3, -1, 2]], [5, 0, -3, 5]
+    model = bank_model(weights, biases)
+    x = np.array(list(itertools.product(range(0, 16, 3), repeat=3)))
+    ref = ReferenceModel.from_model(model)
+    assert ref.decisions(x).tolist() == [gold(weights, biases, row)[0] for row in x]
+
+
+banks = st.tuples(st.integers(2, 6), st.integers(1, 5)).flatmap(lambda shape: st.tuples(
+    st.lists(st.lists(st.integers(-200, 200), min_size=shape[1], max_size=shape[1]),
+             min_size=shape[0], max_size=shape[0]),
+    st.lists(st.integers(-2000, 2000), min_size=shape[0], max_size=shape[0]),
+    st.integers(1, 10), st.booleans(), st.booleans(), st.integers(0, 8),
+    st.sampled_from(["tree", "shiftadd"])))
+
+
+def prepared(case, vectors=150):
+    weights, biases, bits, is_signed, with_score, pipeline, arch = case
+    ports = PortNames() if with_score else PortNames(score="")
+    model = bank_model(weights, biases, bits=bits, is_signed=is_signed, ports=ports)
+    pipeline = min(pipeline, analyse_bank(model, arch=arch).final_level + 1)
+    dut = make_component(UnitConfig(model, pipeline=pipeline, arch=arch))
+    rows = make_vectors(dut.analysis, random_count=vectors,
+                        others=dut.plan.units[1:]).array
+    stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
+                             valid_probability=0.8, ready_probability=0.7)
+    return model, dut, stimulus
+
+
+@settings(max_examples=20, deadline=None)
+@given(banks)
+def test_random_banks_agree_with_reference_in_amaranth(case):
+    model, dut, stimulus = prepared(case)
+    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), model.module,
+                              stimulus)
+    assert result.check(stimulus).mismatch_count == 0
+
+
+@pytest.mark.verilator
+@pytest.mark.icarus
+@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(case=banks)
+def test_random_banks_lint_clean_and_agree_in_icarus_and_verilator(tmp_path_factory, case):
+    require_tool("verilator", "g++", "iverilog", "vvp")
+    model, dut, stimulus = prepared(case)
+    folder = tmp_path_factory.mktemp("bank")
+    text = emit_verilog(dut, model)
+    (folder / "bank.v").write_text(text)
+    code, output = lint_verilator(folder, "bank")
+    assert code == 0 and output.strip() == "", output
+    code, output = lint_icarus(folder, "bank.v")
+    assert code == 0 and output.strip() == "", output
+    ports = port_table(dut, model)
+    for simulator in ("icarus", "verilator"):
+        result, _ = run_simulator(simulator, dut, text, ports, model.module, stimulus)
+        assert result.check(stimulus).mismatch_count == 0, simulator
+
+
+def test_bank_score_port_names_must_not_clash():
+    with pytest.raises(ValueError, match="clashes"):
+        Model(module="m", features=[FeatureFormat("score_a", 4)],
+              units=[Unit("a", (1,), 0), Unit("b", (2,), 0)])
