@@ -10,7 +10,7 @@ import click
 
 from .errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
 from .fitting import fit_csv, quantize_npz
-from .flow import BuildOptions, build, check, demo_model
+from .flow import BuildOptions, build, check, demo_model, estimate_folder
 from .train import FitOptions
 
 __all__ = ["main"]
@@ -187,6 +187,20 @@ def check_command(out_dir, netlist, simulator, vectors, seed):
     result = check(out_dir, netlist=netlist, simulator=simulator, vectors=vectors, seed=seed)
     click.echo(f"{result.netlist}: {result.vectors_checked} vectors in {result.simulator_version}"
                f", {result.mismatches} mismatches")
+
+
+@cli.command("estimate")
+@click.argument("out_dir", type=click.Path())
+@click.option("--target", type=click.Choice(["ice40", "ecp5"]), default="ice40",
+              show_default=True, help="ice40: UP5K (sg48); ecp5: LFE5U-25F (CABGA256).")
+def estimate_command(out_dir, target):
+    """Synthesise and place-and-route OUT_DIR's Verilog; add the cost to its report.json."""
+    figures = estimate_folder(out_dir, target=target,
+                              progress=lambda text: click.echo(f"  {text}", err=True))
+    click.echo(f"{target}: {figures['luts']} LUTs, {figures['carries']} carries, "
+               f"{figures['flip_flops']} flip-flops, {figures['dsps']} DSPs, fmax "
+               f"{figures['fmax_mhz']:.1f} MHz ({figures['tool_versions']['yosys'].split(' (')[0]}, "
+               f"{figures['tool_versions']['nextpnr']})")
 
 
 def _fail(message, code):

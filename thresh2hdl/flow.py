@@ -23,7 +23,8 @@ from .data import dataset_for_model, read_csv
 from .errors import InputError, MismatchError, ToolError
 from .model import Model, load_model, model_to_toml, parse_model
 from .ranges import ARCHITECTURES
-from .outdir import check_output_folder, staged_folder, write_text
+from .estimate import estimate_cost
+from .outdir import check_output_folder, staged_folder, write_files, write_text
 from .reference import ReferenceModel
 from .report import REPORT_FORMAT, SAFETY_CAUTION, report_json, summary_lines
 from .simulate import simulate_amaranth
@@ -33,7 +34,7 @@ from .testbench import TestbenchFiles, icarus_version, simulate_icarus, write_te
 from .verilator import find_verilator, simulate_verilator, verilator_version
 from .verilog import emit_verilog, instance_template, port_table
 
-__all__ = ["BuildOptions", "BuildResult", "build", "check", "CheckResult", "demo_model",
+__all__ = ["BuildOptions", "BuildResult", "build", "check", "estimate_folder", "CheckResult", "demo_model",
            "DEMO_SCENARIO", "SIMULATORS"]
 
 DEMO_SCENARIO = "pump_vibration"
@@ -383,25 +384,47 @@ class CheckResult:
         return self.mismatches == 0
 
 
-def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0):
-    """Re-verify a build folder's Verilog, or any file with the same module and ports.
-
-    Reads the model and build settings from ``out_dir`` (model.toml, report.json) and runs the
-    Verilog file in Verilator or Icarus against the integer reference model.
-    """
+def _load_folder(out_dir):
+    """The model, report and rebuilt component of a build folder."""
     out_dir = Path(out_dir)
     if not out_dir.is_dir():
         raise InputError("is not a build folder", source=out_dir)
     model = load_model(out_dir / "model.toml")
     try:
         settings = json.loads((out_dir / "report.json").read_text(encoding="utf-8"))
-        pipeline, score_bits = int(settings["latency_cycles"]), int(settings["score_bits"])
+        pipeline = int(settings["latency_cycles"])
+        units = settings.get("units")
+        score_bits = int(settings["score_bits"]) if not units else None
+        if units and len({u["score_bits"] for u in units}) == 1 and \
+                units[0]["score_bits"] != units[0]["score_bits_min"]:
+            score_bits = int(units[0]["score_bits"])
         arch = str(settings.get("tree", {}).get("arch", "tree"))
     except (OSError, ValueError, KeyError, TypeError) as error:
         raise InputError(f"cannot read the build settings ({type(error).__name__}: {error})",
                          source=out_dir / "report.json") from None
     component = make_component(UnitConfig(model, pipeline=pipeline, score_bits=score_bits,
                                           arch=arch))
+    return out_dir, model, settings, component
+
+
+def estimate_folder(out_dir, *, target="ice40", progress=None):
+    """Cost of a build folder's Verilog on ``target``; written into its report.json."""
+    out_dir, model, settings, component = _load_folder(out_dir)
+    text = (out_dir / settings["verilog"]).read_text(encoding="utf-8")
+    figures = estimate_cost(text, model.module, port_table(component, model), target=target,
+                            progress=progress)
+    settings["estimate"] = figures
+    write_files({out_dir / "report.json": report_json(settings)}, force=True)
+    return figures
+
+
+def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0):
+    """Re-verify a build folder's Verilog, or any file with the same module and ports.
+
+    Reads the model and build settings from ``out_dir`` (model.toml, report.json) and runs the
+    Verilog file in Verilator or Icarus against the integer reference model.
+    """
+    out_dir, model, settings, component = _load_folder(out_dir)
     ports = port_table(component, model)
     path = Path(netlist) if netlist is not None else out_dir / f"{model.module}.v"
     try:

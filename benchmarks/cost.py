@@ -1,0 +1,53 @@
+"""FPGA cost of our architectures against a naive design, measured in the same run.
+
+    python benchmarks/cost.py        (needs pip install 'thresh2hdl[synth]')
+
+A 16-feature, unsigned 12-bit, 8-bit-weight unit on iCE40 UP5K. The naive design is plain
+Verilog written here: every product and the sum in 32-bit signed arithmetic, registered outputs.
+Targets: LUT4 <= 0.40x the naive design; fmax >= 75 MHz for the pipelined multiplier-free one.
+"""
+
+import numpy as np
+
+from thresh2hdl.circuit import UnitConfig, make_component
+from thresh2hdl.estimate import estimate_cost
+from thresh2hdl.model import FeatureFormat, Model, Unit
+from thresh2hdl.verilog import emit_verilog, port_table
+
+
+def naive_verilog(weights, bias):
+    ports = ",\n".join([f"  input wire [11:0] x{i}" for i in range(len(weights))])
+    terms = " + ".join(f"$signed({{20'd0, x{i}}}) * {w}" for i, w in enumerate(weights))
+    return (f"module naive (\n  input wire clk,\n{ports},\n  output reg y,\n"
+            f"  output reg signed [31:0] score\n);\n"
+            f"  wire signed [31:0] sum = {terms} + {bias};\n"
+            f"  always @(posedge clk) begin\n    score <= sum;\n    y <= sum > 0;\n  end\n"
+            f"endmodule\n")
+
+
+def main():
+    rng = np.random.default_rng(0)
+    weights = [int(v) for v in rng.integers(-128, 128, 16)]
+    bias = -20000
+    model = Model(module="unit16", features=[FeatureFormat(f"x{i}", 12) for i in range(16)],
+                  units=[Unit("u", tuple(weights), bias)])
+    naive_ports = [("clk", "clk", "input", 1, False)] + \
+        [(f"x{i}", f"x{i}", "input", 12, False) for i in range(16)] + \
+        [("y", "y", "output", 1, False), ("score", "score", "output", 32, True)]
+    base = estimate_cost(naive_verilog(weights, bias), "naive", naive_ports)
+    print(f"naive 32-bit: {base['luts']} LUT4, {base['carries']} carries, "
+          f"{base['fmax_mhz']:.1f} MHz  ({base['tool_versions']['yosys']}, "
+          f"{base['tool_versions']['nextpnr']})")
+    for arch, pipeline in (("tree", 1), ("tree", 3), ("shiftadd", 1), ("shiftadd", 3),
+                           ("shiftadd", 6)):
+        dut = make_component(UnitConfig(model, pipeline=pipeline, arch=arch))
+        figures = estimate_cost(emit_verilog(dut, model), model.module, port_table(dut, model))
+        print(f"{arch:8s} pipeline {pipeline}: {figures['luts']} LUT4 "
+              f"({figures['luts'] / base['luts']:.2f}x naive; target <= 0.40x), "
+              f"{figures['carries']} carries, {figures['flip_flops']} flip-flops, "
+              f"{figures['fmax_mhz']:.1f} MHz (target >= 75 MHz pipelined, multiplier-free)")
+    print("serial: not measured, the serial architecture is not built yet")
+
+
+if __name__ == "__main__":
+    main()

