@@ -50,7 +50,7 @@ def test_demo_end_to_end(tmp_path):
     assert (out / report["verilog"]).read_text().startswith("// pump_fault")
     assert sorted(p.name for p in out.iterdir()) == sorted(
         ["pump_fault.v", "pump_fault_instance.vh", "model.toml", "report.json",
-         "pump_fault_tb.v", "stimulus.hex", "expected.hex"])
+         "pump_fault_tb.v", "stimulus.hex", "expected.hex", "report.html", "report.md"])
 
 
 def test_build_example_twice_is_byte_identical(tmp_path):
@@ -61,7 +61,7 @@ def test_build_example_twice_is_byte_identical(tmp_path):
         assert result.returncode == 0, result.stderr
         outs.append(tmp_path / name)
     for file in ("pump_fault.v", "pump_fault_instance.vh", "model.toml", "pump_fault_tb.v",
-                 "stimulus.hex", "expected.hex"):
+                 "stimulus.hex", "expected.hex", "report.html", "report.md"):
         assert (outs[0] / file).read_bytes() == (outs[1] / file).read_bytes()
     reports = [json.loads((o / "report.json").read_text()) for o in outs]
     for report in reports:

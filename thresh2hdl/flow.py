@@ -26,6 +26,7 @@ from .ranges import ARCHITECTURES
 from .estimate import estimate_cost
 from .outdir import check_output_folder, staged_folder, write_files, write_text
 from .reference import ReferenceModel
+from .report_html import report_html, report_markdown
 from .report import REPORT_FORMAT, SAFETY_CAUTION, report_json, summary_lines
 from .simulate import simulate_amaranth
 from .stimulus import make_stimulus
@@ -205,8 +206,21 @@ def data_summary(model, reference, dataset):
         per_class[str(label)] = {"rows": int(rows.sum()),
                                  "correct": int((predicted[rows] == label).sum()),
                                  "predicted": int((predicted == label).sum())}
-    return {"file": Path(dataset.source).name, "rows": len(dataset),
-            "accuracy": float(np.mean(predicted == dataset.labels)), "per_class": per_class}
+    labels = list(model.labels)
+    confusion = [[int(np.count_nonzero((dataset.labels == true) & (predicted == guess)))
+                  for guess in labels] for true in labels]
+    summary = {"file": Path(dataset.source).name, "rows": len(dataset),
+               "accuracy": float(np.mean(predicted == dataset.labels)), "per_class": per_class,
+               "confusion": {"labels": labels, "rows_true_columns_predicted": confusion}}
+    if not model.is_bank:
+        # Score histogram per class, for the report's picture of the decision threshold.
+        scores = np.asarray(reference.scores(dataset.x), dtype=np.float64)
+        edges = np.histogram_bin_edges(scores, bins=30)
+        summary["score_seen"] = [float(scores.min()), float(scores.max())]
+        summary["histogram"] = {"edges": [float(e) for e in edges], "counts": {
+            str(label): np.histogram(scores[dataset.labels == label], bins=edges)[0].tolist()
+            for label in labels}}
+    return summary
 
 
 def unit_analyses(component):
@@ -336,6 +350,8 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         write_text(staging / "model.toml", model_to_toml(
             model, comment="The model this folder was built from (canonical form)."))
         write_text(staging / "report.json", report_json(report))
+        write_text(staging / "report.html", report_html(report))
+        write_text(staging / "report.md", report_markdown(report))
         exported = verified.exported
         if len(exported.vectors) > EXPORTED_VECTORS + 4 * len(analysis.weights) + 1100:
             small = make_vectors(analysis, random_count=EXPORTED_VECTORS, seed=options.seed,
@@ -414,7 +430,9 @@ def estimate_folder(out_dir, *, target="ice40", progress=None):
     figures = estimate_cost(text, model.module, port_table(component, model), target=target,
                             progress=progress)
     settings["estimate"] = figures
-    write_files({out_dir / "report.json": report_json(settings)}, force=True)
+    write_files({out_dir / "report.json": report_json(settings),
+                 out_dir / "report.html": report_html(settings),
+                 out_dir / "report.md": report_markdown(settings)}, force=True)
     return figures
 
 

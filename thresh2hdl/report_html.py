@@ -1,0 +1,192 @@
+"""report.html (one self-contained file, inline SVG, no network) and report.md, from report.json.
+
+Both are made from the same report dictionary as report.json, so the three never disagree.
+"""
+
+from html import escape
+
+__all__ = ["report_html", "report_markdown"]
+
+_STYLE = """
+body{font:14px/1.45 system-ui,sans-serif;margin:2em auto;max-width:60em;color:#222}
+h1{font-size:1.5em}h2{font-size:1.15em;margin-top:1.6em;border-bottom:1px solid #ccc}
+table{border-collapse:collapse;margin:.5em 0}td,th{border:1px solid #ccc;padding:2px 8px;
+text-align:right}th{background:#f3f3f3}td.l,th.l{text-align:left}
+.caution{border:2px solid #b35900;background:#fff4e5;padding:.6em 1em}
+.ok{color:#176117;font-weight:bold}.bad{color:#a00;font-weight:bold}
+svg text{font:11px system-ui,sans-serif}code{background:#f3f3f3;padding:0 3px}
+@media print{.caution{break-inside:avoid}}
+"""
+
+
+def _table(headers, rows):
+    head = "".join(f"<th{' class=l' if i == 0 else ''}>{escape(str(h))}</th>"
+                   for i, h in enumerate(headers))
+    body = "".join("<tr>" + "".join(f"<td{' class=l' if i == 0 else ''}>{escape(str(c))}</td>"
+                                    for i, c in enumerate(row)) + "</tr>" for row in rows)
+    return f"<table><tr>{head}</tr>{body}</table>"
+
+
+def _node_bars(nodes):
+    """Each tree node's range against the range its width can hold (headroom visible)."""
+    row, width, left = 16, 560, 170
+    parts = []
+    for i, node in enumerate(nodes):
+        lo, hi = node["range"]
+        bits = node["bits"]
+        cap_lo, cap_hi = (-(1 << (bits - 1)), (1 << (bits - 1)) - 1) if node["signed"] \
+            else (0, (1 << bits) - 1)
+        span = cap_hi - cap_lo or 1
+        x0 = left + (lo - cap_lo) / span * width
+        x1 = left + (hi - cap_lo) / span * width
+        y = 18 + i * row
+        parts.append(f'<text x="0" y="{y + 10}">{escape(node["name"])} ({bits} bits)</text>'
+                     f'<rect x="{left}" y="{y}" width="{width}" height="11" fill="#eee" '
+                     f'stroke="#999"/><rect x="{x0:.1f}" y="{y}" width="{max(1.0, x1 - x0):.1f}"'
+                     f' height="11" fill="#4a7ebb"/>')
+    height = 24 + len(nodes) * row
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" width="{left + width + 10}" '
+            f'height="{height}" role="img" aria-label="node ranges against widths">'
+            f'<text x="{left}" y="11">grey: what the width can hold; blue: the exact range'
+            f'</text>{"".join(parts)}</svg>')
+
+
+def _score_line(report):
+    lo, hi = report["score_range"]
+    seen = (report.get("data") or {}).get("score_seen")
+    width, left = 600, 20
+    span = (hi - lo) or 1
+    pos = lambda v: left + (v - lo) / span * width
+    parts = [f'<rect x="{left}" y="20" width="{width}" height="14" fill="#dde6f3" '
+             f'stroke="#4a7ebb"/><text x="{left}" y="14">declared inputs: [{lo}, {hi}]</text>']
+    if seen:
+        parts.append(f'<rect x="{pos(seen[0]):.1f}" y="40" width="{max(1, pos(seen[1]) - pos(seen[0])):.1f}" '
+                     f'height="10" fill="#8a8"/><text x="{left}" y="66">seen on data: '
+                     f'[{seen[0]:g}, {seen[1]:g}]</text>')
+    if lo <= 0 <= hi and not report.get("units"):
+        parts.append(f'<line x1="{pos(0):.1f}" y1="14" x2="{pos(0):.1f}" y2="54" '
+                     f'stroke="#a00" stroke-width="2"/><text x="{pos(0) + 4:.1f}" y="54">'
+                     f'threshold (score &gt; 0)</text>')
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" width="{left + width + 140}" height="72" '
+            f'role="img" aria-label="score range">{"".join(parts)}</svg>')
+
+
+def _histogram(data):
+    histogram = data.get("histogram")
+    if not histogram:
+        return ""
+    edges, counts = histogram["edges"], histogram["counts"]
+    colours = ["#4a7ebb", "#c0504d", "#9bbb59", "#8064a2"]
+    top = max(max(c) for c in counts.values()) or 1
+    width, height, left = 600, 150, 20
+    bar = width / (len(edges) - 1)
+    parts = []
+    for k, (label, values) in enumerate(counts.items()):
+        for i, value in enumerate(values):
+            h = value / top * height
+            parts.append(f'<rect x="{left + i * bar + k * bar / len(counts):.1f}" '
+                         f'y="{10 + height - h:.1f}" width="{bar / len(counts):.1f}" '
+                         f'height="{h:.1f}" fill="{colours[k % len(colours)]}"/>')
+        parts.append(f'<text x="{left + width + 8}" y="{20 + 14 * k}" '
+                     f'fill="{colours[k % len(colours)]}">class {escape(label)}</text>')
+    lo, hi = edges[0], edges[-1]
+    if lo <= 0 <= hi:
+        x = left + (0 - lo) / ((hi - lo) or 1) * width
+        parts.append(f'<line x1="{x:.1f}" y1="5" x2="{x:.1f}" y2="{height + 12}" stroke="#a00"/>')
+    parts.append(f'<text x="{left}" y="{height + 26}">score {lo:g} .. {hi:g}</text>')
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" width="{left + width + 90}" '
+            f'height="{height + 32}" role="img" aria-label="score histogram per class">'
+            f'{"".join(parts)}</svg>')
+
+
+def report_html(report):
+    """The report as one self-contained HTML page."""
+    v = report["verification"]
+    ok = report["mismatches"] == 0
+    out = [f"<!DOCTYPE html><html lang=en><head><meta charset=utf-8>"
+           f"<title>{escape(report['module'])}: thresh2hdl report</title>"
+           f"<style>{_STYLE}</style></head><body>",
+           f"<h1>{escape(report['module'])}</h1>",
+           f"<p class=caution><b>Caution.</b> {escape(report['caution'])}</p>",
+           f"<p>Built by thresh2hdl {escape(report['tool_versions']['thresh2hdl'])} from the model "
+           f"with sha256 <code>{escape(report['model_sha256'])}</code>.</p>",
+           "<h2>Inputs and weights</h2>"]
+    weights = report["weights"] if report.get("units") else [report["weights"]]
+    names = [u["name"] for u in report.get("units", [])] or ["weight"]
+    rows = []
+    for j, (feature, rng) in enumerate(zip(report["features"], report["feature_ranges"])):
+        kind = f"{'signed' if feature['signed'] else 'unsigned'} {feature['bits']}-bit"
+        rows.append([feature["name"], kind, f"[{rng[0]}, {rng[1]}]"] + [w[j] for w in weights])
+    biases = report["bias"] if report.get("units") else [report["bias"]]
+    rows.append(["bias", "", ""] + biases)
+    out.append(_table(["feature", "format", "declared range"] + names, rows))
+    out += ["<h2>Sizes</h2>", _table(["", "value"], [
+        ["score range", f"[{report['score_range'][0]}, {report['score_range'][1]}]"],
+        ["score bits (fewest that fit)", report["score_bits_min"]],
+        ["score port bits", report["score_bits"]], ["headroom bits", report["headroom_bits"]],
+        ["architecture", report["tree"]["arch"]], ["latency (cycles)", report["latency_cycles"]],
+        ["register stages after levels", ", ".join(map(str, report["tree"]["register_after_levels"])) or "none"]]),
+        "<h3>Score range</h3>", _score_line(report),
+        "<h3>Adder-tree nodes: range against width</h3>", _node_bars(report["tree"]["nodes"])]
+    out += ["<h2>Verification</h2>",
+            f"<p class={'ok' if ok else 'bad'}>{report['vectors_checked']} vectors over "
+            f"{v['cycles']} cycles in {escape(v['simulator_version'])}: "
+            f"{report['mismatches']} mismatches</p>",
+            _table(["vector group", "count"], v["vector_groups"])]
+    if v["first_mismatches"]:
+        out.append("<ul>" + "".join(f"<li>{escape(m)}</li>" for m in v["first_mismatches"])
+                   + "</ul>")
+    out.append(f"<p>Testbench for any Verilog-2001 simulator: <code>"
+               f"{escape(report['testbench']['command'])}</code></p>")
+    data = report.get("data")
+    if data:
+        confusion = data["confusion"]
+        out += ["<h2>Data</h2>", f"<p>Accuracy on {escape(data['file'])}: "
+                f"{data['accuracy']:.4f} over {data['rows']} rows.</p>",
+                "<p>Confusion (rows: true class, columns: decided class)</p>",
+                _table(["true \\ decided"] + confusion["labels"],
+                       [[label] + row for label, row in zip(confusion["labels"],
+                                                            confusion["rows_true_columns_predicted"])]),
+                _histogram(data)]
+    estimate = report.get("estimate")
+    out.append("<h2>Cost</h2>")
+    if estimate:
+        out.append(_table(["target", "LUTs", "carries", "flip-flops", "DSPs", "fmax (MHz)",
+                           "tools"], [[estimate["target"], estimate["luts"], estimate["carries"],
+                                       estimate["flip_flops"], estimate["dsps"],
+                                       f"{estimate['fmax_mhz']:.1f}",
+                                       f"{estimate['tool_versions']['yosys']}, "
+                                       f"{estimate['tool_versions']['nextpnr']}"]]))
+    else:
+        out.append("<p>Not estimated; run <code>thresh2hdl estimate</code> on this folder.</p>")
+    out.append("<h2>Proof</h2><p>Not run (formal proof is not part of this version).</p>")
+    out.append("</body></html>\n")
+    return "\n".join(out)
+
+
+def report_markdown(report):
+    """The report for review threads."""
+    v = report["verification"]
+    lines = [f"# {report['module']}", "", f"> **Caution.** {report['caution']}", "",
+             f"thresh2hdl {report['tool_versions']['thresh2hdl']}, model sha256 "
+             f"`{report['model_sha256']}`", "", "| quantity | value |", "| --- | --- |",
+             f"| score range | [{report['score_range'][0]}, {report['score_range'][1]}] |",
+             f"| score bits (fewest) | {report['score_bits_min']} |",
+             f"| score port bits | {report['score_bits']} |",
+             f"| headroom bits | {report['headroom_bits']} |",
+             f"| architecture | {report['tree']['arch']} |",
+             f"| latency (cycles) | {report['latency_cycles']} |",
+             f"| vectors checked | {report['vectors_checked']} |",
+             f"| mismatches | {report['mismatches']} |",
+             f"| simulator | {v['simulator_version']} |"]
+    if report.get("data"):
+        lines.append(f"| accuracy on {report['data']['file']} | {report['data']['accuracy']:.4f} |")
+    estimate = report.get("estimate")
+    if estimate:
+        lines.append(f"| {estimate['target']} cost | {estimate['luts']} LUTs, "
+                     f"{estimate['carries']} carries, {estimate['flip_flops']} flip-flops, "
+                     f"{estimate['dsps']} DSPs, {estimate['fmax_mhz']:.1f} MHz |")
+    lines += ["", "| node | bits | range |", "| --- | --- | --- |"]
+    lines += [f"| {n['name']} | {n['bits']} | [{n['range'][0]}, {n['range'][1]}] |"
+              for n in report["tree"]["nodes"]]
+    return "\n".join(lines) + "\n"
