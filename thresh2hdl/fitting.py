@@ -15,7 +15,7 @@ from .errors import InputError
 from .model import FeatureFormat, Model, Unit, load_toml, model_to_toml, parse_features
 from .outdir import write_files
 from .quantize import decide, fold_normalisation, load_float_model, to_integer_weights
-from .train import FitOptions, fit
+from .train import FitOptions, class_unit_name, fit
 
 __all__ = ["fit_csv", "quantize_npz", "input_formats", "QuantizeResult", "SWEEP_BITS"]
 
@@ -168,7 +168,7 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
             recommended = SWEEP_BITS[-1]
     chosen = bits if bits is not None else recommended
     result, agreement, accuracy = at(chosen)
-    unit_names = ["unit"] if units == 1 else [f"class_{c}" for c in classes]
+    unit_names = ["unit"] if units == 1 else [class_unit_name(c) for c in classes]
     model = Model(module=module, features=formats,
                   units=[Unit(n, tuple(int(v) for v in w), int(b))
                          for n, w, b in zip(unit_names, result.weights, result.biases)],

@@ -149,6 +149,11 @@ def train_unit(a, target, options, rng):
     return w, mistakes_log, None
 
 
+def class_unit_name(label):
+    """The unit name of a class label: ``class_3``, or ``class_neg3`` for -3."""
+    return f"class_{label}" if label >= 0 else f"class_neg{-label}"
+
+
 def _formats_from_data(x, names, log):
     formats = []
     for j, name in enumerate(names):
@@ -243,7 +248,7 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
                                     centre=centre)
         weights, biases = list(budget.weights), [int(v) for v in budget.biases]
 
-    units = [Unit(f"class_{c}" if len(unit_classes) > 1 else "unit",
+    units = [Unit(class_unit_name(c) if len(unit_classes) > 1 else "unit",
                   tuple(int(v) for v in w), b) for c, w, b in zip(unit_classes, weights, biases)]
     labels_out = tuple(classes) if len(classes) > 2 else (classes[0], classes[1])
     model = Model(module=module, features=formats, units=units, class_labels=labels_out)

@@ -1,0 +1,200 @@
+"""No bad input breaks the tool: generated corruptions, limits, interrupted runs."""
+
+import io
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings, strategies as st
+
+from test_cli import assert_one_line_error, run
+from thresh2hdl.cli import main
+from thresh2hdl.data import read_csv
+from thresh2hdl.errors import InputError
+from thresh2hdl.flow import demo_model
+from thresh2hdl.model import FeatureFormat, Model, Unit, load_model, model_to_toml
+from thresh2hdl.quantize import load_float_model
+
+GOOD_MODEL = model_to_toml(demo_model())
+JUNK = st.one_of(st.sampled_from(["nan", "inf", "-inf", "1e999", "99999999999999999999999",
+                                  "-1", "0", '"x"', "true", "[]", "{}", "[1, 2", '"\u00e9\u2603"',
+                                  '"a b"', '"module"', "1.5", '""', "=", "[[", "\x00"]),
+                 st.text(max_size=12))
+
+
+def corrupt(text, data):
+    lines = text.splitlines()
+    kind = data.draw(st.sampled_from(["truncate", "replace", "delete", "duplicate", "insert",
+                                      "junk"]))
+    if kind == "truncate":
+        return text[: data.draw(st.integers(0, len(text)))]
+    index = data.draw(st.integers(0, len(lines) - 1))
+    if kind == "replace" and "=" in lines[index]:
+        key = lines[index].split("=")[0]
+        lines[index] = f"{key}= {data.draw(JUNK)}"
+    elif kind == "delete":
+        del lines[index]
+    elif kind == "duplicate":
+        lines.insert(index, lines[index])
+    elif kind == "insert":
+        lines.insert(index, f"{data.draw(st.sampled_from(['bits', 'weights', 'surprise', 'min']))}"
+                            f" = {data.draw(JUNK)}")
+    else:
+        lines[index] = data.draw(st.text(max_size=30))
+    return "\n".join(lines)
+
+
+def only_input_errors(function, path):
+    """The call either succeeds or raises InputError with one line naming the file."""
+    try:
+        return function(path)
+    except InputError as error:
+        message = str(error)
+        assert "\n" not in message and str(path) in message
+        return None
+
+
+@settings(max_examples=4500, deadline=None, suppress_health_check=list(HealthCheck))
+@given(data=st.data())
+def test_corrupted_model_files(tmp_path_factory, data):
+    path = tmp_path_factory.getbasetemp() / "corrupt.toml"
+    path.write_bytes(corrupt(GOOD_MODEL, data).encode("utf-8", "surrogatepass"))
+    only_input_errors(load_model, path)
+
+
+GOOD_CSV = "a,b,c,label\n" + "".join(f"{i % 16},{(3 * i) % 16},{(5 * i) % 16},{i % 2}\n"
+                                    for i in range(20))
+
+
+@settings(max_examples=3000, deadline=None, suppress_health_check=list(HealthCheck))
+@given(data=st.data())
+def test_corrupted_csv_files(tmp_path_factory, data):
+    path = tmp_path_factory.getbasetemp() / "corrupt.csv"
+    text = GOOD_CSV
+    lines = text.splitlines()
+    kind = data.draw(st.sampled_from(["truncate", "cell", "ragged", "header", "junk"]))
+    if kind == "truncate":
+        text = text[: data.draw(st.integers(0, len(text)))]
+    elif kind == "cell":
+        row = data.draw(st.integers(1, len(lines) - 1))
+        cells = lines[row].split(",")
+        cells[data.draw(st.integers(0, 3))] = data.draw(JUNK).replace("\n", "")
+        lines[row] = ",".join(cells)
+        text = "\n".join(lines)
+    elif kind == "ragged":
+        row = data.draw(st.integers(1, len(lines) - 1))
+        lines[row] += "," + data.draw(st.sampled_from(["", "1", "x"]))
+        text = "\n".join(lines)
+    elif kind == "header":
+        lines[0] = data.draw(st.sampled_from(["a,a,c,label", "a,b,c", "", "label", "a,b,c,lab"]))
+        text = "\n".join(lines)
+    else:
+        text = data.draw(st.text(max_size=200))
+    path.write_bytes(text.encode("utf-8", "surrogatepass"))
+    dataset = only_input_errors(read_csv, path)
+    if dataset is not None:
+        from thresh2hdl.train import FitOptions, fit
+        try:
+            fit(dataset, options=FitOptions(epochs=2))
+        except InputError as error:
+            assert "\n" not in str(error)
+
+
+arrays = st.sampled_from(["coef", "intercept", "offset", "scale", "input_lo", "input_hi",
+                          "classes", "extra"])
+
+
+@settings(max_examples=3000, deadline=None, suppress_health_check=list(HealthCheck))
+@given(data=st.data())
+def test_corrupted_float_models(tmp_path_factory, data):
+    path = tmp_path_factory.getbasetemp() / "corrupt.npz"
+    base = {"coef": np.ones((2, 3)), "intercept": np.zeros(2), "offset": np.zeros(3),
+            "scale": np.ones(3), "input_lo": np.zeros(3, int), "input_hi": np.full(3, 15)}
+    for _ in range(data.draw(st.integers(1, 3))):
+        name = data.draw(arrays)
+        choice = data.draw(st.sampled_from(["drop", "shape", "nan", "text", "bool", "neg"]))
+        if choice == "drop":
+            base.pop(name, None)
+        elif choice == "shape":
+            base[name] = np.zeros(data.draw(st.lists(st.integers(0, 4), max_size=3)))
+        elif choice == "nan":
+            base[name] = np.full(np.shape(base.get(name, np.zeros(3))), np.nan)
+        elif choice == "text":
+            base[name] = np.array(["a", "b", "c"])
+        elif choice == "bool":
+            base[name] = np.ones(3, dtype=bool)
+        else:
+            current = np.asarray(base.get(name, np.ones(3)))
+            if current.dtype.kind in "iuf":
+                base[name] = -np.abs(current.astype(float)) - 1
+    with open(path, "wb") as stream:
+        np.savez(stream, **base)
+    only_input_errors(load_float_model, path)
+
+
+@pytest.mark.parametrize("text", ["model_format = 1\n[[feature]]\nbits = 40\n",
+                                  GOOD_MODEL[: len(GOOD_MODEL) // 2],
+                                  GOOD_MODEL.replace("bias = ", "bias = nan #")])
+def test_cli_maps_bad_models_to_one_line(tmp_path, capsys, text):
+    path = tmp_path / "m.toml"
+    path.write_text(text)
+    with pytest.raises(SystemExit) as info:
+        main(["build", str(path), "--out", str(tmp_path / "out")])
+    assert info.value.code == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err and "m.toml" in err
+    assert not (tmp_path / "out").exists()
+
+
+def test_limits_are_refused_by_name():
+    features = [FeatureFormat(f"x{i}", 8) for i in range(4097)]
+    with pytest.raises(ValueError, match="1 to 4096 features"):
+        Model(module="m", features=features, units=[Unit("u", (1,) * 4097, 0)])
+    features = [FeatureFormat("x0", 8)]
+    with pytest.raises(ValueError, match="1 to 256"):
+        Model(module="m", features=features, units=[Unit(f"u{i}", (1,), 0) for i in range(257)])
+    with pytest.raises(ValueError, match="from 1 to 32"):
+        FeatureFormat("x", 33)
+
+
+def test_wide_scores_use_exact_integers_end_to_end(tmp_path):
+    # 64 products of 32-bit codes and 32-bit weights: a score wider than int64.
+    weights = [-(1 << 31) + 7 * i for i in range(64)]
+    model = Model(module="wide", features=[FeatureFormat(f"x{i}", 32, True) for i in range(64)],
+                  units=[Unit("u", tuple(weights), 12345)])
+    path = tmp_path / "wide.toml"
+    path.write_text(model_to_toml(model))
+    result = run("build", path, "--out", tmp_path / "o", "--simulator", "amaranth",
+                 "--vectors", "200")
+    assert result.returncode == 0, result.stderr
+    import json
+    report = json.loads((tmp_path / "o" / "report.json").read_text())
+    lo, hi = report["score_range"]
+    independent = max((lo if lo >= 0 else ~lo).bit_length(), (hi if hi >= 0 else ~hi).bit_length()) + 1
+    assert report["score_bits"] == independent > 64 and report["mismatches"] == 0
+    result = run("build", path, "--out", tmp_path / "v", "--simulator", "verilator")
+    assert_one_line_error(result, 2, "use --simulator icarus")
+
+
+@pytest.mark.parametrize("how", [signal.SIGINT, signal.SIGKILL])
+def test_an_interrupted_run_leaves_the_previous_output(tmp_path, how):
+    out = tmp_path / "out"
+    assert run("demo", "--out", out, "--simulator", "amaranth", "--vectors", "100").returncode == 0
+    before = {p.name: p.read_bytes() for p in out.iterdir()}
+    process = subprocess.Popen([sys.executable, "-P", "-m", "thresh2hdl", "demo", "--out",
+                                str(out), "--force", "--simulator", "amaranth", "--vectors",
+                                "2000000", "--module", "other"],
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    time.sleep(4)
+    assert process.poll() is None, "the run ended before it could be interrupted"
+    process.send_signal(how)
+    _, err = process.communicate(timeout=60)
+    assert {p.name: p.read_bytes() for p in out.iterdir()} == before
+    if how == signal.SIGINT:
+        assert process.returncode == 130 and "interrupted" in err and "Traceback" not in err
+        assert [p for p in tmp_path.iterdir() if p.name.startswith(".")] == []
