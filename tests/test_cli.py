@@ -53,11 +53,12 @@ def test_demo_end_to_end(tmp_path):
          "pump_fault_tb.v", "stimulus.hex", "expected.hex", "report.html", "report.md"])
 
 
-def test_build_example_twice_is_byte_identical(tmp_path):
+def test_build_example_twice_from_two_folders_is_byte_identical(tmp_path):
     outs = []
-    for name in ("a", "b"):
+    (tmp_path / "elsewhere").mkdir()
+    for name, cwd in (("a", tmp_path), ("b", tmp_path / "elsewhere")):
         result = run("build", EXAMPLE, "--out", tmp_path / name, "--pipeline", "2",
-                     "--vectors", "2000", cwd=tmp_path)
+                     "--vectors", "2000", cwd=cwd)
         assert result.returncode == 0, result.stderr
         outs.append(tmp_path / name)
     for file in ("pump_fault.v", "pump_fault_instance.vh", "model.toml", "pump_fault_tb.v",

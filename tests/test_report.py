@@ -72,6 +72,7 @@ def test_html_shows_the_report(built):
     assert f"{report['vectors_checked']} vectors" in text
     assert text.count('aria-label="score histogram per class"') == 1
     assert "Confusion" in text
+    assert 'aria-label="mistakes per epoch"' in text and report["training"]["log"] == "m.fit.json"
     for node in report["tree"]["nodes"]:
         assert f"{node['name']} ({node['bits']} bits)" in text
     markdown = (built / "report.md").read_text()
@@ -80,7 +81,7 @@ def test_html_shows_the_report(built):
 
 
 def test_reports_are_deterministic(built, tmp_path):
-    model = built / "model.toml"
+    model = built.parent / "m.toml"
     data = built.parent / "d.csv"
     again = tmp_path / "again"
     assert run("build", model, "--out", again, "--data", data, "--simulator", "amaranth",

@@ -223,6 +223,24 @@ def data_summary(model, reference, dataset):
     return summary
 
 
+def _model_history(path):
+    """The training or quantization log written beside a model file, when there is one."""
+    history = {}
+    for kind, key, fields in (("fit", "training", ("mistakes_per_epoch", "epochs_run",
+                                                   "train_accuracy", "holdout_accuracy")),
+                              ("quantize", "quantization", ("bits", "agreement_with_float",
+                                                            "accuracy", "float_accuracy",
+                                                            "sweep", "recommended_bits"))):
+        log = path.with_name(f"{path.stem}.{kind}.json")
+        try:
+            data = json.loads(log.read_text(encoding="utf-8"))
+            history[key] = {field: data.get(field) for field in fields}
+            history[key]["log"] = log.name
+        except (OSError, ValueError, AttributeError):
+            continue
+    return history
+
+
 def unit_analyses(component):
     """The analysis of every unit of a component, in unit order."""
     plan = getattr(component, "plan", None)
@@ -282,7 +300,9 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         raise TypeError("options must be BuildOptions")
     out_dir = Path(out_dir)
     check_output_folder(out_dir, force=options.force)
+    history = {}
     if not isinstance(model, Model):
+        history = _model_history(Path(model))
         model = load_model(model)
     if options.module is not None:
         model = model.with_module(options.module)
@@ -341,6 +361,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
             "first_mismatches": list(verified.first_mismatches),
         },
         "data": None if dataset is None else data_summary(model, reference, dataset),
+        **history,
         "caution": SAFETY_CAUTION,
         "timing": {key: round(value, 3) for key, value in timing.items()},
     }

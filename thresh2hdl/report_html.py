@@ -10,8 +10,8 @@ __all__ = ["report_html", "report_markdown"]
 _STYLE = """
 body{font:14px/1.45 system-ui,sans-serif;margin:2em auto;max-width:60em;color:#222}
 h1{font-size:1.5em}h2{font-size:1.15em;margin-top:1.6em;border-bottom:1px solid #ccc}
-table{border-collapse:collapse;margin:.5em 0}td,th{border:1px solid #ccc;padding:2px 8px;
-text-align:right}th{background:#f3f3f3}td.l,th.l{text-align:left}
+table{border-collapse:collapse;margin:.5em 0;font-size:13px}td,th{border:1px solid #ccc;
+padding:2px 8px;text-align:right;white-space:nowrap}.wide{overflow-x:auto}th{background:#f3f3f3}td.l,th.l{text-align:left}
 .caution{border:2px solid #b35900;background:#fff4e5;padding:.6em 1em}
 .ok{color:#176117;font-weight:bold}.bad{color:#a00;font-weight:bold}
 svg text{font:11px system-ui,sans-serif}code{background:#f3f3f3;padding:0 3px}
@@ -99,6 +99,32 @@ def _histogram(data):
             f'{"".join(parts)}</svg>')
 
 
+def _polyline_chart(series, *, label_x, label_y, y_max=None, y_min=0.0):
+    """Lines over 0..n-1 (one per series), with axis labels; for small report charts."""
+    width, height, left, top = 560, 150, 40, 10
+    colours = ["#4a7ebb", "#c0504d", "#9bbb59", "#8064a2", "#f79646"]
+    longest = max((len(values) for _, values in series), default=1)
+    highest = y_max if y_max is not None else max((max(v) for _, v in series if v), default=1)
+    span = (highest - y_min) or 1
+    parts = []
+    for k, (name, values) in enumerate(series):
+        points = " ".join(f"{left + i / max(1, longest - 1) * width:.1f},"
+                          f"{top + height - (v - y_min) / span * height:.1f}"
+                          for i, v in enumerate(values))
+        colour = colours[k % len(colours)]
+        parts.append(f'<polyline fill="none" stroke="{colour}" stroke-width="1.5" '
+                     f'points="{points}"/><text x="{left + width + 8}" y="{top + 12 + 13 * k}" '
+                     f'fill="{colour}">{escape(str(name))}</text>')
+    parts.append(f'<rect x="{left}" y="{top}" width="{width}" height="{height}" fill="none" '
+                 f'stroke="#999"/><text x="{left}" y="{top + height + 14}">{escape(label_x)}'
+                 f'</text><text x="0" y="{top + 10}">{highest:g}</text>'
+                 f'<text x="0" y="{top + height}">{y_min:g}</text>'
+                 f'<text x="{left + 4}" y="{top + 12}">{escape(label_y)}</text>')
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" width="{left + width + 110}" '
+            f'height="{top + height + 22}" role="img" aria-label="{escape(label_y)}">'
+            f'{"".join(parts)}</svg>')
+
+
 def report_html(report):
     """The report as one self-contained HTML page."""
     v = report["verification"]
@@ -119,7 +145,11 @@ def report_html(report):
         rows.append([feature["name"], kind, f"[{rng[0]}, {rng[1]}]"] + [w[j] for w in weights])
     biases = report["bias"] if report.get("units") else [report["bias"]]
     rows.append(["bias", "", ""] + biases)
-    out.append(_table(["feature", "format", "declared range"] + names, rows))
+    table = _table(["feature", "format", "declared range"] + names, rows)
+    if len(rows) > 17:
+        table = (f"<details><summary>{len(rows) - 1} features x {len(names)} unit(s): show the "
+                 f"table</summary><div class=wide>{table}</div></details>")
+    out.append(f"<div class=wide>{table}</div>")
     out += ["<h2>Sizes</h2>", _table(["", "value"], [
         ["score range", f"[{report['score_range'][0]}, {report['score_range'][1]}]"],
         ["score bits (fewest that fit)", report["score_bits_min"]],
@@ -148,6 +178,28 @@ def report_html(report):
                        [[label] + row for label, row in zip(confusion["labels"],
                                                             confusion["rows_true_columns_predicted"])]),
                 _histogram(data)]
+    training = report.get("training")
+    if training and training.get("mistakes_per_epoch"):
+        curves = training["mistakes_per_epoch"][:5]
+        names = [u["name"] for u in report.get("units", [])] or ["unit"]
+        out += ["<h2>Training</h2>", f"<p>From {escape(training['log'])}: train accuracy "
+                f"{training['train_accuracy']:.4f}"
+                + (f", held-out {training['holdout_accuracy']:.4f}"
+                   if training.get("holdout_accuracy") is not None else "") + ".</p>",
+                _polyline_chart(list(zip(names, curves)), label_x="epoch",
+                                label_y="mistakes per epoch")]
+    quantization = report.get("quantization")
+    if quantization and quantization.get("sweep"):
+        sweep = quantization["sweep"]
+        series = [("agreement", [row["agreement"] for row in sweep])]
+        if sweep[0].get("accuracy") is not None:
+            series.append(("accuracy", [row["accuracy"] for row in sweep]))
+        out += ["<h2>Quantization</h2>", f"<p>From {escape(quantization['log'])}: "
+                f"{quantization['bits']}-bit weights chosen; recommended "
+                f"{quantization['recommended_bits']}.</p>",
+                _polyline_chart(series, label_x=f"weight bits {sweep[0]['bits']} .. "
+                                f"{sweep[-1]['bits']}", label_y="against the float model",
+                                y_max=1.0, y_min=min(min(v) for _, v in series))]
     estimate = report.get("estimate")
     out.append("<h2>Cost</h2>")
     if estimate:
