@@ -61,14 +61,25 @@ def _options(kwargs):
                         label=kwargs["label"])
 
 
+class _Progress:
+    """Progress of the long steps on stderr: a percentage on a terminal, a line otherwise."""
+
+    def __init__(self):
+        self.terminal = sys.stderr.isatty()
+
+    def __call__(self, done, total, text="simulating"):
+        if total < 20_000 and text == "simulating":
+            return
+        if self.terminal:
+            click.echo(f"\r  {text} {done * 100 // max(total, 1):3d}%", err=True,
+                       nl=done >= total)
+
+    def note(self, text):
+        click.echo(f"  {text}", err=True)
+
+
 def _progress():
-    """A progress callback for long simulations, drawn only on an interactive terminal."""
-    if not sys.stderr.isatty():
-        return None
-    def show(done, total):
-        if total > 20_000:
-            click.echo(f"\r  simulating {done * 100 // total:3d}%", err=True, nl=done >= total)
-    return show
+    return _Progress()
 
 
 def _run_build(model, kwargs):
@@ -195,8 +206,7 @@ def check_command(out_dir, netlist, simulator, vectors, seed):
               show_default=True, help="ice40: UP5K (sg48); ecp5: LFE5U-25F (CABGA256).")
 def estimate_command(out_dir, target):
     """Synthesise and place-and-route OUT_DIR's Verilog; add the cost to its report.json."""
-    figures = estimate_folder(out_dir, target=target,
-                              progress=lambda text: click.echo(f"  {text}", err=True))
+    figures = estimate_folder(out_dir, target=target, progress=_progress().note)
     click.echo(f"{target}: {figures['luts']} LUTs, {figures['carries']} carries, "
                f"{figures['flip_flops']} flip-flops, {figures['dsps']} DSPs, fmax "
                f"{figures['fmax_mhz']:.1f} MHz ({figures['tool_versions']['yosys'].split(' (')[0]}, "

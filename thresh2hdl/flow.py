@@ -92,7 +92,11 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
     remaining, chunk = count - first_count, 0
     while True:
         result, version_text = run_simulator(simulator, component, verilog_text, ports,
-                                             model.module, stimulus, progress=progress)
+                                             model.module, stimulus,
+                                             progress=progress if chunk == 0 else None)
+        if progress is not None and count > CHUNK_VECTORS:
+            progress(min(count, first_count + chunk * CHUNK_VECTORS), count,
+                     f"verifying in {simulator}")
         checked = result.check(stimulus)
         checked_total += checked.vectors_checked
         mismatches += checked.mismatch_count
@@ -121,7 +125,9 @@ def run_simulator(simulator, component, verilog_text, ports, module, stimulus, *
         return simulate_amaranth(component, stimulus, progress=progress), \
             f"amaranth {version('amaranth')}"
     if simulator == "verilator":
-        return simulate_verilator(verilog_text, ports, module, stimulus), verilator_version()
+        note = getattr(progress, "note", None)
+        return simulate_verilator(verilog_text, ports, module, stimulus, progress=note), \
+            verilator_version()
     with tempfile.TemporaryDirectory(prefix="thresh2hdl-icarus-") as folder:
         path = Path(folder) / f"{module}.v"
         path.write_text(verilog_text, encoding="utf-8")
