@@ -139,9 +139,14 @@ def _check_pipeline(component, pipeline, final_level):
                          f"{most} ({MAX_PIPELINE_NOTE})", field="pipeline")
 
 
-def _feature_members(model):
-    return {f"x{index}": In(signed(feature.bits) if feature.signed else unsigned(feature.bits))
-            for index, feature in enumerate(model.features)}
+def _members(model, decision_bits, scores):
+    """The ports: handshake, one input per feature at its format, the decision, the scores."""
+    members = {"in_valid": In(1), "in_ready": Out(1)}
+    members.update({f"x{index}": In(signed(f.bits) if f.signed else unsigned(f.bits))
+                    for index, f in enumerate(model.features)})
+    members.update({"out_valid": Out(1), "out_ready": In(1), "y": Out(decision_bits)})
+    members.update({name: Out(signed(bits)) for name, bits in scores})
+    return members
 
 
 class _Common:
@@ -179,11 +184,8 @@ class ThresholdUnit(_Common, wiring.Component):
         self._analysis = analyse(config.model, score_bits=config.score_bits, arch=config.arch)
         _check_pipeline(self, config.pipeline, self._analysis.final_level)
         self._boundaries = _boundaries(self._analysis.final_level, config.pipeline)
-        members = {"in_valid": In(1), "in_ready": Out(1), **_feature_members(config.model),
-                   "out_valid": Out(1), "out_ready": In(1), "y": Out(1)}
-        if self._analysis.has_score:
-            members["score"] = Out(signed(self._analysis.score_bits))
-        super().__init__(wiring.Signature(members))
+        scores = [("score", self._analysis.score_bits)] if self._analysis.has_score else []
+        super().__init__(wiring.Signature(_members(config.model, 1, scores)))
 
     @property
     def analysis(self):
@@ -243,13 +245,10 @@ class ThresholdBank(_Common, wiring.Component):
         self._plan = analyse_bank(config.model, score_bits=config.score_bits, arch=config.arch)
         _check_pipeline(self, config.pipeline, self._plan.final_level)
         self._boundaries = _boundaries(self._plan.final_level, config.pipeline)
-        members = {"in_valid": In(1), "in_ready": Out(1), **_feature_members(config.model),
-                   "out_valid": Out(1), "out_ready": In(1), "y": Out(self._plan.class_bits)}
         self._has_score_ports = config.model.ports.has_score
-        if self._has_score_ports:
-            for index, unit in enumerate(self._plan.units):
-                members[f"score{index}"] = Out(signed(unit.score_bits))
-        super().__init__(wiring.Signature(members))
+        scores = [(f"score{index}", unit.score_bits) for index, unit in
+                  enumerate(self._plan.units)] if self._has_score_ports else []
+        super().__init__(wiring.Signature(_members(config.model, self._plan.class_bits, scores)))
 
     @property
     def plan(self):

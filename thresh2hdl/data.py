@@ -10,7 +10,7 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["Dataset", "read_csv", "dataset_for_model", "MAX_ROWS"]
+__all__ = ["Dataset", "read_csv", "check_ranges", "dataset_for_model", "MAX_ROWS"]
 
 MAX_ROWS = 10_000_000
 
@@ -105,6 +105,18 @@ def read_csv(path, *, label="label"):
     return Dataset(source=source, feature_names=feature_names, x=x, labels=labels)
 
 
+def check_ranges(dataset, formats):
+    """Every code of every column inside its feature's declared range, or one InputError."""
+    for index, feature in enumerate(formats):
+        column = dataset.x[:, index]
+        bad = np.flatnonzero((column < feature.min) | (column > feature.max))
+        if len(bad):
+            row = int(bad[0])
+            raise InputError(f"{feature.name!r} = {int(column[row])} is outside its declared "
+                             f"range [{feature.min}, {feature.max}]", source=dataset.source,
+                             field=f"line {row + 2}")
+
+
 def dataset_for_model(dataset, model):
     """Check a dataset against a model's features (names, order, declared ranges)."""
     names = tuple(f.name for f in model.features)
@@ -114,14 +126,7 @@ def dataset_for_model(dataset, model):
         raise InputError(f"feature columns do not match the model ({detail}); the model wants "
                          f"{', '.join(names[:6])}{', ...' if len(names) > 6 else ''}",
                          source=dataset.source, field="line 1")
-    for index, feature in enumerate(model.features):
-        column = dataset.x[:, index]
-        bad = np.flatnonzero((column < feature.min) | (column > feature.max))
-        if len(bad):
-            row = int(bad[0])
-            raise InputError(f"{feature.name!r} = {int(column[row])} is outside its declared "
-                             f"range [{feature.min}, {feature.max}]", source=dataset.source,
-                             field=f"line {row + 2}")
+    check_ranges(dataset, model.features)
     unknown = sorted(set(dataset.classes) - set(model.labels))
     if unknown:
         raise InputError(f"label {unknown[0]} is not one of the model's class labels "

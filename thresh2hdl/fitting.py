@@ -10,7 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .data import read_csv
+from .data import check_ranges, read_csv
 from .errors import InputError
 from .model import FeatureFormat, Model, Unit, load_toml, model_to_toml, parse_features
 from .outdir import write_files
@@ -120,12 +120,7 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
     classes = float_model.classes or ((0, 1) if units == 1 else tuple(range(units)))
     if data_path is not None:
         x = dataset.x
-        for j, f in enumerate(formats):
-            bad = np.flatnonzero((x[:, j] < f.min) | (x[:, j] > f.max))
-            if len(bad):
-                raise InputError(f"{f.name!r} = {int(x[bad[0], j])} is outside the model's "
-                                 f"input range [{f.min}, {f.max}]", source=dataset.source,
-                                 field=f"line {int(bad[0]) + 2}")
+        check_ranges(dataset, formats)
         lookup = {c: i for i, c in enumerate(classes)}
         unknown = sorted(set(dataset.classes) - set(lookup))
         if unknown:

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .data import check_ranges
 from .errors import InputError
 from .model import FeatureFormat, Model, Unit
 from .quantize import to_integer_weights
@@ -206,12 +207,7 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
     elif len(formats) != x.shape[1]:
         raise InputError(f"{len(formats)} input formats declared for {x.shape[1]} feature "
                          f"columns", source=dataset.source)
-    for j, feature in enumerate(formats):
-        bad = np.flatnonzero((x[:, j] < feature.min) | (x[:, j] > feature.max))
-        if len(bad):
-            raise InputError(f"{feature.name!r} = {int(x[bad[0], j])} is outside its declared "
-                             f"range [{feature.min}, {feature.max}]", source=dataset.source,
-                             field=f"line {int(bad[0]) + 2}")
+    check_ranges(dataset, formats)
 
     rng = np.random.default_rng(options.seed)
     order = rng.permutation(len(labels)) if options.holdout else np.arange(len(labels))
