@@ -1,8 +1,6 @@
 """`fit`, `quantize` and `build --data` from the command line, with bad inputs."""
 
 import json
-import subprocess
-import sys
 
 import numpy as np
 import pytest

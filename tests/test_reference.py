@@ -1,5 +1,4 @@
 import numpy as np
-import pytest
 from hypothesis import given, settings, strategies as st
 
 from thresh2hdl.reference import ReferenceModel, cycle_model
@@ -12,6 +11,8 @@ def test_scores_equal_python_integer_arithmetic():
     x = rng.integers(0, 4096, (500, 16))
     ref = ReferenceModel(weights=weights, bias=-12345, feature_ranges=ranges)
     assert ref.exact_in_int64
+    # Outside reference: Python's arbitrary-precision integers (exact by definition, common
+    # practice), independent of numpy.
     expected = [sum(int(a) * b for a, b in zip(row, weights)) - 12345 for row in x]
     assert ref.scores(x).tolist() == expected
     assert ref.decisions(x).tolist() == [int(s > 0) for s in expected]

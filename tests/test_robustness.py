@@ -1,12 +1,9 @@
 """No bad input breaks the tool: generated corruptions, limits, interrupted runs."""
 
-import io
-import os
 import signal
 import subprocess
 import sys
 import time
-from pathlib import Path
 
 import numpy as np
 import pytest

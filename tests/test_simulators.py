@@ -11,7 +11,7 @@ import pytest
 from conftest import make_model, require_tool
 from test_cli import assert_one_line_error, run
 from thresh2hdl.circuit import ThresholdUnit, UnitConfig
-from thresh2hdl.flow import demo_model, run_simulator
+from thresh2hdl.flow import run_simulator
 from thresh2hdl.reference import ReferenceModel
 from thresh2hdl.stimulus import make_stimulus
 from thresh2hdl.vectors import make_vectors

@@ -1,8 +1,5 @@
 """Training and quantization against reference libraries, a theorem, and a bundled data set."""
 
-import json
-import subprocess
-import sys
 import warnings
 
 import numpy as np

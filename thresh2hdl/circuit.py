@@ -150,6 +150,16 @@ def _members(model, decision_bits, scores):
 
 
 class _Common:
+    def _setup(self, config, plan_of, final_level_of):
+        """Validate and store the configuration, plan the design and its register stages."""
+        if not isinstance(config, UnitConfig):
+            raise TypeError(f"config must be a UnitConfig, not {type(config).__name__}")
+        self._config = config
+        plan = plan_of(config.model, score_bits=config.score_bits, arch=config.arch)
+        _check_pipeline(self, config.pipeline, final_level_of(plan))
+        self._boundaries = _boundaries(final_level_of(plan), config.pipeline)
+        return plan
+
     @property
     def config(self):
         return self._config
@@ -178,12 +188,7 @@ class ThresholdUnit(_Common, wiring.Component):
     """
 
     def __init__(self, config):
-        if not isinstance(config, UnitConfig):
-            raise TypeError(f"config must be a UnitConfig, not {type(config).__name__}")
-        self._config = config
-        self._analysis = analyse(config.model, score_bits=config.score_bits, arch=config.arch)
-        _check_pipeline(self, config.pipeline, self._analysis.final_level)
-        self._boundaries = _boundaries(self._analysis.final_level, config.pipeline)
+        self._analysis = self._setup(config, analyse, lambda plan: plan.final_level)
         scores = [("score", self._analysis.score_bits)] if self._analysis.has_score else []
         super().__init__(wiring.Signature(_members(config.model, 1, scores)))
 
@@ -239,12 +244,7 @@ class ThresholdBank(_Common, wiring.Component):
     """
 
     def __init__(self, config):
-        if not isinstance(config, UnitConfig):
-            raise TypeError(f"config must be a UnitConfig, not {type(config).__name__}")
-        self._config = config
-        self._plan = analyse_bank(config.model, score_bits=config.score_bits, arch=config.arch)
-        _check_pipeline(self, config.pipeline, self._plan.final_level)
-        self._boundaries = _boundaries(self._plan.final_level, config.pipeline)
+        self._plan = self._setup(config, analyse_bank, lambda plan: plan.final_level)
         self._has_score_ports = config.model.ports.has_score
         scores = [(f"score{index}", unit.score_bits) for index, unit in
                   enumerate(self._plan.units)] if self._has_score_ports else []

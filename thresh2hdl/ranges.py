@@ -142,17 +142,6 @@ class Analysis:
         root = self.nodes[self.tree_root]
         return -self.bias if root.sign > 0 else self.bias
 
-    def node(self, name):
-        for node in self.nodes:
-            if node.name == name:
-                return node
-        raise KeyError(name)
-
-    def score_interval_of(self, node):
-        """The range of the node's true contribution to the score, ``sign * value``."""
-        if node.sign > 0:
-            return node.lo, node.hi
-        return -node.hi, -node.lo
 
 
 def _term_range(weight, lo, hi):
