@@ -10,13 +10,12 @@ the system when installed, else the WebAssembly builds from PyPI (``pip install
 
 import json
 import re
-import shutil
 import subprocess
-import sys
 import tempfile
 from pathlib import Path
 
 from .errors import ToolError
+from .tools import find_tool, tool_version
 
 __all__ = ["TARGETS", "estimate_cost", "wrapper_text"]
 
@@ -30,15 +29,7 @@ _FLOP = re.compile(r"^(SB_DFF|TRELLIS_FF|FD)")
 
 
 def _tool(name):
-    # The PyPI builds install beside this Python, which may not be on PATH (a venv not
-    # activated), so look there too.
-    beside = str(Path(sys.executable).parent)
-    for candidate in (name, f"yowasp-{name}"):
-        path = shutil.which(candidate) or shutil.which(candidate, path=beside)
-        if path:
-            return path
-    raise ToolError(f"{name} was not found (neither {name} nor yowasp-{name}); install the "
-                    f"synthesis tools with pip install 'thresh2hdl[synth]'")
+    return find_tool(name, "install the synthesis tools with pip install 'thresh2hdl[synth]'")
 
 
 def _run(command, cwd, what):
@@ -47,14 +38,6 @@ def _run(command, cwd, what):
         lines = [l for l in (result.stderr + result.stdout).splitlines() if "ERROR" in l.upper()]
         raise ToolError(f"{what} failed: {lines[0].strip() if lines else result.returncode}")
     return result.stdout
-
-
-def _version(path):
-    result = subprocess.run([path, "--version" if "nextpnr" in path else "-V"],
-                            capture_output=True, text=True)
-    text = (result.stdout or result.stderr).strip()
-    found = re.search(r"Version (nextpnr-\S+?)\)", text) or re.search(r"(Yosys \S+)", text)
-    return found.group(1) if found else (text.splitlines()[0] if text else "unknown")
 
 
 def wrapper_text(module, ports):
@@ -126,6 +109,6 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None)
         "dsps": count(("SB_MAC16", "MULT18X18D")),
         "fmax_mhz": float(found[-1]),
         "cells": dict(sorted(cells.items())),
-        "tool_versions": {"yosys": _version(yosys), "nextpnr": _version(nextpnr)},
+        "tool_versions": {"yosys": tool_version(yosys), "nextpnr": tool_version(nextpnr)},
         "method": "cells: the module alone; fmax: the module between registers in a wrapper",
     }
