@@ -10,7 +10,7 @@ lowest index.
 
 from dataclasses import dataclass
 
-from amaranth.hdl import Const, Module, Mux, Signal, signed, unsigned
+from amaranth.hdl import Const, Module, Mux, Shape, Signal, signed, unsigned
 from amaranth.lib import wiring
 from amaranth.lib.wiring import In, Out
 
@@ -68,22 +68,32 @@ class _Stages:
         self.boundaries = boundaries
         self.values = {}
         self.produced = {}
+        self.registers = {}
 
     def stage_of(self, level):
         return sum(1 for boundary in self.boundaries if boundary < level)
 
-    def put(self, name, value, stage):
+    def put(self, name, value, stage, shift=0):
+        """``shift``: the value's low bits are known zeros (a shifted input), which its
+        registers leave out: they carry ``value >> shift`` under the name ``{name}_r{k}``
+        (otherwise Yosys drops the constant flops and, with them, the register's name)."""
         self.values[(name, stage)] = value
-        self.produced[name] = (stage, value.shape())
+        shift = min(shift, value.shape().width - 1)
+        self.produced[name] = (stage, value.shape(), shift)
 
     def at(self, name, stage):
-        first, shape = self.produced[name]
+        first, shape, shift = self.produced[name]
+        carried = self.values[(name, first)][shift:] if shift else None
         for k in range(first + 1, stage + 1):
             if (name, k) not in self.values:
-                register = Signal(shape, name=f"{name}_r{k}", reset_less=True)
+                register = Signal(Shape(shape.width - shift, shape.signed), name=f"{name}_r{k}",
+                                  reset_less=True)
+                source = carried if shift else self.values[(name, k - 1)]
                 with self.m.If(self.advance):
-                    self.m.d.sync += register.eq(self.values[(name, k - 1)])
-                self.values[(name, k)] = register
+                    self.m.d.sync += register.eq(source)
+                self.values[(name, k)] = (register << shift) if shift else register
+                self.registers[(name, k)] = register
+            carried = self.registers.get((name, k))
         return self.values[(name, stage)]
 
 
@@ -127,7 +137,9 @@ def _build_tree(m, stages, analysis, features, prefix=""):
                 bias = Const(node.constant)
                 expr = operands[0] + bias if child.sign > 0 else bias - operands[0]
         m.d.comb += value.eq(expr)
-        stages.put(prefix + node.name, value, stage)
+        shift = node.magnitude.bit_length() - 1 \
+            if node.kind == "product" and node.magnitude & (node.magnitude - 1) == 0 else 0
+        stages.put(prefix + node.name, value, stage, shift)
 
 
 def _check_pipeline(component, pipeline, final_level):

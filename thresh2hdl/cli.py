@@ -1,7 +1,9 @@
 """The ``thresh2hdl`` command. Each command is a thin layer over a library call.
 
-Exit codes, in this one place: 0 success, 1 the hardware disagreed with the reference model,
-2 bad input or a missing tool, 4 an internal error (a bug: please report it), 130 interrupted.
+Exit codes, in this one place: 0 success, 1 the hardware disagreed with the reference model
+(in simulation, or a confirmed counterexample of a proof), 2 bad input or a missing tool,
+3 a proof left undecided (a timeout, say), 4 an internal error (a bug: please report it),
+130 interrupted.
 """
 
 import sys
@@ -10,7 +12,8 @@ import click
 
 from .errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
 from .fitting import fit_csv, quantize_npz
-from .flow import BuildOptions, build, check, demo_model, estimate_folder
+from .flow import BuildOptions, build, check, demo_model, estimate_folder, prove
+from .prove import DEFAULT_TIMEOUT_S
 from .train import FitOptions
 
 __all__ = ["main"]
@@ -47,6 +50,12 @@ def _build_options(command):
                      "report accuracy and verify these rows too."),
         click.option("--label", default="label", show_default=True,
                      help="Name of the label column in --data."),
+        click.option("--prove", "prove_too", is_flag=True,
+                     help="Also prove the Verilog equal to the model for every input in range "
+                     "(needs the prove extra: pip install 'thresh2hdl[prove]')."),
+        click.option("--prove-timeout", type=float, default=DEFAULT_TIMEOUT_S,
+                     show_default=True, help="Seconds the proof may take before it is "
+                     "reported undecided."),
     ]
     for option in reversed(options):
         command = option(command)
@@ -58,7 +67,8 @@ def _options(kwargs):
                         score_bits=kwargs["score_bits"], vectors=kwargs["vectors"],
                         simulator=kwargs["simulator"], arch=kwargs["arch"],
                         seed=kwargs["seed"], force=kwargs["force"], data=kwargs["data"],
-                        label=kwargs["label"])
+                        label=kwargs["label"], prove=kwargs["prove_too"],
+                        prove_timeout_s=kwargs["prove_timeout"])
 
 
 class _Progress:
@@ -75,7 +85,9 @@ class _Progress:
                        nl=done >= total)
 
     def note(self, text):
-        click.echo(f"  {text}", err=True)
+        # Only on a terminal: in logs and scripts an error stays the one line on stderr.
+        if self.terminal:
+            click.echo(f"  {text}", err=True)
 
 
 def _progress():
@@ -211,6 +223,21 @@ def estimate_command(out_dir, target):
                f"{figures['flip_flops']} flip-flops, {figures['dsps']} DSPs, fmax "
                f"{figures['fmax_mhz']:.1f} MHz ({figures['tool_versions']['yosys'].split(' (')[0]}, "
                f"{figures['tool_versions']['nextpnr']})")
+
+
+@cli.command("prove")
+@click.argument("out_dir", type=click.Path())
+@click.option("--netlist", type=click.Path(), default=None,
+              help="Prove this Verilog file (same module and ports) instead of the folder's.")
+@click.option("--timeout", type=float, default=DEFAULT_TIMEOUT_S, show_default=True,
+              help="Seconds before the proof is reported undecided (exit code 3).")
+@click.option("--simulator", type=click.Choice(["auto", "verilator", "icarus"]), default="auto",
+              show_default=True, help="Where a counterexample is re-run to confirm it.")
+def prove_command(out_dir, netlist, timeout, simulator):
+    """Prove OUT_DIR's Verilog equal to its model for every input in the declared ranges."""
+    result = prove(out_dir, netlist=netlist, timeout_s=timeout, simulator=simulator,
+                   progress=_progress().note)
+    click.echo(result.summary())
 
 
 def _fail(message, code):

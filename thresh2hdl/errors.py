@@ -4,12 +4,13 @@ Every error a user can cause is a :class:`ThreshError`; the CLI maps them to exi
 place (:mod:`thresh2hdl.cli`), so a user sees one line and never a traceback.
 """
 
-__all__ = ["ThreshError", "InputError", "MismatchError", "ToolError", "EXIT_OK", "EXIT_MISMATCH",
-           "EXIT_INPUT", "EXIT_INTERNAL"]
+__all__ = ["ThreshError", "InputError", "MismatchError", "ToolError", "UndecidedError", "EXIT_OK",
+           "EXIT_MISMATCH", "EXIT_INPUT", "EXIT_UNDECIDED", "EXIT_INTERNAL"]
 
 EXIT_OK = 0
 EXIT_MISMATCH = 1
 EXIT_INPUT = 2
+EXIT_UNDECIDED = 3
 EXIT_INTERNAL = 4
 
 
@@ -41,3 +42,9 @@ class MismatchError(ThreshError):
     """The hardware disagreed with the integer reference model."""
 
     exit_code = EXIT_MISMATCH
+
+
+class UndecidedError(ThreshError):
+    """A proof neither succeeded nor found a confirmed counterexample (a timeout, say)."""
+
+    exit_code = EXIT_UNDECIDED

@@ -20,10 +20,11 @@ import numpy as np
 from . import __version__
 from .circuit import UnitConfig, make_component
 from .data import dataset_for_model, read_csv
-from .errors import InputError, MismatchError, ToolError
+from .errors import InputError, MismatchError, ToolError, UndecidedError
 from .model import Model, load_model, model_to_toml, parse_model
 from .ranges import ARCHITECTURES
 from .estimate import estimate_cost
+from .prove import DEFAULT_TIMEOUT_S, prove_netlist
 from .outdir import check_output_folder, staged_folder, write_files, write_text
 from .reference import ReferenceModel
 from .report_html import report_html, report_markdown
@@ -35,8 +36,8 @@ from .testbench import TestbenchFiles, icarus_version, simulate_icarus, write_te
 from .verilator import find_verilator, simulate_verilator, verilator_version
 from .verilog import emit_verilog, instance_template, port_table
 
-__all__ = ["BuildOptions", "BuildResult", "build", "check", "estimate_folder", "CheckResult", "demo_model",
-           "DEMO_SCENARIO", "SIMULATORS"]
+__all__ = ["BuildOptions", "BuildResult", "build", "check", "estimate_folder", "prove",
+           "CheckResult", "ProofResult", "demo_model", "DEMO_SCENARIO", "SIMULATORS"]
 
 DEMO_SCENARIO = "pump_vibration"
 SIMULATORS = ("auto", "amaranth", "verilator", "icarus")
@@ -149,6 +150,8 @@ class BuildOptions:
     force: bool = False
     data: str | None = None      # CSV of labelled rows: accuracy, and extra vectors
     label: str = "label"
+    prove: bool = False          # also prove the Verilog against the model (see prove())
+    prove_timeout_s: float = DEFAULT_TIMEOUT_S
 
     def __post_init__(self):
         for key in ("pipeline", "vectors", "seed"):
@@ -164,8 +167,15 @@ class BuildOptions:
         if self.simulator not in SIMULATORS:
             raise InputError(f"must be one of {', '.join(SIMULATORS)}, not {self.simulator!r}",
                              field="--simulator")
+        _check_timeout(self.prove_timeout_s)
         if self.vectors is not None and self.vectors > 100_000_000:
             raise InputError(f"at most 100000000 vectors, not {self.vectors}", field="--vectors")
+
+
+def _check_timeout(value):
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not 0 < value <= 86400:
+        raise InputError(f"must be a number of seconds in (0, 86400], not {value!r}",
+                         field="--timeout")
 
 
 @dataclass(frozen=True)
@@ -342,6 +352,13 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
                       seed=options.seed, data=None if dataset is None else dataset.x,
                       progress=progress)
     timing["simulation_s"] = time.perf_counter() - started
+    proof = None
+    if options.prove:
+        started = time.perf_counter()
+        proof = _prove_text(verilog_text, f"{model.module}.v", component, model, ports,
+                            timeout_s=options.prove_timeout_s, simulator=simulator,
+                            progress=getattr(progress, "note", None))
+        timing["proof_s"] = time.perf_counter() - started
     reference = ReferenceModel.from_model(model)
     verilog_name = f"{model.module}.v"
     report = {
@@ -368,6 +385,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         },
         "data": None if dataset is None else data_summary(model, reference, dataset),
         **history,
+        **({} if proof is None else {"proof": proof.section}),
         "caution": SAFETY_CAUTION,
         "timing": {key: round(value, 3) for key, value in timing.items()},
     }
@@ -386,10 +404,14 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
             exported = make_stimulus(reference, small.array, latency=component.latency,
                                      seed=options.seed)
         write_testbench(staging, ports, model.module, exported, verilog_name)
+        if proof is not None and proof.counterexample_csv is not None:
+            write_text(staging / COUNTEREXAMPLE_FILE, proof.counterexample_csv)
     built = BuildResult(out_dir=out_dir, report=report, verilog_path=out_dir / verilog_name)
     if not built.ok:
         raise MismatchError(f"{verified.mismatches} mismatch(es) against the reference "
                             f"model; first: {verified.first_mismatches[0]}")
+    if proof is not None:
+        proof.raise_unless_proved()
     return built
 
 
@@ -411,6 +433,29 @@ def verilog_ports(text, module):
         width = abs(int(hi) - int(lo)) + 1 if hi else 1
         ports[name] = (direction, width)
     return ports
+
+
+def read_netlist(path, model, ports):
+    """The text of a Verilog file whose module ``model.module`` has exactly ``ports``."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as error:
+        raise InputError(f"cannot read the Verilog file ({error})", source=path) from None
+    declared = verilog_ports(text, model.module)
+    if declared is None:
+        raise InputError(f"has no module {model.module!r}", source=path)
+    wanted = {name: (direction, width) for _, name, direction, width, _ in ports}
+    for name, (direction, width) in wanted.items():
+        if declared.get(name) != (direction, width):
+            got = declared.get(name)
+            raise InputError(f"port {name!r} should be {direction} [{width - 1}:0], "
+                             f"{'is missing' if got is None else f'is {got[0]} of {got[1]} bits'}",
+                             source=path)
+    extra = sorted(set(declared) - set(wanted))
+    if extra:
+        raise InputError(f"has a port {extra[0]!r} that the model does not", source=path)
+    return text
 
 
 @dataclass(frozen=True)
@@ -472,23 +517,7 @@ def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0):
     out_dir, model, settings, component = _load_folder(out_dir)
     ports = port_table(component, model)
     path = Path(netlist) if netlist is not None else out_dir / f"{model.module}.v"
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as error:
-        raise InputError(f"cannot read the Verilog file ({error})", source=path) from None
-    declared = verilog_ports(text, model.module)
-    if declared is None:
-        raise InputError(f"has no module {model.module!r}", source=path)
-    wanted = {name: (direction, width) for _, name, direction, width, _ in ports}
-    for name, (direction, width) in wanted.items():
-        if declared.get(name) != (direction, width):
-            got = declared.get(name)
-            raise InputError(f"port {name!r} should be {direction} [{width - 1}:0], "
-                             f"{'is missing' if got is None else f'is {got[0]} of {got[1]} bits'}",
-                             source=path)
-    extra = sorted(set(declared) - set(wanted))
-    if extra:
-        raise InputError(f"has a port {extra[0]!r} that the model does not", source=path)
+    text = read_netlist(path, model, ports)
     simulator = choose_simulator(simulator)
     if simulator == "amaranth":
         raise ToolError("checking a Verilog file needs Verilator or Icarus Verilog; neither "
@@ -501,3 +530,131 @@ def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0):
         raise MismatchError(f"{path.name}: {outcome.mismatches} mismatch(es) in "
                             f"{simulator}; first: {outcome.first_mismatches[0]}")
     return outcome
+
+
+COUNTEREXAMPLE_FILE = "counterexample.csv"
+PROOF_STATEMENT = ("for every input in the declared feature ranges, the outputs equal the "
+                   "integer model's (decision{extra}), with any handshake")
+
+
+@dataclass(frozen=True)
+class ProofResult:
+    """A proof's outcome as the report records it, and the counterexample if one was confirmed.
+
+    ``status`` is ``proved``, ``counterexample`` (confirmed in a simulator) or ``undecided``.
+    """
+
+    section: dict
+    outcome: object                 # the solver's :class:`~thresh2hdl.prove.ProofOutcome`
+    counterexample_csv: str | None
+
+    @property
+    def status(self):
+        return self.section["status"]
+
+    @property
+    def ok(self):
+        return self.status == "proved"
+
+    def summary(self):
+        s = self.section
+        line = (f"{s['netlist']}: {s['status']} ({s['lemmas']} lemmas, {s['solver']}, "
+                f"{s['yosys']}, {self.outcome.seconds:.1f} s)")
+        if s["status"] != "proved":
+            line += f"; {s['detail']}"
+        return line
+
+    def raise_unless_proved(self):
+        s = self.section
+        if s["status"] == "counterexample":
+            raise MismatchError(f"{s['netlist']}: not equal to the model; counterexample "
+                                f"written to {COUNTEREXAMPLE_FILE}: {s['counterexample']['mismatch']}")
+        if s["status"] == "undecided":
+            raise UndecidedError(f"{s['netlist']}: undecided: {s['detail']}")
+
+
+def _confirm(simulator, component, text, ports, model, vector):
+    """Run one vector through the Verilog in a simulator; the first mismatch line, if any."""
+    if simulator == "amaranth":
+        return None, None
+    reference = ReferenceModel.from_model(model)
+    stimulus = make_stimulus(reference, np.array([vector], dtype=np.int64),
+                             latency=component.latency, stall_vectors=0)
+    result, version_text = run_simulator(simulator, component, text, ports, model.module,
+                                         stimulus)
+    checked = result.check(stimulus)
+    if not checked.mismatches:
+        return None, version_text
+    names = [f.name for f in model.features]
+    return checked.mismatches[0].describe(stimulus, names), version_text
+
+
+def _prove_text(text, name, component, model, ports, *, timeout_s, simulator, progress):
+    outcome = prove_netlist(text, component, model, ports, timeout_s=timeout_s,
+                            progress=progress)
+    extra = ", class" if model.is_bank else ""
+    if model.ports.has_score:
+        extra += ", scores" if model.is_bank else ", score"
+    section = {"status": outcome.status, "netlist": name,
+               "statement": PROOF_STATEMENT.format(extra=extra),
+               "method": "one lemma per datapath value and register (Yosys write_smt2, "
+                         "Boolector), cut points at closed subtrees",
+               "lemmas": outcome.lemmas, "solver": outcome.solver, "yosys": outcome.yosys,
+               "arithmetic_bits": outcome.width_bits, "timeout_s": timeout_s,
+               "detail": outcome.detail, "failing_lemmas": list(outcome.failing[:20]),
+               "counterexample": None}
+    csv_text = None
+    if outcome.status == "failed":
+        section["status"] = "undecided"
+        if outcome.candidate is None:
+            section["detail"] += "; no input found whose outputs differ from the model's " \
+                                 "with the sink always ready"
+        else:
+            mismatch, version_text = _confirm(choose_simulator(simulator), component, text,
+                                              ports, model, outcome.candidate)
+            names = [f.name for f in model.features]
+            if mismatch is None:
+                section["detail"] += (
+                    f"; candidate input {list(outcome.candidate)} not confirmed "
+                    + ("(install Icarus Verilog or Verilator to run the Verilog)"
+                       if version_text is None else f"in {version_text}"))
+            else:
+                section["status"] = "counterexample"
+                section["counterexample"] = {
+                    "vector": dict(zip(names, outcome.candidate)), "file": COUNTEREXAMPLE_FILE,
+                    "confirmed_in": version_text, "mismatch": mismatch}
+                csv_text = ",".join(names) + "\n" + ",".join(map(str, outcome.candidate)) + "\n"
+    return ProofResult(section, outcome, csv_text)
+
+
+def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto",
+          progress=None):
+    """Prove a build folder's Verilog (or ``netlist``, same module and ports) equal to its model.
+
+    The result goes into the folder's report (for the folder's own Verilog) and a confirmed
+    counterexample into ``counterexample.csv``; then :class:`MismatchError` is raised for a
+    counterexample and :class:`UndecidedError` when the proof was not decided.
+    """
+    _check_timeout(timeout_s)
+    out_dir, model, settings, component = _load_folder(out_dir)
+    ports = port_table(component, model)
+    own = out_dir / settings["verilog"]
+    path = Path(netlist) if netlist is not None else own
+    text = read_netlist(path, model, ports)
+    result = _prove_text(text, path.name, component, model, ports, timeout_s=timeout_s,
+                         simulator=simulator, progress=progress)
+    files = {}
+    if netlist is None or path.resolve() == own.resolve():
+        settings["proof"] = result.section
+        settings.setdefault("timing", {})["proof_s"] = round(result.outcome.seconds, 3)
+        files = {out_dir / "report.json": report_json(settings),
+                 out_dir / "report.html": report_html(settings),
+                 out_dir / "report.md": report_markdown(settings)}
+    if result.counterexample_csv is not None:
+        files[out_dir / COUNTEREXAMPLE_FILE] = result.counterexample_csv
+    if files:
+        write_files(files, force=True)
+    if result.ok and netlist is None:
+        (out_dir / COUNTEREXAMPLE_FILE).unlink(missing_ok=True)
+    result.raise_unless_proved()
+    return result

@@ -28,10 +28,12 @@ Tools: Yosys (``write_smt2``) and Boolector, the system's or the WebAssembly bui
 every file is passed by a relative name.
 """
 
+import os
 import re
 import subprocess
 import tempfile
 import time
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -43,6 +45,7 @@ __all__ = ["ProofOutcome", "prove_netlist", "proof_tools", "DEFAULT_TIMEOUT_S"]
 
 DEFAULT_TIMEOUT_S = 300
 MIN_WIDTH = 64
+BATCH_LEMMAS = 48
 
 
 @dataclass(frozen=True)
@@ -85,6 +88,7 @@ class _Value:
     magnitude: int = 0
     first: int = 0     # argmax values: the unit indices they cover
     last: int = 0
+    register_shift: int = 0   # a shifted input's registers carry value >> register_shift
 
 
 def _form_range(coeffs, constant, ranges):
@@ -155,8 +159,13 @@ class _Plan:
             name = prefix + node.name
             stage = self.stage_of(node.level)
             if node.kind == "product":
+                # As the circuit does (circuit._Stages): the known zero bits of a shifted
+                # input are left out of its registers.
+                shift = node.magnitude.bit_length() - 1 \
+                    if node.magnitude & (node.magnitude - 1) == 0 else 0
                 self.linear(name, "product", (), stage, {node.feature: node.magnitude},
-                            feature=node.feature, magnitude=node.magnitude)
+                            feature=node.feature, magnitude=node.magnitude,
+                            register_shift=min(shift, node.bits - 1))
                 continue
             children = [self.values[prefix + nodes[c].name] for c in node.children]
             if node.kind == "bias":
@@ -234,13 +243,15 @@ _REFERENCE = re.compile(r"\(\|([^|]+#\d+)\| state\)")
 class _Netlist:
     """The names and widths ``write_smt2 -wires`` exposes, and their SMT functions."""
 
-    def __init__(self, text, module):
+    def __init__(self, text, module, ignored=frozenset()):
         self.text = text
         self.module = module
         self.widths = {}
         self.registers = set()
         self.cut_ids = {}
         for kind, name, width in _WIRE_LINE.findall(text):
+            if name in ignored and kind == "wire":
+                continue        # computed from its operands instead (see _Query.known)
             self.widths[name] = int(width)
             if kind == "register":
                 self.registers.add(name)
@@ -293,11 +304,12 @@ def _bv(value, width):
 class _Query:
     """One SMT-LIB query over the netlist's functions, in ``width``-bit arithmetic."""
 
-    def __init__(self, plan, netlist, width, ports):
+    def __init__(self, plan, netlist, width, ports, *, pure=False):
         self.plan = plan
         self.net = netlist
         self.width = width
         self.ports = ports      # internal port name -> (Verilog name, signed)
+        self.pure = pure        # every value from the inputs in state s0, wires ignored
         self.lines = []
         self.defined = {}
         self.assumptions = []
@@ -332,12 +344,13 @@ class _Query:
     def _sort(self):
         return f"(_ BitVec {self.width})"
 
-    def holds_exactly(self, name, wire):
-        """Whether ``wire`` is wide enough to hold every value ``name`` can take."""
+    def holds_exactly(self, name, wire, shift=0):
+        """Whether ``wire`` is wide enough to hold every value ``name >> shift`` can take."""
         value, bits = self.plan.values[name], self.net.widths[wire]
+        lo, hi = value.lo >> shift, value.hi >> shift
         if value.signed:
-            return bits >= signed_bits(value.lo, value.hi)
-        return bits >= max(1, value.hi.bit_length())
+            return bits >= signed_bits(lo, hi)
+        return bits >= max(1, hi.bit_length())
 
     def known(self, name, stage, modulus_bits, state="s0", needed=None):
         """An expression equal to ``name``'s true value modulo ``2**modulus_bits``, as seen by
@@ -348,6 +361,8 @@ class _Query:
         its width, which is all that a narrower consumer needs.
         """
         value = self.plan.values[name]
+        if self.pure:
+            return self.formula(name, self.width, "s0")
         if stage == value.stage:
             if self.net.has(name) and (self.holds_exactly(name, name)
                                        or self.net.widths[name] >= modulus_bits):
@@ -360,13 +375,16 @@ class _Query:
         if register not in self.net.registers:
             raise _Undecided(f"the netlist has no register {register!r}; the per-stage method "
                              f"needs the pipeline registers under the names thresh2hdl gives")
-        if not (self.holds_exactly(name, register)
-                or self.net.widths[register] >= modulus_bits):
+        shift = value.register_shift
+        if not (self.holds_exactly(name, register, shift)
+                or self.net.widths[register] + shift >= modulus_bits):
             raise _Undecided(f"register {register!r} is narrower than its consumer")
         if needed is not None:
             needed.add((name, stage))
-        return self.define(f"{register} {state}", self._sort(),
-                           self.wide(register, state, value.signed))
+        expr = self.wide(register, state, value.signed)
+        if shift:
+            expr = f"(bvshl {expr} {_bv(shift, self.width)})"
+        return self.define(f"{register} {state}", self._sort(), expr)
 
     def cut(self, name, state):
         """A cut wire's free value, assumed inside its exact range when it can hold it."""
@@ -436,15 +454,6 @@ class _Query:
         signed = value if sign == 1 else f"(bvneg {value})"
         return f"(bvadd {signed} {_bv(bias, self.width)})"
 
-    def linear(self, coeffs, constant, state):
-        """A linear form of the inputs, summed in order: the plain reference."""
-        terms = [f"(bvmul {self.feature(f, state)} {_bv(c, self.width)})"
-                 for f, c in sorted(coeffs.items())]
-        expr = _bv(constant, self.width)
-        for term in terms:
-            expr = f"(bvadd {expr} {term})"
-        return expr
-
 
 def _ports(component, model, port_rows):
     return {internal: (name, signed) for internal, name, _d, _w, signed in port_rows}
@@ -464,7 +473,7 @@ def _lemmas(plan, query, model):
         x = query.feature(index)
         assumptions += [f"(bvsle {_bv(lo, w)} {x})", f"(bvsle {x} {_bv(hi, w)})"]
     for name, value in plan.values.items():
-        if net.has(name):
+        if net.has(name) and not query.pure:
             bits = net.widths[name]
             formula = query.formula(name, bits, needed=needed)
             lemmas.append((name, f"(= {net.bits(name, 's0')} {query.low(formula, bits)})"))
@@ -521,16 +530,20 @@ def _lemmas(plan, query, model):
         name, stage = sorted(needed - done)[0]
         done.add((name, stage))
         value = plan.values[name]
-        reg = f"{name}_r{stage}"
+        reg, shift = f"{name}_r{stage}", value.register_shift
         bits = net.widths[reg]
-        source = query.known(name, stage - 1, bits, needed=needed)
+        source = query.known(name, stage - 1, bits + shift, needed=needed)
+        if shift:
+            source = f"(bvlshr {source} {_bv(shift, w)})"
         after = net.bits(reg, "s1")
         register(reg, stage - 1, f"(= {after} {query.low(source, bits)})",
                  f"(= {after} {net.bits(reg, 's0')})")
-        if query.holds_exactly(name, reg):
+        if query.holds_exactly(name, reg, shift):
+            # Only a register holding a valid item is known to be in range (by induction:
+            # it was loaded from one); the contents of an empty stage stay unconstrained.
             now = query.known(name, stage, w)
-            assumptions += [f"(bvsle {_bv(value.lo, w)} {now})",
-                            f"(bvsle {now} {_bv(value.hi, w)})"]
+            assumptions.append(f"(=> {valid_now(stage)} (and (bvsle {_bv(value.lo, w)} {now}) "
+                               f"(bvsle {now} {_bv(value.hi, w)})))")
     return lemmas, assumptions + query.assumptions
 
 
@@ -584,6 +597,37 @@ def _solve(boolector, text, folder, name, timeout_s, values=()):
     return first, found
 
 
+def _solve_batches(boolector, common, lemmas, folder, deadline):
+    """Check the lemmas in batches, in parallel: after the cuts each lemma reads only free
+    values, so the conjunction holds exactly when every batch does, and small queries are far
+    cheaper for the solver than one large one. Returns ('unsat' | 'sat' | 'unknown', the
+    labels of failing lemmas)."""
+    batches = [lemmas[i:i + BATCH_LEMMAS] for i in range(0, len(lemmas), BATCH_LEMMAS)]
+
+    def solve(number):
+        batch = batches[number]
+        labels = [f"|t2h ok {i}|" for i in range(len(batch))]
+        text = [common] + [f"(define-fun {label} () Bool {body})"
+                           for label, (_, body) in zip(labels, batch)]
+        text.append("(assert (not (and " + " ".join(labels) + " true)))")
+        left = deadline - time.perf_counter()
+        if left <= 0:
+            return "unknown", []
+        answer, values = _solve(boolector, "\n".join(text), folder, f"lemmas{number}.smt2",
+                                left, labels)
+        return answer, [lemma for (lemma, _), label in zip(batch, labels)
+                        if values.get(label) == "false"]
+
+    workers = max(1, min(len(batches), os.cpu_count() or 1))
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        answers = list(pool.map(solve, range(len(batches))))
+    failing = [lemma for _, found in answers for lemma in found]
+    kinds = {answer for answer, _ in answers}
+    if "sat" in kinds:
+        return "sat", failing
+    return ("unknown" if "unknown" in kinds else "unsat"), failing
+
+
 def _header(plan, query, states):
     m = query.net.module
     lines = [f"(declare-fun {s} () |{m}_s|)" for s in states]
@@ -600,6 +644,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
     """
     yosys, boolector = proof_tools()
     started = time.perf_counter()
+    component._MustUse__silence = True    # read as a plan here, not elaborated: no warning
     plan = _Plan(component, model)
     versions = tool_version(yosys), tool_version(boolector)
     with tempfile.TemporaryDirectory(prefix="thresh2hdl-prove-") as name:
@@ -607,53 +652,78 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
         if progress is not None:
             progress("reading the netlist with Yosys")
         smt2 = _netlist_smt2(yosys, verilog_text, model.module, folder)
-        netlist = _Netlist(smt2, model.module)
         widest = max([signed_bits(v.lo, v.hi) for v in plan.values.values()]
-                     + list(netlist.widths.values()) + [1])
+                     + [int(w) for _, _, w in _WIRE_LINE.findall(smt2)] + [1])
         width = max(MIN_WIDTH, widest + 2)
-        query = _Query(plan, netlist, width, _ports(component, model, port_rows))
-        # A cut wire must hold its whole range, so that its free value can be assumed in it.
-        netlist.cut({name for name in plan.closed
-                     if netlist.has(name) and query.holds_exactly(name, name)})
+        ports = _ports(component, model, port_rows)
+        port_names = {name for name, _ in ports.values()}
 
         def outcome(status, detail, lemmas=0, failing=(), candidate=None):
             return ProofOutcome(status, detail, lemmas, tuple(failing), candidate,
                                 versions[1], versions[0], time.perf_counter() - started, width)
 
-        try:
-            lemmas, assumptions = _lemmas(plan, query, model)
-        except _Undecided as why:
-            return outcome("undecided", str(why))
-        states = ["s0", "s1"] if plan.latency else ["s0"]
-        labels = [f"|t2h ok {i}|" for i in range(len(lemmas))]
-        text = [netlist.text, *_header(plan, query, states), *query.lines]
-        text += [f"(assert {a})" for a in assumptions]
-        text += [f"(define-fun {label} () Bool {body})"
-                 for label, (_, body) in zip(labels, lemmas)]
-        text.append("(assert (not (and " + " ".join(labels) + ")))")
-        if progress is not None:
-            progress(f"solving {len(lemmas)} lemmas with Boolector")
-        answer, values = _solve(boolector, "\n".join(text), folder, "lemmas.smt2",
-                                timeout_s, labels)
-        if answer == "unsat":
-            return outcome("proved", f"all {len(lemmas)} lemmas hold for every input in the "
-                           f"declared ranges", len(lemmas))
-        if answer == "unknown":
-            return outcome("undecided", f"no answer within {timeout_s} s", len(lemmas))
-        failing = [lemma for (lemma, _), label in zip(lemmas, labels)
-                   if values.get(label) == "false"]
-        left = timeout_s - (time.perf_counter() - started)
-        candidate = _search(plan, _Netlist(smt2, model.module), width, query.ports, model, folder, boolector,
-                            max(5, left))
-        return outcome("failed", "lemma(s) fail: " + ", ".join(failing[:5]), len(lemmas),
-                       failing, candidate)
+        ignored = set()
+        while True:
+            netlist = _Netlist(smt2, model.module, frozenset(ignored))
+            query = _Query(plan, netlist, width, ports)
+            # A cut wire must hold its whole range, so that its free value can be assumed
+            # in it.
+            netlist.cut({name for name in plan.closed
+                         if netlist.has(name) and query.holds_exactly(name, name)})
+            try:
+                lemmas, assumptions = _lemmas(plan, query, model)
+            except _Undecided as why:
+                return outcome("undecided", str(why))
+            states = ["s0", "s1"] if plan.latency else ["s0"]
+            common = [netlist.text, *_header(plan, query, states), *query.lines]
+            common += [f"(assert {a})" for a in assumptions]
+            if progress is not None:
+                progress(f"solving {len(lemmas)} lemmas with Boolector")
+            answer, failing = _solve_batches(boolector, "\n".join(common), lemmas, folder,
+                                             started + timeout_s)
+            skipped = (f"; {len(ignored)} inner wire(s) that do not follow the plan, such as "
+                       f"{', '.join(sorted(ignored)[:3])}, were computed from their operands "
+                       f"instead") if ignored else ""
+            if answer == "unsat":
+                return outcome("proved", f"all {len(lemmas)} lemmas hold for every input in "
+                               f"the declared ranges{skipped}", len(lemmas))
+            if answer == "unknown":
+                return outcome("undecided", f"no answer within {timeout_s} s{skipped}",
+                               len(lemmas), failing)
+            inner = {lemma for lemma in failing if netlist.has(lemma)
+                     and lemma not in port_names and lemma not in netlist.registers}
+            if not inner:
+                break
+            # Inner wires that fail may just mean something else (a netlist written
+            # back by synthesis keeps some of the names, partly driven). Compute them from
+            # their operands instead and try again; the wires that hold stay cut points.
+            ignored |= inner
+            if progress is not None:
+                progress(f"{len(inner)} inner wire(s) do not follow the plan; trying without")
+        left = started + timeout_s - time.perf_counter()
+        candidate = _search(plan, _Netlist(smt2, model.module), width, ports, model,
+                            folder, boolector, max(5, left))
+        return outcome("failed", "lemma(s) fail: " + ", ".join(failing[:5]) + skipped,
+                       len(lemmas), failing, candidate)
+
+
+def _vector(values, keys, width):
+    """The input vector of a solver model, or None if a value is missing."""
+    vector = []
+    for key in keys:
+        bits = values.get(key)
+        if bits is None:
+            return None
+        number = int(bits[2:], 2)
+        vector.append(number - (1 << width) if number >= 1 << (width - 1) else number)
+    return tuple(vector)
 
 
 def _search(plan, netlist, width, ports, model, folder, boolector, timeout_s):
     """An input whose outputs, after the latency with the sink ready, differ from the model's."""
     latency = plan.latency
     states = [f"s{k}" for k in range(latency + 1)]
-    query = _Query(plan, netlist, width, ports)
+    query = _Query(plan, netlist, width, ports, pure=True)
     w = width
     lines = []
     try:
@@ -667,12 +737,12 @@ def _search(plan, netlist, width, ports, model, folder, boolector, timeout_s):
             if latency:
                 lines.append(f"(assert (not {_bool(netlist, ports['rst'][0], s)}))")
         last = states[-1]
-        scores = [query.linear(dict(enumerate(u.weights)), u.bias, "s0") for u in model.units]
+        # The reference bracketed like the plan: equal to w . x + b (see _check_cover), and
+        # far easier for the solver to match against the netlist than a plain sum.
+        scores = [query.score(u, 0) for u in range(len(model.units))]
         if model.is_bank:
-            best, best_index = scores[0], _bv(0, w)
-            for index, s in enumerate(scores[1:], start=1):
-                best_index = f"(ite (bvsgt {s} {best}) {_bv(index, w)} {best_index})"
-                best = f"(ite (bvsgt {s} {best}) {s} {best})"
+            best_index = query.known(plan.class_value, 0, w) if plan.class_value \
+                else _bv(0, w)
             expected = [("y", best_index)]
         else:
             expected = [("y", f"(ite (bvsgt {scores[0]} {_bv(0, w)}) {_bv(1, w)} {_bv(0, w)})")]
@@ -684,20 +754,9 @@ def _search(plan, netlist, width, ports, model, folder, boolector, timeout_s):
             port, signed = query.port(internal, last)
             differs.append(f"(distinct {query.wide(port, last, signed)} {value})")
         valid = _bool(netlist, ports["out_valid"][0], last)
-        lines.append(f"(assert (and {valid} (or {' '.join(differs)})))")
+        lines.append(f"(assert (and {valid} (or false {' '.join(differs)})))")
     except _Undecided:
         return None
     text = [netlist.text, *_header(plan, query, states), *query.lines, *lines]
     answer, values = _solve(boolector, "\n".join(text), folder, "search.smt2", timeout_s, xs)
-    if answer != "sat":
-        return None
-    vector = []
-    for index, key in enumerate(xs):
-        bits = values.get(key)
-        if bits is None:
-            return None
-        number = int(bits[2:], 2)
-        if number >= 1 << (w - 1):
-            number -= 1 << w
-        vector.append(number)
-    return tuple(vector)
+    return _vector(values, xs, w) if answer == "sat" else None

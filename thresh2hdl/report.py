@@ -47,6 +47,12 @@ def summary_lines(report):
     if report.get("data"):
         data = report["data"]
         lines.append(f"  accuracy on {data['file']}: {data['accuracy']:.4f} over {data['rows']} rows")
+    proof = report.get("proof")
+    if proof:
+        lines.append(f"  proof of {proof['netlist']}: {proof['status']} ({proof['lemmas']} "
+                     f"lemmas, {proof['solver']})")
+        if proof["status"] != "proved":
+            lines.append(f"  PROOF {proof['detail']}")
     for text in verification.get("first_mismatches", [])[:3]:
         lines.append(f"  MISMATCH {text}")
     lines.append(f"  caution: {SAFETY_CAUTION}")

@@ -13,7 +13,7 @@ h1{font-size:1.5em}h2{font-size:1.15em;margin-top:1.6em;border-bottom:1px solid 
 table{border-collapse:collapse;margin:.5em 0;font-size:13px}td,th{border:1px solid #ccc;
 padding:2px 8px;text-align:right;white-space:nowrap}.wide{overflow-x:auto}th{background:#f3f3f3}td.l,th.l{text-align:left}
 .caution{border:2px solid #b35900;background:#fff4e5;padding:.6em 1em}
-.ok{color:#176117;font-weight:bold}.bad{color:#a00;font-weight:bold}
+.ok{color:#176117;font-weight:bold}.bad{color:#a00;font-weight:bold}.warn{color:#8a5a00;font-weight:bold}
 svg text{font:11px system-ui,sans-serif}code{background:#f3f3f3;padding:0 3px}
 @media print{.caution{break-inside:avoid}}
 """
@@ -211,8 +211,26 @@ def report_html(report):
                                        f"{estimate['tool_versions']['nextpnr']}"]]))
     else:
         out.append("<p>Not estimated; run <code>thresh2hdl estimate</code> on this folder.</p>")
-    out.append("<h2>Proof</h2><p>Not run (formal proof is not part of this version).</p>")
+    out += ["<h2>Proof</h2>", _proof_html(report.get("proof"))]
     out.append("</body></html>\n")
+    return "\n".join(out)
+
+
+def _proof_html(proof):
+    if not proof:
+        return "<p>Not run; run <code>thresh2hdl prove</code> on this folder.</p>"
+    css = {"proved": "ok", "counterexample": "bad"}.get(proof["status"], "warn")
+    rows = [["netlist", proof["netlist"]], ["statement", proof["statement"]],
+            ["method", proof["method"]], ["lemmas", proof["lemmas"]],
+            ["solver", f"{proof['solver']}, {proof['yosys']}"],
+            ["arithmetic", f"{proof['arithmetic_bits']} bits"],
+            ["timeout", f"{proof['timeout_s']} s"]]
+    out = [f"<p class={css}>{escape(proof['status'])}: {escape(proof['detail'])}</p>",
+           _table(["", "value"], rows)]
+    example = proof.get("counterexample")
+    if example:
+        out.append(f"<p>Counterexample ({escape(example['file'])}), confirmed in "
+                   f"{escape(example['confirmed_in'])}: {escape(example['mismatch'])}</p>")
     return "\n".join(out)
 
 
@@ -238,6 +256,9 @@ def report_markdown(report):
         lines.append(f"| {estimate['target']} cost | {estimate['luts']} LUTs, "
                      f"{estimate['carries']} carries, {estimate['flip_flops']} flip-flops, "
                      f"{estimate['dsps']} DSPs, {estimate['fmax_mhz']:.1f} MHz |")
+    proof = report.get("proof")
+    lines.append(f"| proof | {proof['status']} ({proof['lemmas']} lemmas, {proof['solver']}) |"
+                 if proof else "| proof | not run |")
     lines += ["", "| node | bits | range |", "| --- | --- | --- |"]
     lines += [f"| {n['name']} | {n['bits']} | [{n['range'][0]}, {n['range'][1]}] |"
               for n in report["tree"]["nodes"]]

@@ -194,10 +194,23 @@ class _Writer:
         ports, cells, netnames = self.ports, self.module["cells"], self.module["netnames"]
         out_bits = {tuple(p["bits"]): name for name, p in ports.items()
                     if p["direction"] == "output"}
-        named = {}
+        driven = {bit for cell in cells.values() for key in ("Q", "Y")
+                  for bit in cell["connections"].get(key, ())}
+        named, extended = {}, {}
         for net, info in sorted(netnames.items()):
             if not info.get("hide_name") and net not in ports:
-                named.setdefault(tuple(info["bits"]), net)
+                bits = info["bits"]
+                named.setdefault(tuple(bits), net)
+                # A net whose top bits ``wreduce`` cut off as unused (left undriven), or found
+                # to be copies of the sign or zeros: the cell driving its low bits keeps the
+                # net's name.
+                k = len(bits) - 1
+                while k > 0 and (bits[k] == bits[k - 1] or bits[k] == "0"
+                                 or bits[k] not in driven):
+                    extended.setdefault(tuple(bits[:k]), net)
+                    k -= 1
+        for bits, net in extended.items():
+            named.setdefault(bits, net)
 
         for name, port in ports.items():
             if port["direction"] == "input":
