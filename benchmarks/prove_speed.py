@@ -1,0 +1,74 @@
+"""Proof time of the emitted Verilog against its model, Yosys step included.
+
+    python benchmarks/prove_speed.py [--quick]
+
+Random 12-bit unsigned models (seeded), every size as a combinational design and with three
+register stages. Targets on 2 cores: 16 x 12 <= 5 s, 64 x 12 <= 10 s, 256 x 12 <= 60 s, a
+10-unit bank of 64 features <= 60 s; pipelined within 2x of the combinational time.
+Baseline, in the same run: the same lemmas in one solver query (no batches), on the sizes
+where that finishes in reasonable time.
+"""
+
+import argparse
+import time
+
+import numpy as np
+
+import thresh2hdl.prove as prove_module
+from thresh2hdl.circuit import UnitConfig, make_component
+from thresh2hdl.model import FeatureFormat, Model, Unit
+from thresh2hdl.verilog import emit_verilog, port_table
+
+TARGETS_S = {(16, 1): 5, (64, 1): 10, (256, 1): 60, (64, 10): 60}
+
+
+def model_of(features, units, seed=0):
+    rng = np.random.default_rng(seed)
+    return Model(module="bench", features=[FeatureFormat(f"x{i}", 12) for i in range(features)],
+                 units=[Unit(f"u{k}", tuple(int(v) for v in rng.integers(-200, 201, features)),
+                             int(rng.integers(-100000, 100001))) for k in range(units)])
+
+
+def prove_time(model, pipeline, *, timeout_s=300):
+    component = make_component(UnitConfig(model, pipeline=pipeline))
+    text = emit_verilog(component, model)
+    outcome = prove_module.prove_netlist(text, component, model, port_table(component, model),
+                                         timeout_s=timeout_s)
+    return outcome
+
+
+def main():
+    parser = argparse.ArgumentParser()
+    parser.add_argument("--quick", action="store_true", help="only 16 and 64 features")
+    args = parser.parse_args()
+    sizes = [(16, 1), (64, 1)] + ([] if args.quick else [(256, 1), (64, 10)])
+    print(f"{'design':>22} {'comb s':>8} {'pipe3 s':>8} {'ratio':>6} {'target s':>9}  status")
+    for features, units in sizes:
+        model = model_of(features, units)
+        comb = prove_time(model, 0)
+        piped = prove_time(model, 3)
+        name = f"{features} x 12" + (f", {units} units" if units > 1 else "")
+        ok = comb.seconds <= TARGETS_S[(features, units)] and \
+            piped.seconds <= 2 * max(comb.seconds, 1.0)
+        print(f"{name:>22} {comb.seconds:8.1f} {piped.seconds:8.1f} "
+              f"{piped.seconds / comb.seconds:6.2f} {TARGETS_S[(features, units)]:9d}  "
+              f"{comb.status}/{piped.status} ({comb.lemmas}/{piped.lemmas} lemmas)"
+              f"{'' if ok else '  MISSED'}")
+    print(f"solver {comb.solver}, {comb.yosys}")
+    # Baseline: one query holding every lemma, as a single solver call would.
+    batch = prove_module.BATCH_LEMMAS
+    for features, units in [(64, 1), (16, 10)]:
+        model = model_of(features, units)
+        batched = prove_time(model, 0)
+        prove_module.BATCH_LEMMAS = 10 ** 9
+        try:
+            single = prove_time(model, 0, timeout_s=120)
+        finally:
+            prove_module.BATCH_LEMMAS = batch
+        print(f"baseline {features} x 12, {units} unit(s): one query {single.seconds:.1f} s "
+              f"({single.status}), batches of {batch} {batched.seconds:.1f} s: "
+              f"{single.seconds / batched.seconds:.1f}x")
+
+
+if __name__ == "__main__":
+    main()
