@@ -10,7 +10,6 @@ where that finishes in reasonable time.
 """
 
 import argparse
-import time
 
 import numpy as np
 

@@ -227,7 +227,7 @@ def test_prove_command_proves_a_pipelined_bank(tmp_path):
     assert "proved" in result.stdout and "Boolector" in result.stdout
     report = json.loads((out / "report.json").read_text())
     assert report["proof"]["status"] == "proved" and "class" in report["proof"]["statement"]
-    assert "proved" in (out / "report.html").read_text()
+    assert "<p class=ok>proved: all" in (out / "report.html").read_text()
     assert "| proof | proved" in (out / "report.md").read_text()
 
 
@@ -270,3 +270,19 @@ def test_missing_tools_name_what_to_install(tmp_path, monkeypatch):
     monkeypatch.setattr(tools.shutil, "which", lambda *a, **k: None)
     with pytest.raises(ToolError, match=r"pip install 'thresh2hdl\[prove\]'"):
         proof_tools()
+
+
+def test_prove_command_prints_a_confirmed_counterexample_with_exit_1(tmp_path):
+    require_tool("iverilog", "vvp")
+    out = tmp_path / "demo"
+    assert run("demo", "--out", out, "--simulator", "icarus", "--vectors", "50").returncode == 0
+    text = (out / "pump_fault.v").read_text()
+    mutant = change_a_weight(text, np.random.default_rng(3))
+    (tmp_path / "edited.v").write_text(mutant)
+    before = (out / "report.json").read_text()
+    result = run("prove", out, "--netlist", tmp_path / "edited.v", "--simulator", "icarus")
+    assert_one_line_error(result, 1, "counterexample written to counterexample.csv")
+    assert "expected" in result.stderr and "rms_axial=" in result.stderr
+    # A proof of another file leaves the folder's report as it was.
+    assert (out / "report.json").read_text() == before
+    assert (out / "counterexample.csv").read_text().startswith("rms_axial,rms_radial,")

@@ -330,14 +330,14 @@ class _Query:
             self.defined[key] = name
         return self.defined[key]
 
-    def port(self, internal, state):
+    def port(self, internal):
         name, signed = self.ports[internal]
         if not self.net.has(name):
             raise _Undecided(f"the netlist has no port {name!r}")
         return name, signed
 
     def feature(self, index, state="s0"):
-        name, signed = self.port(f"x{index}", state)
+        name, signed = self.port(f"x{index}")
         return self.define(f"x{index} {state}", self._sort(),
                            self.wide(name, state, signed))
 
@@ -455,7 +455,7 @@ class _Query:
         return f"(bvadd {signed} {_bv(bias, self.width)})"
 
 
-def _ports(component, model, port_rows):
+def _ports(port_rows):
     return {internal: (name, signed) for internal, name, _d, _w, signed in port_rows}
 
 
@@ -498,7 +498,7 @@ def _lemmas(plan, query, model):
         lemmas.append(("in_ready", f"(= {in_ready} {out_ready})"))
         lemmas.append(("out_valid", f"(= {out_valid} {in_valid})"))
         for internal, expected in outputs:
-            port, signed = query.port(internal, "s0")
+            port, signed = query.port(internal)
             lemmas.append((port, f"(= {query.wide(port, 's0', signed)} {expected})"))
         return lemmas, assumptions + query.assumptions
     rst = _bool(net, query.ports["rst"][0], "s0")
@@ -521,7 +521,7 @@ def _lemmas(plan, query, model):
         return valid[0] if stage == 0 else valid[stage][1]
 
     for internal, expected in outputs:
-        port, signed = query.port(internal, "s0")
+        port, signed = query.port(internal)
         after = query.wide(port, "s1", signed)
         register(port, latency - 1, f"(= {after} {expected})",
                  f"(= {after} {query.wide(port, 's0', signed)})")
@@ -578,7 +578,7 @@ def _netlist_smt2(yosys, verilog_text, module, folder):
 
 def _solve(boolector, text, folder, name, timeout_s, values=()):
     """'unsat', 'sat' with the values asked for, or 'unknown' (timeout)."""
-    body = ["(set-option :produce-models true)", "(set-logic QF_BV)", text, "(check-sat)"]
+    body = ["(set-option :produce-models true)", "(set-logic QF_UFBV)", text, "(check-sat)"]
     if values:
         body.append("(get-value (" + " ".join(values) + "))")
     (folder / name).write_text("\n".join(body) + "\n", encoding="utf-8")
@@ -628,7 +628,7 @@ def _solve_batches(boolector, common, lemmas, folder, deadline):
     return ("unknown" if "unknown" in kinds else "unsat"), failing
 
 
-def _header(plan, query, states):
+def _header(query, states):
     m = query.net.module
     lines = [f"(declare-fun {s} () |{m}_s|)" for s in states]
     lines += [f"(assert (|{m}_t| {a} {b}))" for a, b in zip(states, states[1:])]
@@ -655,7 +655,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
         widest = max([signed_bits(v.lo, v.hi) for v in plan.values.values()]
                      + [int(w) for _, _, w in _WIRE_LINE.findall(smt2)] + [1])
         width = max(MIN_WIDTH, widest + 2)
-        ports = _ports(component, model, port_rows)
+        ports = _ports(port_rows)
         port_names = {name for name, _ in ports.values()}
 
         def outcome(status, detail, lemmas=0, failing=(), candidate=None):
@@ -675,7 +675,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
             except _Undecided as why:
                 return outcome("undecided", str(why))
             states = ["s0", "s1"] if plan.latency else ["s0"]
-            common = [netlist.text, *_header(plan, query, states), *query.lines]
+            common = [netlist.text, *_header(query, states), *query.lines]
             common += [f"(assert {a})" for a in assumptions]
             if progress is not None:
                 progress(f"solving {len(lemmas)} lemmas with Boolector")
@@ -751,12 +751,12 @@ def _search(plan, netlist, width, ports, model, folder, boolector, timeout_s):
                          for u, s in enumerate(scores)]
         differs = []
         for internal, value in expected:
-            port, signed = query.port(internal, last)
+            port, signed = query.port(internal)
             differs.append(f"(distinct {query.wide(port, last, signed)} {value})")
         valid = _bool(netlist, ports["out_valid"][0], last)
         lines.append(f"(assert (and {valid} (or false {' '.join(differs)})))")
     except _Undecided:
         return None
-    text = [netlist.text, *_header(plan, query, states), *query.lines, *lines]
+    text = [netlist.text, *_header(query, states), *query.lines, *lines]
     answer, values = _solve(boolector, "\n".join(text), folder, "search.smt2", timeout_s, xs)
     return _vector(values, xs, w) if answer == "sat" else None
