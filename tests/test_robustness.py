@@ -9,11 +9,12 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
+from conftest import require_tool
 from test_cli import assert_one_line_error, run
 from thresh2hdl.cli import main
 from thresh2hdl.data import read_csv
 from thresh2hdl.errors import InputError
-from thresh2hdl.flow import demo_model
+from thresh2hdl.flow import BuildOptions, build, demo_model
 from thresh2hdl.model import FeatureFormat, Model, Unit, load_model, model_to_toml
 from thresh2hdl.quantize import load_float_model
 
@@ -195,3 +196,44 @@ def test_an_interrupted_run_leaves_the_previous_output(tmp_path, how):
     if how == signal.SIGINT:
         assert process.returncode == 130 and "interrupted" in err and "Traceback" not in err
         assert [p for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+@pytest.mark.verilator
+def test_the_largest_model_builds_and_verifies(tmp_path):
+    # The feature limit (4096 inputs of 12 bits): about 8,000 adder-tree nodes. Verilator runs
+    # the emitted file (Amaranth's simulator would take about 14 minutes here); the plain
+    # numpy sum below is the independent check of the report's score range (interval
+    # arithmetic over independent terms, common practice).
+    require_tool("verilator")
+    rng = np.random.default_rng(0)
+    n = 4096
+    weights = [int(v) for v in rng.integers(-128, 128, n)]
+    model = Model(module="wide4096", features=[FeatureFormat(f"x{i}", 12) for i in range(n)],
+                  units=[Unit("u", tuple(weights), -1000)])
+    built = build(model, tmp_path / "out", BuildOptions(simulator="verilator", vectors=2000))
+    w = np.array(weights)
+    assert built.report["score_range"] == [int(w[w < 0].sum() * 4095) - 1000,
+                                           int(w[w > 0].sum() * 4095) - 1000]
+    assert built.report["mismatches"] == 0 and built.report["vectors_checked"] > 2000
+    assert len(built.report["tree"]["nodes"]) > 8000
+
+
+@pytest.mark.icarus
+def test_a_bank_of_the_most_units_builds_and_verifies(tmp_path):
+    # The unit limit (256 units, argmax over all of them) through the emitted file in Icarus;
+    # the plain Python argmax (first index of the largest score, as numpy.argmax documents)
+    # is the independent check of the decisions.
+    require_tool("iverilog", "vvp")
+    rng = np.random.default_rng(0)
+    weights = rng.integers(-50, 50, (256, 4))
+    biases = rng.integers(-100, 100, 256)
+    model = Model(module="bank256", features=[FeatureFormat(f"x{i}", 8) for i in range(4)],
+                  units=[Unit(f"c{k}", tuple(int(v) for v in row), int(b))
+                         for k, (row, b) in enumerate(zip(weights, biases))])
+    built = build(model, tmp_path / "out", BuildOptions(simulator="icarus", vectors=500,
+                                                        pipeline=2))
+    assert built.report["mismatches"] == 0 and built.report["vectors_checked"] > 500
+    from thresh2hdl.reference import ReferenceModel
+    x = rng.integers(0, 256, (200, 4))
+    assert (ReferenceModel.from_model(model).decisions(x) ==
+            np.argmax(x @ weights.T + biases, axis=1)).all()

@@ -325,6 +325,9 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     timing = {}
     started = time.perf_counter()
 
+    note = getattr(progress, "note", None)
+    if note is not None:
+        note("planning the circuit and writing its Verilog")
     component = make_component(UnitConfig(model, pipeline=options.pipeline,
                                           score_bits=options.score_bits, arch=options.arch))
     analyses = unit_analyses(component)
@@ -357,7 +360,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         started = time.perf_counter()
         proof = _prove_text(verilog_text, f"{model.module}.v", component, model, ports,
                             timeout_s=options.prove_timeout_s, simulator=simulator,
-                            progress=getattr(progress, "note", None))
+                            progress=note)
         timing["proof_s"] = time.perf_counter() - started
     reference = ReferenceModel.from_model(model)
     verilog_name = f"{model.module}.v"
