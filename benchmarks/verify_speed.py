@@ -75,10 +75,12 @@ def main():
     start = time.perf_counter()
     compiled_harness(bank_text, bank_ports, bank.module)
     print(f"bank harness compile (or cache hit): {time.perf_counter() - start:.1f} s")
-    rows = make_vectors(bank_dut.analysis, random_count=CHUNK_VECTORS).array
+    rows = make_vectors(bank_dut.analysis, random_count=1_000_000).array
     stimulus = make_stimulus(ReferenceModel.from_model(bank), rows, latency=bank_dut.latency)
-    result = simulate_verilator(bank_text, bank_ports, bank.module, stimulus)
-    mismatches = result.check(stimulus).mismatch_count
+    # Best of three runs of the compiled model (the machine's other load only slows a run).
+    runs = [simulate_verilator(bank_text, bank_ports, bank.module, stimulus) for _ in range(3)]
+    result = min(runs, key=lambda r: r.run_seconds)
+    mismatches = sum(r.check(stimulus).mismatch_count for r in runs)
     start = time.perf_counter()
     verified = verify("verilator", bank_dut, bank_text, bank_ports, bank, count=2_000_000)
     path = verified.vectors_checked / (time.perf_counter() - start)

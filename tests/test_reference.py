@@ -1,7 +1,8 @@
 import numpy as np
 from hypothesis import given, settings, strategies as st
 
-from thresh2hdl.reference import ReferenceModel, cycle_model
+from thresh2hdl.reference import BankReference, ReferenceModel, cycle_model
+from thresh2hdl.vectors import random_vectors
 
 
 def test_scores_equal_python_integer_arithmetic():
@@ -16,6 +17,35 @@ def test_scores_equal_python_integer_arithmetic():
     expected = [sum(int(a) * b for a, b in zip(row, weights)) - 12345 for row in x]
     assert ref.scores(x).tolist() == expected
     assert ref.decisions(x).tolist() == [int(s > 0) for s in expected]
+
+
+def test_bank_scores_at_the_float64_limit_equal_python_integers():
+    # The bank's float64 matrix product is used only while every partial sum stays within
+    # 2**53 (the float64 significand, IEEE 754); at the edge of that bound it must still
+    # equal Python's exact integers, here with every term near its largest.
+    n = 64
+    big = (1 << 53) // (n * ((1 << 20) - 1))         # |w| * max|x| * n stays <= 2**53
+    weights = [[big - k] * (n // 2) + [-(big - k)] * (n // 2) for k in range(3)]
+    ranges = [(-(1 << 20) + 1, (1 << 20) - 1)] * n
+    units = [ReferenceModel(weights=w, bias=0, feature_ranges=ranges) for w in weights]
+    assert all(u.exact_in_float64 for u in units)
+    x = np.array([[(1 << 20) - 1] * (n // 2) + [-(1 << 20) + 1] * (n // 2),
+                  [(1 << 20) - 1] * n] + [[(-1) ** i * ((1 << 20) - 1 - i) for i in range(n)]])
+    expected = [[sum(int(a) * b for a, b in zip(row, w)) for w in weights] for row in x]
+    assert BankReference(units).scores(x).tolist() == expected
+    assert abs(expected[0][0]) > (1 << 52)
+
+
+def test_random_vectors_cover_every_code_uniformly():
+    # 4-bit and 12-bit columns share 16-bit lanes of the raw draws; a chi-square test on the
+    # 4-bit column (15 degrees of freedom, 0.1% critical value 37.7 from standard tables,
+    # common practice) and the extremes of the 12-bit one.
+    rows = random_vectors(np.random.default_rng(5), [(0, 15), (-2048, 2047), (3, 10)], 160_000)
+    counts = np.bincount(rows[:, 0], minlength=16)
+    chi2 = ((counts - 10_000) ** 2 / 10_000).sum()
+    assert chi2 < 37.7
+    assert rows[:, 1].min() == -2048 and rows[:, 1].max() == 2047
+    assert rows[:, 2].min() == 3 and rows[:, 2].max() == 10
 
 
 def test_wide_models_use_python_integers():

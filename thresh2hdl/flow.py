@@ -5,11 +5,14 @@ This is the library call behind ``thresh2hdl build`` and ``thresh2hdl demo``.
 
 import hashlib
 import json
+import os
 import re
 import shutil
 import tempfile
 import time
 import tomllib
+from collections import deque
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from importlib import resources
 from importlib.metadata import version
@@ -57,6 +60,15 @@ def choose_simulator(name):
 
 
 CHUNK_VECTORS = 250_000   # random vectors simulated at a time: bounded memory, warm caches
+# Codes per chunk: keeps each int64 array of a chunk near 24 MB, below the size from which the C
+# allocator maps fresh pages for every array (first touch of fresh pages cost as much as the
+# arithmetic on them, measured here).
+CHUNK_CODES = 3_000_000
+
+
+def chunk_vectors(features):
+    """Random vectors per chunk for a model of ``features`` inputs."""
+    return min(CHUNK_VECTORS, max(16_384, CHUNK_CODES // max(1, features)))
 
 
 @dataclass(frozen=True)
@@ -76,13 +88,14 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
     """Corner cases, optional data rows and ``count`` random vectors through one simulator.
 
     The first chunk holds the corners, the data rows and a segment with random stalls; later
-    chunks of :data:`CHUNK_VECTORS` random vectors run with gaps only. Each chunk is judged by
-    the reference model before the next is made.
+    chunks of :func:`chunk_vectors` random vectors run with gaps only. Each chunk is judged by
+    the reference model while the next ones are simulated; a mismatch ends the run.
     """
     analysis = component.analysis
     reference = ReferenceModel.from_model(model)
     names = [f.name for f in model.features]
-    first_count = min(count, CHUNK_VECTORS)
+    per_chunk = chunk_vectors(len(names))
+    first_count = min(count, per_chunk)
     vectors = make_vectors(analysis, random_count=first_count, seed=seed, data=data,
                            others=unit_analyses(component)[1:])
     stimulus = make_stimulus(reference, vectors.array, latency=component.latency, seed=seed)
@@ -91,30 +104,56 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
     checked_total = mismatches = cycles = 0
     first, version_text = (), ""
     remaining, chunk = count - first_count, 0
-    while True:
-        result, version_text = run_simulator(simulator, component, verilog_text, ports,
-                                             model.module, stimulus,
-                                             progress=progress if chunk == 0 else None)
-        if progress is not None and count > CHUNK_VECTORS:
-            progress(min(count, first_count + chunk * CHUNK_VECTORS), count,
-                     f"verifying in {simulator}")
-        checked = result.check(stimulus)
-        checked_total += checked.vectors_checked
-        mismatches += checked.mismatch_count
-        cycles += stimulus.cycles
-        if checked.mismatches and not first:
-            origin = vectors.origin if chunk == 0 else (lambda i, k=chunk: (
-                f"random within the declared ranges, chunk {k}", i))
-            first = tuple(m.describe(stimulus, names, origin) for m in checked.mismatches)
-        if remaining <= 0 or mismatches:
-            break
-        chunk += 1
-        size = min(remaining, CHUNK_VECTORS)
-        remaining -= size
+
+    def simulate(stimulus, note):
+        return run_simulator(simulator, component, verilog_text, ports, model.module, stimulus,
+                             progress=note)
+
+    def next_chunk(chunk):
+        size = min(remaining, per_chunk)
         rows = random_vectors(np.random.default_rng([seed, chunk]), analysis.feature_ranges, size)
-        groups[-2 if data is not None else -1][1] += size
-        stimulus = make_stimulus(reference, rows, latency=component.latency,
-                                 seed=[seed, chunk], stall_vectors=0)
+        return size, make_stimulus(reference, rows, latency=component.latency,
+                                   seed=[seed, chunk], stall_vectors=0)
+
+    # Verilator and Icarus run in processes of their own: up to two chunks are simulated at a
+    # time (one per core, while their vectors fit in a few hundred MB) while this thread makes
+    # the next chunk and judges the last.
+    chunk_bytes = per_chunk * len(names) * 8
+    workers = 1 if simulator == "amaranth" or (os.cpu_count() or 1) < 2 \
+        or chunk_bytes > 128 << 20 else 2
+    flight = deque()
+    planned = 0
+
+    def launch():
+        nonlocal remaining, planned
+        while len(flight) < workers and remaining > 0:
+            planned += 1
+            size, upcoming = next_chunk(planned)
+            remaining -= size
+            flight.append((planned, size, upcoming, pool.submit(simulate, upcoming, None)))
+
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        flight.append((0, 0, stimulus, pool.submit(simulate, stimulus, progress)))
+        while flight:
+            chunk, size, stimulus, running = flight.popleft()
+            launch()
+            result, version_text = running.result()
+            if progress is not None and count > per_chunk:
+                progress(min(count, first_count + chunk * per_chunk), count,
+                         f"verifying in {simulator}")
+            checked = result.check(stimulus)
+            checked_total += checked.vectors_checked
+            mismatches += checked.mismatch_count
+            cycles += stimulus.cycles
+            groups[-2 if data is not None else -1][1] += size
+            if checked.mismatches and not first:
+                origin = vectors.origin if chunk == 0 else (lambda i, k=chunk: (
+                    f"random within the declared ranges, chunk {k}", i))
+                first = tuple(m.describe(stimulus, names, origin) for m in checked.mismatches)
+            if mismatches:
+                for *_, waiting in flight:
+                    waiting.cancel()
+                break
     return Verification(simulator, version_text, checked_total, mismatches, cycles,
                         tuple(tuple(g) for g in groups), first, exported)
 

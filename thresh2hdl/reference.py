@@ -9,6 +9,7 @@ import numpy as np
 __all__ = ["ReferenceModel", "BankReference", "cycle_model"]
 
 _INT64_LIMIT = (1 << 63) - 1
+_FLOAT64_EXACT = 1 << 53      # every integer of at most this magnitude is a float64
 
 
 class ReferenceModel:
@@ -38,6 +39,7 @@ class ReferenceModel:
         bound = abs(self.bias) + sum(abs(w) * max(abs(lo), abs(hi))
                                      for w, (lo, hi) in zip(self.weights, self.feature_ranges))
         self.exact_in_int64 = bound <= _INT64_LIMIT
+        self.exact_in_float64 = bound <= _FLOAT64_EXACT
 
     @classmethod
     def from_model(cls, model):
@@ -63,7 +65,12 @@ class ReferenceModel:
 
     def decisions(self, vectors):
         """``1`` where the score is strictly positive, else ``0``."""
-        return (self.scores(vectors) > 0).astype(np.uint8)
+        return self.decide(self.scores(vectors))
+
+    @staticmethod
+    def decide(scores):
+        """The decisions of scores already computed by :meth:`scores`."""
+        return (scores > 0).astype(np.uint8)
 
 
 class BankReference:
@@ -83,13 +90,25 @@ class BankReference:
 
     def scores(self, vectors):
         """Scores, shape (rows, units)."""
+        if all(unit.exact_in_float64 for unit in self.units):
+            # One float64 matrix product (BLAS) for all units. Exact: every product and every
+            # partial sum, in whatever order BLAS adds them, is an integer no larger than the
+            # unit's bound, and float64 holds each such integer exactly.
+            x = np.asarray(vectors, dtype=np.float64).reshape(-1, len(self.units[0].weights))
+            w = np.array([unit.weights for unit in self.units], dtype=np.float64)
+            b = np.array([unit.bias for unit in self.units], dtype=np.int64)
+            return (x @ w.T).astype(np.int64) + b
         columns = [unit.scores(vectors) for unit in self.units]
         if all(c.dtype != object for c in columns):
             return np.stack(columns, axis=1)
         return np.stack([np.asarray(c, dtype=object) for c in columns], axis=1)
 
     def decisions(self, vectors):
-        scores = self.scores(vectors)
+        return self.decide(self.scores(vectors))
+
+    @staticmethod
+    def decide(scores):
+        """The class of each row of scores already computed by :meth:`scores`."""
         if scores.dtype != object:
             return np.argmax(scores, axis=1)     # first maximum: ties to the lowest index
         return np.array([max(range(len(row)), key=lambda i: (row[i], -i)) for row in scores])

@@ -90,12 +90,12 @@ def make_stimulus(reference, vectors, *, latency, seed=0, valid_probability=0.9,
                                       valid_probability))
     trace = {key: np.concatenate([segment[key] for segment in segments])
              for key in segments[0]}
+    scores = reference.scores(vectors)
     return Stimulus(latency=latency, vectors=vectors, in_valid=trace["in_valid"],
                     out_ready=trace["out_ready"], in_index=trace["in_index"],
                     expect_in_ready=trace["in_ready"], expect_out_valid=trace["out_valid"],
                     expect_out_index=trace["out_index"],
-                    expect_scores=reference.scores(vectors),
-                    expect_decisions=reference.decisions(vectors))
+                    expect_scores=scores, expect_decisions=reference.decide(scores))
 
 
 @dataclass(frozen=True)

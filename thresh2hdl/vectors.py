@@ -55,14 +55,20 @@ def _random_within(rng, ranges, count):
     # Uniform offsets in [0, span] from the low end. Where span + 1 is a power of two (a full
     # code range, the common case) masking raw random bits is exactly uniform and several
     # times faster than bounded draws; other columns are drawn with an inclusive bound.
-    offsets = rng.bit_generator.random_raw(count * len(ranges)).view(np.int64)
-    offsets = offsets.reshape(count, len(ranges))
-    offsets &= np.array([span if span & (span + 1) == 0 else 0 for span in spans],
-                        dtype=np.int64)
+    # Raw words are split into the narrowest lanes (16, 32 or 64 bits) that hold every such
+    # span, so a 12-bit code costs a quarter of a 64-bit draw.
+    masks = [span if span & (span + 1) == 0 else 0 for span in spans]
+    lane = next(bits for bits in (16, 32, 64) if max(masks) < 1 << bits)
+    words = -(-count * len(ranges) * lane // 64)
+    kind = f"<u{lane // 8}"
+    raw = rng.bit_generator.random_raw(words).view(kind)[: count * len(ranges)]
+    raw = raw.reshape(count, len(ranges)) & np.array(masks, dtype=kind)
+    rows = np.add(raw.view(np.int64) if lane == 64 else raw, lo, dtype=np.int64)
     for column, span in enumerate(spans):
         if span & (span + 1):
-            offsets[:, column] = rng.integers(0, span, size=count, endpoint=True, dtype=np.int64)
-    return offsets + lo
+            rows[:, column] = lo[column] + rng.integers(0, span, size=count, endpoint=True,
+                                                        dtype=np.int64)
+    return rows
 
 
 def _near_threshold(rng, analysis, count):

@@ -65,6 +65,44 @@ def cache_folder():
     return (Path(xdg) if xdg else Path.home() / ".cache") / "thresh2hdl"
 
 
+WRAPPER_CLOCK = "t2h_clock"
+
+
+def wrapper_name(module):
+    return f"{module}_t2h_harness"
+
+
+def code_type(ports):
+    """The C++ type of one feature code in the vector file: 16 bits when every code fits."""
+    widths = [width for internal, _, _, width, _ in ports if internal.startswith("x")]
+    return "int16_t" if max(widths) <= 16 else "int32_t"
+
+
+def wrapper_text(ports, module):
+    """Verilog of the harness's top: ``module`` behind one register per input (see the
+    harness template for why)."""
+    top = wrapper_name(module)
+    lines = [f"module {top} (", f"  input wire {WRAPPER_CLOCK},"]
+    inner, registers = [], []
+    declared = []
+    for internal, name, direction, width, _signed in ports:
+        bits = f"[{width - 1}:0] " if width > 1 else ""
+        if internal == "clk":
+            inner.append(f"    .{name}({WRAPPER_CLOCK})")
+            continue
+        if direction == "input":
+            declared.append(f"  input wire {bits}{name}")
+            registers += [f"  reg {bits}t2h_q_{name};",
+                          f"  always @(posedge {WRAPPER_CLOCK}) t2h_q_{name} <= {name};"]
+            inner.append(f"    .{name}(t2h_q_{name})")
+        else:
+            declared.append(f"  output wire {bits}{name}")
+            inner.append(f"    .{name}({name})")
+    lines += [",\n".join(declared), ");", *registers, f"  {module} dut (",
+              ",\n".join(inner), "  );", "endmodule", ""]
+    return "\n".join(lines)
+
+
 def harness_text(ports, module):
     by_role = {internal: (name, width) for internal, name, _, width, _ in ports}
     features = [(name, width) for internal, name, _, width, _ in ports if internal.startswith("x")]
@@ -72,20 +110,16 @@ def harness_text(ports, module):
     for index, (name, width) in enumerate(features):
         mask = "0xffffffffu" if width == 32 else f"0x{(1 << width) - 1:x}u"
         lines.append(f"        top.{name} = static_cast<uint32_t>(f[{index}]) & {mask};")
-    clocked = "clk" in by_role
-    reset = tick = ""
-    if clocked:
-        clk, rst = by_role["clk"][0], by_role["rst"][0]
-        reset = (f"    top.{rst} = 1;\n    top.{by_role['in_valid'][0]} = 0;\n"
-                 f"    top.{clk} = 0;\n    top.eval();\n    top.{clk} = 1;\n    top.eval();\n"
-                 f"    top.{clk} = 0;\n    top.eval();\n    top.{rst} = 0;")
-        # The falling edge is folded into the next cycle's settle: two evaluations a cycle.
-        tick = (f"        top.{clk} = 1;\n        top.eval();\n"
-                f"        top.{clk} = 0;")
+    reset = ""
+    if "clk" in by_role:
+        rst = by_role["rst"][0]
+        reset = (f"    top.{rst} = 1;\n    top.{by_role['in_valid'][0]} = 0;\n    edge();\n"
+                 f"    top.{rst} = 0;")
     scores = [name for internal, name, _, _, _ in ports if internal.startswith("score")]
     reads = "\n".join(f"        scores[t * kScores + {k}] = static_cast<int64_t>(top.{name});"
                       for k, name in enumerate(scores))
-    values = {"MODULE": module, "FEATURES": str(len(features)), "RESET": reset, "TICK": tick,
+    values = {"MODULE": wrapper_name(module), "WRAPPER": wrapper_name(module),
+              "FEATURES": str(len(features)), "RESET": reset, "CODE_TYPE": code_type(ports),
               "IN_VALID": by_role["in_valid"][0], "OUT_READY": by_role["out_ready"][0],
               "IN_READY": by_role["in_ready"][0], "OUT_VALID": by_role["out_valid"][0],
               "DECISION": by_role["y"][0], "SET_FEATURES": "\n".join(lines),
@@ -100,7 +134,8 @@ def compiled_harness(verilog_text, ports, module, *, progress=None):
     """Path of the harness binary for this Verilog, building it if the cache lacks it."""
     verilator = _require()
     harness = harness_text(ports, module)
-    key = hashlib.sha256("\0".join([verilog_text, harness, verilator_version()])
+    wrapper = wrapper_text(ports, module)
+    key = hashlib.sha256("\0".join([verilog_text, harness, wrapper, verilator_version()])
                          .encode("utf-8")).hexdigest()[:24]
     target = cache_folder() / "verilator" / key
     binary = target / f"V{module}"
@@ -111,11 +146,13 @@ def compiled_harness(verilog_text, ports, module, *, progress=None):
     try:
         (work / f"{module}.v").write_text(verilog_text)
         (work / "harness.cpp").write_text(harness)
+        (work / "wrapper.v").write_text(wrapper)
         if progress:
             progress("compiling the Verilator harness (once per design, ~10-25 s)")
         command = [verilator, "--cc", "--exe", "--build", "-O3", "--x-assign", "fast",
-                   "--x-initial", "fast", "--Mdir", "obj", "-Wno-fatal", "--top-module", module,
-                   "-CFLAGS", "-O2", f"{module}.v", "harness.cpp", "-o", f"V{module}"]
+                   "--x-initial", "fast", "--Mdir", "obj", "-Wno-fatal", "--top-module",
+                   wrapper_name(module), "-CFLAGS", "-O2", f"{module}.v", "wrapper.v",
+                   "harness.cpp", "-o", f"V{module}"]
         result = subprocess.run(command, cwd=work, capture_output=True, text=True)
         built = work / "obj" / f"V{module}"
         if result.returncode != 0 or not built.exists():
@@ -142,8 +179,11 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
         raise ToolError(f"the Verilator harness reads scores of up to 64 bits, this one has "
                         f"{max(score_widths)}; use --simulator icarus")
     binary = compiled_harness(verilog_text, ports, module, progress=progress)
-    # Codes of up to 32 bits keep their bit pattern (the harness masks to the port width).
-    vectors = (stimulus.vectors & 0xFFFFFFFF).astype(np.uint32).view(np.int32)
+    # Codes keep their bit pattern (the harness masks to the port width).
+    if code_type(ports) == "int16_t":
+        vectors = (stimulus.vectors & 0xFFFF).astype(np.uint16)
+    else:
+        vectors = (stimulus.vectors & 0xFFFFFFFF).astype(np.uint32)
     control = np.empty((stimulus.cycles, 3), dtype="<i4")
     control[:, 0] = stimulus.in_valid
     control[:, 1] = stimulus.out_ready
