@@ -14,7 +14,7 @@ import time
 import numpy as np
 
 from thresh2hdl.circuit import ThresholdUnit, UnitConfig, make_component
-from thresh2hdl.flow import CHUNK_VECTORS, verify
+from thresh2hdl.flow import CHUNK_VECTORS, chunk_vectors, verify
 from thresh2hdl.model import FeatureFormat, Model, Unit
 from thresh2hdl.reference import ReferenceModel
 from thresh2hdl.simulate import simulate_amaranth
@@ -44,7 +44,7 @@ def main():
     verified = verify("verilator", dut, text, ports, model, count=args.vectors)
     total = time.perf_counter() - start
     print(f"Verilator: {verified.vectors_checked} vectors end to end (made, simulated, "
-          f"compared, in chunks of {CHUNK_VECTORS}) in {total:.1f} s (target <= 10 s for 1e7), "
+          f"compared, in chunks of {chunk_vectors(16)}) in {total:.1f} s (target <= 10 s for 1e7), "
           f"{verified.mismatches} mismatches")
     path_rate = verified.vectors_checked / total
 
