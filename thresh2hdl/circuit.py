@@ -294,30 +294,24 @@ class ThresholdBank(_Common, wiring.Component):
             _build_tree(m, stages, analysis, self.feature_ports, prefix)
             scores.append(prefix + analysis.nodes[analysis.score_node].name)
         # Argmax: a tree of comparisons; the left (lower index) wins ties.
-        layer = [(f"class{i}", name, Const(i, plan.class_bits)) for i, name in enumerate(scores)]
-        level = plan.score_level
-        while len(layer) > 1:
-            level += 1
+        def merge(level, name, left_entry, right_entry):
+            (_, left, left_index), (_, right, right_index) = left_entry, right_entry
             stage = stages.stage_of(level)
-            merged = []
-            for position in range(0, len(layer) - 1, 2):
-                (_, left, left_index), (_, right, right_index) = layer[position], layer[position + 1]
-                a, b = stages.at(left, stage), stages.at(right, stage)
-                width = max(len(a) + (not a.shape().signed), len(b) + (not b.shape().signed))
-                name = f"best{level - plan.score_level}_{position // 2}"
-                score = Signal(signed(width), name=f"{name}_score")
-                index = Signal(plan.class_bits, name=f"{name}_class")
-                take_left = a >= b
-                li = left_index if isinstance(left_index, Const) else stages.at(left_index, stage)
-                ri = right_index if isinstance(right_index, Const) else stages.at(right_index, stage)
-                m.d.comb += [score.eq(Mux(take_left, a, b)), index.eq(Mux(take_left, li, ri))]
-                stages.put(score.name, score, stage)
-                stages.put(index.name, index, stage)
-                merged.append((name, score.name, index.name))
-            if len(layer) % 2:
-                merged.append(layer[-1])
-            layer = merged
-        _, _, best = layer[0]
+            a, b = stages.at(left, stage), stages.at(right, stage)
+            width = max(len(a) + (not a.shape().signed), len(b) + (not b.shape().signed))
+            score = Signal(signed(width), name=f"{name}_score")
+            index = Signal(plan.class_bits, name=f"{name}_class")
+            take_left = a >= b
+            li = left_index if isinstance(left_index, Const) else stages.at(left_index, stage)
+            ri = right_index if isinstance(right_index, Const) else stages.at(right_index, stage)
+            m.d.comb += [score.eq(Mux(take_left, a, b)), index.eq(Mux(take_left, li, ri))]
+            stages.put(score.name, score, stage)
+            stages.put(index.name, index, stage)
+            return name, score.name, index.name
+
+        _, _, best = plan.tournament(
+            [(f"class{i}", name, Const(i, plan.class_bits)) for i, name in enumerate(scores)],
+            merge)
         if isinstance(best, Const):
             m.d.comb += self.y.eq(best)
         else:

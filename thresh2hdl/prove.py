@@ -200,26 +200,20 @@ class _Plan:
             if name is None or sign != 1 or bias != 0:
                 raise RuntimeError("a bank's unit scores must be values of the plan")
             layer.append((name, None, index, index))
-        level = plan.score_level
-        while len(layer) > 1:
-            level += 1
+
+        def merge(level, tag, left, right):
+            (a, ia, first, _), (b, ib, _, last) = left, right
             stage = self.stage_of(level)
-            merged = []
-            for position in range(0, len(layer) - 1, 2):
-                (a, ia, first, _), (b, ib, _, last) = layer[position], layer[position + 1]
-                tag = f"best{level - plan.score_level}_{position // 2}"
-                lo = min(self.values[a].lo, self.values[b].lo)
-                hi = max(self.values[a].hi, self.values[b].hi)
-                self.closed.update((f"{tag}_score", f"{tag}_class"))
-                self.add(_Value(f"{tag}_score", "max", (a, b), stage, lo, hi, True,
-                                first=first, last=last))
-                self.add(_Value(f"{tag}_class", "pick", (a, b, ia, ib), stage, first, last,
-                                False, first=first, last=last))
-                merged.append((f"{tag}_score", f"{tag}_class", first, last))
-            if len(layer) % 2:
-                merged.append(layer[-1])
-            layer = merged
-        return layer[0][1]          # None for a bank of one unit: the class is 0
+            lo = min(self.values[a].lo, self.values[b].lo)
+            hi = max(self.values[a].hi, self.values[b].hi)
+            self.closed.update((f"{tag}_score", f"{tag}_class"))
+            self.add(_Value(f"{tag}_score", "max", (a, b), stage, lo, hi, True,
+                            first=first, last=last))
+            self.add(_Value(f"{tag}_class", "pick", (a, b, ia, ib), stage, first, last,
+                            False, first=first, last=last))
+            return f"{tag}_score", f"{tag}_class", first, last
+
+        return plan.tournament(layer, merge)[1]      # None for a bank of one unit: class 0
 
 
 def _check_cover(plan, model):

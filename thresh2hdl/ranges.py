@@ -301,6 +301,20 @@ class BankPlan:
     def final_level(self):
         return self.score_level + self.argmax_levels
 
+    def tournament(self, scores, merge):
+        """The argmax as planned: neighbours compared level by level, the lower index on the
+        left (it wins ties), an odd last entry carried up unpaired. ``merge(level, tag, left,
+        right)`` makes the winner entry of two; returns the final entry."""
+        layer, level = list(scores), self.score_level
+        while len(layer) > 1:
+            level += 1
+            merged = [merge(level, f"best{level - self.score_level}_{k // 2}", layer[k],
+                            layer[k + 1]) for k in range(0, len(layer) - 1, 2)]
+            if len(layer) % 2:
+                merged.append(layer[-1])
+            layer = merged
+        return layer[0]
+
 
 def analyse_bank(model, *, score_bits=None, arch="tree"):
     """Analyse every unit of a bank; ``score_bits`` (if given) is the width of every score port."""
