@@ -13,7 +13,7 @@ import argparse
 
 import numpy as np
 
-import thresh2hdl.prove as prove_module
+import thresh2hdl.proof as prove_module
 from thresh2hdl.circuit import UnitConfig, make_component
 from thresh2hdl.model import FeatureFormat, Model, Unit
 from thresh2hdl.verilog import emit_verilog, port_table

@@ -20,7 +20,7 @@ from thresh2hdl.errors import MismatchError, ToolError, UndecidedError
 from thresh2hdl.flow import (BuildOptions, build, demo_model, prove, run_simulator,
                              unit_analyses)
 from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.prove import proof_tools, prove_netlist
+from thresh2hdl.proof import proof_tools, prove_netlist
 from thresh2hdl.reference import ReferenceModel
 from thresh2hdl.stimulus import make_stimulus
 from thresh2hdl.verilog import emit_verilog, port_table

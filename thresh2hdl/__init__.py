@@ -11,7 +11,7 @@ True
 
 __version__ = "0.1.0"
 
-from .errors import InputError, MismatchError, ThreshError, ToolError
+from .errors import InputError, MismatchError, ThreshError, ToolError, UndecidedError
 from .model import FeatureFormat, Model, PortNames, Unit, load_model, model_to_toml, parse_model
 from .ranges import Analysis, analyse, signed_bits
 from .reference import ReferenceModel, cycle_model
@@ -20,11 +20,15 @@ from .verilog import emit_verilog, instance_template
 from .vectors import make_vectors
 from .stimulus import make_stimulus
 from .simulate import simulate_amaranth
-from .flow import BuildOptions, BuildResult, build, demo_model
+from .flow import (BuildOptions, BuildResult, CheckResult, ProofResult, build, check, demo_model,
+                   estimate_folder, prove)
+from .proof import ProofOutcome, prove_netlist
 
 __all__ = ["__version__", "InputError", "MismatchError", "ThreshError", "ToolError",
+           "UndecidedError",
            "FeatureFormat", "Model", "PortNames", "Unit", "load_model", "model_to_toml",
            "parse_model", "Analysis", "analyse", "signed_bits", "ReferenceModel", "cycle_model",
            "ThresholdUnit", "UnitConfig", "emit_verilog", "instance_template", "make_vectors",
            "make_stimulus", "simulate_amaranth", "BuildOptions", "BuildResult", "build",
-           "demo_model"]
+           "demo_model", "check", "CheckResult", "estimate_folder", "prove", "ProofResult",
+           "prove_netlist", "ProofOutcome"]

@@ -13,7 +13,7 @@ import click
 from .errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
 from .fitting import fit_csv, quantize_npz
 from .flow import BuildOptions, build, check, demo_model, estimate_folder, prove
-from .prove import DEFAULT_TIMEOUT_S
+from .proof import DEFAULT_TIMEOUT_S
 from .train import FitOptions
 
 __all__ = ["main"]

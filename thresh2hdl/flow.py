@@ -27,7 +27,7 @@ from .errors import InputError, MismatchError, ToolError, UndecidedError
 from .model import Model, load_model, model_to_toml, parse_model
 from .ranges import ARCHITECTURES
 from .estimate import estimate_cost
-from .prove import DEFAULT_TIMEOUT_S, prove_netlist
+from .proof import DEFAULT_TIMEOUT_S, prove_netlist
 from .outdir import check_output_folder, staged_folder, write_files, write_text
 from .reference import ReferenceModel
 from .report_html import report_html, report_markdown
@@ -587,7 +587,7 @@ class ProofResult:
     """
 
     section: dict
-    outcome: object                 # the solver's :class:`~thresh2hdl.prove.ProofOutcome`
+    outcome: object                 # the solver's :class:`~thresh2hdl.proof.ProofOutcome`
     counterexample_csv: str | None
 
     @property
