@@ -119,25 +119,36 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
     # time (one per core, while their vectors fit in a few hundred MB) while this thread makes
     # the next chunk and judges the last.
     chunk_bytes = per_chunk * len(names) * 8
-    workers = 1 if simulator == "amaranth" or (os.cpu_count() or 1) < 2 \
-        or chunk_bytes > 128 << 20 else 2
+    workers = 0 if simulator == "amaranth" else \
+        1 if (os.cpu_count() or 1) < 2 or chunk_bytes > 128 << 20 else 2
+    # Amaranth's simulator runs in this process: no thread (Ctrl-C must stop it at once).
+    pool = ThreadPoolExecutor(max_workers=workers) if workers else None
+
+    def submit(stimulus, note):
+        if pool is None:
+            return _Later(simulate, stimulus, note)
+        return pool.submit(simulate, stimulus, note)
+
     flight = deque()
     planned = 0
 
     def launch():
         nonlocal remaining, planned
-        while len(flight) < workers and remaining > 0:
+        while len(flight) < max(1, workers) and remaining > 0:
             planned += 1
             size, upcoming = next_chunk(planned)
             remaining -= size
-            flight.append((planned, size, upcoming, pool.submit(simulate, upcoming, None)))
+            flight.append((planned, size, upcoming, submit(upcoming, None)))
 
-    with ThreadPoolExecutor(max_workers=workers) as pool:
-        flight.append((0, 0, stimulus, pool.submit(simulate, stimulus, progress)))
+    try:
+        flight.append((0, 0, stimulus, submit(stimulus, progress)))
         while flight:
             chunk, size, stimulus, running = flight.popleft()
-            launch()
+            if pool is not None:
+                launch()
             result, version_text = running.result()
+            if pool is None:
+                launch()
             if progress is not None and count > per_chunk:
                 progress(min(count, first_count + chunk * per_chunk), count,
                          f"verifying in {simulator}")
@@ -151,11 +162,22 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
                     f"random within the declared ranges, chunk {k}", i))
                 first = tuple(m.describe(stimulus, names, origin) for m in checked.mismatches)
             if mismatches:
-                for *_, waiting in flight:
-                    waiting.cancel()
                 break
+    finally:
+        if pool is not None:
+            pool.shutdown(wait=False, cancel_futures=True)
     return Verification(simulator, version_text, checked_total, mismatches, cycles,
                         tuple(tuple(g) for g in groups), first, exported)
+
+
+class _Later:
+    """A call made when its result is asked for (the in-process simulator's "future")."""
+
+    def __init__(self, function, *args):
+        self.function, self.args = function, args
+
+    def result(self):
+        return self.function(*self.args)
 
 
 def run_simulator(simulator, component, verilog_text, ports, module, stimulus, *,
