@@ -15,6 +15,7 @@ from thresh2hdl.reference import ReferenceModel
 from thresh2hdl.simulate import simulate_amaranth
 from thresh2hdl.stimulus import make_stimulus
 from thresh2hdl.vectors import make_vectors
+from thresh2hdl.verilog import emit_verilog
 
 
 def gold(weights, bias, x):
@@ -75,6 +76,7 @@ def test_ports_follow_the_computed_widths():
     dut = ThresholdUnit(UnitConfig(model, score_bits=20))
     assert len(dut.score) == 20 and dut.score.shape().signed
     assert [len(p) for p in dut.feature_ports] == [8, 8]
+    assert "signed [19:0] score" in emit_verilog(dut, model)     # and the file says so
 
 
 def check_design(model, pipeline, *, vectors=300, seed=0, arch="tree"):
