@@ -16,7 +16,7 @@ from conftest import IN_CI, make_model, require_tool
 from test_bank import bank_model
 from test_cli import assert_one_line_error, run
 from thresh2hdl.circuit import UnitConfig, make_component
-from thresh2hdl.errors import MismatchError, ToolError, UndecidedError
+from thresh2hdl.errors import InputError, MismatchError, ToolError, UndecidedError
 from thresh2hdl.flow import (BuildOptions, build, demo_model, prove, run_simulator,
                              unit_analyses)
 from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
@@ -287,3 +287,57 @@ def test_prove_command_prints_a_confirmed_counterexample_with_exit_1(tmp_path):
     # A proof of another file leaves the folder's report as it was.
     assert (out / "report.json").read_text() == before
     assert (out / "counterexample.csv").read_text().startswith("rms_axial,rms_radial,")
+
+
+# Netlists whose SMT export alone would look right (found in review): each must be refused or
+# come out not proved, never "proved".
+
+def small_pipeline_text(pipeline, ranges=None):
+    model = make_model([3, -5, 7, 2], 10, bits=4, ranges=ranges)
+    component = make_component(UnitConfig(model, pipeline=pipeline))
+    return model, emit_verilog(component, model)
+
+
+@pytest.mark.parametrize("clocking", ["posedge in_valid", "negedge clk", "posedge out_ready"])
+def test_a_register_on_another_clock_is_undecided(clocking):
+    model, text = small_pipeline_text(2)
+    old = "always @(posedge clk) begin\n    if (in_ready)\n      s1_0_r1 <= s1_0;"
+    assert old in text
+    outcome = proved(model, pipeline=2, text=text.replace(old, old.replace("posedge clk",
+                                                                           clocking)))
+    assert outcome.status == "undecided" and "rising edge of clk" in outcome.detail
+
+
+def test_x_bits_are_free_values_not_zeros():
+    model, text = small_pipeline_text(0)
+    mutant = text.replace("assign y = n6 & n7;", "assign y = (n6 & n7) | 1'bx;")
+    assert mutant != text
+    assert proved(model, text=mutant).status == "failed"
+
+
+def test_an_input_driven_inside_or_narrower_than_declared_is_refused():
+    model, text = small_pipeline_text(0)
+    driven = text.replace("  assign in_ready = out_ready;",
+                          "  assign in_ready = out_ready;\n  assign f0 = 4'd5;")
+    with pytest.raises(InputError, match="input 'f0' is driven inside"):
+        proved(model, text=driven)
+    # The real port behind a preprocessor branch is 3 bits; Yosys reads it as such.
+    narrow = text.replace("  input  wire [3:0] f0,",
+                          "`ifndef NEVER\n  input  wire [2:0] f0,\n`else\n  input  wire [3:0] f0,\n"
+                          "`endif")
+    assert narrow != text
+    with pytest.raises(InputError, match="port 'f0' is input of 3 bits"):
+        proved(model, text=narrow)
+
+
+def test_assumptions_nothing_satisfies_prove_nothing(monkeypatch):
+    # With the input check switched off, an input tied outside its declared range makes the
+    # assumptions contradictory; the guard must then answer undecided, not proved.
+    import thresh2hdl.proof as proof
+    monkeypatch.setattr(proof, "_check_structure", lambda *args: None)
+    model, text = small_pipeline_text(0, ranges=[(1, 15)] + [(0, 15)] * 3)
+    tied = text.replace("  assign in_ready = out_ready;",
+                        "  assign in_ready = out_ready;\n  assign f0 = 4'd0;")
+    tied = re.sub(r"assign y = [^;]*;", "assign y = 1'b1;", tied)
+    outcome = proved(model, text=tied)
+    assert outcome.status == "undecided" and "cannot all hold" in outcome.detail

@@ -705,8 +705,11 @@ def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto
     own = out_dir / settings["verilog"]
     path = Path(netlist) if netlist is not None else own
     text = read_netlist(path, model, ports)
-    result = _prove_text(text, path.name, component, model, ports, timeout_s=timeout_s,
-                         simulator=simulator, progress=progress)
+    try:
+        result = _prove_text(text, path.name, component, model, ports, timeout_s=timeout_s,
+                             simulator=simulator, progress=progress)
+    except InputError as error:
+        raise InputError(str(error), source=path) from None
     files = {}
     if netlist is None or path.resolve() == own.resolve():
         settings["proof"] = result.section

@@ -28,6 +28,7 @@ Tools: Yosys (``write_smt2``) and Boolector, the system's or the WebAssembly bui
 every file is passed by a relative name.
 """
 
+import json
 import os
 import re
 import subprocess
@@ -37,7 +38,7 @@ from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 
-from .errors import ToolError
+from .errors import InputError, ToolError
 from .ranges import signed_bits
 from .tools import find_tool, tool_version
 
@@ -556,10 +557,13 @@ def _run(command, cwd, timeout):
 
 def _netlist_smt2(yosys, verilog_text, module, folder):
     (folder / "design.v").write_text(verilog_text, encoding="utf-8")
+    # setundef -anyseq: an x bit becomes a free value in every cycle (a synthesis tool may
+    # resolve it either way), never a constant.
     (folder / "prove.ys").write_text(
         "read_verilog -noautowire design.v\n"
         f"hierarchy -check -top {module}\n"
-        "proc\nflatten\nopt_clean\n"
+        "proc\nflatten\nsetundef -anyseq\nopt_clean\n"
+        "write_json design.json\n"
         "write_smt2 -wires -stbv design.smt2\n", encoding="utf-8")
     result = subprocess.run([yosys, "-q", "prove.ys"], cwd=folder, capture_output=True,
                             text=True)
@@ -567,7 +571,63 @@ def _netlist_smt2(yosys, verilog_text, module, folder):
         lines = [l for l in (result.stderr + result.stdout).splitlines() if "ERROR" in l]
         raise ToolError(f"Yosys could not read the netlist: "
                         f"{lines[0].strip() if lines else 'exit ' + str(result.returncode)}")
-    return (folder / "design.smt2").read_text(encoding="utf-8")
+    document = json.loads((folder / "design.json").read_text(encoding="utf-8"))
+    return (folder / "design.smt2").read_text(encoding="utf-8"), document["modules"][module]
+
+
+_SYNC_FLOPS = {"$dff", "$dffe", "$sdff", "$sdffe", "$sdffce"}
+_FINE_SYNC_FLOPS = {"$_DFF_P_", "$_DFFE_PP_", "$_DFFE_PN_"}
+_FINE_SYNC_RESET_FLOP = re.compile(r"^\$_SDFFC?E?_P")
+
+
+def _check_structure(module, port_rows):
+    """What the SMT export cannot show: the netlist's ports are the model's, exactly; its
+    inputs are free (nothing inside drives them); every register is clocked by the rising
+    edge of the clock port (the export steps every register on one global clock, whatever its
+    clock). Raises :class:`InputError` for other ports, :class:`_Undecided` for clocking the
+    method does not cover."""
+    ports = module["ports"]
+    wanted = {name: (direction, width) for _, name, direction, width, _ in port_rows}
+    for name, (direction, width) in wanted.items():
+        got = ports.get(name)
+        if got is None or got["direction"] != direction or len(got["bits"]) != width:
+            found = "is missing" if got is None else \
+                f"is {got['direction']} of {len(got['bits'])} bits"
+            raise InputError(f"the netlist's port {name!r} {found}; the model needs "
+                             f"{direction} [{width - 1}:0]")
+    extra = sorted(set(ports) - set(wanted))
+    if extra:
+        raise InputError(f"the netlist has a port {extra[0]!r} that the model does not")
+    driven = set()
+    for cell in module["cells"].values():
+        for port, direction in cell.get("port_directions", {}).items():
+            if direction == "output":
+                driven.update(b for b in cell["connections"][port] if isinstance(b, int))
+    seen = set()
+    for name, port in ports.items():
+        if port["direction"] != "input":
+            continue
+        bits = port["bits"]
+        if any(not isinstance(b, int) for b in bits) or driven & set(bits) or seen & set(bits):
+            raise InputError(f"input {name!r} is driven inside the netlist (or tied to "
+                             f"another input); an input must be free")
+        seen.update(bits)
+    clock = next((name for internal, name, *_ in port_rows if internal == "clk"), None)
+    clock_bits = ports[clock]["bits"] if clock else None
+    for cell in module["cells"].values():
+        kind = cell["type"]
+        lowered = kind.lower()
+        if not any(word in lowered for word in ("dff", "latch", "$ff", "$sr", "$mem",
+                                                 "$_ff", "$_sr", "aldff")):
+            continue
+        if kind in _SYNC_FLOPS:
+            rising = str(cell["parameters"].get("CLK_POLARITY", "1")).lstrip("0") == "1"
+        else:
+            rising = kind in _FINE_SYNC_FLOPS or bool(_FINE_SYNC_RESET_FLOP.match(kind))
+        if not rising or cell["connections"].get("C", cell["connections"].get("CLK")) \
+                != clock_bits:
+            raise _Undecided(f"a register ({kind}) is not clocked by the rising edge of "
+                             f"{clock or 'a clock port'} alone; the method covers only that")
 
 
 def _solve(boolector, text, folder, name, timeout_s, values=()):
@@ -645,7 +705,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
         folder = Path(name)
         if progress is not None:
             progress("reading the netlist with Yosys")
-        smt2 = _netlist_smt2(yosys, verilog_text, model.module, folder)
+        smt2, structure = _netlist_smt2(yosys, verilog_text, model.module, folder)
         widest = max([signed_bits(v.lo, v.hi) for v in plan.values.values()]
                      + [int(w) for _, _, w in _WIRE_LINE.findall(smt2)] + [1])
         width = max(MIN_WIDTH, widest + 2)
@@ -656,6 +716,10 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
             return ProofOutcome(status, detail, lemmas, tuple(failing), candidate,
                                 versions[1], versions[0], time.perf_counter() - started, width)
 
+        try:
+            _check_structure(structure, port_rows)
+        except _Undecided as why:
+            return outcome("undecided", str(why))
         ignored = set()
         while True:
             netlist = _Netlist(smt2, model.module, frozenset(ignored))
@@ -671,6 +735,14 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
             states = ["s0", "s1"] if plan.latency else ["s0"]
             common = [netlist.text, *_header(query, states), *query.lines]
             common += [f"(assert {a})" for a in assumptions]
+            if not ignored:
+                # A proof under assumptions that nothing satisfies would prove anything.
+                alone, _ = _solve(boolector, "\n".join(common), folder, "assumptions.smt2",
+                                  max(1, started + timeout_s - time.perf_counter()))
+                if alone != "sat":
+                    return outcome("undecided", "the assumptions (inputs in their ranges) "
+                                   "cannot all hold on this netlist" if alone == "unsat"
+                                   else f"no answer within {timeout_s} s")
             if progress is not None:
                 progress(f"solving {len(lemmas)} lemmas with Boolector")
             answer, failing = _solve_batches(boolector, "\n".join(common), lemmas, folder,
