@@ -403,7 +403,7 @@ class _Query:
         bits = w if exact else modulus_bits
 
         def operand(other):
-            return self.at(other, stage, bits, state, needed)
+            return self.known(other, stage, bits, state, needed)
 
         if value.kind == "product":
             expr = f"(bvmul {self.feature(value.feature, state)} {_bv(value.magnitude, w)})"
@@ -430,9 +430,6 @@ class _Query:
         else:
             raise RuntimeError(f"value kind {value.kind} has no formula")
         return self.define(f"formula {name} {bits} {state}", self._sort(), expr)
-
-    def at(self, name, stage, modulus_bits, state="s0", needed=None):
-        return self.known(name, stage, modulus_bits, state, needed)
 
     def low(self, expr, bits):
         """The low ``bits`` of a wide expression, shaped like a ``bits``-wide wire."""
