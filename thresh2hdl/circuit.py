@@ -78,7 +78,6 @@ class _Stages:
         registers leave out: they carry ``value >> shift`` under the name ``{name}_r{k}``
         (otherwise Yosys drops the constant flops and, with them, the register's name)."""
         self.values[(name, stage)] = value
-        shift = min(shift, value.shape().width - 1)
         self.produced[name] = (stage, value.shape(), shift)
 
     def at(self, name, stage):
@@ -137,9 +136,7 @@ def _build_tree(m, stages, analysis, features, prefix=""):
                 bias = Const(node.constant)
                 expr = operands[0] + bias if child.sign > 0 else bias - operands[0]
         m.d.comb += value.eq(expr)
-        shift = node.magnitude.bit_length() - 1 \
-            if node.kind == "product" and node.magnitude & (node.magnitude - 1) == 0 else 0
-        stages.put(prefix + node.name, value, stage, shift)
+        stages.put(prefix + node.name, value, stage, node.register_shift)
 
 
 def _check_pipeline(component, pipeline, final_level):

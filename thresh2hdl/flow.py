@@ -144,11 +144,8 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
         flight.append((0, 0, stimulus, submit(stimulus, progress)))
         while flight:
             chunk, size, stimulus, running = flight.popleft()
-            if pool is not None:
-                launch()
+            launch()
             result, version_text = running.result()
-            if pool is None:
-                launch()
             if progress is not None and count > per_chunk:
                 progress(min(count, first_count + chunk * per_chunk), count,
                          f"verifying in {simulator}")
@@ -228,15 +225,15 @@ class BuildOptions:
         if self.simulator not in SIMULATORS:
             raise InputError(f"must be one of {', '.join(SIMULATORS)}, not {self.simulator!r}",
                              field="--simulator")
-        _check_timeout(self.prove_timeout_s)
+        _check_timeout(self.prove_timeout_s, "--prove-timeout")
         if self.vectors is not None and self.vectors > 100_000_000:
             raise InputError(f"at most 100000000 vectors, not {self.vectors}", field="--vectors")
 
 
-def _check_timeout(value):
+def _check_timeout(value, field="--timeout"):
     if isinstance(value, bool) or not isinstance(value, (int, float)) or not 0 < value <= 86400:
         raise InputError(f"must be a number of seconds in (0, 86400], not {value!r}",
-                         field="--timeout")
+                         field=field)
 
 
 @dataclass(frozen=True)
@@ -403,6 +400,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
               f"// Latency {component.latency} cycle(s); score range [{lo}, {hi}] in "
               f"{max(a.score_bits for a in analyses)} bits.", ""]
     verilog_text = emit_verilog(component, model, header=header)
+    verilog_name = f"{model.module}.v"
     timing["verilog_s"] = time.perf_counter() - started
 
     dataset = None
@@ -419,12 +417,11 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     proof = None
     if options.prove:
         started = time.perf_counter()
-        proof = _prove_text(verilog_text, f"{model.module}.v", component, model, ports,
+        proof = _prove_text(verilog_text, verilog_name, component, model, ports,
                             timeout_s=options.prove_timeout_s, simulator=simulator,
                             progress=note)
         timing["proof_s"] = time.perf_counter() - started
     reference = ReferenceModel.from_model(model)
-    verilog_name = f"{model.module}.v"
     report = {
         "report_format": REPORT_FORMAT,
         "module": model.module,
@@ -711,7 +708,8 @@ def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto
     except InputError as error:
         raise InputError(str(error), source=path) from None
     files = {}
-    if netlist is None or path.resolve() == own.resolve():
+    is_own = path.resolve() == own.resolve()
+    if is_own:
         settings["proof"] = result.section
         settings.setdefault("timing", {})["proof_s"] = round(result.outcome.seconds, 3)
         files = {out_dir / "report.json": report_json(settings),
@@ -721,7 +719,7 @@ def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto
         files[out_dir / COUNTEREXAMPLE_FILE] = result.counterexample_csv
     if files:
         write_files(files, force=True)
-    if result.ok and netlist is None:
+    if result.ok and is_own:
         (out_dir / COUNTEREXAMPLE_FILE).unlink(missing_ok=True)
     result.raise_unless_proved()
     return result

@@ -160,13 +160,9 @@ class _Plan:
             name = prefix + node.name
             stage = self.stage_of(node.level)
             if node.kind == "product":
-                # As the circuit does (circuit._Stages): the known zero bits of a shifted
-                # input are left out of its registers.
-                shift = node.magnitude.bit_length() - 1 \
-                    if node.magnitude & (node.magnitude - 1) == 0 else 0
                 self.linear(name, "product", (), stage, {node.feature: node.magnitude},
                             feature=node.feature, magnitude=node.magnitude,
-                            register_shift=min(shift, node.bits - 1))
+                            register_shift=node.register_shift)
                 continue
             children = [self.values[prefix + nodes[c].name] for c in node.children]
             if node.kind == "bias":

@@ -103,6 +103,14 @@ class Node:
     def is_signed(self):
         return self.lo < 0
 
+    @property
+    def register_shift(self):
+        """Known zero low bits of a shifted input (a power-of-two product), which pipeline
+        registers leave out: they carry ``value >> register_shift``."""
+        if self.kind != "product" or self.magnitude & (self.magnitude - 1):
+            return 0
+        return min(self.magnitude.bit_length() - 1, self.bits - 1)
+
 
 @dataclass(frozen=True)
 class Analysis:
