@@ -25,16 +25,27 @@ def _build_options(command):
         click.option("--out", "out_dir", type=click.Path(file_okay=True, dir_okay=True),
                      required=True, help="Output folder (created; must be empty or absent "
                      "unless --force)."),
-        click.option("--arch", type=click.Choice(["tree", "shiftadd"]), default="tree",
+        click.option("--arch", type=click.Choice(["tree", "shiftadd", "serial"]), default="tree",
                      show_default=True, help="tree: constant multipliers into an adder tree; "
-                     "shiftadd: no multipliers, weights recoded in canonical signed digits."),
+                     "shiftadd: no multipliers, weights recoded in canonical signed digits; "
+                     "serial: one multiply-accumulate per clock, one feature per valid beat."),
         click.option("--pipeline", type=int, default=1, show_default=True,
                      help="Register stages: 0 is combinational, 1 registers the outputs, more "
-                     "split the adder tree."),
+                     "split the adder tree (serial: must be 1)."),
         click.option("--module", "module_name", default=None,
                      help="Verilog module name (default: the model file's)."),
         click.option("--score-bits", type=int, default=None,
                      help="Width of the score port; wider than needed gives headroom."),
+        click.option("--loadable-weights", is_flag=True,
+                     help="Weights and biases in registers, reset to the trained values, with "
+                     "a write port (strobe, address, data); widths sized for --weight-bits "
+                     "and --bias-bits."),
+        click.option("--weight-bits", type=int, default=None,
+                     help="Declared signed width of every loadable weight (default: the "
+                     "fewest that hold the trained weights)."),
+        click.option("--bias-bits", type=int, default=None,
+                     help="Declared signed width of every loadable bias (default: the fewest "
+                     "that hold the trained biases)."),
         click.option("--vectors", type=int, default=None,
                      help="Random vectors to verify, on top of the corner cases (default: "
                      "1000000 with Verilator, 10000 otherwise)."),
@@ -68,7 +79,9 @@ def _options(kwargs):
                         simulator=kwargs["simulator"], arch=kwargs["arch"],
                         seed=kwargs["seed"], force=kwargs["force"], data=kwargs["data"],
                         label=kwargs["label"], prove=kwargs["prove_too"],
-                        prove_timeout_s=kwargs["prove_timeout"])
+                        prove_timeout_s=kwargs["prove_timeout"],
+                        loadable_weights=kwargs["loadable_weights"],
+                        weight_bits=kwargs["weight_bits"], bias_bits=kwargs["bias_bits"])
 
 
 class _Progress:

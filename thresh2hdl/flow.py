@@ -21,7 +21,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .circuit import UnitConfig, make_component
+from .circuit import UnitConfig, make_component, weight_addresses
 from .data import dataset_for_model, read_csv
 from .errors import InputError, MismatchError, ToolError, UndecidedError
 from .model import Model, load_model, model_to_toml, parse_model
@@ -33,8 +33,8 @@ from .reference import ReferenceModel
 from .report_html import report_html, report_markdown
 from .report import REPORT_FORMAT, SAFETY_CAUTION, report_json, summary_lines
 from .simulate import simulate_amaranth
-from .stimulus import make_stimulus
-from .vectors import make_vectors, random_vectors
+from .stimulus import make_reload_stimulus, make_stimulus
+from .vectors import make_vectors, random_vectors, reload_sets
 from .testbench import TestbenchFiles, icarus_version, simulate_icarus, write_testbench
 from .verilator import find_verilator, simulate_verilator, verilator_version
 from .verilog import emit_verilog, instance_template, port_table
@@ -98,9 +98,10 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
     first_count = min(count, per_chunk)
     vectors = make_vectors(analysis, random_count=first_count, seed=seed, data=data,
                            others=unit_analyses(component)[1:])
-    stimulus = make_stimulus(reference, vectors.array, latency=component.latency, seed=seed)
+    stimulus, reloaded = first_stimulus(component, model, vectors.array, seed=seed,
+                                        reload_count=min(2000, max(100, count // 4)))
     exported = stimulus
-    groups = [list(g) for g in vectors.groups]
+    groups = [list(g) for g in vectors.groups] + [list(g) for g in reloaded]
     checked_total = mismatches = cycles = 0
     first, version_text = (), ""
     remaining, chunk = count - first_count, 0
@@ -113,7 +114,7 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
         size = min(remaining, per_chunk)
         rows = random_vectors(np.random.default_rng([seed, chunk]), analysis.feature_ranges, size)
         return size, make_stimulus(reference, rows, latency=component.latency,
-                                   seed=[seed, chunk], stall_vectors=0)
+                                   beats=component.beats, seed=[seed, chunk], stall_vectors=0)
 
     # Verilator and Icarus run in processes of their own: up to two chunks are simulated at a
     # time (one per core, while their vectors fit in a few hundred MB) while this thread makes
@@ -177,6 +178,24 @@ class _Later:
         return self.function(*self.args)
 
 
+def first_stimulus(component, model, rows, *, seed=0, reload_count=2000, **options):
+    """The stimulus of ``rows``; with loadable weights, followed by weight sets written
+    through the port and vectors run with each (see :func:`~thresh2hdl.vectors.reload_sets`).
+    Returns the stimulus and the ``(group name, vectors)`` of the reloads."""
+    reference = ReferenceModel.from_model(model)
+    stimulus = make_stimulus(reference, rows, latency=component.latency, beats=component.beats,
+                             seed=seed, **options)
+    if not component.config.loadable_weights:
+        return stimulus, ()
+    analysis = component.analysis
+    sets = reload_sets(model, analysis.weight_range, analysis.bias_range,
+                       random_count=reload_count, seed=seed)
+    groups = [(f"loaded set {k + 1}: {name}", size) for k, (_, vectors) in enumerate(sets)
+              for name, size in vectors.groups]
+    return make_reload_stimulus(stimulus, sets, latency=component.latency,
+                                beats=component.beats, seed=seed, **options), tuple(groups)
+
+
 def run_simulator(simulator, component, verilog_text, ports, module, stimulus, *,
                   progress=None):
     """Simulate one stimulus: the Amaranth design, or the emitted Verilog text itself."""
@@ -210,6 +229,9 @@ class BuildOptions:
     label: str = "label"
     prove: bool = False          # also prove the Verilog against the model (see prove())
     prove_timeout_s: float = DEFAULT_TIMEOUT_S
+    loadable_weights: bool = False   # weights and biases in registers with a write port
+    weight_bits: int | None = None   # their declared signed widths (default: the fewest that
+    bias_bits: int | None = None     # hold the trained values)
 
     def __post_init__(self):
         for key in ("pipeline", "vectors", "seed"):
@@ -362,6 +384,23 @@ def _units_report(model, analyses, component):
             "units": units}
 
 
+def _weight_port_report(component, model):
+    config = component.config
+    if not config.loadable_weights:
+        return None
+    features = len(model.features)
+    return {"weight_bits": config.weight_bits, "bias_bits": config.bias_bits,
+            "weight_range": list(component.analysis.weight_range),
+            "bias_range": list(component.analysis.bias_range),
+            "data_bits": max(config.weight_bits, config.bias_bits),
+            "addresses": weight_addresses(model),
+            "map": f"unit u weight i at u * {features + 1} + i, its bias at u * "
+                   f"{features + 1} + {features}; a write takes effect from the next clock; "
+                   f"write while no result is in flight",
+            "ports": [model.ports.weight_write, model.ports.weight_address,
+                      model.ports.weight_data]}
+
+
 def build(model, out_dir, options=BuildOptions(), *, progress=None):
     """Build, verify and report one model into ``out_dir``; returns a :class:`BuildResult`.
 
@@ -386,8 +425,10 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     note = getattr(progress, "note", None)
     if note is not None:
         note("planning the circuit and writing its Verilog")
-    component = make_component(UnitConfig(model, pipeline=options.pipeline,
-                                          score_bits=options.score_bits, arch=options.arch))
+    component = make_component(UnitConfig(
+        model, pipeline=options.pipeline, score_bits=options.score_bits, arch=options.arch,
+        loadable_weights=options.loadable_weights, weight_bits=options.weight_bits,
+        bias_bits=options.bias_bits))
     analyses = unit_analyses(component)
     analysis = analyses[0]
     lo = min(a.score_range[0] for a in analyses)
@@ -432,6 +473,8 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         "features": [{"name": f.name, "bits": f.bits, "signed": f.signed} for f in model.features],
         **_units_report(model, analyses, component),
         "latency_cycles": component.latency,
+        "beats_per_result": component.beats,
+        "weight_port": _weight_port_report(component, model),
         "vectors_checked": verified.vectors_checked,
         "mismatches": verified.mismatches,
         "testbench": {"file": f"{model.module}_tb.v", "command": TestbenchFiles(
@@ -462,8 +505,8 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         if len(exported.vectors) > EXPORTED_VECTORS + 4 * len(analysis.weights) + 1100:
             small = make_vectors(analysis, random_count=EXPORTED_VECTORS, seed=options.seed,
                                  data=None)
-            exported = make_stimulus(reference, small.array, latency=component.latency,
-                                     seed=options.seed)
+            exported, _ = first_stimulus(component, model, small.array, seed=options.seed,
+                                         reload_count=200)
         write_testbench(staging, ports, model.module, exported, verilog_name)
         if proof is not None and proof.counterexample_csv is not None:
             write_text(staging / COUNTEREXAMPLE_FILE, proof.counterexample_csv)
@@ -548,11 +591,14 @@ def _load_folder(out_dir):
                 units[0]["score_bits"] != units[0]["score_bits_min"]:
             score_bits = int(units[0]["score_bits"])
         arch = str(settings.get("tree", {}).get("arch", "tree"))
+        port = settings.get("weight_port") or {}
+        loadable = {"loadable_weights": bool(port), "weight_bits": port.get("weight_bits"),
+                    "bias_bits": port.get("bias_bits")}
     except (OSError, ValueError, KeyError, TypeError) as error:
         raise InputError(f"cannot read the build settings ({type(error).__name__}: {error})",
                          source=out_dir / "report.json") from None
     component = make_component(UnitConfig(model, pipeline=pipeline, score_bits=score_bits,
-                                          arch=arch))
+                                          arch=arch, **loadable))
     return out_dir, model, settings, component
 
 
@@ -640,7 +686,7 @@ def _confirm(simulator, component, text, ports, model, vector):
         return None, None
     reference = ReferenceModel.from_model(model)
     stimulus = make_stimulus(reference, np.array([vector], dtype=np.int64),
-                             latency=component.latency, stall_vectors=0)
+                             latency=component.latency, beats=component.beats, stall_vectors=0)
     result, version_text = run_simulator(simulator, component, text, ports, model.module,
                                          stimulus)
     checked = result.check(stimulus)

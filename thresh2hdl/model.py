@@ -118,6 +118,10 @@ class PortNames:
     out_ready: str = "out_ready"
     decision: str = "y"
     score: str = "score"
+    sample: str = "sample"      # the serial architecture's one input, every feature in turn
+    weight_write: str = "weight_write"        # loadable weights: the write port's strobe,
+    weight_address: str = "weight_address"    # address,
+    weight_data: str = "weight_data"          # and data
 
     def __post_init__(self):
         for key, value in self.__dict__.items():

@@ -692,8 +692,20 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
     yosys, boolector = proof_tools()
     started = time.perf_counter()
     component._MustUse__silence = True    # read as a plan here, not elaborated: no warning
-    plan = _Plan(component, model)
     versions = tool_version(yosys), tool_version(boolector)
+    uncovered = None
+    if component.config.arch == "serial":
+        # Its values are shared by every beat: a proof needs per-beat invariants of the
+        # accumulator, which these per-value lemmas do not state.
+        uncovered = "the serial architecture is not covered by the proof"
+    elif component.config.loadable_weights:
+        uncovered = "loadable weights are not covered by the proof (it states the trained " \
+                    "constants)"
+    if uncovered is not None:
+        return ProofOutcome("undecided", f"{uncovered}; the design is verified cycle by cycle "
+                            f"in simulation", 0, (), None, versions[1], versions[0],
+                            time.perf_counter() - started, 0)
+    plan = _Plan(component, model)
     with tempfile.TemporaryDirectory(prefix="thresh2hdl-prove-") as name:
         folder = Path(name)
         if progress is not None:

@@ -15,10 +15,11 @@ from dataclasses import dataclass
 from .errors import InputError
 
 __all__ = ["BankPlan", "analyse_bank", "csd_digits", "ARCHITECTURES", "signed_bits", "unsigned_bits", "value_bits", "Node", "Analysis", "analyse",
-           "bit_growth_bound", "MAX_SCORE_BITS"]
+           "bit_growth_bound", "MAX_SCORE_BITS", "SERIAL_NODES", "prefix_ranges"]
 
 MAX_SCORE_BITS = 128
-ARCHITECTURES = ("tree", "shiftadd")
+ARCHITECTURES = ("tree", "shiftadd", "serial")
+SERIAL_NODES = ("sample", "magnitude", "product", "accumulator", "sum")
 
 
 def csd_digits(value):
@@ -107,8 +108,8 @@ class Node:
     def register_shift(self):
         """Known zero low bits of a shifted input (a power-of-two product), which pipeline
         registers leave out: they carry ``value >> register_shift``."""
-        if self.kind != "product" or self.magnitude & (self.magnitude - 1):
-            return 0
+        if self.kind != "product" or self.magnitude <= 0 or self.magnitude & (self.magnitude - 1):
+            return 0     # (magnitude 0: a product of loadable weights, no constant shift)
         return min(self.magnitude.bit_length() - 1, self.bits - 1)
 
 
@@ -130,6 +131,16 @@ class Analysis:
     tree_levels: int       # adder levels of the tree (0 for one product)
     has_score: bool
     arch: str = "tree"
+    weight_range: tuple | None = None   # loadable weights: the declared range of each weight
+    bias_range: tuple | None = None     # and of the bias; None: the weights are constants
+
+    @property
+    def loadable(self):
+        return self.weight_range is not None
+
+    def node(self, name):
+        """The node called ``name`` (for the serial plan: one of :data:`SERIAL_NODES`)."""
+        return next(node for node in self.nodes if node.name == name)
 
     @property
     def headroom_bits(self):
@@ -157,13 +168,19 @@ def _term_range(weight, lo, hi):
     return min(a, b), max(a, b)
 
 
-def analyse(model, *, score_bits=None, arch="tree", unit_index=None):
+def analyse(model, *, score_bits=None, arch="tree", unit_index=None, weight_range=None,
+            bias_range=None):
     """Plan the adder tree of ``model.unit`` and size every node exactly.
 
     ``score_bits`` (default: the model's, else the minimum) may be wider than needed; the extra
     bits are reported as headroom. A narrower request is refused: it could overflow.
     ``arch="shiftadd"`` has no multipliers: each weight's magnitude is recoded in canonical
     signed digits and every nonzero digit becomes a shifted input, a leaf of the same tree.
+    ``arch="serial"`` plans one multiply-accumulate that takes a feature per beat (nodes
+    :data:`SERIAL_NODES`).
+    ``weight_range`` and ``bias_range`` (``(lo, hi)``, both or neither) plan loadable weights:
+    every weight and the bias may be any value in its declared range, and every width holds
+    every score those allow (the trained values are only where the registers start).
     """
     if arch not in ARCHITECTURES:
         raise InputError(f"must be one of {', '.join(ARCHITECTURES)}, not {arch!r}",
@@ -173,6 +190,14 @@ def analyse(model, *, score_bits=None, arch="tree", unit_index=None):
     weights = unit.weights
     if score_bits is None:
         score_bits = model.score_bits
+    if weight_range is not None:
+        if arch == "shiftadd":
+            raise InputError("shiftadd recodes each constant weight into shifts and adds, so "
+                             "its weights cannot be loaded; use --arch tree or serial",
+                             field="--loadable-weights")
+        return _analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range)
+    if arch == "serial":
+        return _analyse_serial(model, unit, score_bits)
 
     nodes = []
 
@@ -281,6 +306,137 @@ def analyse(model, *, score_bits=None, arch="tree", unit_index=None):
                     tree_levels=level, has_score=has_score, arch=arch)
 
 
+def prefix_ranges(weights, bias, ranges):
+    """Exact range of ``bias + w[0] x[0] + ... + w[k-1] x[k-1]`` for k = 0 .. N: what a
+    multiply-accumulate holds after k beats."""
+    return _prefixes([_term_range(w, lo, hi) for w, (lo, hi) in zip(weights, ranges)],
+                     (bias, bias))
+
+
+def _prefixes(terms, start):
+    lo, hi = start
+    out = [(lo, hi)]
+    for a, b in terms:
+        lo, hi = lo + a, hi + b
+        out.append((lo, hi))
+    return out
+
+
+def _box_product(a, b):
+    """Exact range of ``x * w`` for independent ``x`` in ``a`` and ``w`` in ``b``: the
+    product is bilinear, so its extremes are at corners."""
+    corners = [x * w for x in a for w in b]
+    return min(corners), max(corners)
+
+
+def _analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range):
+    """Weights and bias are registers: each term ranges over the product of its feature's
+    range and the declared weight range, and the terms stay independent, so sums of their
+    ranges remain exact (every bound is reached by some input and some loaded weights)."""
+    ranges = model.feature_ranges
+    terms = [_box_product(r, weight_range) for r in ranges]
+    score_lo = sum(t[0] for t in terms) + bias_range[0]
+    score_hi = sum(t[1] for t in terms) + bias_range[1]
+    nodes = []
+    if arch == "serial":
+        prefixes = _prefixes(terms, bias_range)
+        values = [("sample", "sample", _union(ranges)), ("weight", "weight", weight_range),
+                  ("product", "product", _union(terms)),
+                  ("accumulator", "accumulator", _union(prefixes[:-1])),
+                  ("sum", "add", _union(prefixes[1:]))]
+        nodes = [Node(index=i, name=name, kind=kind, children=(), lo=lo, hi=hi, level=0)
+                 for i, (name, kind, (lo, hi)) in enumerate(values)]
+        tree_root, score_node, level = None, SERIAL_NODES.index("sum"), 0
+    else:
+        layer = []
+        for index, (lo, hi) in enumerate(terms):
+            layer.append(Node(index=len(nodes), name=f"p{index}", kind="product", children=(),
+                              lo=lo, hi=hi, level=0, feature=index))
+            nodes.append(layer[-1])
+        level = 0
+        while len(layer) > 1:
+            level += 1
+            paired = []
+            for position in range(0, len(layer) - 1, 2):
+                left, right = layer[position], layer[position + 1]
+                paired.append(Node(index=len(nodes), name=f"s{level}_{position // 2}",
+                                   kind="add", children=(left.index, right.index),
+                                   lo=left.lo + right.lo, hi=left.hi + right.hi, level=level))
+                nodes.append(paired[-1])
+            if len(layer) % 2:
+                paired.append(layer[-1])
+            layer = paired
+        tree_root = layer[0].index
+        nodes.append(Node(index=len(nodes), name="score_sum", kind="bias",
+                          children=(tree_root,), lo=score_lo, hi=score_hi, level=level + 1))
+        score_node = nodes[-1].index
+    score_bits_min = signed_bits(score_lo, score_hi)
+    if score_bits_min > MAX_SCORE_BITS:
+        raise InputError(f"the score needs {score_bits_min} bits, more than the limit of "
+                         f"{MAX_SCORE_BITS}; use narrower weights or input ranges",
+                         field="--weight-bits")
+    if score_bits is None:
+        score_bits = score_bits_min
+    elif score_bits < score_bits_min:
+        raise InputError(f"score_bits {score_bits} cannot hold the score range "
+                         f"[{score_lo}, {score_hi}] of the loadable weights; it needs at "
+                         f"least {score_bits_min}", field="score_bits")
+    # The witnesses are of the weights the registers start with (the trained ones).
+    witness_max = tuple(hi if w > 0 else lo for w, (lo, hi) in zip(unit.weights, ranges))
+    witness_min = tuple(lo if w > 0 else hi for w, (lo, hi) in zip(unit.weights, ranges))
+    return Analysis(feature_ranges=tuple(ranges), weights=tuple(unit.weights), bias=unit.bias,
+                    nodes=tuple(nodes), tree_root=tree_root, score_node=score_node,
+                    score_range=(score_lo, score_hi), score_bits_min=score_bits_min,
+                    score_bits=score_bits, witness_min=witness_min, witness_max=witness_max,
+                    tree_levels=level, has_score=model.ports.has_score or model.is_bank,
+                    arch=arch, weight_range=tuple(weight_range),
+                    bias_range=tuple(bias_range))
+
+
+def _union(pairs):
+    pairs = list(pairs)
+    return min(p[0] for p in pairs), max(p[1] for p in pairs)
+
+
+def _analyse_serial(model, unit, score_bits):
+    """One multiply-accumulate shared by every beat: each value's range is the union over the
+    beats of its exact range in that beat, so no beat can overflow it (and every bound is
+    reached in some beat by some input: the plan stays exact)."""
+    ranges, weights = model.feature_ranges, unit.weights
+    prefixes = prefix_ranges(weights, unit.bias, ranges)
+    values = [
+        ("sample", "sample", _union(ranges)),
+        # The product is of the weight's magnitude; the sign makes the sum add or subtract.
+        ("magnitude", "weight", (0, max(abs(w) for w in weights))),
+        ("product", "product", _union(_term_range(abs(w), lo, hi)
+                                      for w, (lo, hi) in zip(weights, ranges))),
+        # The running sum entering a beat: the bias in the first, the held sum after.
+        ("accumulator", "accumulator", _union(prefixes[:-1])),
+        ("sum", "add", _union(prefixes[1:])),
+    ]
+    nodes = tuple(Node(index=i, name=name, kind=kind, children=(), lo=lo, hi=hi, level=0)
+                  for i, (name, kind, (lo, hi)) in enumerate(values))
+    score_lo, score_hi = prefixes[-1]
+    score_bits_min = signed_bits(score_lo, score_hi)
+    if max(n.bits for n in nodes) > MAX_SCORE_BITS + 1 or score_bits_min > MAX_SCORE_BITS:
+        raise InputError(f"the score needs {score_bits_min} bits, more than the limit of "
+                         f"{MAX_SCORE_BITS}; use narrower weights or input ranges", field="unit")
+    if score_bits is None:
+        score_bits = score_bits_min
+    elif score_bits < score_bits_min:
+        raise InputError(f"score_bits {score_bits} cannot hold the score range "
+                         f"[{score_lo}, {score_hi}]; it needs at least {score_bits_min}",
+                         field="score_bits")
+    has_score = model.ports.has_score or model.is_bank
+    witness_max = tuple(hi if w > 0 else lo for w, (lo, hi) in zip(weights, ranges))
+    witness_min = tuple(lo if w > 0 else hi for w, (lo, hi) in zip(weights, ranges))
+    return Analysis(feature_ranges=tuple(ranges), weights=tuple(weights), bias=unit.bias,
+                    nodes=nodes, tree_root=None, score_node=SERIAL_NODES.index("sum"),
+                    score_range=(score_lo, score_hi), score_bits_min=score_bits_min,
+                    score_bits=score_bits, witness_min=witness_min, witness_max=witness_max,
+                    tree_levels=0, has_score=has_score, arch="serial")
+
+
 def _root_is_exact(nodes, root, lo, hi):
     node = nodes[root]
     if node.sign > 0:
@@ -324,19 +480,21 @@ class BankPlan:
         return layer[0]
 
 
-def analyse_bank(model, *, score_bits=None, arch="tree"):
+def analyse_bank(model, *, score_bits=None, arch="tree", weight_range=None, bias_range=None):
     """Analyse every unit of a bank; ``score_bits`` (if given) is the width of every score port."""
     if score_bits is None:
         score_bits = model.score_bits
     units = []
+    loadable = {"weight_range": weight_range, "bias_range": bias_range}
     for index in range(len(model.units)):
-        own = analyse(model, arch=arch, unit_index=index)
+        own = analyse(model, arch=arch, unit_index=index, **loadable)
         if score_bits is not None:
             if score_bits < own.score_bits_min:
                 raise InputError(f"score_bits {score_bits} cannot hold the score range "
                                  f"{list(own.score_range)} of unit {model.units[index].name}; "
                                  f"it needs at least {own.score_bits_min}", field="score_bits")
-            own = analyse(model, arch=arch, unit_index=index, score_bits=score_bits)
+            own = analyse(model, arch=arch, unit_index=index, score_bits=score_bits,
+                          **loadable)
         units.append(own)
     count = len(units)
     return BankPlan(units=tuple(units), class_bits=max(1, (count - 1).bit_length()),

@@ -114,44 +114,53 @@ class BankReference:
         return np.array([max(range(len(row)), key=lambda i: (row[i], -i)) for row in scores])
 
 
-def cycle_model(latency, count, *, offer, accept):
+def cycle_model(latency, count, *, offer, accept, beats=1):
     """Cycle-exact model of the valid/ready handshake of a pipeline of ``latency`` stages.
 
     The pipeline advances as a whole when its last stage is empty or being read
     (``advance = out_ready or not out_valid``), and ``in_ready`` is ``advance``. With no register
     stages the unit is combinational: ``out_valid = in_valid`` and ``in_ready = out_ready``.
+    With ``beats > 1`` (the serial architecture) each input takes that many valid beats; the
+    beats before its last are taken whatever the pipeline does (``in_ready`` high) and only
+    the last enters the pipeline, so ``in_ready`` is ``advance`` only on a last beat.
 
     ``offer(t)`` says whether the source wants to send in cycle ``t`` (it does only while inputs
     are left) and ``accept(t)`` is the sink's ``out_ready``. The run stops when all ``count``
     inputs have come out. Returns per-cycle arrays ``in_valid``, ``in_ready``, ``out_valid``,
-    ``out_ready``, ``in_index`` (which input is presented) and ``out_index`` (which input is on
-    the output, -1 where ``out_valid`` is low).
+    ``out_ready``, ``in_index`` (which beat is presented: ``input * beats + beat``; the input
+    itself when ``beats == 1``) and ``out_index`` (which input is on the output, -1 where
+    ``out_valid`` is low).
     """
+    if beats > 1 and latency == 0:
+        raise ValueError("a serial (beats > 1) pipeline needs at least one register stage")
     rows = {key: [] for key in ("in_valid", "in_ready", "out_valid", "out_ready", "in_index",
                                 "out_index")}
     stages = [-1] * latency       # input index held by each stage, -1 when empty
-    accepted = emitted = 0
+    total = count * beats
+    accepted = emitted = 0        # beats accepted, inputs emitted
     t = 0
     while emitted < count:
-        valid = accepted < count and bool(offer(t))
+        valid = accepted < total and bool(offer(t))
         ready = bool(accept(t))
+        last = accepted % beats == beats - 1
         if latency == 0:
             out_valid, out_index, advance = valid, (accepted if valid else -1), ready
         else:
             out_index = stages[-1]
             out_valid = out_index >= 0
             advance = ready or not out_valid
-        for key, value in (("in_valid", valid), ("in_ready", advance), ("out_valid", out_valid),
-                           ("out_ready", ready), ("in_index", min(accepted, count - 1)),
-                           ("out_index", out_index)):
+        in_ready = advance or not last
+        for key, value in (("in_valid", valid), ("in_ready", in_ready),
+                           ("out_valid", out_valid), ("out_ready", ready),
+                           ("in_index", min(accepted, total - 1)), ("out_index", out_index)):
             rows[key].append(value)
         if out_valid and ready:
             emitted += 1
-        if advance:
-            if latency:
-                stages = [accepted if valid else -1] + stages[:-1]
-            if valid:
-                accepted += 1
+        entering = accepted // beats if (valid and in_ready and last) else -1
+        if advance and latency:
+            stages = [entering] + stages[:-1]
+        if valid and in_ready:
+            accepted += 1
         t += 1
     return {key: np.asarray(value, dtype=np.int64 if key.endswith("index") else bool)
             for key, value in rows.items()}

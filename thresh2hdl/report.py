@@ -39,8 +39,10 @@ def summary_lines(report):
         f"{report['verilog']}",
         f"  score range [{lo}, {hi}] needs {report['score_bits_min']} bits; port "
         f"{report['score_bits']} bits (headroom {report['headroom_bits']})",
-        f"  adder tree: {report['tree']['levels']} levels, {len(report['tree']['nodes'])} nodes; "
-        f"latency {report['latency_cycles']} cycle(s)",
+        (f"  serial multiply-accumulate: {report.get('beats_per_result')} beats per result; "
+         if report["tree"]["arch"] == "serial" else
+         f"  adder tree: {report['tree']['levels']} levels, {len(report['tree']['nodes'])} "
+         f"nodes; ") + f"latency {report['latency_cycles']} cycle(s)",
         f"  verified in {verification['simulator_version']}: {report['vectors_checked']} vectors over "
         f"{verification['cycles']} cycles, {report['mismatches']} mismatches",
     ]

@@ -155,9 +155,10 @@ def report_html(report):
         ["score bits (fewest that fit)", report["score_bits_min"]],
         ["score port bits", report["score_bits"]], ["headroom bits", report["headroom_bits"]],
         ["architecture", report["tree"]["arch"]], ["latency (cycles)", report["latency_cycles"]],
+        ["valid beats per result", report.get("beats_per_result", 1)],
         ["register stages after levels", ", ".join(map(str, report["tree"]["register_after_levels"])) or "none"]]),
         "<h3>Score range</h3>", _score_line(report),
-        "<h3>Adder-tree nodes: range against width</h3>", _node_bars(report["tree"]["nodes"])]
+        "<h3>Datapath values: range against width</h3>", _node_bars(report["tree"]["nodes"])]
     out += ["<h2>Verification</h2>",
             f"<p class={'ok' if ok else 'bad'}>{report['vectors_checked']} vectors over "
             f"{v['cycles']} cycles in {escape(v['simulator_version'])}: "
@@ -246,6 +247,7 @@ def report_markdown(report):
              f"| headroom bits | {report['headroom_bits']} |",
              f"| architecture | {report['tree']['arch']} |",
              f"| latency (cycles) | {report['latency_cycles']} |",
+             f"| valid beats per result | {report.get('beats_per_result', 1)} |",
              f"| vectors checked | {report['vectors_checked']} |",
              f"| mismatches | {report['mismatches']} |",
              f"| simulator | {v['simulator_version']} |"]

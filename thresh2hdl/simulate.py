@@ -11,7 +11,7 @@ import numpy as np
 from amaranth.hdl import Cat, ClockDomain, Module
 from amaranth.sim import Simulator
 
-from .stimulus import compare
+from .stimulus import compare, write_columns
 
 __all__ = ["SimulationResult", "simulate_amaranth"]
 
@@ -47,9 +47,12 @@ def simulate_amaranth(component, stimulus, *, progress=None):
     """Run ``stimulus`` through ``component`` in Amaranth's simulator (one reset cycle first)."""
     features = component.feature_ports
     inputs = [component.in_valid, component.out_ready, *features]
-    widths = [len(signal) for signal in inputs]
     columns = [stimulus.in_valid.astype(np.int64), stimulus.out_ready.astype(np.int64),
                *stimulus.inputs.T]
+    if "weight_write" in component.signature.members:
+        inputs += [component.weight_write, component.weight_address, component.weight_data]
+        columns += list(write_columns(stimulus))
+    widths = [len(signal) for signal in inputs]
     packed = _pack_columns(columns, widths)
     score_ports = component.score_ports
     outputs = [component.in_ready, component.out_valid, component.y, *score_ports]

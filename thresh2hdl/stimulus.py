@@ -9,9 +9,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .reference import cycle_model
+from .reference import ReferenceModel, cycle_model
 
-__all__ = ["Stimulus", "make_stimulus", "Mismatch", "CompareResult", "compare"]
+__all__ = ["Stimulus", "make_stimulus", "make_reload_stimulus", "write_columns", "Mismatch",
+           "CompareResult", "compare"]
 
 
 @dataclass(frozen=True)
@@ -22,54 +23,72 @@ class Stimulus:
     vectors: np.ndarray        # (count, features)
     in_valid: np.ndarray       # (cycles,)
     out_ready: np.ndarray
-    in_index: np.ndarray       # which vector is presented on the inputs in each cycle
+    in_index: np.ndarray       # which beat is presented on the inputs in each cycle
     expect_in_ready: np.ndarray
     expect_out_valid: np.ndarray
     expect_out_index: np.ndarray
     expect_scores: np.ndarray  # per vector
     expect_decisions: np.ndarray
+    beats: int = 1             # valid beats per vector: 1, or one per feature (serial)
+    writes: tuple | None = None  # loadable weights: per-cycle (strobe, address, data) arrays
 
     @property
     def cycles(self):
         return len(self.in_valid)
 
     @property
+    def beat_codes(self):
+        """What each beat carries: a whole vector, or (serial) one feature, in order."""
+        if self.beats == 1:
+            return self.vectors
+        return self.vectors.reshape(-1, 1)
+
+    @property
     def inputs(self):
-        """Feature values presented in each cycle, shape (cycles, features)."""
-        return self.vectors[self.in_index]
+        """Values presented in each cycle, shape (cycles, values per beat)."""
+        return self.beat_codes[self.in_index]
+
+    @property
+    def in_vector(self):
+        """Which vector the beat presented in each cycle belongs to."""
+        return self.in_index // self.beats
 
 
 STALL_SEGMENT = 20_000   # vectors run with random out_ready stalls; the rest without
 
 
-def _free_flowing(first_index, count, latency, rng, valid_probability):
+def _free_flowing(first_index, count, latency, rng, valid_probability, beats=1):
     """Cycles for ``count`` vectors with random gaps on in_valid and out_ready held high.
 
     With the sink always ready the pipeline never stalls, so the handshake model reduces to a
-    delay line and the whole segment is computed with array operations.
+    delay line (of the last beats) and the whole segment is computed with array operations.
     """
-    cycles = int(count / valid_probability * 1.05) + 64
+    total = count * beats
+    cycles = int(total / valid_probability * 1.05) + 64
     offered = rng.random(cycles) < valid_probability
-    while np.count_nonzero(offered) < count:
+    while np.count_nonzero(offered) < total:
         offered = np.concatenate([offered, rng.random(cycles) < valid_probability])
-    last = int(np.flatnonzero(offered)[count - 1])
+    last = int(np.flatnonzero(offered)[total - 1])
     in_valid = np.concatenate([offered[: last + 1], np.zeros(latency, dtype=bool)])
     accepted_before = np.cumsum(in_valid) - in_valid
-    in_index = first_index + np.minimum(accepted_before, count - 1)
+    beat_index = np.minimum(accepted_before, total - 1)
+    in_index = first_index * beats + beat_index
+    finishing = in_valid & (beat_index % beats == beats - 1)
     out_valid = np.zeros(len(in_valid), dtype=bool)
     out_index = np.full(len(in_valid), -1, dtype=np.int64)
-    out_valid[latency:] = in_valid[: len(in_valid) - latency]
-    out_index[latency:] = np.where(in_valid[: len(in_valid) - latency],
-                                   in_index[: len(in_valid) - latency], -1)
+    out_valid[latency:] = finishing[: len(in_valid) - latency]
+    out_index[latency:] = np.where(finishing[: len(in_valid) - latency],
+                                   in_index[: len(in_valid) - latency] // beats, -1)
     ones = np.ones(len(in_valid), dtype=bool)
     return {"in_valid": in_valid, "in_ready": ones, "out_valid": out_valid, "out_ready": ones,
             "in_index": in_index.astype(np.int64), "out_index": out_index}
 
 
-def make_stimulus(reference, vectors, *, latency, seed=0, valid_probability=0.9,
+def make_stimulus(reference, vectors, *, latency, beats=1, seed=0, valid_probability=0.9,
                   ready_probability=0.9, stall_vectors=STALL_SEGMENT):
     """Cycles for every vector: the first ``stall_vectors`` through the full handshake model
-    with random gaps and stalls, the rest with gaps only (a long random run)."""
+    with random gaps and stalls, the rest with gaps only (a long random run). ``beats``: valid
+    beats per vector (a component's ``beats``: one per feature for the serial architecture)."""
     vectors = np.asarray(vectors, dtype=np.int64)
     rng = np.random.default_rng(seed)
     chunk = 4096
@@ -83,11 +102,11 @@ def make_stimulus(reference, vectors, *, latency, seed=0, valid_probability=0.9,
     stalled = min(len(vectors), stall_vectors)
     segments = [cycle_model(latency, stalled,
                             offer=lambda t: draw(offers, valid_probability, t),
-                            accept=lambda t: draw(accepts, ready_probability, t))]
+                            accept=lambda t: draw(accepts, ready_probability, t), beats=beats)]
     if len(vectors) > stalled:
         # The first segment ends drained (every result out), so this one starts empty.
         segments.append(_free_flowing(stalled, len(vectors) - stalled, latency, rng,
-                                      valid_probability))
+                                      valid_probability, beats))
     trace = {key: np.concatenate([segment[key] for segment in segments])
              for key in segments[0]}
     scores = reference.scores(vectors)
@@ -95,7 +114,77 @@ def make_stimulus(reference, vectors, *, latency, seed=0, valid_probability=0.9,
                     out_ready=trace["out_ready"], in_index=trace["in_index"],
                     expect_in_ready=trace["in_ready"], expect_out_valid=trace["out_valid"],
                     expect_out_index=trace["out_index"],
-                    expect_scores=scores, expect_decisions=reference.decide(scores))
+                    expect_scores=scores, expect_decisions=reference.decide(scores),
+                    beats=beats)
+
+
+def write_columns(stimulus):
+    """The write port's per-cycle strobe, address and data (all zero when nothing is written)."""
+    if stimulus.writes is not None:
+        return stimulus.writes
+    zeros = np.zeros(stimulus.cycles, dtype=np.int64)
+    return zeros, zeros, zeros
+
+
+def _write_cycles(model):
+    """(address, value) of every register of a model's weights: the write port's map."""
+    features = len(model.features)
+    writes = []
+    for u, unit in enumerate(model.units):
+        base = u * (features + 1)
+        writes += [(base + i, w) for i, w in enumerate(unit.weights)]
+        writes.append((base + features, unit.bias))
+    return writes
+
+
+def make_reload_stimulus(first, reloads, *, latency, beats=1, seed=0, **options):
+    """A run that loads new weights between segments: ``first`` is the stimulus with the
+    weights the registers start with; ``reloads`` lists ``(model, vectors)`` to write and
+    then run. Writes happen with the design idle (every result out) and ``in_valid`` low,
+    one register per cycle; each segment is judged by the reference of its own weights."""
+    parts = [first]
+    strobes, addresses, data = [np.zeros(first.cycles, dtype=np.int64)] * 3
+    strobes, addresses, data = [strobes], [addresses], [data]
+    for index, (model, vectors) in enumerate(reloads):
+        writes = _write_cycles(model)
+        count = len(writes)
+        idle = np.zeros(count, dtype=bool)
+        parts.append(Stimulus(latency=latency, vectors=np.zeros((0, first.vectors.shape[1]),
+                                                                dtype=np.int64),
+                              in_valid=idle, out_ready=~idle, in_index=np.zeros(count, np.int64),
+                              expect_in_ready=~idle, expect_out_valid=idle,
+                              expect_out_index=np.full(count, -1, np.int64),
+                              expect_scores=first.expect_scores[:0],
+                              expect_decisions=first.expect_decisions[:0], beats=beats))
+        strobes.append(np.ones(count, dtype=np.int64))
+        addresses.append(np.array([a for a, _ in writes], dtype=np.int64))
+        data.append(np.array([v for _, v in writes], dtype=object))
+        rows = np.asarray(getattr(vectors, "array", vectors), dtype=np.int64)
+        segment = make_stimulus(ReferenceModel.from_model(model), rows, latency=latency,
+                                beats=beats, seed=[seed, index + 1], **options)
+        parts.append(segment)
+        zeros = np.zeros(segment.cycles, dtype=np.int64)
+        strobes.append(zeros)
+        addresses.append(zeros)
+        data.append(zeros)
+    offsets = np.cumsum([0] + [len(p.vectors) for p in parts[:-1]])
+    scores = [np.asarray(p.expect_scores) for p in parts]
+    if any(s.dtype == object for s in scores):
+        scores = [s.astype(object) for s in scores]
+    return Stimulus(
+        latency=latency, vectors=np.concatenate([p.vectors for p in parts]),
+        in_valid=np.concatenate([p.in_valid for p in parts]),
+        out_ready=np.concatenate([p.out_ready for p in parts]),
+        in_index=np.concatenate([p.in_index + o * beats for p, o in zip(parts, offsets)]),
+        expect_in_ready=np.concatenate([p.expect_in_ready for p in parts]),
+        expect_out_valid=np.concatenate([p.expect_out_valid for p in parts]),
+        expect_out_index=np.concatenate([np.where(p.expect_out_index >= 0,
+                                                  p.expect_out_index + o, -1)
+                                         for p, o in zip(parts, offsets)]),
+        expect_scores=np.concatenate(scores),
+        expect_decisions=np.concatenate([p.expect_decisions for p in parts]),
+        beats=beats, writes=(np.concatenate(strobes), np.concatenate(addresses),
+                             np.concatenate(data)))
 
 
 @dataclass(frozen=True)
@@ -145,7 +234,7 @@ def compare(stimulus, in_ready, out_valid, decisions, scores, *, limit=10):
     out_valid = np.asarray(out_valid).astype(bool)
     index = stimulus.expect_out_index
     note(np.flatnonzero(in_ready != stimulus.expect_in_ready), "in_ready",
-         stimulus.expect_in_ready, in_ready, stimulus.in_index)
+         stimulus.expect_in_ready, in_ready, stimulus.in_vector)
     note(np.flatnonzero(out_valid != stimulus.expect_out_valid), "out_valid",
          stimulus.expect_out_valid, out_valid, index)
     shown = np.flatnonzero(stimulus.expect_out_valid & out_valid)

@@ -15,6 +15,7 @@ import numpy as np
 from .errors import ToolError
 from .outdir import write_text
 from .simulate import SimulationResult
+from .stimulus import write_columns
 
 __all__ = ["TestbenchFiles", "testbench_text", "write_testbench", "simulate_icarus",
            "icarus_version"]
@@ -52,6 +53,13 @@ def _score_ports(ports):
             if internal.startswith("score")]
 
 
+def _write_ports(ports):
+    """The weight write port (strobe, address, data), empty unless the weights are loadable."""
+    order = ("weight_write", "weight_address", "weight_data")
+    rows = {internal: (name, width) for internal, name, _, width, _ in ports}
+    return [rows[key] for key in order if key in rows]
+
+
 def _pad(expression, width):
     return expression if width == 128 else f"{{{128 - width}'d0, {expression}}}"
 
@@ -69,9 +77,11 @@ def testbench_text(ports, module, cycles, files, verilog_name):
     for internal, name, direction, width, signed in ports:
         signal = {"clk": "clk", "rst": "rst"}.get(internal, f"tb_{name}")
         connections.append(f"    .{name}({signal})")
-    stim_concat = ", ".join([tb("out_ready"), tb("in_valid")]
+    writes = _write_ports(ports)
+    stim_concat = ", ".join([f"tb_{n}" for n, _ in reversed(writes)]
+                            + [tb("out_ready"), tb("in_valid")]
                             + [f"tb_{n}" for n, _ in reversed(features)])
-    stim_bits = 2 + sum(w for _, w in features)
+    stim_bits = 2 + sum(w for _, w in features) + sum(w for _, w in writes)
     decision_bits = by_role["y"][1]
     # Expected word, low bits first: in_ready, out_valid, decision, then each score.
     fields = [("in_ready", tb("in_ready"), 1), ("out_valid", tb("out_valid"), 1),
@@ -127,7 +137,11 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     inputs = stimulus.inputs
     columns = [inputs[:, i] for i in range(inputs.shape[1])]
     columns += [stimulus.in_valid.astype(np.int64), stimulus.out_ready.astype(np.int64)]
-    write_text(folder / files.stimulus, _hex_lines(columns, features + [1, 1]))
+    writes = _write_ports(ports)
+    if writes:
+        columns += list(write_columns(stimulus))
+    write_text(folder / files.stimulus,
+               _hex_lines(columns, features + [1, 1] + [w for _, w in writes]))
     scores = _score_ports(ports)
     decision_bits = next(w for internal, _, _, w, _ in ports if internal == "y")
     index = np.maximum(stimulus.expect_out_index, 0)

@@ -1,8 +1,12 @@
 """Input vectors for verification: the corners the range analysis names, then random ones."""
 
+from dataclasses import replace
+
 import numpy as np
 
-__all__ = ["VectorSet", "make_vectors", "random_vectors"]
+from .model import Unit
+
+__all__ = ["VectorSet", "make_vectors", "random_vectors", "reload_sets"]
 
 DEFAULT_RANDOM_VECTORS = 10_000
 
@@ -123,3 +127,38 @@ def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=
     if data is not None:
         vectors.add("dataset rows", data)
     return vectors
+
+
+def reload_sets(model, weight_range, bias_range, *, random_count=2000, seed=0):
+    """Weight sets to load through the write port, each with the vectors to run after it.
+
+    The first two put every weight and bias at the corners of the declared ranges that reach
+    the highest and the lowest score of the loadable design, with the inputs that reach them
+    (so the widths are tried at their bounds); the third is random. Returns a list of
+    ``(model with those weights, VectorSet)``.
+    """
+    rng = np.random.default_rng([seed, 7])
+    ranges = model.feature_ranges
+    features = len(ranges)
+    sets = []
+    for direction in (1, -1, 0):
+        units, corner = [], []
+        for unit in model.units:
+            if direction:
+                picks = [max(((x, w) for x in r for w in weight_range),
+                             key=lambda xw: direction * xw[0] * xw[1]) for r in ranges]
+                weights = tuple(w for _, w in picks)
+                corner = [x for x, _ in picks]
+                bias = bias_range[1] if direction > 0 else bias_range[0]
+            else:
+                weights = tuple(int(v) for v in rng.integers(weight_range[0],
+                                                             weight_range[1] + 1, features))
+                bias = int(rng.integers(bias_range[0], bias_range[1] + 1))
+            units.append(Unit(unit.name, weights, bias))
+        loaded = replace(model, units=tuple(units))
+        vectors = VectorSet(features)
+        if corner:
+            vectors.add("loaded corner", [corner])
+        vectors.add("loaded random", random_vectors(rng, ranges, random_count))
+        sets.append((loaded, vectors))
+    return sets

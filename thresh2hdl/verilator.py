@@ -23,6 +23,7 @@ import numpy as np
 
 from .errors import ToolError
 from .simulate import SimulationResult
+from .stimulus import write_columns
 
 __all__ = ["find_verilator", "verilator_version", "simulate_verilator", "cache_folder"]
 
@@ -103,6 +104,11 @@ def wrapper_text(ports, module):
     return "\n".join(lines)
 
 
+def control_words(ports):
+    """int32 words per cycle in the control file: 3, or 7 with a weight write port."""
+    return 7 if any(internal == "weight_write" for internal, *_ in ports) else 3
+
+
 def harness_text(ports, module):
     by_role = {internal: (name, width) for internal, name, _, width, _ in ports}
     features = [(name, width) for internal, name, _, width, _ in ports if internal.startswith("x")]
@@ -116,6 +122,14 @@ def harness_text(ports, module):
         reset = (f"    top.{rst} = 1;\n    top.{by_role['in_valid'][0]} = 0;\n    edge();\n"
                  f"    top.{rst} = 0;")
     scores = [name for internal, name, _, _, _ in ports if internal.startswith("score")]
+    writes = []
+    if "weight_write" in by_role:
+        data_name, data_width = by_role["weight_data"]
+        mask = (1 << data_width) - 1
+        writes = [f"        top.{by_role['weight_write'][0]} = c[3] & 1;",
+                  f"        top.{by_role['weight_address'][0]} = static_cast<uint32_t>(c[4]);",
+                  f"        top.{data_name} = ((static_cast<uint64_t>(static_cast<uint32_t>(c[6]))"
+                  f" << 32) | static_cast<uint32_t>(c[5])) & 0x{mask:x}ull;"]
     reads = "\n".join(f"        scores[t * kScores + {k}] = static_cast<int64_t>(top.{name});"
                       for k, name in enumerate(scores))
     values = {"MODULE": wrapper_name(module), "WRAPPER": wrapper_name(module),
@@ -123,7 +137,8 @@ def harness_text(ports, module):
               "IN_VALID": by_role["in_valid"][0], "OUT_READY": by_role["out_ready"][0],
               "IN_READY": by_role["in_ready"][0], "OUT_VALID": by_role["out_valid"][0],
               "DECISION": by_role["y"][0], "SET_FEATURES": "\n".join(lines),
-              "SCORE_READS": reads, "SCORE_PORTS": str(len(scores))}
+              "SCORE_READS": reads, "SCORE_PORTS": str(len(scores)),
+              "SET_WRITES": "\n".join(writes), "CONTROL_WORDS": str(control_words(ports))}
     text = resources.files("thresh2hdl.sim").joinpath("verilator_harness.cpp.in").read_text("utf-8")
     for key, value in values.items():
         text = text.replace(f"@{key}@", value)
@@ -180,14 +195,26 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
                         f"{max(score_widths)}; use --simulator icarus")
     binary = compiled_harness(verilog_text, ports, module, progress=progress)
     # Codes keep their bit pattern (the harness masks to the port width).
+    codes = stimulus.beat_codes
     if code_type(ports) == "int16_t":
-        vectors = (stimulus.vectors & 0xFFFF).astype(np.uint16)
+        vectors = (codes & 0xFFFF).astype(np.uint16)
     else:
-        vectors = (stimulus.vectors & 0xFFFFFFFF).astype(np.uint32)
-    control = np.empty((stimulus.cycles, 3), dtype="<i4")
+        vectors = (codes & 0xFFFFFFFF).astype(np.uint32)
+    control = np.empty((stimulus.cycles, control_words(ports)), dtype="<i4")
     control[:, 0] = stimulus.in_valid
     control[:, 1] = stimulus.out_ready
     control[:, 2] = stimulus.in_index
+    if control.shape[1] > 3:
+        data_width = next(w for i, _, _, w, _ in ports if i == "weight_data")
+        if data_width > 64:
+            raise ToolError(f"the Verilator harness writes weights of up to 64 bits, this "
+                            f"port has {data_width}; use --simulator icarus")
+        strobe, address, data = write_columns(stimulus)
+        words = np.asarray(data).astype(np.int64).view(np.uint64)   # data bits <= 64
+        control[:, 3] = strobe
+        control[:, 4] = address
+        control[:, 5] = (words & np.uint64(0xFFFFFFFF)).astype(np.uint32).view(np.int32)
+        control[:, 6] = (words >> np.uint64(32)).astype(np.uint32).view(np.int32)
     # Vector files can be hundreds of MB: keep them in memory-backed /dev/shm where there is one.
     scratch = "/dev/shm" if os.path.isdir("/dev/shm") and os.access("/dev/shm", os.W_OK) else None
     with tempfile.TemporaryDirectory(prefix="thresh2hdl-verilator-", dir=scratch) as folder:

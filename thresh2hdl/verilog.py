@@ -312,7 +312,9 @@ def port_table(component, model):
     ports = model.ports
     names = {"clk": ports.clock, "rst": ports.reset, "in_valid": ports.in_valid,
              "in_ready": ports.in_ready, "out_valid": ports.out_valid,
-             "out_ready": ports.out_ready, "y": ports.decision, "score": ports.score}
+             "out_ready": ports.out_ready, "y": ports.decision, "score": ports.score,
+             "x": ports.sample, "weight_write": ports.weight_write,
+             "weight_address": ports.weight_address, "weight_data": ports.weight_data}
     for index, feature in enumerate(model.features):
         names[f"x{index}"] = feature.name
     if model.is_bank:
