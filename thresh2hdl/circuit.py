@@ -229,6 +229,8 @@ def _build_tree(m, stages, analysis, features, prefix="", weights=None, bias=Non
                 expr = operands[0] - operands[1]
             elif node.kind == "rsub":
                 expr = operands[1] - operands[0]
+            elif node.kind == "offset":     # the bias folded into a sum (shiftadd)
+                expr = operands[0] + Const(node.constant)
             else:  # bias
                 child = analysis.nodes[node.children[0]]
                 bias = Const(node.constant)

@@ -165,6 +165,11 @@ class _Plan:
                             register_shift=node.register_shift)
                 continue
             children = [self.values[prefix + nodes[c].name] for c in node.children]
+            if node.kind == "offset":     # child + constant, whatever the child's sign
+                child = children[0]
+                self.linear(name, "bias", (child.name,), stage, dict(child.coeffs),
+                            node.constant + child.constant)
+                continue
             if node.kind == "bias":
                 child = children[0]
                 factor = 1 if nodes[node.children[0]].sign > 0 else -1
@@ -188,7 +193,8 @@ class _Plan:
             self.unit_scores.append((prefix + nodes[analysis.score_node].name, 1, 0))
         else:
             root = nodes[analysis.tree_root]
-            self.unit_scores.append((prefix + root.name, root.sign, analysis.bias))
+            self.unit_scores.append((prefix + root.name, root.sign,
+                                     0 if analysis.bias_folded else analysis.bias))
 
     def _argmax(self, plan):
         """The argmax as the circuit plans it: a tournament, left (lower index) wins ties."""
