@@ -37,6 +37,8 @@ class UnitConfig:
     loadable_weights: bool = False   # weights and biases in registers behind a write port
     weight_bits: int | None = None   # their declared signed widths (default: fewest for the
     bias_bits: int | None = None     # trained values); every width is sized for these
+    split_bits: int | None = None    # adders wider than this are split, the high parts one
+                                     # register stage later (shorter carry chains)
 
     def __post_init__(self):
         if not isinstance(self.model, Model):
@@ -82,6 +84,17 @@ class UnitConfig:
             raise InputError("shiftadd recodes each constant weight into shifts and adds, so "
                              "its weights cannot be loaded; use --arch tree or serial",
                              field="--loadable-weights")
+        if self.split_bits is not None:
+            if isinstance(self.split_bits, bool) or not isinstance(self.split_bits, int) \
+                    or not 2 <= self.split_bits <= 64:
+                raise InputError(f"must be an integer from 2 to 64, not {self.split_bits!r}",
+                                 field="--split-adders")
+            if self.arch == "serial" or self.model.is_bank or self.loadable_weights \
+                    or self.pipeline == 0:
+                raise InputError("splits the adders of one unit's registered tree (tree or "
+                                 "shiftadd, constant weights, --pipeline 1 or more); not of "
+                                 "serial designs, banks or loadable weights",
+                                 field="--split-adders")
         if self.arch == "serial" and self.pipeline != 1:
             raise InputError(f"the serial architecture has exactly one register stage (the "
                              f"accumulator and its result), so it must be 1, not "
@@ -239,6 +252,121 @@ def _build_tree(m, stages, analysis, features, prefix="", weights=None, bias=Non
         stages.put(prefix + node.name, value, stage, node.register_shift)
 
 
+def _low_bits(value, bits):
+    """The low ``bits`` bits of a value, sign- or zero-extended when it is narrower."""
+    if len(value) >= bits:
+        return value[:bits]
+    fill = value[-1] if value.shape().signed else Const(0, 1)
+    return Cat(value, *([fill] * (bits - len(value))))
+
+
+def _high_part(value, bits, shape):
+    """``value >> bits`` (arithmetic when signed) at ``shape``."""
+    if len(value) > bits:
+        high = value[bits:]
+        return high.as_signed() if value.shape().signed else high
+    return value[-1].as_signed() if value.shape().signed else Const(0, 1)
+
+
+def _split_nodes(analysis, split_bits):
+    """Names of the adders that are split: wider than ``split_bits``, or fed by a split one."""
+    split = set()
+    for node in analysis.nodes:
+        if node.kind != "product" and (node.bits > split_bits or any(
+                analysis.nodes[c].name in split for c in node.children)):
+            split.add(node.name)
+    return split
+
+
+def _build_split_tree(m, stages, analysis, features, split_bits):
+    """As :func:`_build_tree`, but a node wider than ``split_bits`` (or fed by a split one) is
+    two adders: its low ``split_bits`` bits and their carry in the node's stage, the rest one
+    stage later from the registered carry. The high parts of the whole tree run one stage
+    behind the low parts, so every carry chain is at most about ``split_bits`` long.
+    Returns the set of split node names."""
+    split = _split_nodes(analysis, split_bits)
+
+    def low_of(index, stage):
+        name = analysis.nodes[index].name
+        if name in split:
+            return stages.at(f"{name}_lo", stage)
+        return _low_bits(stages.at(name, stage), split_bits)
+
+    def high_of(index, stage):
+        node = analysis.nodes[index]
+        if node.name in split:
+            return stages.at(f"{node.name}_hi", stage)
+        return _high_part(stages.at(node.name, stage), split_bits, None)
+
+    for node in analysis.nodes:
+        stage = stages.stage_of(node.level)
+        if node.name not in split:
+            if node.kind == "product":
+                x = features[node.feature]
+                magnitude = node.magnitude
+                if magnitude & (magnitude - 1) == 0:
+                    expr = x << (magnitude.bit_length() - 1)
+                else:
+                    expr = x * Const(magnitude)
+            else:
+                operands = [stages.at(analysis.nodes[c].name, stage) for c in node.children]
+                expr = _combine(node, analysis, operands)
+            value = Signal(_shape(node), name=node.name)
+            m.d.comb += value.eq(expr)
+            stages.put(node.name, value, stage, node.register_shift)
+            continue
+        hi_shape = signed(max(1, node.bits - split_bits)) if node.is_signed \
+            else unsigned(max(1, node.bits - split_bits))
+        lows = [low_of(c, stage) for c in node.children]
+        highs = [high_of(c, stage + 1) for c in node.children]
+        if node.kind in ("offset", "bias"):
+            constant = node.constant
+            lows.append(Const(constant % (1 << split_bits), split_bits))
+            highs.append(Const(constant >> split_bits))
+            child = analysis.nodes[node.children[0]]
+            kind = "rsub" if node.kind == "bias" and child.sign < 0 else "add"
+        else:
+            kind = node.kind
+        lo = Signal(split_bits, name=f"{node.name}_lo")
+        carry = Signal(name=f"{node.name}_carry")
+        hi = Signal(hi_shape, name=f"{node.name}_hi")
+        wide_lo = Signal(signed(split_bits + 2), name=f"{node.name}_lo_sum")
+        a, b = lows[0], lows[1]
+        if kind == "add":
+            m.d.comb += wide_lo.eq(a + b)
+        elif kind == "sub":
+            m.d.comb += wide_lo.eq(a - b)
+        else:                     # rsub: right minus left
+            m.d.comb += wide_lo.eq(b - a)
+        m.d.comb += [lo.eq(wide_lo[:split_bits]), carry.eq(wide_lo[split_bits])]
+        stages.put(f"{node.name}_lo", lo, stage)
+        stages.put(f"{node.name}_carry", carry, stage)
+        c = stages.at(f"{node.name}_carry", stage + 1)
+        ha, hb = highs[0], highs[1]
+        if kind == "add":
+            m.d.comb += hi.eq(ha + hb + c)
+        elif kind == "sub":
+            m.d.comb += hi.eq(ha - hb - c)
+        else:
+            m.d.comb += hi.eq(hb - ha - c)
+        stages.put(f"{node.name}_hi", hi, stage + 1)
+    return split
+
+
+def _combine(node, analysis, operands):
+    if node.kind == "add":
+        return operands[0] + operands[1]
+    if node.kind == "sub":
+        return operands[0] - operands[1]
+    if node.kind == "rsub":
+        return operands[1] - operands[0]
+    if node.kind == "offset":
+        return operands[0] + Const(node.constant)
+    child = analysis.nodes[node.children[0]]
+    bias = Const(node.constant)
+    return operands[0] + bias if child.sign > 0 else bias - operands[0]
+
+
 def _check_pipeline(component, pipeline, final_level):
     most = final_level + 1
     if pipeline > most:
@@ -316,11 +444,28 @@ class ThresholdUnit(_Common, wiring.Component):
     def score_ports(self):
         return [self.score] if self._analysis.has_score else []
 
+    @property
+    def splits_result(self):
+        """With split adders, whether the result itself is split: then its high part, and
+        the outputs, come one register stage later."""
+        bits = self._config.split_bits
+        analysis = self._analysis
+        if bits is None or analysis.score_node is None:
+            return False
+        result = analysis.score_node if analysis.has_score else analysis.tree_root
+        return analysis.nodes[result].name in _split_nodes(analysis, bits)
+
+    @property
+    def latency(self):
+        return self._config.pipeline + int(self.splits_result)
+
     def elaborate(self, platform):
         m = Module()
         analysis = self._analysis
         advance = _handshake(m, self, self.latency)
         stages = _Stages(m, advance, self._boundaries)
+        if self.splits_result:
+            return self._elaborate_split(m, stages)
         if analysis.score_node is None:
             # Every weight is zero: the outputs are constants, valid whenever a result is.
             m.d.comb += self.y.eq(analysis.bias > 0)
@@ -351,6 +496,44 @@ class ThresholdUnit(_Common, wiring.Component):
         if analysis.has_score:
             m.d.comb += self.score.eq(stages.at(analysis.nodes[analysis.score_node].name,
                                                 self.latency))
+        return m
+
+
+    def _elaborate_split(self, m, stages):
+        analysis, bits = self._analysis, self._config.split_bits
+        split = _build_split_tree(m, stages, analysis, self.feature_ports, bits)
+        final_stage = stages.stage_of(analysis.final_level)
+        use_score = analysis.has_score
+        node = analysis.nodes[analysis.score_node if use_score else analysis.tree_root]
+        assert node.name in split
+        lo, hi = stages.at(f"{node.name}_lo", final_stage), f"{node.name}_hi"
+        decision = Signal(name="decision")
+        if use_score:
+            low_any = Signal(name="low_any")
+            m.d.comb += low_any.eq(lo.any())
+            stages.put("low_any", low_any, final_stage)
+            high = stages.at(hi, final_stage + 1)
+            nonzero = stages.at("low_any", final_stage + 1) | high.any()
+            m.d.comb += decision.eq(~high[-1] & nonzero if node.is_signed else nonzero)
+        else:
+            # value > threshold (or <), decided on the parts: the low comparison in the low
+            # part's stage, the high one a stage later.
+            threshold = analysis.threshold
+            low_t, high_t = threshold % (1 << bits), threshold >> bits
+            low_wins = Signal(name="low_decides")
+            m.d.comb += low_wins.eq(lo > low_t if node.sign > 0 else lo < low_t)
+            stages.put("low_decides", low_wins, final_stage)
+            high = stages.at(hi, final_stage + 1)
+            low_now = stages.at("low_decides", final_stage + 1)
+            beyond = high > high_t if node.sign > 0 else high < high_t
+            m.d.comb += decision.eq(beyond | ((high == high_t) & low_now))
+        stages.put("decision", decision, final_stage + 1)
+        m.d.comb += self.y.eq(stages.at("decision", self.latency))
+        if use_score:
+            score = Signal(signed(analysis.score_bits), name="score_split")
+            m.d.comb += score.eq(Cat(stages.at(f"{node.name}_lo", self.latency),
+                                     stages.at(hi, self.latency)))
+            m.d.comb += self.score.eq(score)
         return m
 
 

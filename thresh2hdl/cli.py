@@ -36,6 +36,10 @@ def _build_options(command):
                      help="Verilog module name (default: the model file's)."),
         click.option("--score-bits", type=int, default=None,
                      help="Width of the score port; wider than needed gives headroom."),
+        click.option("--split-adders", "split_bits", type=int, default=None,
+                     help="Split adders wider than this many bits in two, the high part one "
+                     "register stage later: shorter carry chains, higher fmax, one more cycle "
+                     "of latency (one unit, tree or shiftadd, --pipeline 1 or more)."),
         click.option("--loadable-weights", is_flag=True,
                      help="Weights and biases in registers, reset to the trained values, with "
                      "a write port (strobe, address, data); widths sized for --weight-bits "
@@ -81,7 +85,8 @@ def _options(kwargs):
                         label=kwargs["label"], prove=kwargs["prove_too"],
                         prove_timeout_s=kwargs["prove_timeout"],
                         loadable_weights=kwargs["loadable_weights"],
-                        weight_bits=kwargs["weight_bits"], bias_bits=kwargs["bias_bits"])
+                        weight_bits=kwargs["weight_bits"], bias_bits=kwargs["bias_bits"],
+                        split_bits=kwargs["split_bits"])
 
 
 class _Progress:

@@ -70,7 +70,7 @@ def wrapper_text(module, ports):
     return "\n".join(lines) + "\n"
 
 
-def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None):
+def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None, seed=None):
     """LUTs, carries, flip-flops, DSPs and fmax of the module on ``target``."""
     if target not in TARGETS:
         raise ToolError(f"unknown target {target!r}; choose one of {', '.join(TARGETS)}")
@@ -91,8 +91,9 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None)
               f"thresh_estimate_top -json top.json"], work, "Yosys synthesis of the wrapper")
         if progress:
             progress("placing and routing with nextpnr")
+        placement = [] if seed is None else ["--seed", str(int(seed))]
         _run([nextpnr, *device, "--json", "top.json", "--freq", "12", "--timing-allow-fail",
-              "--log", "pnr.log"], work, "nextpnr place and route")
+              *placement, "--log", "pnr.log"], work, "nextpnr place and route")
         log = (work / "pnr.log").read_text()
     found = re.findall(r"Max frequency for clock\s+'[^']*':\s+([0-9.]+)\s+MHz", log)
     if not found:

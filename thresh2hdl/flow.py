@@ -232,6 +232,7 @@ class BuildOptions:
     loadable_weights: bool = False   # weights and biases in registers with a write port
     weight_bits: int | None = None   # their declared signed widths (default: the fewest that
     bias_bits: int | None = None     # hold the trained values)
+    split_bits: int | None = None    # split adders wider than this (see UnitConfig)
 
     def __post_init__(self):
         for key in ("pipeline", "vectors", "seed"):
@@ -358,6 +359,7 @@ def _units_report(model, analyses, component):
     if not model.is_bank:
         tree = _tree_report(first)
         tree["register_after_levels"] = list(component.register_boundaries)
+        tree["split_bits"] = component.config.split_bits
         return {"weights": list(first.weights), "bias": first.bias, **common,
                 "score_range": list(first.score_range), "score_bits_min": first.score_bits_min,
                 "score_bits": first.score_bits, "headroom_bits": first.headroom_bits,
@@ -428,7 +430,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     component = make_component(UnitConfig(
         model, pipeline=options.pipeline, score_bits=options.score_bits, arch=options.arch,
         loadable_weights=options.loadable_weights, weight_bits=options.weight_bits,
-        bias_bits=options.bias_bits))
+        bias_bits=options.bias_bits, split_bits=options.split_bits))
     analyses = unit_analyses(component)
     analysis = analyses[0]
     lo = min(a.score_range[0] for a in analyses)
@@ -473,6 +475,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         "features": [{"name": f.name, "bits": f.bits, "signed": f.signed} for f in model.features],
         **_units_report(model, analyses, component),
         "latency_cycles": component.latency,
+        "register_stages": component.config.pipeline,
         "beats_per_result": component.beats,
         "weight_port": _weight_port_report(component, model),
         "vectors_checked": verified.vectors_checked,
@@ -584,7 +587,8 @@ def _load_folder(out_dir):
     model = load_model(out_dir / "model.toml")
     try:
         settings = json.loads((out_dir / "report.json").read_text(encoding="utf-8"))
-        pipeline = int(settings["latency_cycles"])
+        pipeline = int(settings.get("register_stages", settings["latency_cycles"]))
+        split_bits = settings.get("tree", {}).get("split_bits")
         units = settings.get("units")
         score_bits = int(settings["score_bits"]) if not units else None
         if units and len({u["score_bits"] for u in units}) == 1 and \
@@ -598,7 +602,7 @@ def _load_folder(out_dir):
         raise InputError(f"cannot read the build settings ({type(error).__name__}: {error})",
                          source=out_dir / "report.json") from None
     component = make_component(UnitConfig(model, pipeline=pipeline, score_bits=score_bits,
-                                          arch=arch, **loadable))
+                                          arch=arch, split_bits=split_bits, **loadable))
     return out_dir, model, settings, component
 
 
