@@ -9,7 +9,7 @@ from amaranth.sim import Simulator
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from conftest import require_tool
-from test_verilog import lint_icarus, lint_verilator
+from test_verilog import assert_lint_clean_and_agrees
 from thresh2hdl.circuit import ThresholdBank, UnitConfig, make_component
 from thresh2hdl.flow import run_simulator
 from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
@@ -17,7 +17,7 @@ from thresh2hdl.ranges import analyse_bank
 from thresh2hdl.reference import ReferenceModel
 from thresh2hdl.stimulus import make_stimulus
 from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.verilog import port_table
 
 
 def bank_model(weights, biases, *, bits=4, is_signed=False, ports=PortNames()):
@@ -108,17 +108,7 @@ def test_random_banks_agree_with_reference_in_amaranth(case):
 def test_random_banks_lint_clean_and_agree_in_icarus_and_verilator(tmp_path_factory, case):
     require_tool("verilator", "g++", "iverilog", "vvp")
     model, dut, stimulus = prepared(case)
-    folder = tmp_path_factory.mktemp("bank")
-    text = emit_verilog(dut, model)
-    (folder / "bank.v").write_text(text)
-    code, output = lint_verilator(folder, "bank")
-    assert code == 0 and output.strip() == "", output
-    code, output = lint_icarus(folder, "bank.v")
-    assert code == 0 and output.strip() == "", output
-    ports = port_table(dut, model)
-    for simulator in ("icarus", "verilator"):
-        result, _ = run_simulator(simulator, dut, text, ports, model.module, stimulus)
-        assert result.check(stimulus).mismatch_count == 0, simulator
+    assert_lint_clean_and_agrees(tmp_path_factory.mktemp("bank"), model, dut, stimulus)
 
 
 def test_bank_score_port_names_must_not_clash():

@@ -12,14 +12,14 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from conftest import make_model, require_tool
 from test_cli import assert_one_line_error, run
-from test_verilog import lint_icarus, lint_verilator
+from test_verilog import assert_lint_clean_and_agrees
 from thresh2hdl.circuit import UnitConfig, make_component, weight_addresses
 from thresh2hdl.errors import InputError
 from thresh2hdl.flow import first_stimulus, run_simulator
 from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.ranges import analyse, analyse_bank, bit_growth_bound
 from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.verilog import port_table
 
 
 def test_score_range_is_exact_by_exhaustion():
@@ -180,17 +180,7 @@ def test_random_loadable_models_lint_clean_and_agree_in_icarus_and_verilator(
     # Independent simulators: Verilator 5 and Icarus Verilog 11 run the emitted file.
     require_tool("verilator", "g++", "iverilog", "vvp")
     model, dut, stimulus = loadable_prepared(case)
-    folder = tmp_path_factory.mktemp("loadable")
-    text = emit_verilog(dut, model)
-    (folder / "ld.v").write_text(text)
-    code, output = lint_verilator(folder, "ld")
-    assert code == 0 and output.strip() == "", output
-    code, output = lint_icarus(folder, "ld.v")
-    assert code == 0 and output.strip() == "", output
-    ports = port_table(dut, model)
-    for simulator in ("icarus", "verilator"):
-        result, _ = run_simulator(simulator, dut, text, ports, model.module, stimulus)
-        assert result.check(stimulus).mismatch_count == 0, simulator
+    assert_lint_clean_and_agrees(tmp_path_factory.mktemp("loadable"), model, dut, stimulus)
 
 
 def test_port_map_covers_every_weight_and_bias():
@@ -239,7 +229,7 @@ def test_loadable_demo_reports_its_port_and_is_not_proved(tmp_path):
     assert np.int64(report["score_bits"]) > 18     # sized for any 8-bit weights, not the trained
     try:
         proof_tools()
-    except Exception as error:   # the prove extra is optional outside CI
+    except Exception:   # the prove extra is optional outside CI
         if IN_CI:
             raise
         return

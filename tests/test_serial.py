@@ -11,7 +11,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from conftest import IN_CI, make_model, require_tool
 from test_cli import assert_one_line_error, run
-from test_verilog import lint_icarus, lint_verilator
+from test_verilog import assert_lint_clean_and_agrees
 from thresh2hdl.circuit import SerialThreshold, UnitConfig, make_component, sample_shape
 from thresh2hdl.errors import InputError
 from thresh2hdl.flow import run_simulator
@@ -20,7 +20,7 @@ from thresh2hdl.ranges import analyse, bit_growth_bound, prefix_ranges, value_bi
 from thresh2hdl.reference import ReferenceModel, cycle_model
 from thresh2hdl.stimulus import make_stimulus
 from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.verilog import port_table
 
 
 def gold_score(weights, bias, x):
@@ -202,17 +202,7 @@ def test_random_serial_models_lint_clean_and_agree_in_icarus_and_verilator(tmp_p
     # Independent simulators: Verilator 5 and Icarus Verilog 11 run the emitted file.
     require_tool("verilator", "g++", "iverilog", "vvp")
     model, dut, stimulus = serial_prepared(case)
-    folder = tmp_path_factory.mktemp("serial")
-    text = emit_verilog(dut, model)
-    (folder / "ser.v").write_text(text)
-    code, output = lint_verilator(folder, "ser")
-    assert code == 0 and output.strip() == "", output
-    code, output = lint_icarus(folder, "ser.v")
-    assert code == 0 and output.strip() == "", output
-    ports = port_table(dut, model)
-    for simulator in ("icarus", "verilator"):
-        result, _ = run_simulator(simulator, dut, text, ports, model.module, stimulus)
-        assert result.check(stimulus).mismatch_count == 0, simulator
+    assert_lint_clean_and_agrees(tmp_path_factory.mktemp("serial"), model, dut, stimulus)
 
 
 def test_a_wrong_beat_count_is_caught():

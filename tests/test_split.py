@@ -2,13 +2,12 @@
 
 import json
 
-import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from conftest import make_model, require_tool
 from test_cli import assert_one_line_error, run
-from test_verilog import lint_icarus, lint_verilator
+from test_verilog import assert_lint_clean_and_agrees
 from thresh2hdl.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError
 from thresh2hdl.flow import run_simulator
@@ -17,7 +16,7 @@ from thresh2hdl.ranges import analyse
 from thresh2hdl.reference import ReferenceModel
 from thresh2hdl.stimulus import make_stimulus
 from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.verilog import port_table
 
 cases = st.tuples(
     st.lists(st.integers(-(1 << 9), 1 << 9), min_size=1, max_size=7),
@@ -59,17 +58,7 @@ def test_random_split_units_lint_clean_and_agree_in_icarus_and_verilator(tmp_pat
     # Independent simulators: Verilator 5 and Icarus Verilog 11 run the emitted file.
     require_tool("verilator", "g++", "iverilog", "vvp")
     model, dut, stimulus = prepared(case)
-    folder = tmp_path_factory.mktemp("split")
-    text = emit_verilog(dut, model)
-    (folder / "dut.v").write_text(text)
-    code, output = lint_verilator(folder, "dut")
-    assert code == 0 and output.strip() == "", output
-    code, output = lint_icarus(folder, "dut.v")
-    assert code == 0 and output.strip() == "", output
-    ports = port_table(dut, model)
-    for simulator in ("icarus", "verilator"):
-        result, _ = run_simulator(simulator, dut, text, ports, model.module, stimulus)
-        assert result.check(stimulus).mismatch_count == 0, simulator
+    assert_lint_clean_and_agrees(tmp_path_factory.mktemp("split"), model, dut, stimulus)
 
 
 def test_the_check_can_fail_when_the_extra_stage_is_forgotten():

@@ -38,6 +38,24 @@ def lint_icarus(folder, *files):
     return result.returncode, result.stdout + result.stderr
 
 
+def assert_lint_clean_and_agrees(folder, model, dut, stimulus):
+    """The emitted file of ``dut``: no warning from Verilator or Icarus ``-Wall``, and zero
+    mismatches in both (independent simulators of the same file)."""
+    from thresh2hdl.flow import run_simulator
+    from thresh2hdl.verilog import port_table
+    require_tool("verilator", "g++", "iverilog", "vvp")
+    text = emit_verilog(dut, model)
+    (Path(folder) / f"{model.module}.v").write_text(text)
+    code, output = lint_verilator(folder, model.module)
+    assert code == 0 and output.strip() == "", output
+    code, output = lint_icarus(folder, f"{model.module}.v")
+    assert code == 0 and output.strip() == "", output
+    ports = port_table(dut, model)
+    for simulator in ("icarus", "verilator"):
+        result, _ = run_simulator(simulator, dut, text, ports, model.module, stimulus)
+        assert result.check(stimulus).mismatch_count == 0, simulator
+
+
 def write(folder, model, text):
     path = Path(folder) / f"{model.module}.v"
     path.write_text(text)

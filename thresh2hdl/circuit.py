@@ -228,26 +228,10 @@ def _build_tree(m, stages, analysis, features, prefix="", weights=None, bias=Non
         elif weights is not None and node.kind == "bias":
             expr = stages.at(prefix + analysis.nodes[node.children[0]].name, stage) + bias
         elif node.kind == "product":
-            x = features[node.feature]
-            magnitude = node.magnitude
-            if magnitude & (magnitude - 1) == 0:
-                expr = x << (magnitude.bit_length() - 1)
-            else:
-                expr = x * Const(magnitude)
+            expr = _constant_product(node, features)
         else:
             operands = [stages.at(prefix + analysis.nodes[c].name, stage) for c in node.children]
-            if node.kind == "add":
-                expr = operands[0] + operands[1]
-            elif node.kind == "sub":
-                expr = operands[0] - operands[1]
-            elif node.kind == "rsub":
-                expr = operands[1] - operands[0]
-            elif node.kind == "offset":     # the bias folded into a sum (shiftadd)
-                expr = operands[0] + Const(node.constant)
-            else:  # bias
-                child = analysis.nodes[node.children[0]]
-                bias = Const(node.constant)
-                expr = operands[0] + bias if child.sign > 0 else bias - operands[0]
+            expr = _combine(node, analysis, operands)
         m.d.comb += value.eq(expr)
         stages.put(prefix + node.name, value, stage, node.register_shift)
 
@@ -302,12 +286,7 @@ def _build_split_tree(m, stages, analysis, features, split_bits):
         stage = stages.stage_of(node.level)
         if node.name not in split:
             if node.kind == "product":
-                x = features[node.feature]
-                magnitude = node.magnitude
-                if magnitude & (magnitude - 1) == 0:
-                    expr = x << (magnitude.bit_length() - 1)
-                else:
-                    expr = x * Const(magnitude)
+                expr = _constant_product(node, features)
             else:
                 operands = [stages.at(analysis.nodes[c].name, stage) for c in node.children]
                 expr = _combine(node, analysis, operands)
@@ -353,7 +332,16 @@ def _build_split_tree(m, stages, analysis, features, split_bits):
     return split
 
 
+def _constant_product(node, features):
+    """``x * |w|``: a shift when ``|w|`` is a power of two (every shift-add leaf)."""
+    x, magnitude = features[node.feature], node.magnitude
+    if magnitude & (magnitude - 1) == 0:
+        return x << (magnitude.bit_length() - 1)
+    return x * Const(magnitude)
+
+
 def _combine(node, analysis, operands):
+    """An adder node's value from its operands (``offset``: the bias folded into a sum)."""
     if node.kind == "add":
         return operands[0] + operands[1]
     if node.kind == "sub":

@@ -169,6 +169,27 @@ class Analysis:
 
 
 
+def _score_widths(score_lo, score_hi, score_bits, *, of="", field="unit"):
+    """The fewest bits of the score, and the port's (``score_bits``, refused if narrower)."""
+    score_bits_min = signed_bits(score_lo, score_hi)
+    if score_bits_min > MAX_SCORE_BITS:
+        raise InputError(f"the score needs {score_bits_min} bits, more than the limit of "
+                         f"{MAX_SCORE_BITS}; use narrower weights or input ranges", field=field)
+    if score_bits is None:
+        return score_bits_min, score_bits_min
+    if score_bits < score_bits_min:
+        raise InputError(f"score_bits {score_bits} cannot hold the score range "
+                         f"[{score_lo}, {score_hi}]{of}; it needs at least {score_bits_min}",
+                         field="score_bits")
+    return score_bits_min, score_bits
+
+
+def _witnesses(weights, ranges):
+    """The inputs that reach the lowest and the highest score."""
+    return (tuple(lo if w > 0 else hi for w, (lo, hi) in zip(weights, ranges)),
+            tuple(hi if w > 0 else lo for w, (lo, hi) in zip(weights, ranges)))
+
+
 def _term_range(weight, lo, hi):
     a, b = weight * lo, weight * hi
     return min(a, b), max(a, b)
@@ -299,19 +320,8 @@ def analyse(model, *, score_bits=None, arch="tree", unit_index=None, weight_rang
         assert _root_is_exact(nodes, tree_root, score_lo - unit.bias + inside,
                               score_hi - unit.bias + inside)
 
-    score_bits_min = signed_bits(score_lo, score_hi)
-    if score_bits_min > MAX_SCORE_BITS:
-        raise InputError(f"the score needs {score_bits_min} bits, more than the limit of "
-                         f"{MAX_SCORE_BITS}; use narrower weights or input ranges", field="unit")
-    if score_bits is None:
-        score_bits = score_bits_min
-    elif score_bits < score_bits_min:
-        raise InputError(f"score_bits {score_bits} cannot hold the score range "
-                         f"[{score_lo}, {score_hi}]; it needs at least {score_bits_min}",
-                         field="score_bits")
-
-    witness_max = tuple(hi if w > 0 else lo for w, (lo, hi) in zip(weights, ranges))
-    witness_min = tuple(lo if w > 0 else hi for w, (lo, hi) in zip(weights, ranges))
+    score_bits_min, score_bits = _score_widths(score_lo, score_hi, score_bits)
+    witness_min, witness_max = _witnesses(weights, ranges)
     return Analysis(feature_ranges=tuple(ranges), weights=tuple(weights), bias=unit.bias,
                     nodes=tuple(nodes), tree_root=tree_root, score_node=score_node,
                     score_range=(score_lo, score_hi), score_bits_min=score_bits_min,
@@ -383,20 +393,10 @@ def _analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range):
         nodes.append(Node(index=len(nodes), name="score_sum", kind="bias",
                           children=(tree_root,), lo=score_lo, hi=score_hi, level=level + 1))
         score_node = nodes[-1].index
-    score_bits_min = signed_bits(score_lo, score_hi)
-    if score_bits_min > MAX_SCORE_BITS:
-        raise InputError(f"the score needs {score_bits_min} bits, more than the limit of "
-                         f"{MAX_SCORE_BITS}; use narrower weights or input ranges",
-                         field="--weight-bits")
-    if score_bits is None:
-        score_bits = score_bits_min
-    elif score_bits < score_bits_min:
-        raise InputError(f"score_bits {score_bits} cannot hold the score range "
-                         f"[{score_lo}, {score_hi}] of the loadable weights; it needs at "
-                         f"least {score_bits_min}", field="score_bits")
+    score_bits_min, score_bits = _score_widths(
+        score_lo, score_hi, score_bits, of=" of the loadable weights", field="--weight-bits")
     # The witnesses are of the weights the registers start with (the trained ones).
-    witness_max = tuple(hi if w > 0 else lo for w, (lo, hi) in zip(unit.weights, ranges))
-    witness_min = tuple(lo if w > 0 else hi for w, (lo, hi) in zip(unit.weights, ranges))
+    witness_min, witness_max = _witnesses(unit.weights, ranges)
     return Analysis(feature_ranges=tuple(ranges), weights=tuple(unit.weights), bias=unit.bias,
                     nodes=tuple(nodes), tree_root=tree_root, score_node=score_node,
                     score_range=(score_lo, score_hi), score_bits_min=score_bits_min,
@@ -430,19 +430,14 @@ def _analyse_serial(model, unit, score_bits):
     nodes = tuple(Node(index=i, name=name, kind=kind, children=(), lo=lo, hi=hi, level=0)
                   for i, (name, kind, (lo, hi)) in enumerate(values))
     score_lo, score_hi = prefixes[-1]
-    score_bits_min = signed_bits(score_lo, score_hi)
-    if max(n.bits for n in nodes) > MAX_SCORE_BITS + 1 or score_bits_min > MAX_SCORE_BITS:
-        raise InputError(f"the score needs {score_bits_min} bits, more than the limit of "
-                         f"{MAX_SCORE_BITS}; use narrower weights or input ranges", field="unit")
-    if score_bits is None:
-        score_bits = score_bits_min
-    elif score_bits < score_bits_min:
-        raise InputError(f"score_bits {score_bits} cannot hold the score range "
-                         f"[{score_lo}, {score_hi}]; it needs at least {score_bits_min}",
-                         field="score_bits")
+    widest = max(n.bits for n in nodes)
+    if widest > MAX_SCORE_BITS + 1:
+        raise InputError(f"the accumulator needs {widest} bits, more than the limit of "
+                         f"{MAX_SCORE_BITS + 1}; use narrower weights or input ranges",
+                         field="unit")
+    score_bits_min, score_bits = _score_widths(score_lo, score_hi, score_bits)
     has_score = model.ports.has_score or model.is_bank
-    witness_max = tuple(hi if w > 0 else lo for w, (lo, hi) in zip(weights, ranges))
-    witness_min = tuple(lo if w > 0 else hi for w, (lo, hi) in zip(weights, ranges))
+    witness_min, witness_max = _witnesses(weights, ranges)
     return Analysis(feature_ranges=tuple(ranges), weights=tuple(weights), bias=unit.bias,
                     nodes=nodes, tree_root=None, score_node=SERIAL_NODES.index("sum"),
                     score_range=(score_lo, score_hi), score_bits_min=score_bits_min,
