@@ -235,3 +235,32 @@ def test_loadable_demo_reports_its_port_and_is_not_proved(tmp_path):
         return
     result = run("prove", out)
     assert_one_line_error(result, code=3, contains="loadable weights are not covered")
+
+
+def test_a_design_that_ignores_writes_is_caught_and_named(monkeypatch):
+    import thresh2hdl.circuit as circuit
+    from thresh2hdl.flow import verify
+    monkeypatch.setattr(circuit._WeightStore, "_write", staticmethod(lambda *args: None))
+    model = make_model([3, -2, 1], 5, bits=4)
+    dut = make_component(UnitConfig(model, loadable_weights=True, weight_bits=5, bias_bits=7))
+    verified = verify("amaranth", dut, "", port_table(dut, model), model, count=200)
+    assert verified.mismatches > 0
+    assert "loaded set 1" in verified.first_mismatches[0]
+
+
+def test_later_chunks_count_as_random_vectors():
+    from thresh2hdl.flow import chunk_vectors, verify
+    model = make_model([3, -2], 5, bits=4)
+    dut = make_component(UnitConfig(model, loadable_weights=True))
+    count = chunk_vectors(2) + 300
+    verified = verify("amaranth", dut, "", port_table(dut, model), model, count=count)
+    groups = dict(verified.vector_groups)
+    assert verified.mismatches == 0
+    assert groups["random within the declared ranges"] == count
+    assert groups["loaded set 3: loaded random"] == 2000
+
+
+def test_a_trained_bias_too_wide_for_a_register_is_named():
+    model = make_model([1], 1 << 70, bits=4)
+    with pytest.raises(InputError, match="need 72 bits, more than the 64"):
+        UnitConfig(model, loadable_weights=True)

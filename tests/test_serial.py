@@ -16,7 +16,7 @@ from thresh2hdl.circuit import SerialThreshold, UnitConfig, make_component, samp
 from thresh2hdl.errors import InputError
 from thresh2hdl.flow import run_simulator
 from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.ranges import analyse, bit_growth_bound, prefix_ranges, value_bits
+from thresh2hdl.ranges import analyse, bit_growth_bound, prefix_ranges
 from thresh2hdl.reference import ReferenceModel, cycle_model
 from thresh2hdl.stimulus import make_stimulus
 from thresh2hdl.vectors import make_vectors
@@ -134,15 +134,20 @@ def test_accumulator_never_exceeds_the_textbook_bit_growth(terms, bias):
     weights = [w for w, _, _ in terms]
     features = [FeatureFormat(f"f{i}", bits, signed) for i, (_, bits, signed) in
                 enumerate(terms)]
-    model = Model(module="m", features=features, units=[Unit("u", tuple(weights), 0)])
+    model = Model(module="m", features=features, units=[Unit("u", tuple(weights), bias)])
     analysis = analyse(model, arch="serial")
     widest_input = max(bits + (not signed) for _, bits, signed in terms)
     # Common practice: N products of a-bit and b-bit two's complement numbers need at most
     # a + b + ceil(log2 N) bits (here b = 8: weights in [-128, 127]).
-    bound = bit_growth_bound(widest_input, 8, len(terms))
+    # The bias adds at most one bit more than its own width.
+    bound = max(bit_growth_bound(widest_input, 8, len(terms)), abs(bias).bit_length() + 1) + 1
     assert analysis.node("sum").bits <= bound and analysis.node("accumulator").bits <= bound
-    lo, hi = prefix_ranges(weights, 0, model.feature_ranges)[-1]
-    assert value_bits(lo, hi) <= (analysis.node("sum").bits, True) or lo >= 0
+    # The shared sum holds the final score (the last prefix) and the held sum every other.
+    prefixes = prefix_ranges(weights, bias, model.feature_ranges)
+    total = analysis.node("sum")
+    assert total.lo <= prefixes[-1][0] and prefixes[-1][1] <= total.hi
+    held = analysis.node("accumulator")
+    assert all(held.lo <= lo and hi <= held.hi for lo, hi in prefixes[:-1])
 
 
 def test_sample_port_carries_every_feature_format():
@@ -281,3 +286,29 @@ def test_prove_answers_undecided_for_serial(tmp_path):
     assert_one_line_error(result, code=3, contains="serial architecture is not covered")
     report = json.loads((out / "report.json").read_text())
     assert report["proof"]["status"] == "undecided"
+
+
+@pytest.mark.verilator
+@pytest.mark.icarus
+def test_a_33_bit_sample_keeps_its_sign_in_every_simulator(tmp_path):
+    # A 32-bit unsigned feature and a signed one share a 33-bit sample port.
+    model = Model(module="wide", features=[FeatureFormat("a", 32), FeatureFormat("b", 8, True)],
+                  units=[Unit("u", (2, -3), 1)])
+    dut = make_component(UnitConfig(model, arch="serial"))
+    assert len(dut.x) == 33
+    rows = make_vectors(dut.analysis, random_count=300).array
+    stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=1, beats=2)
+    assert_lint_clean_and_agrees(tmp_path, model, dut, stimulus)
+
+
+def test_a_feature_may_be_called_sample_unless_the_design_is_serial():
+    model = Model(module="m", features=[FeatureFormat("sample", 4)], units=[Unit("u", (1,), 0)])
+    make_component(UnitConfig(model))          # no sample port: no clash
+    with pytest.raises(InputError, match="module.ports.sample"):
+        UnitConfig(model, arch="serial")
+
+
+def test_serial_refuses_more_features_than_a_sequencer_has():
+    model = make_model([1] * 1025, bits=4)
+    with pytest.raises(InputError, match="at most 1024 features"):
+        UnitConfig(model, arch="serial")

@@ -95,3 +95,14 @@ def test_cli_split_build_reports_and_rebuilds(tmp_path):
     assert checked.returncode == 0, checked.stderr
     bad = run("demo", "--out", tmp_path / "b", "--split-adders", "0")
     assert_one_line_error(bad, contains="--split-adders")
+
+
+def test_a_wider_score_port_is_sign_extended():
+    model = make_model([3, -5, 7, -2], -4, bits=6, signed=True, score_bits=20)
+    dut = make_component(UnitConfig(model, pipeline=3, arch="shiftadd", split_bits=2))
+    assert dut.splits_result and len(dut.score) == 20
+    rows = make_vectors(dut.analysis, random_count=300).array
+    stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency)
+    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), "dut", stimulus)
+    assert result.check(stimulus).mismatch_count == 0
+    assert stimulus.expect_scores.min() < 0

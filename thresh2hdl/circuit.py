@@ -22,6 +22,7 @@ from .ranges import ARCHITECTURES, analyse, analyse_bank, signed_bits
 __all__ = ["UnitConfig", "ThresholdUnit", "ThresholdBank", "SerialThreshold",
            "make_component", "sample_shape", "weight_addresses"]
 
+MAX_SERIAL_FEATURES = 1024    # a sequencer's channels; keeps a verification chunk's cycles bounded
 MAX_PIPELINE_NOTE = "one register stage per level, the products' included, plus one on the " \
                     "outputs"
 
@@ -67,6 +68,10 @@ class UnitConfig:
             if not self.loadable_weights:
                 continue
             needed = signed_bits(min(trained), max(trained))
+            if value is None and needed > most:
+                raise InputError(f"the trained values (from {min(trained)} to {max(trained)}) "
+                                 f"need {needed} bits, more than the {most} a loadable register "
+                                 f"may have", field=option)
             if value is None:
                 value = needed
                 object.__setattr__(self, key, value)
@@ -89,12 +94,22 @@ class UnitConfig:
                     or not 2 <= self.split_bits <= 64:
                 raise InputError(f"must be an integer from 2 to 64, not {self.split_bits!r}",
                                  field="--split-adders")
-            if self.arch == "serial" or self.model.is_bank or self.loadable_weights \
-                    or self.pipeline == 0:
-                raise InputError("splits the adders of one unit's registered tree (tree or "
-                                 "shiftadd, constant weights, --pipeline 1 or more); not of "
-                                 "serial designs, banks or loadable weights",
-                                 field="--split-adders")
+            refusal = ("a serial design has no adder tree" if self.arch == "serial" else
+                       "a bank is not split (one unit only, for now)" if self.model.is_bank else
+                       "loadable weights are not split (constant weights only, for now)"
+                       if self.loadable_weights else
+                       "the split needs register stages: use --pipeline 1 or more"
+                       if self.pipeline == 0 else None)
+            if refusal:
+                raise InputError(f"cannot split the adders: {refusal}", field="--split-adders")
+        self.model.check_optional_ports(
+            (["sample"] if self.arch == "serial" else [])
+            + (["weight_write", "weight_address", "weight_data"] if self.loadable_weights
+               else []))
+        if self.arch == "serial" and len(self.model.features) > MAX_SERIAL_FEATURES:
+            raise InputError(f"the serial architecture takes at most {MAX_SERIAL_FEATURES} "
+                             f"features (one valid beat each), not "
+                             f"{len(self.model.features)}; use tree or shiftadd", field="arch")
         if self.arch == "serial" and self.pipeline != 1:
             raise InputError(f"the serial architecture has exactly one register stage (the "
                              f"accumulator and its result), so it must be 1, not "
@@ -266,7 +281,8 @@ def _build_split_tree(m, stages, analysis, features, split_bits):
     """As :func:`_build_tree`, but a node wider than ``split_bits`` (or fed by a split one) is
     two adders: its low ``split_bits`` bits and their carry in the node's stage, the rest one
     stage later from the registered carry. The high parts of the whole tree run one stage
-    behind the low parts, so every carry chain is at most about ``split_bits`` long.
+    behind the low parts, so a carry chain is ``split_bits`` long in the low parts and the
+    node's width less ``split_bits`` in the high parts (which are not split again).
     Returns the set of split node names."""
     split = _split_nodes(analysis, split_bits)
 
@@ -519,8 +535,8 @@ class ThresholdUnit(_Common, wiring.Component):
         m.d.comb += self.y.eq(stages.at("decision", self.latency))
         if use_score:
             score = Signal(signed(analysis.score_bits), name="score_split")
-            m.d.comb += score.eq(Cat(stages.at(f"{node.name}_lo", self.latency),
-                                     stages.at(hi, self.latency)))
+            whole = Cat(stages.at(f"{node.name}_lo", self.latency), stages.at(hi, self.latency))
+            m.d.comb += score.eq(whole.as_signed() if node.is_signed else whole)
             m.d.comb += self.score.eq(score)
         return m
 
@@ -684,8 +700,9 @@ class SerialThreshold(_Common, wiring.Component):
         """``total = start + w[beat] * x`` for the trained weights."""
         node, count = analysis.node, self.beats
         # The weight's magnitude multiplies, its sign picks add or subtract: a
-        # ``start + ~p + 1`` on the carry chain costs no more than ``start + p``
-        # (measured: 8% fewer LUTs than a signed multiplier on iCE40, benchmarks/cost.py).
+        # ``start + ~p + 1`` on the carry chain costs no more than ``start + p``. Measured once
+        # while developing it (Yosys 0.70, iCE40, the unit of benchmarks/cost.py): 284 LUT4
+        # against 310 with a signed multiplier.
         magnitudes = [abs(w) for w in analysis.weights]
         negative = [int(w < 0) for w in analysis.weights]
         magnitude = Signal(_shape(node("magnitude")), name=prefix + "magnitude")

@@ -34,7 +34,7 @@ from .report_html import report_html, report_markdown
 from .report import REPORT_FORMAT, SAFETY_CAUTION, report_json, summary_lines
 from .simulate import simulate_amaranth
 from .stimulus import make_reload_stimulus, make_stimulus
-from .vectors import make_vectors, random_vectors, reload_sets
+from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
 from .testbench import TestbenchFiles, icarus_version, simulate_icarus, write_testbench
 from .verilator import find_verilator, simulate_verilator, verilator_version
 from .verilog import emit_verilog, instance_template, port_table
@@ -66,8 +66,11 @@ CHUNK_VECTORS = 250_000   # random vectors simulated at a time: bounded memory, 
 CHUNK_CODES = 3_000_000
 
 
-def chunk_vectors(features):
-    """Random vectors per chunk for a model of ``features`` inputs."""
+def chunk_vectors(features, beats=1):
+    """Random vectors per chunk for a model of ``features`` inputs; a serial design (one beat
+    per feature) has a cycle per code, so its chunks are bounded by codes alone."""
+    if beats > 1:
+        return max(256, CHUNK_CODES // max(1, features))
     return min(CHUNK_VECTORS, max(16_384, CHUNK_CODES // max(1, features)))
 
 
@@ -94,14 +97,28 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
     analysis = component.analysis
     reference = ReferenceModel.from_model(model)
     names = [f.name for f in model.features]
-    per_chunk = chunk_vectors(len(names))
+    per_chunk = chunk_vectors(len(names), component.beats)
     first_count = min(count, per_chunk)
     vectors = make_vectors(analysis, random_count=first_count, seed=seed, data=data,
                            others=unit_analyses(component)[1:])
     stimulus, reloaded = first_stimulus(component, model, vectors.array, seed=seed,
                                         reload_count=min(2000, max(100, count // 4)))
     exported = stimulus
-    groups = [list(g) for g in vectors.groups] + [list(g) for g in reloaded]
+    groups = [list(g) for g in vectors.groups]
+    # Later chunks are more random vectors: counted in that group (there are none without it).
+    random_group = next((k for k, (name, _) in enumerate(groups) if name == RANDOM_GROUP), 0)
+    groups += [list(g) for g in reloaded]
+
+    def first_origin(index):
+        """Where a vector of the first chunk came from: a group, or a weight set loaded."""
+        if index < len(vectors):
+            return vectors.origin(index)
+        index -= len(vectors)
+        for name, size in reloaded:
+            if index < size:
+                return name, index
+            index -= size
+        raise IndexError(index)
     checked_total = mismatches = cycles = 0
     first, version_text = (), ""
     remaining, chunk = count - first_count, 0
@@ -154,10 +171,10 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
             checked_total += checked.vectors_checked
             mismatches += checked.mismatch_count
             cycles += stimulus.cycles
-            groups[-2 if data is not None else -1][1] += size
+            groups[random_group][1] += size
             if checked.mismatches and not first:
-                origin = vectors.origin if chunk == 0 else (lambda i, k=chunk: (
-                    f"random within the declared ranges, chunk {k}", i))
+                origin = first_origin if chunk == 0 else (lambda i, k=chunk: (
+                    f"{RANDOM_GROUP}, chunk {k}", i))
                 first = tuple(m.describe(stimulus, names, origin) for m in checked.mismatches)
             if mismatches:
                 break

@@ -134,6 +134,11 @@ class PortNames:
         return self.score != ""
 
 
+# Ports only some architectures have: their names are checked when a design uses them.
+OPTIONAL_PORTS = {"sample": "serial", "weight_write": "loadable weights",
+                  "weight_address": "loadable weights", "weight_data": "loadable weights"}
+
+
 @dataclass(frozen=True)
 class Model:
     """A validated integer model: module name, input formats, units and port names."""
@@ -175,7 +180,7 @@ class Model:
                              f"not {self.score_bits!r}")
         names = {}
         for key, value in self.ports.__dict__.items():
-            if value:
+            if value and key not in OPTIONAL_PORTS:
                 names.setdefault(value, f"port {key}")
                 if names[value] != f"port {key}":
                     raise ValueError(f"port name {value!r} is used for both {names[value]} "
@@ -197,6 +202,21 @@ class Model:
             raise ValueError("unit names must differ")
         if self.module in names:
             raise ValueError(f"module name {self.module!r} is also a port name; rename one")
+
+    def check_optional_ports(self, keys):
+        """Refuse an optional port (``sample``, ``weight_*``) whose name a feature, another
+        port or the module already has; ``keys`` are the optional ports a design uses."""
+        taken = {value: f"port {key}" for key, value in self.ports.__dict__.items()
+                 if value and key not in OPTIONAL_PORTS}
+        taken.update({f.name: "a feature" for f in self.features})
+        taken[self.module] = "the module name"
+        for key in keys:
+            value = getattr(self.ports, key)
+            if value in taken:
+                raise InputError(f"port name {value!r} of {OPTIONAL_PORTS[key]} clashes with "
+                                 f"{taken[value]}; rename one of them in [module.ports]",
+                                 field=f"module.ports.{key}")
+            taken[value] = f"port {key}"
 
     @property
     def is_bank(self):

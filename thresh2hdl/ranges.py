@@ -449,13 +449,14 @@ def _smallest_first(leaves, bias, add, combine, exact, coefficients):
     """The shift-add tree: leaves of each sign summed on their own, always the two with the
     smallest ranges first (as in Huffman's construction), then one subtraction.
 
-    Every adder but the last adds unsigned magnitudes, so none needs inverted operands (on
-    iCE40 each subtracted bit costs a LUT of its own before the carry chain) and none carries
-    sign bits; small values meet small values, so the wide adders are few. A bias is folded
-    in as one more leaf of its sign when a score is computed: no adder of its own at the
-    widest width. Returns the new layer (one node) and whether the bias was folded.
-    Measured on the 16 x 12-bit unit of ``benchmarks/cost.py`` (Yosys 0.70, iCE40): 590 LUT4
-    against 839 for pairing neighbours in feature order.
+    Every adder but the last adds terms of one sign, so none needs inverted operands (on
+    iCE40 each subtracted bit costs a LUT of its own before the carry chain) and, for
+    unsigned inputs, none carries sign bits; small values meet small values, so the wide
+    adders are few. A bias is folded in as one more leaf of its sign when a score is
+    computed: no adder of its own at the widest width. Returns the new layer (one node) and
+    whether the bias was folded. Measured once while developing it (Yosys 0.70, iCE40, the
+    unit of ``benchmarks/cost.py``): 590 LUT4 against 839 for pairing neighbours in feature
+    order.
     """
     groups = {1: [n for n in leaves if n.sign > 0], -1: [n for n in leaves if n.sign < 0]}
     fold_into = None

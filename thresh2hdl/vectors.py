@@ -6,9 +6,10 @@ import numpy as np
 
 from .model import Unit
 
-__all__ = ["VectorSet", "make_vectors", "random_vectors", "reload_sets"]
+__all__ = ["VectorSet", "make_vectors", "random_vectors", "reload_sets", "RANDOM_GROUP"]
 
 DEFAULT_RANDOM_VECTORS = 10_000
+RANDOM_GROUP = "random within the declared ranges"
 
 
 class VectorSet:
@@ -123,7 +124,7 @@ def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=
     vectors.add("one feature at the opposite extreme", extremes)
     rng = np.random.default_rng(seed)
     vectors.add("near the decision threshold", _near_threshold(rng, analysis, min(1000, random_count)))
-    vectors.add("random within the declared ranges", _random_within(rng, ranges, random_count))
+    vectors.add(RANDOM_GROUP, _random_within(rng, ranges, random_count))
     if data is not None:
         vectors.add("dataset rows", data)
     return vectors

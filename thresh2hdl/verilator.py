@@ -74,9 +74,10 @@ def wrapper_name(module):
 
 
 def code_type(ports):
-    """The C++ type of one feature code in the vector file: 16 bits when every code fits."""
-    widths = [width for internal, _, _, width, _ in ports if internal.startswith("x")]
-    return "int16_t" if max(widths) <= 16 else "int32_t"
+    """The C++ type of one code in the vector file: the narrowest of 16, 32 and 64 bits that
+    holds every input port (a serial ``sample`` can be 33 bits)."""
+    widest = max(width for internal, _, _, width, _ in ports if internal.startswith("x"))
+    return "int16_t" if widest <= 16 else "int32_t" if widest <= 32 else "int64_t"
 
 
 def wrapper_text(ports, module):
@@ -114,6 +115,10 @@ def harness_text(ports, module):
     features = [(name, width) for internal, name, _, width, _ in ports if internal.startswith("x")]
     lines = []
     for index, (name, width) in enumerate(features):
+        if width > 32:
+            lines.append(f"        top.{name} = static_cast<uint64_t>(f[{index}]) & "
+                         f"0x{(1 << width) - 1:x}ull;")
+            continue
         mask = "0xffffffffu" if width == 32 else f"0x{(1 << width) - 1:x}u"
         lines.append(f"        top.{name} = static_cast<uint32_t>(f[{index}]) & {mask};")
     reset = ""
@@ -196,10 +201,13 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
     binary = compiled_harness(verilog_text, ports, module, progress=progress)
     # Codes keep their bit pattern (the harness masks to the port width).
     codes = stimulus.beat_codes
-    if code_type(ports) == "int16_t":
+    kind = code_type(ports)
+    if kind == "int16_t":
         vectors = (codes & 0xFFFF).astype(np.uint16)
-    else:
+    elif kind == "int32_t":
         vectors = (codes & 0xFFFFFFFF).astype(np.uint32)
+    else:
+        vectors = codes.astype(np.int64)      # the harness masks to the port's width
     control = np.empty((stimulus.cycles, control_words(ports)), dtype="<i4")
     control[:, 0] = stimulus.in_valid
     control[:, 1] = stimulus.out_ready
