@@ -32,3 +32,13 @@ def make_model(weights, bias=0, *, bits=8, signed=False, ranges=None, module="du
     kwargs = {} if ports is None else {"ports": ports}
     return Model(module=module, features=features, units=[Unit("u", tuple(weights), bias)],
                  score_bits=score_bits, **kwargs)
+
+
+def assert_agrees_in_amaranth(model, dut, stimulus):
+    """Every vector of ``stimulus`` through the Amaranth design: out, and no mismatch."""
+    from thresh2hdl.flow import run_simulator
+    from thresh2hdl.verilog import port_table
+    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), model.module,
+                              stimulus)
+    checked = result.check(stimulus)
+    assert checked.mismatch_count == 0 and checked.vectors_checked == len(stimulus.vectors)

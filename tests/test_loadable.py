@@ -10,7 +10,7 @@ from amaranth.hdl import ClockDomain, Module
 from amaranth.sim import Simulator
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import make_model, require_tool
+from conftest import assert_agrees_in_amaranth, make_model, require_tool
 from test_cli import assert_one_line_error, run
 from test_verilog import assert_lint_clean_and_agrees
 from thresh2hdl.circuit import UnitConfig, make_component, weight_addresses
@@ -164,10 +164,7 @@ def loadable_prepared(case, vectors=80):
 @given(loadable_cases)
 def test_random_loadable_models_agree_with_reference_in_amaranth(case):
     model, dut, stimulus = loadable_prepared(case)
-    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), model.module,
-                              stimulus)
-    checked = result.check(stimulus)
-    assert checked.mismatch_count == 0 and checked.vectors_checked == len(stimulus.vectors)
+    assert_agrees_in_amaranth(model, dut, stimulus)
 
 
 @pytest.mark.verilator

@@ -5,7 +5,7 @@ import json
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import make_model, require_tool
+from conftest import assert_agrees_in_amaranth, make_model, require_tool
 from test_cli import assert_one_line_error, run
 from test_verilog import assert_lint_clean_and_agrees
 from thresh2hdl.circuit import UnitConfig, make_component
@@ -42,10 +42,7 @@ def test_random_split_units_agree_with_reference_in_amaranth(case):
     model, dut, stimulus = prepared(case)
     wide = dut.splits_result
     assert dut.latency == dut.config.pipeline + int(wide)
-    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), model.module,
-                              stimulus)
-    checked = result.check(stimulus)
-    assert checked.mismatch_count == 0 and checked.vectors_checked == len(stimulus.vectors)
+    assert_agrees_in_amaranth(model, dut, stimulus)
 
 
 @pytest.mark.verilator
