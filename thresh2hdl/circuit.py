@@ -298,6 +298,25 @@ def _build_split_tree(m, stages, analysis, features, split_bits):
             return stages.at(f"{node.name}_hi", stage)
         return _high_part(stages.at(node.name, stage), split_bits, None)
 
+    def complement_of(index, stage, part):
+        """``~`` a subtrahend's low or high part, made where the part is made: its registers
+        carry the complement, so no inverter LUT sits before the subtractor's carry chain."""
+        node = analysis.nodes[index]
+        name = f"{node.name}_{part}_not"
+        if name not in stages.produced:
+            source_name = f"{node.name}_{part}" if node.name in split else node.name
+            made = stages.produced[source_name][0]
+            if part == "lo":
+                value = Signal(split_bits, name=name)
+                m.d.comb += value.eq(~low_of(index, made))
+            else:
+                high = high_of(index, made)
+                high = high if high.shape().signed else Cat(high, Const(0, 1)).as_signed()
+                value = Signal(signed(len(high)), name=name)
+                m.d.comb += value.eq(~high)
+            stages.put(name, value, made)
+        return stages.at(name, stage)
+
     for node in analysis.nodes:
         stage = stages.stage_of(node.level)
         if node.name not in split:
@@ -326,24 +345,24 @@ def _build_split_tree(m, stages, analysis, features, split_bits):
         carry = Signal(name=f"{node.name}_carry")
         hi = Signal(hi_shape, name=f"{node.name}_hi")
         wide_lo = Signal(signed(split_bits + 2), name=f"{node.name}_lo_sum")
-        a, b = lows[0], lows[1]
         if kind == "add":
-            m.d.comb += wide_lo.eq(a + b)
-        elif kind == "sub":
-            m.d.comb += wide_lo.eq(a - b)
-        else:                     # rsub: right minus left
-            m.d.comb += wide_lo.eq(b - a)
+            m.d.comb += wide_lo.eq(lows[0] + lows[1])
+        else:
+            # a - b = a + ~b + 1: the carry out of the low part is 1 when nothing is borrowed,
+            # and the high part is then a_hi + ~b_hi + carry. (sub: left minus right; rsub:
+            # right minus left, the right possibly the bias constant.)
+            minuend, subtrahend = (0, 1) if kind == "sub" else (1, 0)
+            m.d.comb += wide_lo.eq(lows[minuend]
+                                   + complement_of(node.children[subtrahend], stage, "lo") + 1)
         m.d.comb += [lo.eq(wide_lo[:split_bits]), carry.eq(wide_lo[split_bits])]
         stages.put(f"{node.name}_lo", lo, stage)
         stages.put(f"{node.name}_carry", carry, stage)
         c = stages.at(f"{node.name}_carry", stage + 1)
-        ha, hb = highs[0], highs[1]
         if kind == "add":
-            m.d.comb += hi.eq(ha + hb + c)
-        elif kind == "sub":
-            m.d.comb += hi.eq(ha - hb - c)
+            m.d.comb += hi.eq(highs[0] + highs[1] + c)
         else:
-            m.d.comb += hi.eq(hb - ha - c)
+            m.d.comb += hi.eq(highs[minuend]
+                              + complement_of(node.children[subtrahend], stage + 1, "hi") + c)
         stages.put(f"{node.name}_hi", hi, stage + 1)
     return split
 
