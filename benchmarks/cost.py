@@ -15,10 +15,14 @@ import numpy as np
 from thresh2hdl.circuit import UnitConfig, make_component
 from thresh2hdl.estimate import estimate_cost
 from thresh2hdl.model import FeatureFormat, Model, Unit
+from thresh2hdl.ranges import analyse
 from thresh2hdl.verilog import emit_verilog, port_table
 
 
 SEEDS = (1, 2, 3, 4, 5)
+# (split bits, carry registers) of the fmax runs: unsplit, then the best of sweeps here
+# (split 6 to 13, one or two carry registers; see DEVELOPERS.md).
+FMAX_CONFIGS = ((None, 1), (13, 1), (9, 2), (6, 2))
 
 
 def naive_verilog(weights, bias):
@@ -60,17 +64,20 @@ def main():
           f"one result per {len(weights)} beats")
     # fmax of the pipelined multiplier-free unit: every level registered, with and without
     # split adders; nextpnr's placement seed moves fmax by a few MHz, so several seeds.
-    levels = make_component(UnitConfig(model, arch="shiftadd")).analysis.final_level + 1
-    for split in (None, 13):   # 13: the best median of a sweep over 9-15 here
+    levels = analyse(model, arch="shiftadd").final_level + 1
+    for split, carry in FMAX_CONFIGS:
         dut = make_component(UnitConfig(model, pipeline=levels, arch="shiftadd",
-                                        split_bits=split))
+                                        split_bits=split, carry_registers=carry))
         text, ports = emit_verilog(dut, model), port_table(dut, model)
         runs = [estimate_cost(text, model.module, ports, seed=seed) for seed in SEEDS]
         fmax = sorted(r["fmax_mhz"] for r in runs)
-        print(f"shiftadd pipeline {levels}{'' if split is None else f', split {split}'}: "
-              f"latency {dut.latency}, {runs[0]['luts']} LUT4, {runs[0]['flip_flops']} "
-              f"flip-flops, fmax over seeds {list(SEEDS)}: median {statistics.median(fmax):.1f} "
-              f"MHz (min {fmax[0]:.1f}, max {fmax[-1]:.1f}; target >= 75 MHz)")
+        name = "" if split is None else f", split {split}, carry registers {carry}"
+        print(f"shiftadd pipeline {levels}{name}: latency {dut.latency}, {runs[0]['luts']} LUT4 "
+              f"({runs[0]['luts'] / base['luts']:.3f}x naive), {runs[0]['flip_flops']} "
+              f"flip-flops, fmax over seeds {list(SEEDS)}: median "
+              f"{statistics.median(fmax):.1f} MHz (min {fmax[0]:.1f}, max {fmax[-1]:.1f}; "
+              f"target >= 75 MHz)")
+
 
 if __name__ == "__main__":
     main()

@@ -21,7 +21,11 @@ def test_wrapper_uses_every_input_bit_once():
     assert "reg [5:0] chain" in text
     assert ".rst(chain[0:0])" in text
     assert ".a(chain[3:1])" in text and ".b(chain[5:4])" in text
-    assert "dout <= (^o_y) ^ (^o_s)" in text
+    # Every output bit is captured once, and the fold registers at most four bits per LUT.
+    assert "fold0 <= {o_s[5], o_s[4], o_s[3], o_s[2], o_s[1], o_s[0], o_y[0]}" in text
+    assert "fold1 <= {fold0[4] ^ fold0[5] ^ fold0[6], fold0[0] ^ fold0[1] ^ fold0[2] ^ " \
+        "fold0[3]}" in text
+    assert "dout <= fold2[0]" in text
 
 
 def test_estimate_demo_on_ice40(tmp_path):

@@ -38,8 +38,9 @@ class UnitConfig:
     loadable_weights: bool = False   # weights and biases in registers behind a write port
     weight_bits: int | None = None   # their declared signed widths (default: fewest for the
     bias_bits: int | None = None     # trained values); every width is sized for these
-    split_bits: int | None = None    # adders wider than this are split, the high parts one
-                                     # register stage later (shorter carry chains)
+    split_bits: int | None = None    # adders wider than this are split into parts this wide,
+                                     # each part later than the one below (shorter carry chains)
+    carry_registers: int = 1         # registers on each carry from one part to the next
 
     def __post_init__(self):
         if not isinstance(self.model, Model):
@@ -102,6 +103,13 @@ class UnitConfig:
                        if self.pipeline == 0 else None)
             if refusal:
                 raise InputError(f"cannot split the adders: {refusal}", field="--split-adders")
+        if isinstance(self.carry_registers, bool) or not isinstance(self.carry_registers, int) \
+                or not 1 <= self.carry_registers <= 4:
+            raise InputError(f"must be an integer from 1 to 4, not {self.carry_registers!r}",
+                             field="--carry-registers")
+        if self.carry_registers != 1 and self.split_bits is None:
+            raise InputError("applies only to split adders (--split-adders)",
+                             field="--carry-registers")
         self.model.check_optional_ports(
             (["sample"] if self.arch == "serial" else [])
             + (["weight_write", "weight_address", "weight_data"] if self.loadable_weights
@@ -251,120 +259,165 @@ def _build_tree(m, stages, analysis, features, prefix="", weights=None, bias=Non
         stages.put(prefix + node.name, value, stage, node.register_shift)
 
 
-def _low_bits(value, bits):
-    """The low ``bits`` bits of a value, sign- or zero-extended when it is narrower."""
-    if len(value) >= bits:
-        return value[:bits]
-    fill = value[-1] if value.shape().signed else Const(0, 1)
-    return Cat(value, *([fill] * (bits - len(value))))
+def _split_parts(analysis, split_bits):
+    """How many ``split_bits``-wide parts each split adder has: an adder wider than
+    ``split_bits`` is cut into ``ceil(bits / split_bits)`` parts, the top one possibly
+    narrower. Products and narrower adders are whole (fed by split adders, they are computed
+    from their operands' low parts: their value fits, so arithmetic modulo the part is exact).
+    """
+    return {node.name: -(-node.bits // split_bits) for node in analysis.nodes
+            if node.kind != "product" and node.bits > split_bits}
 
 
-def _high_part(value, bits, shape):
-    """``value >> bits`` (arithmetic when signed) at ``shape``."""
-    if len(value) > bits:
-        high = value[bits:]
-        return high.as_signed() if value.shape().signed else high
-    return value[-1].as_signed() if value.shape().signed else Const(0, 1)
+class _Parts:
+    """Part ``j`` of a value: its bits ``[j * bits, (j + 1) * bits)``, ``j`` register stages
+    after the value's own stage. Middle parts are unsigned ``bits`` wide; a top part is the
+    rest of the value, as signed as the value (beyond its width, the value's extension)."""
 
+    def __init__(self, m, stages, analysis, parts, bits):
+        self.m, self.stages, self.analysis = m, stages, analysis
+        self.parts, self.bits = parts, bits
 
-def _split_nodes(analysis, split_bits):
-    """Names of the adders that are split: wider than ``split_bits``, or fed by a split one."""
-    split = set()
-    for node in analysis.nodes:
-        if node.kind != "product" and (node.bits > split_bits or any(
-                analysis.nodes[c].name in split for c in node.children)):
-            split.add(node.name)
-    return split
+    def count(self, index):
+        return self.parts.get(self.analysis.nodes[index].name, 1)
 
+    def _raw(self, index, j, stage):
+        """Part ``j`` of the value as it is held: a split value's own part (its top part
+        beyond its count), a whole value's bits from ``j * bits`` up (arithmetic shift)."""
+        node = self.analysis.nodes[index]
+        count = self.count(index)
+        if count > 1:
+            return self.stages.at(f"{node.name}_p{min(j, count - 1)}", stage), j >= count - 1, \
+                j - min(j, count - 1)
+        value = self.stages.at(node.name, stage)
+        low = j * self.bits
+        if low < len(value):
+            high = value[low:]
+            return (high.as_signed() if value.shape().signed else high), True, 0
+        return value, True, j    # beyond the value: its extension
 
-def _build_split_tree(m, stages, analysis, features, split_bits):
-    """As :func:`_build_tree`, but a node wider than ``split_bits`` (or fed by a split one) is
-    two adders: its low ``split_bits`` bits and their carry in the node's stage, the rest one
-    stage later from the registered carry. The high parts of the whole tree run one stage
-    behind the low parts, so a carry chain is ``split_bits`` long in the low parts and the
-    node's width less ``split_bits`` in the high parts (which are not split again).
-    Returns the set of split node names."""
-    split = _split_nodes(analysis, split_bits)
+    def middle(self, index, j, stage):
+        """Part ``j`` as ``bits`` unsigned bits, for the part ``j`` of a wider adder."""
+        value, is_top, beyond = self._raw(index, j, stage)
+        if beyond:
+            fill = value[-1] if value.shape().signed else Const(0, 1)
+            return Cat(*([fill] * self.bits))
+        if not is_top or len(value) >= self.bits:
+            return value[:self.bits]
+        fill = value[-1] if value.shape().signed else Const(0, 1)
+        return Cat(value, *([fill] * (self.bits - len(value))))
 
-    def low_of(index, stage):
-        name = analysis.nodes[index].name
-        if name in split:
-            return stages.at(f"{name}_lo", stage)
-        return _low_bits(stages.at(name, stage), split_bits)
+    def top(self, index, j, stage):
+        """The value from bit ``j * bits`` up, for the top part of an adder (exact as a signed
+        number where the value is held whole; a middle part is exact modulo its width, which
+        is all a narrower top part needs)."""
+        value, is_top, beyond = self._raw(index, j, stage)
+        if beyond:
+            return value[-1].as_signed() if value.shape().signed else Const(0, 1)
+        return value
 
-    def high_of(index, stage):
-        node = analysis.nodes[index]
-        if node.name in split:
-            return stages.at(f"{node.name}_hi", stage)
-        return _high_part(stages.at(node.name, stage), split_bits, None)
-
-    def complement_of(index, stage, part):
-        """``~`` a subtrahend's low or high part, made where the part is made: its registers
-        carry the complement, so no inverter LUT sits before the subtractor's carry chain."""
-        node = analysis.nodes[index]
-        name = f"{node.name}_{part}_not"
-        if name not in stages.produced:
-            source_name = f"{node.name}_{part}" if node.name in split else node.name
-            made = stages.produced[source_name][0]
-            if part == "lo":
-                value = Signal(split_bits, name=name)
-                m.d.comb += value.eq(~low_of(index, made))
+    def complement(self, index, j, stage, top):
+        """``~`` part ``j`` of a subtrahend, made where the part is made: its registers carry
+        the complement, so no inverter LUT sits before the subtractor's carry chain."""
+        node = self.analysis.nodes[index]
+        name = f"{node.name}_{'t' if top else 'p'}{j}_not"
+        if name not in self.stages.produced:
+            count = self.count(index)
+            source = f"{node.name}_p{min(j, count - 1)}" if count > 1 else node.name
+            made = self.stages.produced[source][0]
+            if top:
+                part = self.top(index, j, made)
+                part = part if part.shape().signed else Cat(part, Const(0, 1)).as_signed()
+                value = Signal(signed(len(part)), name=name)
             else:
-                high = high_of(index, made)
-                high = high if high.shape().signed else Cat(high, Const(0, 1)).as_signed()
-                value = Signal(signed(len(high)), name=name)
-                m.d.comb += value.eq(~high)
-            stages.put(name, value, made)
-        return stages.at(name, stage)
+                part = self.middle(index, j, made)
+                value = Signal(self.bits, name=name)
+            self.m.d.comb += value.eq(~part)
+            self.stages.put(name, value, made)
+        return self.stages.at(name, stage)
 
+
+def _build_split_tree(m, stages, analysis, features, split_bits, skew):
+    """As :func:`_build_tree`, but an adder wider than ``split_bits`` is a row of adders,
+    one per ``split_bits``-wide part: part ``j`` adds the operands' parts ``j`` and the carry
+    of part ``j - 1``, ``skew`` register stages after it (the carry crosses ``skew``
+    registers, so that the placer can keep each piece of its route short). Part ``j`` of the
+    whole tree runs ``j * skew`` stages behind part 0, so no carry chain is longer than
+    ``split_bits``.
+    Returns the part counts (:func:`_split_parts`)."""
+    parts = _split_parts(analysis, split_bits)
+    view = _Parts(m, stages, analysis, parts, split_bits)
     for node in analysis.nodes:
         stage = stages.stage_of(node.level)
-        if node.name not in split:
-            if node.kind == "product":
-                expr = _constant_product(node, features)
-            else:
-                operands = [stages.at(analysis.nodes[c].name, stage) for c in node.children]
-                expr = _combine(node, analysis, operands)
+        if node.kind == "product":
             value = Signal(_shape(node), name=node.name)
-            m.d.comb += value.eq(expr)
+            m.d.comb += value.eq(_constant_product(node, features))
             stages.put(node.name, value, stage, node.register_shift)
             continue
-        hi_shape = signed(max(1, node.bits - split_bits)) if node.is_signed \
-            else unsigned(max(1, node.bits - split_bits))
-        lows = [low_of(c, stage) for c in node.children]
-        highs = [high_of(c, stage + 1) for c in node.children]
+        count = parts.get(node.name, 1)
+        if count == 1:
+            operands = [view.top(c, 0, stage) for c in node.children]
+            value = Signal(_shape(node), name=node.name)
+            m.d.comb += value.eq(_combine(node, analysis, operands))
+            stages.put(node.name, value, stage)
+            continue
+        constant = None
         if node.kind in ("offset", "bias"):
             constant = node.constant
-            lows.append(Const(constant % (1 << split_bits), split_bits))
-            highs.append(Const(constant >> split_bits))
             child = analysis.nodes[node.children[0]]
             kind = "rsub" if node.kind == "bias" and child.sign < 0 else "add"
         else:
             kind = node.kind
-        lo = Signal(split_bits, name=f"{node.name}_lo")
-        carry = Signal(name=f"{node.name}_carry")
-        hi = Signal(hi_shape, name=f"{node.name}_hi")
-        wide_lo = Signal(signed(split_bits + 2), name=f"{node.name}_lo_sum")
-        if kind == "add":
-            m.d.comb += wide_lo.eq(lows[0] + lows[1])
-        else:
-            # a - b = a + ~b + 1: the carry out of the low part is 1 when nothing is borrowed,
-            # and the high part is then a_hi + ~b_hi + carry. (sub: left minus right; rsub:
-            # right minus left, the right possibly the bias constant.)
-            minuend, subtrahend = (0, 1) if kind == "sub" else (1, 0)
-            m.d.comb += wide_lo.eq(lows[minuend]
-                                   + complement_of(node.children[subtrahend], stage, "lo") + 1)
-        m.d.comb += [lo.eq(wide_lo[:split_bits]), carry.eq(wide_lo[split_bits])]
-        stages.put(f"{node.name}_lo", lo, stage)
-        stages.put(f"{node.name}_carry", carry, stage)
-        c = stages.at(f"{node.name}_carry", stage + 1)
-        if kind == "add":
-            m.d.comb += hi.eq(highs[0] + highs[1] + c)
-        else:
-            m.d.comb += hi.eq(highs[minuend]
-                              + complement_of(node.children[subtrahend], stage + 1, "hi") + c)
-        stages.put(f"{node.name}_hi", hi, stage + 1)
-    return split
+        # a - b = a + ~b + 1: the carry into part 0 is 1, and a carry out of a part is 1
+        # when nothing is borrowed. (sub: left minus right; rsub: right minus left, the
+        # right possibly the bias constant.)
+        minuend, subtrahend = (0, 1) if kind in ("add", "sub") else (1, 0)
+        carry = Const(int(kind != "add"), 1)
+        for j in range(count):
+            at = stage + j * skew
+            is_top = j == count - 1
+            shift = j * split_bits
+            operands = []
+            for position in range(2):
+                if position == 1 and constant is not None:
+                    operands.append(Const(constant >> shift) if is_top else
+                                    Const((constant >> shift) % (1 << split_bits), split_bits))
+                    continue
+                child = node.children[position]
+                if kind != "add" and position == subtrahend:
+                    operands.append(view.complement(child, j, at, is_top))
+                else:
+                    operands.append(view.top(child, j, at) if is_top
+                                    else view.middle(child, j, at))
+            total = operands[minuend] + operands[subtrahend] + carry
+            if is_top:
+                width = node.bits - shift
+                part = Signal(signed(width) if node.is_signed else unsigned(width),
+                              name=f"{node.name}_p{j}")
+                m.d.comb += part.eq(total)
+                stages.put(part.name, part, at)
+                continue
+            wide = Signal(split_bits + 1, name=f"{node.name}_p{j}_sum")
+            part = Signal(split_bits, name=f"{node.name}_p{j}")
+            carried = Signal(name=f"{node.name}_c{j}")
+            m.d.comb += [wide.eq(total), part.eq(wide[:split_bits]),
+                         carried.eq(wide[split_bits])]
+            stages.put(part.name, part, at)
+            stages.put(carried.name, carried, at)
+            carry = stages.at(carried.name, at + skew)
+    return parts
+
+
+def _beyond(value, limit, greater, lo, hi):
+    """``value > limit`` (``greater``) or ``value < limit``, for a value in ``[lo, hi]``: a
+    constant where the range decides it (a comparison that cannot change is a lint warning)."""
+    if greater:
+        decided = 1 if lo > limit else 0 if hi <= limit else None
+    else:
+        decided = 1 if hi < limit else 0 if lo >= limit else None
+    if decided is not None:
+        return Const(decided, 1)
+    return value > limit if greater else value < limit
 
 
 def _constant_product(node, features):
@@ -468,33 +521,38 @@ class ThresholdUnit(_Common, wiring.Component):
         return [self.score] if self._analysis.has_score else []
 
     @property
-    def splits_result(self):
-        """With split adders, whether the result itself is split: then its high part, and
-        the outputs, come one register stage later."""
+    def split_parts(self):
+        """With split adders, the part count of every split adder (empty: nothing split)."""
         bits = self._config.split_bits
+        return {} if bits is None else _split_parts(self._analysis, bits)
+
+    @property
+    def result_parts(self):
+        """Parts of the result (the score, else the tree's root): the outputs come
+        ``carry_registers`` stages later for each part past the first."""
         analysis = self._analysis
-        if bits is None or analysis.score_node is None:
-            return False
+        if analysis.score_node is None:
+            return 1
         result = analysis.score_node if analysis.has_score else analysis.tree_root
-        return analysis.nodes[result].name in _split_nodes(analysis, bits)
+        return self.split_parts.get(analysis.nodes[result].name, 1)
 
     @property
     def latency(self):
-        return self._config.pipeline + int(self.splits_result)
+        return self._config.pipeline + (self.result_parts - 1) * self._config.carry_registers
 
     def elaborate(self, platform):
         m = Module()
         analysis = self._analysis
         advance = _handshake(m, self, self.latency)
         stages = _Stages(m, advance, self._boundaries)
-        if self.splits_result:
-            return self._elaborate_split(m, stages)
         if analysis.score_node is None:
             # Every weight is zero: the outputs are constants, valid whenever a result is.
             m.d.comb += self.y.eq(analysis.bias > 0)
             if analysis.has_score:
                 m.d.comb += self.score.eq(analysis.bias)
             return m
+        if self.split_parts:
+            return self._elaborate_split(m, stages)
         store = _WeightStore(m, self, self._config) if analysis.loadable else None
         _build_tree(m, stages, analysis, self.feature_ports,
                     weights=store and store.weights[0], bias=store and store.biases[0])
@@ -510,10 +568,8 @@ class ThresholdUnit(_Common, wiring.Component):
         else:
             root = analysis.nodes[analysis.tree_root]
             value = stages.at(root.name, final_stage)
-            if root.sign > 0:
-                m.d.comb += decision.eq(value > analysis.threshold)
-            else:
-                m.d.comb += decision.eq(value < analysis.threshold)
+            m.d.comb += decision.eq(_beyond(value, analysis.threshold, root.sign > 0,
+                                            root.lo, root.hi))
         stages.put("decision", decision, final_stage)
         m.d.comb += self.y.eq(stages.at("decision", self.latency))
         if analysis.has_score:
@@ -521,40 +577,49 @@ class ThresholdUnit(_Common, wiring.Component):
                                                 self.latency))
         return m
 
-
     def _elaborate_split(self, m, stages):
+        """The decision from the result's parts as they arrive, each compared (or tested for
+        zero) in its own stage, the parts below deciding only where it is equal."""
         analysis, bits = self._analysis, self._config.split_bits
-        split = _build_split_tree(m, stages, analysis, self.feature_ports, bits)
+        skew = self._config.carry_registers
+        parts = _build_split_tree(m, stages, analysis, self.feature_ports, bits, skew)
+        view = _Parts(m, stages, analysis, parts, bits)
         final_stage = stages.stage_of(analysis.final_level)
         use_score = analysis.has_score
         node = analysis.nodes[analysis.score_node if use_score else analysis.tree_root]
-        assert node.name in split
-        lo, hi = stages.at(f"{node.name}_lo", final_stage), f"{node.name}_hi"
-        decision = Signal(name="decision")
-        if use_score:
-            low_any = Signal(name="low_any")
-            m.d.comb += low_any.eq(lo.any())
-            stages.put("low_any", low_any, final_stage)
-            high = stages.at(hi, final_stage + 1)
-            nonzero = stages.at("low_any", final_stage + 1) | high.any()
-            m.d.comb += decision.eq(~high[-1] & nonzero if node.is_signed else nonzero)
-        else:
-            # value > threshold (or <), decided on the parts: the low comparison in the low
-            # part's stage, the high one a stage later.
+        count = self.result_parts
+        if not use_score:
+            # value > threshold (or <), from the top: the highest part that differs decides.
             threshold = analysis.threshold
-            low_t, high_t = threshold % (1 << bits), threshold >> bits
-            low_wins = Signal(name="low_decides")
-            m.d.comb += low_wins.eq(lo > low_t if node.sign > 0 else lo < low_t)
-            stages.put("low_decides", low_wins, final_stage)
-            high = stages.at(hi, final_stage + 1)
-            low_now = stages.at("low_decides", final_stage + 1)
-            beyond = high > high_t if node.sign > 0 else high < high_t
-            m.d.comb += decision.eq(beyond | ((high == high_t) & low_now))
-        stages.put("decision", decision, final_stage + 1)
-        m.d.comb += self.y.eq(stages.at("decision", self.latency))
+        below = None      # the decision of the parts below, registered up to this stage
+        for j in range(count):
+            at = final_stage + j * skew
+            is_top = j == count - 1
+            part = view.top(node.index, j, at) if is_top else view.middle(node.index, j, at)
+            step = Signal(name=f"decision_p{j}")
+            if use_score:
+                # the score is positive: nonzero and, at the top, not negative
+                nonzero = part.any() if below is None else below | part.any()
+                m.d.comb += step.eq(~part[-1] & nonzero if is_top and node.is_signed
+                                    else nonzero)
+            else:
+                if is_top:
+                    limit = threshold >> (j * bits)
+                    lo, hi = node.lo >> (j * bits), node.hi >> (j * bits)
+                else:
+                    limit, lo, hi = (threshold >> (j * bits)) % (1 << bits), 0, (1 << bits) - 1
+                beyond = _beyond(part, limit, node.sign > 0, lo, hi)
+                if below is not None and lo <= limit <= hi:
+                    beyond = beyond | ((part == limit) & below)
+                m.d.comb += step.eq(beyond)
+            stages.put(step.name, step, at)
+            if not is_top:
+                below = stages.at(step.name, at + skew)
+        m.d.comb += self.y.eq(stages.at(f"decision_p{count - 1}", self.latency))
         if use_score:
+            whole = Cat(*[view.middle(node.index, j, self.latency) for j in range(count - 1)],
+                        view.top(node.index, count - 1, self.latency))
             score = Signal(signed(analysis.score_bits), name="score_split")
-            whole = Cat(stages.at(f"{node.name}_lo", self.latency), stages.at(hi, self.latency))
             m.d.comb += score.eq(whole.as_signed() if node.is_signed else whole)
             m.d.comb += self.score.eq(score)
         return m

@@ -37,9 +37,13 @@ def _build_options(command):
         click.option("--score-bits", type=int, default=None,
                      help="Width of the score port; wider than needed gives headroom."),
         click.option("--split-adders", "split_bits", type=int, default=None,
-                     help="Split adders wider than this many bits in two, the high part one "
-                     "register stage later: shorter carry chains, higher fmax, one more cycle "
-                     "of latency (one unit, tree or shiftadd, --pipeline 1 or more)."),
+                     help="Split adders wider than this many bits into parts this wide, each "
+                     "part a register stage after the one below: shorter carry chains, higher "
+                     "fmax, more latency (one unit, tree or shiftadd, --pipeline 1 or more)."),
+        click.option("--carry-registers", type=int, default=1, show_default=True,
+                     help="Registers on each carry from one split part to the next (1 to 4): "
+                     "2 shortens the carry's routes for a higher fmax, at one more cycle of "
+                     "latency per part."),
         click.option("--loadable-weights", is_flag=True,
                      help="Weights and biases in registers, reset to the trained values, with "
                      "a write port (strobe, address, data); widths sized for --weight-bits "
@@ -86,7 +90,8 @@ def _options(kwargs):
                         prove_timeout_s=kwargs["prove_timeout"],
                         loadable_weights=kwargs["loadable_weights"],
                         weight_bits=kwargs["weight_bits"], bias_bits=kwargs["bias_bits"],
-                        split_bits=kwargs["split_bits"])
+                        split_bits=kwargs["split_bits"],
+                        carry_registers=kwargs["carry_registers"])
 
 
 class _Progress:

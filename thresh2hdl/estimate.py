@@ -2,8 +2,9 @@
 
 Cell counts come from synthesising the module alone. Its ports would need more pins than a
 small FPGA has, so fmax comes from placing and routing a wrapper that feeds the inputs from a
-shift register and folds the registered outputs into one pin: every path of the module is then
-a register-to-register path, as in the engineer's design. The tools are Yosys and nextpnr from
+shift register and captures every output in a register before folding them into one pin:
+every path of the module is then a register-to-register path, as in the engineer's design,
+and no path of the wrapper's own is longer than one LUT. The tools are Yosys and nextpnr from
 the system when installed, else the WebAssembly builds from PyPI (``pip install
 'thresh2hdl[synth]'``), whose first call compiles for about a minute and is cached after.
 """
@@ -41,12 +42,14 @@ def _run(command, cwd, what):
 
 
 def wrapper_text(module, ports):
-    """A top level with one data pin in, one out: inputs from a shift chain, outputs folded."""
+    """A top level with one data pin in, one out: inputs from a shift chain, every output
+    captured in a register and folded to the pin through a tree of registered XORs."""
     # Every input but the clock (reset included) takes its own bits of the chain, so that no
-    # two inputs are tied and synthesis cannot simplify the handshake away.
+    # two inputs are tied and synthesis cannot simplify the handshake away. The outputs are
+    # registered before they are folded, and the fold takes at most four bits per register,
+    # so that no path of the wrapper's own is longer than one LUT: fmax is the module's.
     inputs = [(name, width) for internal, name, d, width, _ in ports
               if d == "input" and internal != "clk"]
-    outputs = [(name, width) for internal, name, d, width, _ in ports if d == "output"]
     total_in = sum(w for _, w in inputs)
     lines = ["module thresh_estimate_top (input wire clk, input wire din, output reg dout);",
              f"  reg [{total_in - 1}:0] chain;",
@@ -54,6 +57,7 @@ def wrapper_text(module, ports):
              if total_in > 1 else "  always @(posedge clk) chain <= din;"]
     offset = 0
     connections = []
+    captured = []
     for internal, name, direction, width, _ in ports:
         if internal == "clk":
             connections.append(f"    .{name}(clk)")
@@ -63,9 +67,21 @@ def wrapper_text(module, ports):
         else:
             lines.append(f"  wire [{width - 1}:0] o_{name};")
             connections.append(f"    .{name}(o_{name})")
+            captured += [f"o_{name}[{bit}]" for bit in range(width)]
     lines.append(f"  {module} dut (\n" + ",\n".join(connections) + "\n  );")
-    folded = " ^ ".join(f"(^o_{name})" for name, _ in outputs)
-    lines.append(f"  always @(posedge clk) dout <= {folded};")
+    level, bits = 0, captured
+    lines.append(f"  reg [{len(bits) - 1}:0] fold0;")
+    lines.append(f"  always @(posedge clk) fold0 <= {{{', '.join(reversed(bits))}}};")
+    width = len(bits)
+    while width > 1:
+        level += 1
+        groups = [list(range(k, min(k + 4, width))) for k in range(0, width, 4)]
+        terms = [" ^ ".join(f"fold{level - 1}[{b}]" for b in group) for group in groups]
+        lines.append(f"  reg [{len(groups) - 1}:0] fold{level};")
+        lines.append(f"  always @(posedge clk) fold{level} <= "
+                     f"{{{', '.join(reversed(terms))}}};")
+        width = len(groups)
+    lines.append(f"  always @(posedge clk) dout <= fold{level}[0];")
     lines.append("endmodule")
     return "\n".join(lines) + "\n"
 

@@ -250,6 +250,7 @@ class BuildOptions:
     weight_bits: int | None = None   # their declared signed widths (default: the fewest that
     bias_bits: int | None = None     # hold the trained values)
     split_bits: int | None = None    # split adders wider than this (see UnitConfig)
+    carry_registers: int = 1         # registers on each carry between split parts
 
     def __post_init__(self):
         for key in ("pipeline", "vectors", "seed"):
@@ -377,6 +378,7 @@ def _units_report(model, analyses, component):
         tree = _tree_report(first)
         tree["register_after_levels"] = list(component.register_boundaries)
         tree["split_bits"] = component.config.split_bits
+        tree["carry_registers"] = component.config.carry_registers
         return {"weights": list(first.weights), "bias": first.bias, **common,
                 "score_range": list(first.score_range), "score_bits_min": first.score_bits_min,
                 "score_bits": first.score_bits, "headroom_bits": first.headroom_bits,
@@ -447,7 +449,8 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     component = make_component(UnitConfig(
         model, pipeline=options.pipeline, score_bits=options.score_bits, arch=options.arch,
         loadable_weights=options.loadable_weights, weight_bits=options.weight_bits,
-        bias_bits=options.bias_bits, split_bits=options.split_bits))
+        bias_bits=options.bias_bits, split_bits=options.split_bits,
+        carry_registers=options.carry_registers))
     analyses = unit_analyses(component)
     analysis = analyses[0]
     lo = min(a.score_range[0] for a in analyses)
@@ -606,6 +609,7 @@ def _load_folder(out_dir):
         settings = json.loads((out_dir / "report.json").read_text(encoding="utf-8"))
         pipeline = int(settings.get("register_stages", settings["latency_cycles"]))
         split_bits = settings.get("tree", {}).get("split_bits")
+        carry_registers = int(settings.get("tree", {}).get("carry_registers", 1))
         units = settings.get("units")
         score_bits = int(settings["score_bits"]) if not units else None
         if units and len({u["score_bits"] for u in units}) == 1 and \
@@ -619,7 +623,8 @@ def _load_folder(out_dir):
         raise InputError(f"cannot read the build settings ({type(error).__name__}: {error})",
                          source=out_dir / "report.json") from None
     component = make_component(UnitConfig(model, pipeline=pipeline, score_bits=score_bits,
-                                          arch=arch, split_bits=split_bits, **loadable))
+                                          arch=arch, split_bits=split_bits,
+                                          carry_registers=carry_registers, **loadable))
     return out_dir, model, settings, component
 
 

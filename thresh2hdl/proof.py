@@ -704,7 +704,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
         # Its values are shared by every beat: a proof needs per-beat invariants of the
         # accumulator, which these per-value lemmas do not state.
         uncovered = "the serial architecture is not covered by the proof"
-    elif getattr(component, "splits_result", False):
+    elif getattr(component, "split_parts", None):
         uncovered = "split adders are not covered by the proof (their parts have no " \
                     "registers of the plan's values)"
     elif component.config.loadable_weights:
