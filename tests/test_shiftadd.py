@@ -3,17 +3,13 @@
 import itertools
 import re
 
-import pytest
-from hypothesis import HealthCheck, given, settings, strategies as st
+from hypothesis import given, settings, strategies as st
 
-from conftest import make_model, require_tool
+from conftest import make_model
 from test_circuit import check_design
 from thresh2hdl.circuit import ThresholdUnit, UnitConfig
 from thresh2hdl.ranges import analyse, csd_digits
-from test_icarus import prepare
-from test_verilog import lint_verilator
-from thresh2hdl.testbench import simulate_icarus
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.verilog import emit_verilog
 
 # OEIS A007302: number of nonzero digits in the non-adjacent form (canonical signed digits)
 # of n, for n = 0..40.
@@ -108,20 +104,3 @@ def test_random_shiftadd_models_agree_with_reference(case):
     most = analyse(model, arch="shiftadd").final_level + 1
     dut_check, _ = check_design(model, min(pipeline, most), vectors=100, arch="shiftadd")
     assert dut_check.mismatch_count == 0
-
-
-@pytest.mark.verilator
-@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(case=cases)
-def test_random_shiftadd_models_lint_clean_and_match_in_icarus(tmp_path_factory, case):
-    require_tool("verilator", "iverilog", "vvp")
-    weights, bias, bits, is_signed, pipeline = case
-    model = make_model(weights, bias, bits=bits, signed=is_signed)
-    pipeline = min(pipeline, analyse(model, arch="shiftadd").final_level + 1)
-    folder = tmp_path_factory.mktemp("shiftadd")
-    dut, path, stimulus = prepare(model, pipeline, folder, vectors=200, arch="shiftadd")
-    code, output = lint_verilator(folder, model.module)
-    assert code == 0 and output.strip() == "", output
-    result, printed = simulate_icarus(path, port_table(dut, model), model.module, stimulus,
-                                      folder / "run")
-    assert result.check(stimulus).mismatch_count == 0 and "PASS" in printed

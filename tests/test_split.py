@@ -106,11 +106,15 @@ def test_split_is_refused_where_it_does_not_apply():
 def test_cli_split_build_reports_and_rebuilds(tmp_path):
     out = tmp_path / "s"
     result = run("demo", "--out", out, "--simulator", "amaranth", "--arch", "shiftadd",
-                 "--pipeline", "3", "--split-adders", "10", "--vectors", "500")
+                 "--pipeline", "3", "--split-adders", "10", "--carry-registers", "2",
+                 "--vectors", "500")
     assert result.returncode == 0, result.stderr
     report = json.loads((out / "report.json").read_text())
     assert report["tree"]["split_bits"] == 10 and report["register_stages"] == 3
-    assert report["latency_cycles"] == 4 and report["mismatches"] == 0
+    assert report["tree"]["carry_registers"] == 2 and report["tree"]["result_parts"] == 2
+    assert report["latency_cycles"] == 5 and report["mismatches"] == 0
+    assert "| split adders | parts of 10 bits, 2 register(s) on each carry; the result in 2 " \
+        "part(s) |" in (out / "report.md").read_text()
     require_tool("iverilog", "vvp")
     checked = run("check", out, "--simulator", "icarus", "--vectors", "300")
     assert checked.returncode == 0, checked.stderr

@@ -379,6 +379,7 @@ def _units_report(model, analyses, component):
         tree["register_after_levels"] = list(component.register_boundaries)
         tree["split_bits"] = component.config.split_bits
         tree["carry_registers"] = component.config.carry_registers
+        tree["result_parts"] = getattr(component, "result_parts", 1)
         return {"weights": list(first.weights), "bias": first.bias, **common,
                 "score_range": list(first.score_range), "score_bits_min": first.score_bits_min,
                 "score_bits": first.score_bits, "headroom_bits": first.headroom_bits,

@@ -19,6 +19,15 @@ svg text{font:11px system-ui,sans-serif}code{background:#f3f3f3;padding:0 3px}
 """
 
 
+def _split_text(report):
+    """How the adders are split, or None."""
+    tree = report["tree"]
+    if not tree.get("split_bits"):
+        return None
+    return (f"parts of {tree['split_bits']} bits, {tree['carry_registers']} register(s) on "
+            f"each carry; the result in {tree['result_parts']} part(s)")
+
+
 def _table(headers, rows):
     head = "".join(f"<th{' class=l' if i == 0 else ''}>{escape(str(h))}</th>"
                    for i, h in enumerate(headers))
@@ -156,7 +165,8 @@ def report_html(report):
         ["score port bits", report["score_bits"]], ["headroom bits", report["headroom_bits"]],
         ["architecture", report["tree"]["arch"]], ["latency (cycles)", report["latency_cycles"]],
         ["valid beats per result", report.get("beats_per_result", 1)],
-        ["register stages after levels", ", ".join(map(str, report["tree"]["register_after_levels"])) or "none"]]),
+        ["register stages after levels", ", ".join(map(str, report["tree"]["register_after_levels"])) or "none"],
+        *([["split adders", _split_text(report)]] if _split_text(report) else [])]),
         "<h3>Score range</h3>", _score_line(report),
         "<h3>Datapath values: range against width</h3>", _node_bars(report["tree"]["nodes"])]
     out += ["<h2>Verification</h2>",
@@ -248,6 +258,7 @@ def report_markdown(report):
              f"| architecture | {report['tree']['arch']} |",
              f"| latency (cycles) | {report['latency_cycles']} |",
              f"| valid beats per result | {report.get('beats_per_result', 1)} |",
+             *([f"| split adders | {_split_text(report)} |"] if _split_text(report) else []),
              f"| vectors checked | {report['vectors_checked']} |",
              f"| mismatches | {report['mismatches']} |",
              f"| simulator | {v['simulator_version']} |"]
