@@ -62,6 +62,14 @@ def main():
     print(f"serial: {serial / parallel['tree']:.2f}x the LUT4 of the parallel tree, "
           f"{serial / parallel['shiftadd']:.2f}x of the parallel shiftadd (target <= 0.25x); "
           f"one result per {len(weights)} beats")
+    # The UP5K has eight SB_MAC16 blocks; a serial design needs one for its multiplier.
+    dut = make_component(UnitConfig(model, arch="serial"))
+    with_dsp = estimate_cost(emit_verilog(dut, model), model.module, port_table(dut, model),
+                             dsp=True)
+    print(f"serial, multiplier in a DSP block (synth_ice40 -dsp): {with_dsp['luts']} LUT4 and "
+          f"{with_dsp['dsps']} SB_MAC16: {with_dsp['luts'] / parallel['tree']:.2f}x the LUT4 of "
+          f"the parallel tree, {with_dsp['luts'] / parallel['shiftadd']:.2f}x of the parallel "
+          f"shiftadd, {with_dsp['fmax_mhz']:.1f} MHz")
     # fmax of the pipelined multiplier-free unit: every level registered, with and without
     # split adders; nextpnr's placement seed moves fmax by a few MHz, so several seeds.
     levels = analyse(model, arch="shiftadd").final_level + 1

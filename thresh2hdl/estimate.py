@@ -25,6 +25,9 @@ TARGETS = {
     "ice40": ("synth_ice40", "nextpnr-ice40", ["--up5k", "--package", "sg48"]),
     "ecp5": ("synth_ecp5", "nextpnr-ecp5", ["--25k", "--package", "CABGA256"]),
 }
+# Whether multipliers go to DSP blocks unless asked, and the synthesis flag that changes it:
+# Yosys maps to the UP5K's SB_MAC16 only with -dsp, and to ECP5's MULT18X18D unless -nodsp.
+_DSP_DEFAULT = {"ice40": (False, "-dsp"), "ecp5": (True, "-nodsp")}
 
 _FLOP = re.compile(r"^(SB_DFF|TRELLIS_FF|FD)")
 
@@ -86,11 +89,20 @@ def wrapper_text(module, ports):
     return "\n".join(lines) + "\n"
 
 
-def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None, seed=None):
-    """LUTs, carries, flip-flops, DSPs and fmax of the module on ``target``."""
+def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None, seed=None,
+                  dsp=None):
+    """LUTs, carries, flip-flops, DSPs and fmax of the module on ``target``.
+
+    ``dsp``: whether synthesis may put multipliers into DSP blocks (None: the target's
+    custom, without on iCE40, with on ECP5), for a design that has them to spare.
+    """
     if target not in TARGETS:
         raise ToolError(f"unknown target {target!r}; choose one of {', '.join(TARGETS)}")
     synth, pnr, device = TARGETS[target]
+    default, flag = _DSP_DEFAULT[target]
+    use_dsp = default if dsp is None else bool(dsp)
+    if use_dsp != default:
+        synth = f"{synth} {flag}"
     yosys, nextpnr = _tool("yosys"), _tool(pnr)
     if progress:
         progress("synthesising with Yosys (the first WebAssembly call takes about a minute)")
@@ -124,6 +136,7 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None,
         "carries": count(("SB_CARRY", "CCU2C")),
         "flip_flops": sum(n for cell, n in cells.items() if _FLOP.match(cell)),
         "dsps": count(("SB_MAC16", "MULT18X18D")),
+        "dsp_inference": use_dsp,
         "fmax_mhz": float(found[-1]),
         "cells": dict(sorted(cells.items())),
         "tool_versions": {"yosys": tool_version(yosys), "nextpnr": tool_version(nextpnr)},

@@ -629,12 +629,13 @@ def _load_folder(out_dir):
     return out_dir, model, settings, component
 
 
-def estimate_folder(out_dir, *, target="ice40", progress=None):
-    """Cost of a build folder's Verilog on ``target``; written into its report.json."""
+def estimate_folder(out_dir, *, target="ice40", dsp=None, progress=None):
+    """Cost of a build folder's Verilog on ``target``; written into its report.json.
+    ``dsp``: multipliers into DSP blocks (None: the target's custom; see estimate_cost)."""
     out_dir, model, settings, component = _load_folder(out_dir)
     text = (out_dir / settings["verilog"]).read_text(encoding="utf-8")
     figures = estimate_cost(text, model.module, port_table(component, model), target=target,
-                            progress=progress)
+                            progress=progress, dsp=dsp)
     settings["estimate"] = figures
     write_files({out_dir / "report.json": report_json(settings),
                  out_dir / "report.html": report_html(settings),

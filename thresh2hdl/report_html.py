@@ -214,12 +214,14 @@ def report_html(report):
     estimate = report.get("estimate")
     out.append("<h2>Cost</h2>")
     if estimate:
-        out.append(_table(["target", "LUTs", "carries", "flip-flops", "DSPs", "fmax (MHz)",
-                           "tools"], [[estimate["target"], estimate["luts"], estimate["carries"],
-                                       estimate["flip_flops"], estimate["dsps"],
-                                       f"{estimate['fmax_mhz']:.1f}",
-                                       f"{estimate['tool_versions']['yosys']}, "
-                                       f"{estimate['tool_versions']['nextpnr']}"]]))
+        out.append(_table(["target", "LUTs", "carries", "flip-flops", "DSPs",
+                           "multipliers may use DSPs", "fmax (MHz)", "tools"],
+                          [[estimate["target"], estimate["luts"], estimate["carries"],
+                            estimate["flip_flops"], estimate["dsps"],
+                            "yes" if estimate.get("dsp_inference") else "no",
+                            f"{estimate['fmax_mhz']:.1f}",
+                            f"{estimate['tool_versions']['yosys']}, "
+                            f"{estimate['tool_versions']['nextpnr']}"]]))
     else:
         out.append("<p>Not estimated; run <code>thresh2hdl estimate</code> on this folder.</p>")
     out += ["<h2>Proof</h2>", _proof_html(report.get("proof"))]
@@ -266,9 +268,11 @@ def report_markdown(report):
         lines.append(f"| accuracy on {report['data']['file']} | {report['data']['accuracy']:.4f} |")
     estimate = report.get("estimate")
     if estimate:
+        where = "may use DSPs" if estimate.get("dsp_inference") else "in LUTs"
         lines.append(f"| {estimate['target']} cost | {estimate['luts']} LUTs, "
                      f"{estimate['carries']} carries, {estimate['flip_flops']} flip-flops, "
-                     f"{estimate['dsps']} DSPs, {estimate['fmax_mhz']:.1f} MHz |")
+                     f"{estimate['dsps']} DSPs (multipliers {where}), "
+                     f"{estimate['fmax_mhz']:.1f} MHz |")
     proof = report.get("proof")
     lines.append(f"| proof | {proof['status']} ({proof['lemmas']} lemmas, {proof['solver']}) |"
                  if proof else "| proof | not run |")
