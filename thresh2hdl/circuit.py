@@ -270,9 +270,9 @@ def _split_parts(analysis, split_bits):
 
 
 class _Parts:
-    """Part ``j`` of a value: its bits ``[j * bits, (j + 1) * bits)``, ``j`` register stages
-    after the value's own stage. Middle parts are unsigned ``bits`` wide; a top part is the
-    rest of the value, as signed as the value (beyond its width, the value's extension)."""
+    """Part ``j`` of a value: its bits ``[j * bits, (j + 1) * bits)``, as an operand of part
+    ``j`` of a wider adder. Middle parts are unsigned ``bits`` wide; a top part is the rest of
+    the value, as signed as the value (beyond its width, the value's extension)."""
 
     def __init__(self, m, stages, analysis, parts, bits):
         self.m, self.stages, self.analysis = m, stages, analysis
