@@ -282,38 +282,42 @@ class _Parts:
         return self.parts.get(self.analysis.nodes[index].name, 1)
 
     def _raw(self, index, j, stage):
-        """Part ``j`` of the value as it is held: a split value's own part (its top part
-        beyond its count), a whole value's bits from ``j * bits`` up (arithmetic shift)."""
+        """``(value, is_top, beyond)``: part ``j`` as it is held (a split value's own part, a
+        whole value's bits from ``j * bits`` up), whether it is the value's top part, and
+        whether ``j`` lies beyond the value, where only its extension is left."""
         node = self.analysis.nodes[index]
         count = self.count(index)
         if count > 1:
-            return self.stages.at(f"{node.name}_p{min(j, count - 1)}", stage), j >= count - 1, \
-                j - min(j, count - 1)
+            own = min(j, count - 1)
+            return self.stages.at(f"{node.name}_p{own}", stage), own == count - 1, own < j
         value = self.stages.at(node.name, stage)
-        low = j * self.bits
-        if low < len(value):
-            high = value[low:]
-            return (high.as_signed() if value.shape().signed else high), True, 0
-        return value, True, j    # beyond the value: its extension
+        low = j * self.bits if j else 0
+        if low >= len(value):
+            return value, True, True
+        high = value[low:]
+        return (high.as_signed() if value.shape().signed else high), True, False
+
+    @staticmethod
+    def _fill(value):
+        """The bit that extends ``value``: its sign, or 0."""
+        return value[-1] if value.shape().signed else Const(0, 1)
 
     def middle(self, index, j, stage):
         """Part ``j`` as ``bits`` unsigned bits, for the part ``j`` of a wider adder."""
         value, is_top, beyond = self._raw(index, j, stage)
         if beyond:
-            fill = value[-1] if value.shape().signed else Const(0, 1)
-            return Cat(*([fill] * self.bits))
+            return Cat(*([self._fill(value)] * self.bits))
         if not is_top or len(value) >= self.bits:
             return value[:self.bits]
-        fill = value[-1] if value.shape().signed else Const(0, 1)
-        return Cat(value, *([fill] * (self.bits - len(value))))
+        return Cat(value, *([self._fill(value)] * (self.bits - len(value))))
 
     def top(self, index, j, stage):
         """The value from bit ``j * bits`` up, for the top part of an adder (exact as a signed
         number where the value is held whole; a middle part is exact modulo its width, which
         is all a narrower top part needs)."""
-        value, is_top, beyond = self._raw(index, j, stage)
+        value, _, beyond = self._raw(index, j, stage)
         if beyond:
-            return value[-1].as_signed() if value.shape().signed else Const(0, 1)
+            return self._fill(value).as_signed() if value.shape().signed else Const(0, 1)
         return value
 
     def complement(self, index, j, stage, top):
@@ -373,22 +377,25 @@ def _build_split_tree(m, stages, analysis, features, split_bits, skew):
         # right possibly the bias constant.)
         minuend, subtrahend = (0, 1) if kind in ("add", "sub") else (1, 0)
         carry = Const(int(kind != "add"), 1)
+
+        def operand(position, j, at, is_top):
+            child = node.children[position]
+            if kind != "add" and position == subtrahend:
+                return view.complement(child, j, at, is_top)
+            return view.top(child, j, at) if is_top else view.middle(child, j, at)
+
         for j in range(count):
             at = stage + j * skew
             is_top = j == count - 1
             shift = j * split_bits
-            operands = []
-            for position in range(2):
-                if position == 1 and constant is not None:
-                    operands.append(Const(constant >> shift) if is_top else
-                                    Const((constant >> shift) % (1 << split_bits), split_bits))
-                    continue
-                child = node.children[position]
-                if kind != "add" and position == subtrahend:
-                    operands.append(view.complement(child, j, at, is_top))
-                else:
-                    operands.append(view.top(child, j, at) if is_top
-                                    else view.middle(child, j, at))
+            left = operand(0, j, at, is_top)
+            if constant is None:
+                right = operand(1, j, at, is_top)
+            elif is_top:
+                right = Const(constant >> shift)
+            else:
+                right = Const((constant >> shift) % (1 << split_bits), split_bits)
+            operands = [left, right]
             total = operands[minuend] + operands[subtrahend] + carry
             if is_top:
                 width = node.bits - shift
@@ -509,6 +516,8 @@ class ThresholdUnit(_Common, wiring.Component):
 
     def __init__(self, config):
         self._analysis = self._setup(config, analyse, lambda plan: plan.final_level)
+        bits = config.split_bits
+        self._split_parts = {} if bits is None else _split_parts(self._analysis, bits)
         scores = [("score", self._analysis.score_bits)] if self._analysis.has_score else []
         super().__init__(wiring.Signature(_members(config.model, 1, scores, config)))
 
@@ -523,18 +532,25 @@ class ThresholdUnit(_Common, wiring.Component):
     @property
     def split_parts(self):
         """With split adders, the part count of every split adder (empty: nothing split)."""
-        bits = self._config.split_bits
-        return {} if bits is None else _split_parts(self._analysis, bits)
+        return dict(self._split_parts)
+
+    @property
+    def _result(self):
+        """The node the decision reads: the score (also with loadable weights, whose bias is
+        not a constant to compare with), else the tree's root; None when every weight is 0."""
+        analysis = self._analysis
+        if analysis.score_node is None:
+            return None
+        if analysis.has_score or analysis.loadable:
+            return analysis.nodes[analysis.score_node]
+        return analysis.nodes[analysis.tree_root]
 
     @property
     def result_parts(self):
         """Parts of the result (the score, else the tree's root): the outputs come
         ``carry_registers`` stages later for each part past the first."""
-        analysis = self._analysis
-        if analysis.score_node is None:
-            return 1
-        result = analysis.score_node if analysis.has_score else analysis.tree_root
-        return self.split_parts.get(analysis.nodes[result].name, 1)
+        result = self._result
+        return 1 if result is None else self._split_parts.get(result.name, 1)
 
     @property
     def latency(self):
@@ -542,72 +558,49 @@ class ThresholdUnit(_Common, wiring.Component):
 
     def elaborate(self, platform):
         m = Module()
-        analysis = self._analysis
+        analysis, config = self._analysis, self._config
         advance = _handshake(m, self, self.latency)
         stages = _Stages(m, advance, self._boundaries)
-        if analysis.score_node is None:
+        node = self._result
+        if node is None:
             # Every weight is zero: the outputs are constants, valid whenever a result is.
             m.d.comb += self.y.eq(analysis.bias > 0)
             if analysis.has_score:
                 m.d.comb += self.score.eq(analysis.bias)
             return m
-        if self.split_parts:
-            return self._elaborate_split(m, stages)
-        store = _WeightStore(m, self, self._config) if analysis.loadable else None
-        _build_tree(m, stages, analysis, self.feature_ports,
-                    weights=store and store.weights[0], bias=store and store.biases[0])
-        final_stage = stages.stage_of(analysis.final_level)
-        decision = Signal(name="decision")
-        if analysis.has_score or analysis.loadable:
-            score_node = analysis.nodes[analysis.score_node]
-            score = stages.at(score_node.name, final_stage)
-            if score_node.is_signed:
-                m.d.comb += decision.eq(~score[-1] & score.any())
-            else:
-                m.d.comb += decision.eq(score.any())
+        bits, skew = config.split_bits, config.carry_registers
+        if self._split_parts:
+            _build_split_tree(m, stages, analysis, self.feature_ports, bits, skew)
         else:
-            root = analysis.nodes[analysis.tree_root]
-            value = stages.at(root.name, final_stage)
-            m.d.comb += decision.eq(_beyond(value, analysis.threshold, root.sign > 0,
-                                            root.lo, root.hi))
-        stages.put("decision", decision, final_stage)
-        m.d.comb += self.y.eq(stages.at("decision", self.latency))
-        if analysis.has_score:
-            m.d.comb += self.score.eq(stages.at(analysis.nodes[analysis.score_node].name,
-                                                self.latency))
-        return m
-
-    def _elaborate_split(self, m, stages):
-        """The decision from the result's parts as they arrive, each compared (or tested for
-        zero) in its own stage, the parts below deciding only where it is equal."""
-        analysis, bits = self._analysis, self._config.split_bits
-        skew = self._config.carry_registers
-        parts = _build_split_tree(m, stages, analysis, self.feature_ports, bits, skew)
-        view = _Parts(m, stages, analysis, parts, bits)
+            store = _WeightStore(m, self, config) if analysis.loadable else None
+            _build_tree(m, stages, analysis, self.feature_ports,
+                        weights=store and store.weights[0], bias=store and store.biases[0])
+        view = _Parts(m, stages, analysis, self._split_parts, bits)
         final_stage = stages.stage_of(analysis.final_level)
-        use_score = analysis.has_score
-        node = analysis.nodes[analysis.score_node if use_score else analysis.tree_root]
         count = self.result_parts
-        if not use_score:
-            # value > threshold (or <), from the top: the highest part that differs decides.
-            threshold = analysis.threshold
+        tests_score = analysis.has_score or analysis.loadable
+        # The decision from the result's parts as they arrive, each compared (or tested for
+        # zero) in its own stage, the parts below deciding only where it is equal.
         below = None      # the decision of the parts below, registered up to this stage
         for j in range(count):
             at = final_stage + j * skew
             is_top = j == count - 1
             part = view.top(node.index, j, at) if is_top else view.middle(node.index, j, at)
-            step = Signal(name=f"decision_p{j}")
-            if use_score:
+            step = Signal(name="decision" if count == 1 else f"decision_p{j}")
+            if tests_score:
                 # the score is positive: nonzero and, at the top, not negative
                 nonzero = part.any() if below is None else below | part.any()
                 m.d.comb += step.eq(~part[-1] & nonzero if is_top and node.is_signed
                                     else nonzero)
             else:
+                # root > threshold (or <), from the top: the highest part that differs decides
                 if is_top:
-                    limit = threshold >> (j * bits)
-                    lo, hi = node.lo >> (j * bits), node.hi >> (j * bits)
+                    limit = analysis.threshold >> (j * bits) if j else analysis.threshold
+                    lo, hi = (node.lo >> (j * bits), node.hi >> (j * bits)) if j \
+                        else (node.lo, node.hi)
                 else:
-                    limit, lo, hi = (threshold >> (j * bits)) % (1 << bits), 0, (1 << bits) - 1
+                    limit, lo, hi = ((analysis.threshold >> (j * bits)) % (1 << bits), 0,
+                                     (1 << bits) - 1)
                 beyond = _beyond(part, limit, node.sign > 0, lo, hi)
                 if below is not None and lo <= limit <= hi:
                     beyond = beyond | ((part == limit) & below)
@@ -615,8 +608,10 @@ class ThresholdUnit(_Common, wiring.Component):
             stages.put(step.name, step, at)
             if not is_top:
                 below = stages.at(step.name, at + skew)
-        m.d.comb += self.y.eq(stages.at(f"decision_p{count - 1}", self.latency))
-        if use_score:
+        m.d.comb += self.y.eq(stages.at(step.name, self.latency))
+        if analysis.has_score and count == 1:
+            m.d.comb += self.score.eq(stages.at(node.name, self.latency))
+        elif analysis.has_score:
             whole = Cat(*[view.middle(node.index, j, self.latency) for j in range(count - 1)],
                         view.top(node.index, count - 1, self.latency))
             score = Signal(signed(analysis.score_bits), name="score_split")

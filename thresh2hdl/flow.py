@@ -380,6 +380,7 @@ def _units_report(model, analyses, component):
         tree["split_bits"] = component.config.split_bits
         tree["carry_registers"] = component.config.carry_registers
         tree["result_parts"] = getattr(component, "result_parts", 1)
+        tree["split_adders"] = len(getattr(component, "split_parts", {}))
         return {"weights": list(first.weights), "bias": first.bias, **common,
                 "score_range": list(first.score_range), "score_bits_min": first.score_bits_min,
                 "score_bits": first.score_bits, "headroom_bits": first.headroom_bits,
@@ -626,6 +627,13 @@ def _load_folder(out_dir):
     component = make_component(UnitConfig(model, pipeline=pipeline, score_bits=score_bits,
                                           arch=arch, split_bits=split_bits,
                                           carry_registers=carry_registers, **loadable))
+    recorded = settings.get("latency_cycles")
+    if recorded is not None and recorded != component.latency:
+        # A folder written by a version that timed the design otherwise (split adders were
+        # two parts before they were N-bit parts): its file would be judged at the wrong cycle.
+        raise InputError(f"latency_cycles is {recorded}, but this version builds these settings "
+                         f"with a latency of {component.latency}; rebuild the folder",
+                         source=out_dir / "report.json")
     return out_dir, model, settings, component
 
 

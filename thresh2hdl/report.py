@@ -42,8 +42,9 @@ def summary_lines(report):
         (f"  serial multiply-accumulate: {report.get('beats_per_result')} beats per result; "
          if report["tree"]["arch"] == "serial" else
          f"  adder tree: {report['tree']['levels']} levels, {len(report['tree']['nodes'])} "
-         f"nodes; ") + (f"adders split in {report['tree']['split_bits']}-bit parts; "
-                        if report["tree"].get("split_bits") else "")
+         f"nodes; ") + (f"{report['tree']['split_adders']} adders split in "
+                        f"{report['tree']['split_bits']}-bit parts; "
+                        if report["tree"].get("split_adders") else "")
         + f"latency {report['latency_cycles']} cycle(s)",
         f"  verified in {verification['simulator_version']}: {report['vectors_checked']} vectors over "
         f"{verification['cycles']} cycles, {report['mismatches']} mismatches",

@@ -24,8 +24,11 @@ def _split_text(report):
     tree = report["tree"]
     if not tree.get("split_bits"):
         return None
-    return (f"parts of {tree['split_bits']} bits, {tree['carry_registers']} register(s) on "
-            f"each carry; the result in {tree['result_parts']} part(s)")
+    if not tree.get("split_adders", 1):
+        return f"no adder wider than {tree['split_bits']} bits: none split"
+    return (f"{tree.get('split_adders', 'adders')} adders in parts of {tree['split_bits']} "
+            f"bits, {tree.get('carry_registers', 1)} register(s) on each carry; the result "
+            f"in {tree.get('result_parts', 2)} part(s)")
 
 
 def _table(headers, rows):
