@@ -168,8 +168,11 @@ def compiled_harness(verilog_text, ports, module, *, progress=None):
         (work / "harness.cpp").write_text(harness)
         (work / "wrapper.v").write_text(wrapper)
         if progress:
-            progress("compiling the Verilator harness (once per design, ~10-25 s)")
-        command = [verilator, "--cc", "--exe", "--build", "-O3", "--x-assign", "fast",
+            progress("compiling the Verilator harness (once per design, ~5-25 s)")
+        # -j: make compiles the model's and the runtime's files on every core (measured once
+        # here on 2 cores: 8.7 s to 5.2 s for a small design).
+        command = [verilator, "--cc", "--exe", "--build", "-j", str(os.cpu_count() or 1),
+                   "-O3", "--x-assign", "fast",
                    "--x-initial", "fast", "--Mdir", "obj", "-Wno-fatal", "--top-module",
                    wrapper_name(module), "-CFLAGS", "-O2", f"{module}.v", "wrapper.v",
                    "harness.cpp", "-o", f"V{module}"]
