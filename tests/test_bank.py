@@ -103,7 +103,7 @@ def test_random_banks_agree_with_reference_in_amaranth(case):
 
 @pytest.mark.verilator
 @pytest.mark.icarus
-@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=6, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(case=banks)
 def test_random_banks_lint_clean_and_agree_in_icarus_and_verilator(tmp_path_factory, case):
     require_tool("verilator", "g++", "iverilog", "vvp")
