@@ -291,7 +291,7 @@ class _Parts:
             own = min(j, count - 1)
             return self.stages.at(f"{node.name}_p{own}", stage), own == count - 1, own < j
         value = self.stages.at(node.name, stage)
-        low = j * self.bits if j else 0
+        low = j * self.bits
         if low >= len(value):
             return value, True, True
         high = value[low:]
@@ -341,15 +341,14 @@ class _Parts:
         return self.stages.at(name, stage)
 
 
-def _build_split_tree(m, stages, analysis, features, split_bits, skew):
+def _build_split_tree(m, stages, analysis, features, parts, split_bits, skew):
     """As :func:`_build_tree`, but an adder wider than ``split_bits`` is a row of adders,
     one per ``split_bits``-wide part: part ``j`` adds the operands' parts ``j`` and the carry
     of part ``j - 1``, ``skew`` register stages after it (the carry crosses ``skew``
     registers, so that the placer can keep each piece of its route short). Part ``j`` of the
     whole tree runs ``j * skew`` stages behind part 0, so no carry chain is longer than
     ``split_bits``.
-    Returns the part counts (:func:`_split_parts`)."""
-    parts = _split_parts(analysis, split_bits)
+    ``parts``: the part counts (:func:`_split_parts`)."""
     view = _Parts(m, stages, analysis, parts, split_bits)
     for node in analysis.nodes:
         stage = stages.stage_of(node.level)
@@ -412,7 +411,6 @@ def _build_split_tree(m, stages, analysis, features, split_bits, skew):
             stages.put(part.name, part, at)
             stages.put(carried.name, carried, at)
             carry = stages.at(carried.name, at + skew)
-    return parts
 
 
 def _beyond(value, limit, greater, lo, hi):
@@ -568,9 +566,10 @@ class ThresholdUnit(_Common, wiring.Component):
             if analysis.has_score:
                 m.d.comb += self.score.eq(analysis.bias)
             return m
-        bits, skew = config.split_bits, config.carry_registers
+        bits, skew = config.split_bits or 0, config.carry_registers   # 0: nothing split
         if self._split_parts:
-            _build_split_tree(m, stages, analysis, self.feature_ports, bits, skew)
+            _build_split_tree(m, stages, analysis, self.feature_ports, self._split_parts,
+                              bits, skew)
         else:
             store = _WeightStore(m, self, config) if analysis.loadable else None
             _build_tree(m, stages, analysis, self.feature_ports,
@@ -595,9 +594,8 @@ class ThresholdUnit(_Common, wiring.Component):
             else:
                 # root > threshold (or <), from the top: the highest part that differs decides
                 if is_top:
-                    limit = analysis.threshold >> (j * bits) if j else analysis.threshold
-                    lo, hi = (node.lo >> (j * bits), node.hi >> (j * bits)) if j \
-                        else (node.lo, node.hi)
+                    limit = analysis.threshold >> (j * bits)
+                    lo, hi = node.lo >> (j * bits), node.hi >> (j * bits)
                 else:
                     limit, lo, hi = ((analysis.threshold >> (j * bits)) % (1 << bits), 0,
                                      (1 << bits) - 1)
