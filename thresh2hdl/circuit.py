@@ -17,7 +17,8 @@ from amaranth.lib.wiring import In, Out
 
 from .errors import InputError
 from .model import Model
-from .ranges import ARCHITECTURES, analyse, analyse_bank, signed_bits
+from .guard import resolve_guard
+from .ranges import ARCHITECTURES, analyse, analyse_bank, signed_bits, value_bits
 
 __all__ = ["UnitConfig", "ThresholdUnit", "ThresholdBank", "SerialThreshold",
            "make_component", "sample_shape", "weight_addresses"]
@@ -41,6 +42,8 @@ class UnitConfig:
     split_bits: int | None = None    # adders wider than this are split into parts this wide,
                                      # each part later than the one below (shorter carry chains)
     carry_registers: int = 1         # registers on each carry from one part to the next
+    clamp: bool | None = None        # the input guard (guard.py): clamp codes outside the
+    range_flag: bool | None = None   # declared ranges, and/or flag them; None: the default
 
     def __post_init__(self):
         if not isinstance(self.model, Model):
@@ -110,8 +113,17 @@ class UnitConfig:
         if self.carry_registers != 1 and self.split_bits is None:
             raise InputError("applies only to split adders (--split-adders)",
                              field="--carry-registers")
+        for key in ("clamp", "range_flag"):
+            if getattr(self, key) is not None and not isinstance(getattr(self, key), bool):
+                raise InputError(f"must be True, False or None, not {getattr(self, key)!r}",
+                                 field=key)
+        guard = resolve_guard(self.model, clamp=self.clamp, flag=self.range_flag,
+                              code_ranges=self._code_ranges())
+        object.__setattr__(self, "clamp", guard.clamp)
+        object.__setattr__(self, "range_flag", guard.flag)
         self.model.check_optional_ports(
-            (["sample"] if self.arch == "serial" else [])
+            (["out_of_range"] if self.range_flag else [])
+            + (["sample"] if self.arch == "serial" else [])
             + (["weight_write", "weight_address", "weight_data"] if self.loadable_weights
                else []))
         if self.arch == "serial" and len(self.model.features) > MAX_SERIAL_FEATURES:
@@ -122,6 +134,23 @@ class UnitConfig:
             raise InputError(f"the serial architecture has exactly one register stage (the "
                              f"accumulator and its result), so it must be 1, not "
                              f"{self.pipeline}", field="pipeline")
+
+
+    def _code_ranges(self):
+        """What the port carrying each feature can hold: its own format, or (serial) the
+        one sample bus."""
+        if self.arch != "serial":
+            return None
+        shape = sample_shape(self.model)
+        lo = -(1 << (shape.width - 1)) if shape.signed else 0
+        hi = (1 << (shape.width - 1)) - 1 if shape.signed else (1 << shape.width) - 1
+        return ((lo, hi),) * len(self.model.features)
+
+    @property
+    def guard(self):
+        """The input guard as resolved for this design (see :mod:`thresh2hdl.guard`)."""
+        return resolve_guard(self.model, clamp=self.clamp, flag=self.range_flag,
+                             code_ranges=self._code_ranges())
 
 
 def _declared(bits):
@@ -464,8 +493,49 @@ def _members(model, decision_bits, scores, config):
     members.update({f"x{index}": In(signed(f.bits) if f.signed else unsigned(f.bits))
                     for index, f in enumerate(model.features)})
     members.update({"out_valid": Out(1), "out_ready": In(1), "y": Out(decision_bits)})
+    members.update(_flag_member(config))
     members.update({name: Out(signed(bits)) for name, bits in scores})
     return members
+
+
+def _flag_member(config):
+    return {"out_of_range": Out(1)} if config.range_flag else {}
+
+
+def _guard_inputs(m, stages, features, config):
+    """The features as the arithmetic sees them (clamped to the declared ranges where the
+    guard clamps) and the out-of-range flag put into ``stages`` as ``guard_flag`` (stage 0),
+    when the design has one."""
+    guard = config.guard
+    guarded, outside = [], []
+    for index, (port, feature) in enumerate(zip(features, config.model.features)):
+        (lo, hi), (code_lo, code_hi) = guard.feature_ranges[index], guard.code_ranges[index]
+        below = above = None
+        if lo > code_lo:
+            below = Signal(name=f"{feature.name}_below")
+            m.d.comb += below.eq(port < lo)
+        if hi < code_hi:
+            above = Signal(name=f"{feature.name}_above")
+            m.d.comb += above.eq(port > hi)
+        outside += [test for test in (below, above) if test is not None]
+        if not guard.clamp or (below is None and above is None):
+            guarded.append(port)
+            continue
+        bits, is_signed = value_bits(lo, hi)
+        value = Signal(signed(bits) if is_signed else unsigned(bits),
+                       name=f"{feature.name}_clamped")
+        clamped = port
+        if above is not None:
+            clamped = Mux(above, hi, clamped)
+        if below is not None:
+            clamped = Mux(below, lo, clamped)
+        m.d.comb += value.eq(clamped)
+        guarded.append(value)
+    if config.range_flag:
+        flag = Signal(name="guard_flag")
+        m.d.comb += flag.eq(Cat(*outside).any() if outside else 0)
+        stages.put(flag.name, flag, 0)
+    return guarded
 
 
 class _Common:
@@ -559,6 +629,9 @@ class ThresholdUnit(_Common, wiring.Component):
         analysis, config = self._analysis, self._config
         advance = _handshake(m, self, self.latency)
         stages = _Stages(m, advance, self._boundaries)
+        features = _guard_inputs(m, stages, self.feature_ports, config)
+        if config.range_flag:
+            m.d.comb += self.out_of_range.eq(stages.at("guard_flag", self.latency))
         node = self._result
         if node is None:
             # Every weight is zero: the outputs are constants, valid whenever a result is.
@@ -568,11 +641,10 @@ class ThresholdUnit(_Common, wiring.Component):
             return m
         bits, skew = config.split_bits or 0, config.carry_registers   # 0: nothing split
         if self._split_parts:
-            _build_split_tree(m, stages, analysis, self.feature_ports, self._split_parts,
-                              bits, skew)
+            _build_split_tree(m, stages, analysis, features, self._split_parts, bits, skew)
         else:
             store = _WeightStore(m, self, config) if analysis.loadable else None
-            _build_tree(m, stages, analysis, self.feature_ports,
+            _build_tree(m, stages, analysis, features,
                         weights=store and store.weights[0], bias=store and store.biases[0])
         view = _Parts(m, stages, analysis, self._split_parts, bits)
         final_stage = stages.stage_of(analysis.final_level)
@@ -653,12 +725,15 @@ class ThresholdBank(_Common, wiring.Component):
         plan = self._plan
         advance = _handshake(m, self, self.latency)
         stages = _Stages(m, advance, self._boundaries)
+        features = _guard_inputs(m, stages, self.feature_ports, self._config)
+        if self._config.range_flag:
+            m.d.comb += self.out_of_range.eq(stages.at("guard_flag", self.latency))
         scores = []
         store = _WeightStore(m, self, self._config) if self._config.loadable_weights else None
         for index, analysis in enumerate(plan.units):
             prefix = f"u{index}_"
             if store is not None:
-                _build_tree(m, stages, analysis, self.feature_ports, prefix,
+                _build_tree(m, stages, analysis, features, prefix,
                             store.weights[index], store.biases[index])
                 scores.append(prefix + analysis.nodes[analysis.score_node].name)
                 continue
@@ -668,7 +743,7 @@ class ThresholdBank(_Common, wiring.Component):
                 stages.put(value.name, value, 0)
                 scores.append(value.name)
                 continue
-            _build_tree(m, stages, analysis, self.feature_ports, prefix)
+            _build_tree(m, stages, analysis, features, prefix)
             scores.append(prefix + analysis.nodes[analysis.score_node].name)
         # Argmax: a tree of comparisons; the left (lower index) wins ties.
         def merge(level, name, left_entry, right_entry):
@@ -744,6 +819,7 @@ class SerialThreshold(_Common, wiring.Component):
         members = {"in_valid": In(1), "in_ready": Out(1), **_write_members(config),
                    "x": In(sample_shape(model)),
                    "out_valid": Out(1), "out_ready": In(1), "y": Out(decision_bits)}
+        members.update(_flag_member(config))
         members.update({name: Out(signed(bits)) for name, bits in scores})
         super().__init__(wiring.Signature(members))
 
@@ -773,7 +849,49 @@ class SerialThreshold(_Common, wiring.Component):
             return [self.score]
         return [getattr(self, f"score{i}") for i in range(len(self._units))]
 
-    def _constant_mac(self, m, analysis, prefix, beat, start, total):
+    def _guard_sample(self, m, beat, first, last, finish, transfer):
+        """The sample as the arithmetic sees it (clamped to this beat's feature's declared
+        range where the guard clamps) and the flag of the result: set when any beat of the
+        input was outside its range, registered with the result."""
+        guard, count = self._config.guard, self.beats
+        if not guard.needed:
+            if self._config.range_flag:
+                m.d.comb += self.out_of_range.eq(0)
+            return self.x
+
+        def by_beat(values):
+            chosen = Const(values[-1], self.x.shape())
+            for k in range(count - 2, -1, -1):
+                chosen = Mux(beat == k, values[k], chosen)
+            return chosen
+
+        los = [lo for lo, _ in guard.feature_ranges]
+        his = [hi for _, hi in guard.feature_ranges]
+        lo_now, hi_now = Signal(self.x.shape(), name="range_lo"), \
+            Signal(self.x.shape(), name="range_hi")
+        m.d.comb += [lo_now.eq(by_beat(los)), hi_now.eq(by_beat(his))]
+        below, above = Signal(name="below_range"), Signal(name="above_range")
+        m.d.comb += [below.eq(self.x < lo_now), above.eq(self.x > hi_now)]
+        sample = self.x
+        if guard.clamp:
+            sample = Signal(self.x.shape(), name="sample_clamped")
+            m.d.comb += sample.eq(Mux(below, lo_now, Mux(above, hi_now, self.x)))
+        if self._config.range_flag:
+            seen = Signal(name="outside_seen") if count > 1 else None
+            now = Signal(name="outside_now")
+            if count > 1:
+                m.d.comb += now.eq(below | above | (seen & ~first))
+                with m.If(transfer & ~last):
+                    m.d.sync += seen.eq(now)
+            else:
+                m.d.comb += now.eq(below | above)
+            flag = Signal(name="guard_flag_r1", reset_less=True)
+            with m.If(finish):
+                m.d.sync += flag.eq(now)
+            m.d.comb += self.out_of_range.eq(flag)
+        return sample
+
+    def _constant_mac(self, m, analysis, prefix, beat, start, total, sample):
         """``total = start + w[beat] * x`` for the trained weights."""
         node, count = analysis.node, self.beats
         # The weight's magnitude multiplies, its sign picks add or subtract: a
@@ -796,7 +914,7 @@ class SerialThreshold(_Common, wiring.Component):
         extended = product if product.shape().signed else \
             Cat(product, Const(0, 1)).as_signed()
         m.d.comb += [magnitude.eq(magnitude_of), subtract.eq(subtract_of),
-                     product.eq(self.x * magnitude),
+                     product.eq(sample * magnitude),
                      total.eq(start + Mux(subtract, ~extended, extended) + subtract)]
 
     def elaborate(self, platform):
@@ -820,6 +938,7 @@ class SerialThreshold(_Common, wiring.Component):
         m.d.comb += finish.eq(transfer & last)
         with m.If(advance):
             m.d.sync += out_valid.eq(finish)
+        sample = self._guard_sample(m, beat, first, last, finish, transfer)
         scores = []
         store = _WeightStore(m, self, self._config) if self._config.loadable_weights else None
         for index, analysis in enumerate(self._units):
@@ -835,12 +954,12 @@ class SerialThreshold(_Common, wiring.Component):
                 for k in range(count - 2, -1, -1):
                     choice = Mux(beat == k, registers[k], choice)
                 product = Signal(_shape(node("product")), name=prefix + "product")
-                m.d.comb += [weight.eq(choice), product.eq(self.x * weight),
+                m.d.comb += [weight.eq(choice), product.eq(sample * weight),
                              total.eq(start + product)]
                 bias = store.biases[index]
             else:
                 bias = analysis.bias
-                self._constant_mac(m, analysis, prefix, beat, start, total)
+                self._constant_mac(m, analysis, prefix, beat, start, total, sample)
             if count > 1:
                 held = Signal(_shape(node("accumulator")), name=prefix + "accumulator",
                               reset_less=True)

@@ -54,6 +54,13 @@ def _build_options(command):
         click.option("--bias-bits", type=int, default=None,
                      help="Declared signed width of every loadable bias (default: the fewest "
                      "that hold the trained biases)."),
+        click.option("--clamp/--no-clamp", default=None,
+                     help="Clamp each feature to its declared range before the arithmetic "
+                     "(default: on when some declared range is tighter than its port)."),
+        click.option("--range-flag/--no-range-flag", default=None,
+                     help="An output bit, high with each result whose input had a feature "
+                     "outside its declared range (default: on when some declared range is "
+                     "tighter than its port)."),
         click.option("--vectors", type=int, default=None,
                      help="Random vectors to verify, on top of the corner cases (default: "
                      "1000000 with Verilator, 10000 otherwise)."),
@@ -91,7 +98,8 @@ def _options(kwargs):
                         loadable_weights=kwargs["loadable_weights"],
                         weight_bits=kwargs["weight_bits"], bias_bits=kwargs["bias_bits"],
                         split_bits=kwargs["split_bits"],
-                        carry_registers=kwargs["carry_registers"])
+                        carry_registers=kwargs["carry_registers"], clamp=kwargs["clamp"],
+                        range_flag=kwargs["range_flag"])
 
 
 class _Progress:

@@ -13,7 +13,7 @@ import time
 import tomllib
 from collections import deque
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from importlib import resources
 from importlib.metadata import version
 from pathlib import Path
@@ -27,6 +27,7 @@ from .errors import InputError, MismatchError, ToolError, UndecidedError
 from .model import Model, load_model, model_to_toml, parse_model
 from .ranges import ARCHITECTURES
 from .estimate import estimate_cost
+from .guard import guard_words
 from .proof import DEFAULT_TIMEOUT_S, prove_netlist
 from .outdir import check_output_folder, staged_folder, write_files, write_text
 from .reference import ReferenceModel
@@ -37,7 +38,7 @@ from .stimulus import make_reload_stimulus, make_stimulus
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
 from .testbench import TestbenchFiles, icarus_version, simulate_icarus, write_testbench
 from .verilator import find_verilator, simulate_verilator, verilator_version
-from .verilog import emit_verilog, instance_template, port_table
+from .verilog import emit_verilog, instance_template, port_table, range_comments
 
 __all__ = ["BuildOptions", "BuildResult", "build", "check", "estimate_folder", "prove",
            "CheckResult", "ProofResult", "demo_model", "DEMO_SCENARIO", "SIMULATORS"]
@@ -99,8 +100,9 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
     names = [f.name for f in model.features]
     per_chunk = chunk_vectors(len(names), component.beats)
     first_count = min(count, per_chunk)
+    guard = component.config.guard
     vectors = make_vectors(analysis, random_count=first_count, seed=seed, data=data,
-                           others=unit_analyses(component)[1:])
+                           others=unit_analyses(component)[1:], guard=guard)
     stimulus, reloaded = first_stimulus(component, model, vectors.array, seed=seed,
                                         reload_count=min(2000, max(100, count // 4)))
     exported = stimulus
@@ -131,7 +133,8 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
         size = min(remaining, per_chunk)
         rows = random_vectors(np.random.default_rng([seed, chunk]), analysis.feature_ranges, size)
         return size, make_stimulus(reference, rows, latency=component.latency,
-                                   beats=component.beats, seed=[seed, chunk], stall_vectors=0)
+                                   beats=component.beats, seed=[seed, chunk], stall_vectors=0,
+                                   guard=guard)
 
     # Verilator and Icarus run in processes of their own: up to two chunks are simulated at a
     # time (one per core, while their vectors fit in a few hundred MB) while this thread makes
@@ -170,14 +173,16 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
             checked = result.check(stimulus)
             checked_total += checked.vectors_checked
             mismatches += checked.mismatch_count
-            cycles += stimulus.cycles
             groups[random_group][1] += size
             if checked.mismatches and not first:
+                # Chunks run in order, so the first chunk with a mismatch holds the earliest;
+                # its cycles are counted from the start of the whole run.
                 origin = first_origin if chunk == 0 else (lambda i, k=chunk: (
                     f"{RANDOM_GROUP}, chunk {k}", i))
-                first = tuple(m.describe(stimulus, names, origin) for m in checked.mismatches)
-            if mismatches:
-                break
+                first = tuple(replace(m, cycle=m.cycle + cycles).describe(stimulus, names,
+                                                                          origin)
+                              for m in checked.mismatches)
+            cycles += stimulus.cycles
     finally:
         if pool is not None:
             pool.shutdown(wait=False, cancel_futures=True)
@@ -200,6 +205,7 @@ def first_stimulus(component, model, rows, *, seed=0, reload_count=2000, **optio
     through the port and vectors run with each (see :func:`~thresh2hdl.vectors.reload_sets`).
     Returns the stimulus and the ``(group name, vectors)`` of the reloads."""
     reference = ReferenceModel.from_model(model)
+    options["guard"] = component.config.guard
     stimulus = make_stimulus(reference, rows, latency=component.latency, beats=component.beats,
                              seed=seed, **options)
     if not component.config.loadable_weights:
@@ -251,6 +257,8 @@ class BuildOptions:
     bias_bits: int | None = None     # hold the trained values)
     split_bits: int | None = None    # split adders wider than this (see UnitConfig)
     carry_registers: int = 1         # registers on each carry between split parts
+    clamp: bool | None = None        # the input guard (see thresh2hdl.guard): None takes the
+    range_flag: bool | None = None   # default, both on where a declared range is tighter
 
     def __post_init__(self):
         for key in ("pipeline", "vectors", "seed"):
@@ -407,6 +415,22 @@ def _units_report(model, analyses, component):
             "units": units}
 
 
+def guard_report(component, model, chosen=(None, None)):
+    """The report's account of the input guard: what a code outside its range gives."""
+    guard = component.config.guard
+    explicit = [name for name, value, default in (("clamp", chosen[0], guard.needed),
+                                                  ("flag", chosen[1], guard.needed))
+                if value is not None and value != default]
+    return {"clamp": guard.clamp, "flag": guard.flag, "needed": guard.needed,
+            "flag_port": model.ports.out_of_range if guard.flag else None,
+            "guarded_features": [model.features[i].name for i in guard.tight],
+            "declared_ranges": [list(r) for r in guard.feature_ranges],
+            "port_ranges": [list(r) for r in guard.code_ranges],
+            "every_code_defined": guard.every_code_defined,
+            "changed_from_default": explicit,
+            "statement": guard_words(guard)}
+
+
 def _weight_port_report(component, model):
     config = component.config
     if not config.loadable_weights:
@@ -452,7 +476,8 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         model, pipeline=options.pipeline, score_bits=options.score_bits, arch=options.arch,
         loadable_weights=options.loadable_weights, weight_bits=options.weight_bits,
         bias_bits=options.bias_bits, split_bits=options.split_bits,
-        carry_registers=options.carry_registers))
+        carry_registers=options.carry_registers, clamp=options.clamp,
+        range_flag=options.range_flag))
     analyses = unit_analyses(component)
     analysis = analyses[0]
     lo = min(a.score_range[0] for a in analyses)
@@ -463,7 +488,8 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
               f"// Model sha256 {model_digest(model)}; regenerate from the model file rather "
               f"than editing.",
               f"// Latency {component.latency} cycle(s); score range [{lo}, {hi}] in "
-              f"{max(a.score_bits for a in analyses)} bits.", ""]
+              f"{max(a.score_bits for a in analyses)} bits.", *range_comments(component, model),
+              ""]
     verilog_text = emit_verilog(component, model, header=header)
     verilog_name = f"{model.module}.v"
     timing["verilog_s"] = time.perf_counter() - started
@@ -500,6 +526,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         "register_stages": component.config.pipeline,
         "beats_per_result": component.beats,
         "weight_port": _weight_port_report(component, model),
+        "input_guard": guard_report(component, model, chosen=(options.clamp, options.range_flag)),
         "vectors_checked": verified.vectors_checked,
         "mismatches": verified.mismatches,
         "testbench": {"file": f"{model.module}_tb.v", "command": TestbenchFiles(
@@ -527,9 +554,10 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         write_text(staging / "report.html", report_html(report))
         write_text(staging / "report.md", report_markdown(report))
         exported = verified.exported
-        if len(exported.vectors) > EXPORTED_VECTORS + 4 * len(analysis.weights) + 1100:
+        if len(exported.vectors) > EXPORTED_VECTORS + 8 * len(analysis.weights) + 2200:
             small = make_vectors(analysis, random_count=EXPORTED_VECTORS, seed=options.seed,
-                                 data=None)
+                                 data=None, others=analyses[1:],
+                                 guard=component.config.guard)
             exported, _ = first_stimulus(component, model, small.array, seed=options.seed,
                                          reload_count=200)
         write_testbench(staging, ports, model.module, exported, verilog_name)
@@ -621,6 +649,9 @@ def _load_folder(out_dir):
         port = settings.get("weight_port") or {}
         loadable = {"loadable_weights": bool(port), "weight_bits": port.get("weight_bits"),
                     "bias_bits": port.get("bias_bits")}
+        # A folder from before the input guard was built without one.
+        guard = settings.get("input_guard") or {"clamp": False, "flag": False}
+        loadable.update(clamp=bool(guard["clamp"]), range_flag=bool(guard["flag"]))
     except (OSError, ValueError, KeyError, TypeError) as error:
         raise InputError(f"cannot read the build settings ({type(error).__name__}: {error})",
                          source=out_dir / "report.json") from None
@@ -722,7 +753,8 @@ def _confirm(simulator, component, text, ports, model, vector):
         return None, None
     reference = ReferenceModel.from_model(model)
     stimulus = make_stimulus(reference, np.array([vector], dtype=np.int64),
-                             latency=component.latency, beats=component.beats, stall_vectors=0)
+                             latency=component.latency, beats=component.beats, stall_vectors=0,
+                             guard=component.config.guard)
     result, version_text = run_simulator(simulator, component, text, ports, model.module,
                                          stimulus)
     checked = result.check(stimulus)

@@ -121,6 +121,10 @@ class _Plan:
         for index, analysis in enumerate(units):
             prefix = f"u{index}_" if model.is_bank else ""
             self._unit(analysis, prefix, model.units[index] if model.is_bank else model.unit)
+        self.guard = component.config.guard
+        if self.guard.flag:
+            # The out-of-range flag: made at the inputs (stage 0), carried with the result.
+            self.add(_Value("guard_flag", "flag", (), 0, 0, 1, False))
         self.final_stage = self.stage_of(getattr(component, "plan", component.analysis)
                                          .final_level)
         if model.is_bank:
@@ -333,10 +337,46 @@ class _Query:
             raise _Undecided(f"the netlist has no port {name!r}")
         return name, signed
 
-    def feature(self, index, state="s0"):
+    def code(self, index, state="s0"):
+        """The code on feature ``index``'s port."""
         name, signed = self.port(f"x{index}")
         return self.define(f"x{index} {state}", self._sort(),
                            self.wide(name, state, signed))
+
+    def feature(self, index, state="s0"):
+        """The feature as the arithmetic must see it: the code, clamped to its declared
+        range where the input guard clamps."""
+        code = self.code(index, state)
+        guard = self.plan.guard
+        if not guard.clamp or index not in guard.tight:
+            return code
+        (lo, hi), w = guard.feature_ranges[index], self.width
+        return self.define(f"clamped x{index} {state}", self._sort(),
+                           f"(ite (bvslt {code} {_bv(lo, w)}) {_bv(lo, w)} "
+                           f"(ite (bvsgt {code} {_bv(hi, w)}) {_bv(hi, w)} {code}))")
+
+    def outside(self, state="s0"):
+        """Bool: some feature's code lies outside its declared range."""
+        guard, w, tests = self.plan.guard, self.width, []
+        for index in guard.tight:
+            (lo, hi), (code_lo, code_hi) = guard.feature_ranges[index], guard.code_ranges[index]
+            x = self.code(index, state)
+            if lo > code_lo:
+                tests.append(f"(bvslt {x} {_bv(lo, w)})")
+            if hi < code_hi:
+                tests.append(f"(bvsgt {x} {_bv(hi, w)})")
+        return f"(or false {' '.join(tests)})" if tests else "false"
+
+    def input_ranges(self, state="s0"):
+        """Assumptions on the inputs: inside the declared ranges, unless the guard clamps
+        (then every code the ports can carry is covered)."""
+        if self.plan.guard.clamp:
+            return []
+        w, out = self.width, []
+        for index, (lo, hi) in enumerate(self.plan.ranges):
+            x = self.code(index, state)
+            out += [f"(bvsle {_bv(lo, w)} {x})", f"(bvsle {x} {_bv(hi, w)})"]
+        return out
 
     def _sort(self):
         return f"(_ BitVec {self.width})"
@@ -411,6 +451,8 @@ class _Query:
             expr = f"(bvmul {self.feature(value.feature, state)} {_bv(value.magnitude, w)})"
         elif value.kind == "const":
             expr = _bv(value.constant, w)
+        elif value.kind == "flag":
+            expr = f"(ite {self.outside(state)} {_bv(1, w)} {_bv(0, w)})"
         elif value.kind in ("add", "sub", "rsub"):
             a, b = (operand(o) for o in value.operands)
             expr = {"add": f"(bvadd {a} {b})", "sub": f"(bvsub {a} {b})",
@@ -463,9 +505,7 @@ def _lemmas(plan, query, model):
     """The lemmas (label, Bool) and assumptions of the whole design, per stage."""
     net, latency, w = query.net, plan.latency, query.width
     lemmas, assumptions, needed = [], [], set()
-    for index, (lo, hi) in enumerate(plan.ranges):
-        x = query.feature(index)
-        assumptions += [f"(bvsle {_bv(lo, w)} {x})", f"(bvsle {x} {_bv(hi, w)})"]
+    inputs = query.input_ranges()
     for name, value in plan.values.items():
         if net.has(name) and not query.pure:
             bits = net.widths[name]
@@ -481,6 +521,8 @@ def _lemmas(plan, query, model):
         decided = f"(ite (bvsgt {score} {_bv(0, w)}) {_bv(1, w)} {_bv(0, w)})"
         scores = [score]
     outputs = [("y", decided)]
+    if plan.guard.flag:
+        outputs.append(("out_of_range", query.known("guard_flag", final, w, needed=needed)))
     if model.ports.has_score:
         outputs += [("score" if not model.is_bank else f"score{u}", s)
                     for u, s in enumerate(scores)]
@@ -494,7 +536,7 @@ def _lemmas(plan, query, model):
         for internal, expected in outputs:
             port, signed = query.port(internal)
             lemmas.append((port, f"(= {query.wide(port, 's0', signed)} {expected})"))
-        return lemmas, assumptions + query.assumptions
+        return lemmas, assumptions + query.assumptions, inputs
     rst = _bool(net, query.ports["rst"][0], "s0")
     lemmas.append(("in_ready", f"(= {in_ready} (or {out_ready} (not {out_valid})))"))
     valid = [in_valid]
@@ -538,7 +580,7 @@ def _lemmas(plan, query, model):
             now = query.known(name, stage, w)
             assumptions.append(f"(=> {valid_now(stage)} (and (bvsle {_bv(value.lo, w)} {now}) "
                                f"(bvsle {now} {_bv(value.hi, w)})))")
-    return lemmas, assumptions + query.assumptions
+    return lemmas, assumptions + query.assumptions, inputs
 
 
 def proof_tools():
@@ -743,12 +785,20 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
             netlist.cut({name for name in plan.closed
                          if netlist.has(name) and query.holds_exactly(name, name)})
             try:
-                lemmas, assumptions = _lemmas(plan, query, model)
+                lemmas, assumptions, inputs = _lemmas(plan, query, model)
             except _Undecided as why:
                 return outcome("undecided", str(why))
             states = ["s0", "s1"] if plan.latency else ["s0"]
             common = [netlist.text, *_header(query, states), *query.lines]
             common += [f"(assert {a})" for a in assumptions]
+            # With the flag alone (no clamp), results are stated for inputs in range only,
+            # but the flag for every code: its lemmas are checked without the input ranges.
+            flag_labels = {"guard_flag", ports["out_of_range"][0]} if "out_of_range" in ports \
+                else set()
+            free = [l for l in lemmas if l[0] in flag_labels or l[0].startswith("guard_flag_r")]
+            groups = [("\n".join(common + [f"(assert {a})" for a in inputs]),
+                       [l for l in lemmas if l not in free]), ("\n".join(common), free)]
+            common += [f"(assert {a})" for a in inputs]
             if not ignored:
                 # A proof under assumptions that nothing satisfies would prove anything.
                 alone, _ = _solve(boolector, "\n".join(common), folder, "assumptions.smt2",
@@ -759,14 +809,19 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
                                    else f"no answer within {timeout_s} s")
             if progress is not None:
                 progress(f"solving {len(lemmas)} lemmas with Boolector")
-            answer, failing = _solve_batches(boolector, "\n".join(common), lemmas, folder,
-                                             started + timeout_s)
+            answers = [_solve_batches(boolector, text, group, folder, started + timeout_s)
+                       for text, group in groups if group]
+            failing = [lemma for _, found in answers for lemma in found]
+            kinds = {answer for answer, _ in answers}
+            answer = "sat" if "sat" in kinds else "unknown" if "unknown" in kinds else "unsat"
             skipped = (f"; {len(ignored)} inner wire(s) that do not follow the plan, such as "
                        f"{', '.join(sorted(ignored)[:3])}, were computed from their operands "
                        f"instead") if ignored else ""
             if answer == "unsat":
-                return outcome("proved", f"all {len(lemmas)} lemmas hold for every input in "
-                               f"the declared ranges{skipped}", len(lemmas))
+                covered = "every code the input ports can carry" if plan.guard.clamp else \
+                    "every input in the declared ranges"
+                return outcome("proved", f"all {len(lemmas)} lemmas hold for {covered}"
+                               f"{skipped}", len(lemmas))
             if answer == "unknown":
                 return outcome("undecided", f"no answer within {timeout_s} s{skipped}",
                                len(lemmas), failing)
@@ -807,10 +862,9 @@ def _search(plan, netlist, width, ports, model, folder, boolector, timeout_s):
     w = width
     lines = []
     try:
-        xs = [query.feature(i, "s0") for i in range(len(model.features))]
-        for index, (lo, hi) in enumerate(plan.ranges):
-            lines += [f"(assert (bvsle {_bv(lo, w)} {xs[index]}))",
-                      f"(assert (bvsle {xs[index]} {_bv(hi, w)}))"]
+        xs = [query.code(i, "s0") for i in range(len(model.features))]
+        ranges = query.input_ranges()
+        in_range = f"(and true {' '.join(ranges)})" if ranges else "true"
         lines.append(f"(assert {_bool(netlist, ports['in_valid'][0], 's0')})")
         for s in states:
             lines.append(f"(assert {_bool(netlist, ports['out_ready'][0], s)})")
@@ -833,8 +887,15 @@ def _search(plan, netlist, width, ports, model, folder, boolector, timeout_s):
         for internal, value in expected:
             port, signed = query.port(internal)
             differs.append(f"(distinct {query.wide(port, last, signed)} {value})")
+        # The results are stated for inputs in range (every code, with the clamp); the
+        # out-of-range flag for every code.
+        wrong = f"(and {in_range} (or false {' '.join(differs)}))"
+        if plan.guard.flag:
+            port, _ = query.port("out_of_range")
+            flag = f"(ite {query.outside('s0')} #b1 #b0)"
+            wrong = f"(or {wrong} (distinct {netlist.bits(port, last)} {flag}))"
         valid = _bool(netlist, ports["out_valid"][0], last)
-        lines.append(f"(assert (and {valid} (or false {' '.join(differs)})))")
+        lines.append(f"(assert (and {valid} {wrong}))")
     except _Undecided:
         return None
     text = [netlist.text, *_header(query, states), *query.lines, *lines]

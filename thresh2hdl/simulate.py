@@ -24,10 +24,11 @@ class SimulationResult:
     decisions: np.ndarray
     scores: np.ndarray | None
     run_seconds: float | None = None     # the simulator's own run, without data marshalling
+    flags: np.ndarray | None = None      # the out-of-range output per cycle, if the design has it
 
     def check(self, stimulus, *, limit=10):
         return compare(stimulus, self.in_ready, self.out_valid, self.decisions, self.scores,
-                       limit=limit)
+                       flags=self.flags, limit=limit)
 
 
 def _pack_columns(columns, widths):
@@ -55,7 +56,10 @@ def simulate_amaranth(component, stimulus, *, progress=None):
     widths = [len(signal) for signal in inputs]
     packed = _pack_columns(columns, widths)
     score_ports = component.score_ports
-    outputs = [component.in_ready, component.out_valid, component.y, *score_ports]
+    flag_ports = [component.out_of_range] if "out_of_range" in component.signature.members \
+        else []
+    outputs = [component.in_ready, component.out_valid, component.y, *flag_ports,
+               *score_ports]
     input_bus = Cat(*inputs)
     output_bus = Cat(*outputs)
     decision_bits = len(component.y)
@@ -90,10 +94,11 @@ def simulate_amaranth(component, stimulus, *, progress=None):
     in_ready = (raw & 1).astype(bool)
     out_valid = ((raw >> 1) & 1).astype(bool)
     decisions = ((raw >> 2) & ((1 << decision_bits) - 1)).astype(np.int64)
+    flags = ((raw >> (2 + decision_bits)) & 1).astype(bool) if flag_ports else None
     scores = None
     if score_ports:
         columns = []
-        shift = 2 + decision_bits
+        shift = 2 + decision_bits + len(flag_ports)
         for port in score_ports:
             width = len(port)
             unsigned = (raw >> shift) & ((1 << width) - 1)
@@ -103,4 +108,4 @@ def simulate_amaranth(component, stimulus, *, progress=None):
         scores = np.array(columns, dtype=object).T
         if not component.config.model.is_bank:
             scores = scores[:, 0]
-    return SimulationResult("amaranth", in_ready, out_valid, decisions, scores)
+    return SimulationResult("amaranth", in_ready, out_valid, decisions, scores, flags=flags)

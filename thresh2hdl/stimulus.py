@@ -5,7 +5,7 @@ replays the inputs and records the outputs, and :func:`compare` judges every cyc
 reference. Seeded gaps in ``in_valid`` and stalls on ``out_ready`` exercise the handshake.
 """
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -31,6 +31,8 @@ class Stimulus:
     expect_decisions: np.ndarray
     beats: int = 1             # valid beats per vector: 1, or one per feature (serial)
     writes: tuple | None = None  # loadable weights: per-cycle (strobe, address, data) arrays
+    expect_flags: np.ndarray | None = None  # per vector: the out-of-range flag (None: no flag)
+    flag_masks_results: bool = False  # flag without clamp: a flagged result is not specified
 
     @property
     def cycles(self):
@@ -85,10 +87,12 @@ def _free_flowing(first_index, count, latency, rng, valid_probability, beats=1):
 
 
 def make_stimulus(reference, vectors, *, latency, beats=1, seed=0, valid_probability=0.9,
-                  ready_probability=0.9, stall_vectors=STALL_SEGMENT):
+                  ready_probability=0.9, stall_vectors=STALL_SEGMENT, guard=None):
     """Cycles for every vector: the first ``stall_vectors`` through the full handshake model
     with random gaps and stalls, the rest with gaps only (a long random run). ``beats``: valid
-    beats per vector (a component's ``beats``: one per feature for the serial architecture)."""
+    beats per vector (a component's ``beats``: one per feature for the serial architecture).
+    ``guard``: the design's :class:`~thresh2hdl.guard.InputGuard`, which says what a code
+    outside the declared ranges gives."""
     vectors = np.asarray(vectors, dtype=np.int64)
     rng = np.random.default_rng(seed)
     chunk = 4096
@@ -109,13 +113,28 @@ def make_stimulus(reference, vectors, *, latency, beats=1, seed=0, valid_probabi
                                       valid_probability, beats))
     trace = {key: np.concatenate([segment[key] for segment in segments])
              for key in segments[0]}
-    scores = reference.scores(vectors)
+    scores = reference.scores(_arithmetic_codes(vectors, guard))
+    flags = guard.outside(vectors) if guard is not None and guard.flag else None
     return Stimulus(latency=latency, vectors=vectors, in_valid=trace["in_valid"],
                     out_ready=trace["out_ready"], in_index=trace["in_index"],
                     expect_in_ready=trace["in_ready"], expect_out_valid=trace["out_valid"],
                     expect_out_index=trace["out_index"],
                     expect_scores=scores, expect_decisions=reference.decide(scores),
-                    beats=beats)
+                    beats=beats, expect_flags=flags,
+                    flag_masks_results=_masks(guard))
+
+
+def _arithmetic_codes(vectors, guard):
+    """The codes whose model the results must equal: clamped where the guard clamps. With the
+    flag alone a flagged result is not specified, and its expectation (never compared) is
+    taken on clamped codes too, so that the reference stays within its exact range."""
+    if guard is None or not guard.needed:
+        return vectors
+    return replace(guard, clamp=True).apply(vectors)
+
+
+def _masks(guard):
+    return guard is not None and guard.flag and not guard.clamp and guard.needed
 
 
 def write_columns(stimulus):
@@ -155,7 +174,9 @@ def make_reload_stimulus(first, reloads, *, latency, beats=1, seed=0, **options)
                               expect_in_ready=~idle, expect_out_valid=idle,
                               expect_out_index=np.full(count, -1, np.int64),
                               expect_scores=first.expect_scores[:0],
-                              expect_decisions=first.expect_decisions[:0], beats=beats))
+                              expect_decisions=first.expect_decisions[:0], beats=beats,
+                              expect_flags=None if first.expect_flags is None
+                              else first.expect_flags[:0]))
         strobes.append(np.ones(count, dtype=np.int64))
         addresses.append(np.array([a for a, _ in writes], dtype=np.int64))
         data.append(np.array([v for _, v in writes], dtype=object))
@@ -184,7 +205,10 @@ def make_reload_stimulus(first, reloads, *, latency, beats=1, seed=0, **options)
         expect_scores=np.concatenate(scores),
         expect_decisions=np.concatenate([p.expect_decisions for p in parts]),
         beats=beats, writes=(np.concatenate(strobes), np.concatenate(addresses),
-                             np.concatenate(data)))
+                             np.concatenate(data)),
+        expect_flags=None if first.expect_flags is None
+        else np.concatenate([p.expect_flags for p in parts]),
+        flag_masks_results=first.flag_masks_results)
 
 
 @dataclass(frozen=True)
@@ -214,18 +238,21 @@ class CompareResult:
     vectors_checked: int    # vectors that came out and were compared
 
 
-def compare(stimulus, in_ready, out_valid, decisions, scores, *, limit=10):
+def compare(stimulus, in_ready, out_valid, decisions, scores, *, flags=None, limit=10):
     """Every cycle's handshake outputs, and the results of every valid output cycle.
 
-    ``scores`` may be None when the design has no score port.
+    ``scores`` may be None when the design has no score port; ``flags`` (the out-of-range
+    output per cycle) is compared when the stimulus expects one. The mismatches kept are the
+    earliest ``limit`` over every output, in cycle order.
     """
     mismatches = []
     total = 0
 
     def note(cycles, signal, expected, got, index):
+        # Each output's earliest ``limit``: the earliest ``limit`` of all are among them.
         nonlocal total
         total += len(cycles)
-        for t in cycles[: limit - len(mismatches)]:
+        for t in cycles[:limit]:
             value = got[t]
             mismatches.append(Mismatch(int(t), signal, int(expected[t]),
                                        None if value is None else int(value), int(index[t])))
@@ -238,6 +265,14 @@ def compare(stimulus, in_ready, out_valid, decisions, scores, *, limit=10):
     note(np.flatnonzero(out_valid != stimulus.expect_out_valid), "out_valid",
          stimulus.expect_out_valid, out_valid, index)
     shown = np.flatnonzero(stimulus.expect_out_valid & out_valid)
+    if stimulus.expect_flags is not None:
+        expected_f = np.zeros(stimulus.cycles, dtype=np.int64)
+        expected_f[shown] = stimulus.expect_flags[index[shown]]
+        got_f = np.asarray(flags).astype(np.int64)
+        note(shown[got_f[shown] != expected_f[shown]], "out_of_range", expected_f, got_f,
+             index)
+        if stimulus.flag_masks_results:
+            shown = shown[expected_f[shown] == 0]
     expected_y = np.zeros(stimulus.cycles, dtype=np.int64)
     expected_y[shown] = stimulus.expect_decisions[index[shown]]
     got_y = np.asarray(decisions).astype(np.int64)

@@ -64,8 +64,10 @@ def _pad(expression, width):
     return expression if width == 128 else f"{{{128 - width}'d0, {expression}}}"
 
 
-def testbench_text(ports, module, cycles, files, verilog_name):
-    """Testbench source for a module with ``ports`` (from :func:`thresh2hdl.verilog.port_table`)."""
+def testbench_text(ports, module, cycles, files, verilog_name, flag_masks_results=False):
+    """Testbench source for a module with ``ports`` (from :func:`thresh2hdl.verilog.port_table`).
+    ``flag_masks_results``: the decision and scores of a flagged result are not specified (an
+    out-of-range flag without a clamp), so they are compared only where the flag is low."""
     by_role = {internal: (name, width, signed) for internal, name, _, width, signed in ports}
     features = [(name, width) for internal, name, _, width, _ in ports if internal.startswith("x")]
     scores = _score_ports(ports)
@@ -83,21 +85,27 @@ def testbench_text(ports, module, cycles, files, verilog_name):
                             + [f"tb_{n}" for n, _ in reversed(features)])
     stim_bits = 2 + sum(w for _, w in features) + sum(w for _, w in writes)
     decision_bits = by_role["y"][1]
-    # Expected word, low bits first: in_ready, out_valid, decision, then each score.
+    # Expected word, low bits first: in_ready, out_valid, decision, the out-of-range flag
+    # (when the design has one), then each score.
+    flag = [("range flag", tb("out_of_range"), 1)] if "out_of_range" in by_role else []
     fields = [("in_ready", tb("in_ready"), 1), ("out_valid", tb("out_valid"), 1),
-              ("decision", tb("y"), decision_bits)] + \
+              ("decision", tb("y"), decision_bits)] + flag + \
         [(f"score {name}" if len(scores) > 1 else "score", f"tb_{name}", width)
          for name, width in scores]
+    flag_bit = 2 + decision_bits
     checks, offset = [], 0
     for position, (label, signal, width) in enumerate(fields):
         want = f"want[{offset + width - 1}:{offset}]" if width > 1 else f"want[{offset}]"
         test = (f"if ({signal} !== {want})\n"
                 f"  report_mismatch(\"{label[:10]}\", {_pad(signal, width)}, {_pad(want, width)});")
         if position >= 2:            # results count only while out_valid is expected high
-            test = "if (want[1]) " + test.replace("\n", "\n  ")
+            when = "want[1]"
+            if flag_masks_results and offset != flag_bit:
+                when = f"want[1] && !want[{flag_bit}]"
+            test = f"if ({when}) " + test.replace("\n", "\n  ")
         checks += ["      " + line for line in test.splitlines()]
         offset += width
-    response_format = " ".join(["%b", "%b"] + ["%h"] * (1 + len(scores)))
+    response_format = " ".join(["%b", "%b", "%h"] + ["%b"] * len(flag) + ["%h"] * len(scores))
     response_fields = ", ".join(signal for _, signal, _ in fields)
     values = {
         "MODULE": module, "TB_MODULE": f"{module}_tb", "CYCLES": str(cycles),
@@ -149,13 +157,17 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     decisions = np.where(valid, stimulus.expect_decisions[index], 0)
     columns = [stimulus.expect_in_ready.astype(np.int64), valid.astype(np.int64), decisions]
     widths = [1, 1, decision_bits]
+    if stimulus.expect_flags is not None:
+        columns.append(np.where(valid, stimulus.expect_flags[index], 0).astype(np.int64))
+        widths.append(1)
     expect = stimulus.expect_scores.reshape(len(stimulus.expect_scores), -1)
     for unit, (_, width) in enumerate(scores):
         columns.append(np.where(valid, expect[index, unit], 0))
         widths.append(width)
     write_text(folder / files.expected, _hex_lines(columns, widths))
     write_text(folder / files.testbench,
-               testbench_text(ports, module, stimulus.cycles, files, verilog_name))
+               testbench_text(ports, module, stimulus.cycles, files, verilog_name,
+                              stimulus.flag_masks_results))
     return files
 
 
@@ -206,11 +218,14 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
     out_valid = np.array([row[1] == "1" for row in rows])
     decisions = np.array([-1 if any(c in row[2] for c in "xXzZ") else int(row[2], 16)
                           for row in rows])
+    has_flag = any(internal == "out_of_range" for internal, *_ in ports)
+    flags = np.array([row[3] == "1" for row in rows]) if has_flag else None
+    first_score = 3 + has_flag
     scores = None
     if scores_ports:
-        scores = np.array([[_decode(row[3 + k], width) for k, (_, width) in
+        scores = np.array([[_decode(row[first_score + k], width) for k, (_, width) in
                             enumerate(scores_ports)] for row in rows], dtype=object)
         if len(scores_ports) == 1 and not any(i.startswith("score0") for i, *_ in ports):
             scores = scores[:, 0]
-    result = SimulationResult("icarus", in_ready, out_valid, decisions, scores)
+    result = SimulationResult("icarus", in_ready, out_valid, decisions, scores, flags=flags)
     return result, outputs[-1]

@@ -6,7 +6,8 @@ import numpy as np
 
 from .model import Unit
 
-__all__ = ["VectorSet", "make_vectors", "random_vectors", "reload_sets", "RANDOM_GROUP"]
+__all__ = ["VectorSet", "make_vectors", "outside_vectors", "random_vectors", "reload_sets",
+           "RANDOM_GROUP"]
 
 DEFAULT_RANDOM_VECTORS = 10_000
 RANDOM_GROUP = "random within the declared ranges"
@@ -98,11 +99,32 @@ def _near_threshold(rng, analysis, count):
     return rows
 
 
+OUTSIDE_RANDOM = 1000     # random vectors over every port code, when codes outside matter
+
+
+def outside_vectors(guard, rng, random_count):
+    """Codes outside the declared ranges, for a design whose guard defines them: every
+    feature at 0, at its port's top and bottom, each guarded feature just outside each bound
+    (the others inside), and random codes over every code the ports can carry."""
+    ranges, codes = guard.feature_ranges, guard.code_ranges
+    inside = [lo for lo, _ in ranges]
+    rows = [[0] * len(ranges), [hi for _, hi in codes], [lo for lo, _ in codes]]
+    for i in guard.tight:
+        (lo, hi), (code_lo, code_hi) = ranges[i], codes[i]
+        for value in (lo - 1, hi + 1, code_lo, code_hi):
+            if code_lo <= value <= code_hi and not lo <= value <= hi:
+                row = list(inside)
+                row[i] = value
+                rows.append(row)
+    return rows, _random_within(rng, codes, min(OUTSIDE_RANDOM, random_count))
+
+
 def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=None,
-                 others=()):
+                 others=(), guard=None):
     """Corner vectors (witnesses, all-min, all-max, per-feature extremes), boundary vectors,
     random vectors within the declared ranges, then optional dataset rows. ``others`` are the
-    analyses of a bank's other units, whose witnesses join the corners."""
+    analyses of a bank's other units, whose witnesses join the corners. ``guard``: with an
+    input guard that defines codes outside the declared ranges, such codes join too."""
     ranges = analysis.feature_ranges
     n = len(ranges)
     vectors = VectorSet(n)
@@ -122,8 +144,15 @@ def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=
             row[i] = value
             extremes.append(row)
     vectors.add("one feature at the opposite extreme", extremes)
+    scattered = None
+    if guard is not None and guard.test_outside:
+        corners, scattered = outside_vectors(guard, np.random.default_rng([seed, 11]),
+                                             random_count)
+        vectors.add("codes outside the declared ranges", corners)
     rng = np.random.default_rng(seed)
     vectors.add("near the decision threshold", _near_threshold(rng, analysis, min(1000, random_count)))
+    if scattered is not None:
+        vectors.add("random over every port code", scattered)
     vectors.add(RANDOM_GROUP, _random_within(rng, ranges, random_count))
     if data is not None:
         vectors.add("dataset rows", data)

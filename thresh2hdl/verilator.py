@@ -142,6 +142,8 @@ def harness_text(ports, module):
               "IN_VALID": by_role["in_valid"][0], "OUT_READY": by_role["out_ready"][0],
               "IN_READY": by_role["in_ready"][0], "OUT_VALID": by_role["out_valid"][0],
               "DECISION": by_role["y"][0], "SET_FEATURES": "\n".join(lines),
+              "FLAG": (f" | ((top.{by_role['out_of_range'][0]} & 1) << 15)"
+                       if "out_of_range" in by_role else ""),
               "SCORE_READS": reads, "SCORE_PORTS": str(len(scores)),
               "SET_WRITES": "\n".join(writes), "CONTROL_WORDS": str(control_words(ports))}
     text = resources.files("thresh2hdl.sim").joinpath("verilator_harness.cpp.in").read_text("utf-8")
@@ -252,5 +254,7 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
         scores = (raw << shifts) >> shifts
         if not any(i == "score0" for i, *_ in ports):
             scores = scores[:, 0]
+    has_flag = any(i == "out_of_range" for i, *_ in ports)
     return SimulationResult("verilator", (flags & 1).astype(bool), (flags & 2).astype(bool),
-                            (flags >> 2).astype(np.int64), scores, run_seconds)
+                            ((flags >> 2) & 0x1FFF).astype(np.int64), scores, run_seconds,
+                            flags=(flags >> 15).astype(bool) if has_flag else None)

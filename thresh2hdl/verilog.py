@@ -20,7 +20,7 @@ from amaranth.lib.wiring import In
 from .errors import ToolError
 from .netlist import netlist_of
 
-__all__ = ["write_verilog", "emit_verilog", "instance_template", "port_table"]
+__all__ = ["write_verilog", "emit_verilog", "instance_template", "port_table", "range_comments"]
 
 _BINARY = {"$add": "+", "$sub": "-", "$mul": "*", "$and": "&", "$or": "|", "$xor": "^",
            "$xnor": "~^"}
@@ -314,7 +314,8 @@ def port_table(component, model):
              "in_ready": ports.in_ready, "out_valid": ports.out_valid,
              "out_ready": ports.out_ready, "y": ports.decision, "score": ports.score,
              "x": ports.sample, "weight_write": ports.weight_write,
-             "weight_address": ports.weight_address, "weight_data": ports.weight_data}
+             "weight_address": ports.weight_address, "weight_data": ports.weight_data,
+             "out_of_range": ports.out_of_range}
     for index, feature in enumerate(model.features):
         names[f"x{index}"] = feature.name
     if model.is_bank:
@@ -339,11 +340,35 @@ def emit_verilog(component, model, *, header=()):
                          port_order=[internal for internal, *_ in table], header=header)
 
 
+def range_comments(component, model):
+    """Comment lines stating each feature's declared range and what the input guard does
+    with a code outside it (the Verilog header and the instance template carry them)."""
+    guard = component.config.guard
+    if guard.clamp and guard.flag:
+        outside = f"clamped to the range and flagged on {model.ports.out_of_range}"
+    elif guard.clamp:
+        outside = "clamped to the range"
+    elif guard.flag:
+        outside = (f"flagged on {model.ports.out_of_range}; decision and score not specified "
+                   f"for it")
+    else:
+        outside = "NOT guarded: may overflow and give a wrong decision; keep codes in range"
+    lines = ["// Declared feature ranges (the widths are sized for these):"]
+    for feature, (lo, hi), (code_lo, code_hi) in zip(model.features, guard.feature_ranges,
+                                                     guard.code_ranges):
+        kind = "signed" if feature.signed else "unsigned"
+        note = "the whole port" if (lo, hi) == (code_lo, code_hi) else \
+            f"a code outside it is {outside}"
+        lines.append(f"//   {feature.name}: [{lo}, {hi}] of a {feature.bits}-bit {kind} code; "
+                     f"{note}")
+    return lines
+
+
 def instance_template(component, model):
     """An instantiation of the module, with one wire per port, to paste into a design."""
     table = port_table(component, model)
     lines = [f"// Instantiation of {model.module}: declare the wires, connect them, and drive "
-             f"the inputs.",]
+             f"the inputs.", *range_comments(component, model)]
     for _, name, direction, width, is_signed in table:
         sign = "signed " if is_signed else ""
         lines.append(f"wire {sign}{_range(width)}{model.module}_{name};")
