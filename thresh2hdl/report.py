@@ -49,6 +49,15 @@ def summary_lines(report):
         f"  verified in {verification['simulator_version']}: {report['vectors_checked']} vectors over "
         f"{verification['cycles']} cycles, {report['mismatches']} mismatches",
     ]
+    guard = report.get("input_guard")
+    if guard and guard["needed"]:
+        what = " and ".join(word for word, on in (("clamped", guard["clamp"]),
+                                                  (f"flagged on {guard['flag_port']}",
+                                                   guard["flag"])) if on)
+        lines.append(f"  codes outside the declared ranges of "
+                     f"{', '.join(guard['guarded_features'])}: "
+                     + (f"{what}" if what else "NOT guarded (turned off): results for such "
+                        "codes are not specified"))
     if report.get("data"):
         data = report["data"]
         lines.append(f"  accuracy on {data['file']}: {data['accuracy']:.4f} over {data['rows']} rows")

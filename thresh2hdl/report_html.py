@@ -162,6 +162,7 @@ def report_html(report):
         table = (f"<details><summary>{len(rows) - 1} features x {len(names)} unit(s): show the "
                  f"table</summary><div class=wide>{table}</div></details>")
     out.append(f"<div class=wide>{table}</div>")
+    out.append(_guard_html(report.get("input_guard")))
     out += ["<h2>Sizes</h2>", _table(["", "value"], [
         ["score range", f"[{report['score_range'][0]}, {report['score_range'][1]}]"],
         ["score bits (fewest that fit)", report["score_bits_min"]],
@@ -232,6 +233,25 @@ def report_html(report):
     return "\n".join(out)
 
 
+def _guard_text(guard):
+    port = f" (output {guard['flag_port']})" if guard["flag_port"] else ""
+    return guard["statement"] + port
+
+
+def _guard_html(guard):
+    """What a code outside its declared range gives (older reports have no guard)."""
+    if not guard:
+        return ""
+    css = "ok" if guard["every_code_defined"] else "warn" if guard["flag"] else "bad"
+    rows = [["clamp to the declared range", "yes" if guard["clamp"] else "no"],
+            ["out-of-range output", guard["flag_port"] or "none"],
+            ["features whose range is tighter than their port",
+             ", ".join(guard["guarded_features"]) or "none"]]
+    return "\n".join(["<h3>Codes outside the declared ranges</h3>",
+                      f"<p class={css}>{escape(guard['statement'])}</p>",
+                      _table(["", "value"], rows)])
+
+
 def _proof_html(proof):
     if not proof:
         return "<p>Not run; run <code>thresh2hdl prove</code> on this folder.</p>"
@@ -263,6 +283,8 @@ def report_markdown(report):
              f"| architecture | {report['tree']['arch']} |",
              f"| latency (cycles) | {report['latency_cycles']} |",
              f"| valid beats per result | {report.get('beats_per_result', 1)} |",
+             *([f"| codes outside the declared ranges | {_guard_text(report['input_guard'])} |"]
+               if report.get("input_guard") else []),
              *([f"| split adders | {_split_text(report)} |"] if _split_text(report) else []),
              f"| vectors checked | {report['vectors_checked']} |",
              f"| mismatches | {report['mismatches']} |",

@@ -64,10 +64,12 @@ def _pad(expression, width):
     return expression if width == 128 else f"{{{128 - width}'d0, {expression}}}"
 
 
-def testbench_text(ports, module, cycles, files, verilog_name, flag_masks_results=False):
+def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=False,
+                   flag_masks_results=False):
     """Testbench source for a module with ``ports`` (from :func:`thresh2hdl.verilog.port_table`).
-    ``flag_masks_results``: the decision and scores of a flagged result are not specified (an
-    out-of-range flag without a clamp), so they are compared only where the flag is low."""
+    ``flag_checked``: the expectations hold the out-of-range flag; ``flag_masks_results``: the
+    decision and scores of a flagged result are not specified (a flag without a clamp), so
+    they are compared only where the flag is low."""
     by_role = {internal: (name, width, signed) for internal, name, _, width, signed in ports}
     features = [(name, width) for internal, name, _, width, _ in ports if internal.startswith("x")]
     scores = _score_ports(ports)
@@ -87,7 +89,7 @@ def testbench_text(ports, module, cycles, files, verilog_name, flag_masks_result
     decision_bits = by_role["y"][1]
     # Expected word, low bits first: in_ready, out_valid, decision, the out-of-range flag
     # (when the design has one), then each score.
-    flag = [("range flag", tb("out_of_range"), 1)] if "out_of_range" in by_role else []
+    flag = [("range flag", tb("out_of_range"), 1)] if flag_checked else []
     fields = [("in_ready", tb("in_ready"), 1), ("out_valid", tb("out_valid"), 1),
               ("decision", tb("y"), decision_bits)] + flag + \
         [(f"score {name}" if len(scores) > 1 else "score", f"tb_{name}", width)
@@ -167,7 +169,8 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     write_text(folder / files.expected, _hex_lines(columns, widths))
     write_text(folder / files.testbench,
                testbench_text(ports, module, stimulus.cycles, files, verilog_name,
-                              stimulus.flag_masks_results))
+                              flag_checked=stimulus.expect_flags is not None,
+                              flag_masks_results=stimulus.flag_masks_results))
     return files
 
 
@@ -218,7 +221,7 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
     out_valid = np.array([row[1] == "1" for row in rows])
     decisions = np.array([-1 if any(c in row[2] for c in "xXzZ") else int(row[2], 16)
                           for row in rows])
-    has_flag = any(internal == "out_of_range" for internal, *_ in ports)
+    has_flag = stimulus.expect_flags is not None
     flags = np.array([row[3] == "1" for row in rows]) if has_flag else None
     first_score = 3 + has_flag
     scores = None

@@ -1,0 +1,335 @@
+"""The input guard: every code a port can carry gives a defined result (clamp) or is flagged.
+
+Judged against a deliberately simple gold model written here: clamp each code to its declared
+range by hand, take ``w . x + b`` in Python integers, and flag a row with any code outside.
+"""
+
+import json
+import re
+
+import numpy as np
+import pytest
+from amaranth.hdl import ClockDomain, Module
+from amaranth.sim import Simulator
+from hypothesis import HealthCheck, given, settings, strategies as st
+
+from conftest import make_model, require_tool
+from test_cli import run
+from test_verilog import assert_lint_clean_and_agrees
+from thresh2hdl.circuit import UnitConfig, make_component
+from thresh2hdl.flow import BuildOptions, build, check, demo_model, verify
+from thresh2hdl.guard import resolve_guard
+from thresh2hdl.model import FeatureFormat, Model, Unit
+from thresh2hdl.reference import ReferenceModel
+from thresh2hdl.stimulus import Mismatch, compare, make_stimulus
+from thresh2hdl.vectors import make_vectors
+from thresh2hdl.verilog import emit_verilog, instance_template, port_table
+
+
+def gold(model, row, *, clamp=True):
+    """Score, decision (or class) and flag of one row of raw codes."""
+    codes = [min(max(x, f.min), f.max) if clamp else x for x, f in zip(row, model.features)]
+    flag = any(not f.min <= x <= f.max for x, f in zip(row, model.features))
+    scores = [sum(w * x for w, x in zip(u.weights, codes)) + u.bias for u in model.units]
+    if len(scores) == 1:
+        return scores[0], int(scores[0] > 0), int(flag)
+    return scores, scores.index(max(scores)), int(flag)
+
+
+def tight_model(weights=(5, -7, 3), bias=-20, units=None):
+    """4-bit unsigned ports with tighter declared ranges (one of them on both sides)."""
+    features = [FeatureFormat("a", 4, False, 0, 9), FeatureFormat("b", 4, False, 3, 12),
+                FeatureFormat("c", 4, False)]
+    units = units or [Unit("u", tuple(weights), bias)]
+    return Model(module="dut", features=features, units=units)
+
+
+def run_every_code(dut, rows):
+    """One row per beat (serial: a feature per beat), out_ready high; the outputs of each."""
+    top = Module()
+    top.submodules.dut = dut
+    top.domains.sync = ClockDomain("sync")
+    beats = dut.beats
+    got = []
+
+    async def testbench(ctx):
+        await ctx.tick()
+        pending = [value for row in rows for value in (row if beats > 1 else [row])]
+        for t in range(len(pending) + dut.latency + 2):
+            item = pending[t] if t < len(pending) else None
+            ctx.set(dut.in_valid, int(item is not None))
+            ctx.set(dut.out_ready, 1)
+            if item is not None:
+                values = [item] if beats > 1 else item
+                for port, value in zip(dut.feature_ports, values):
+                    ctx.set(port, int(value))
+            if ctx.get(dut.out_valid):
+                scores = [ctx.get(p) for p in dut.score_ports]
+                got.append((scores[0] if len(scores) == 1 else scores, ctx.get(dut.y),
+                            ctx.get(dut.out_of_range)))
+            await ctx.tick()
+
+    sim = Simulator(top)
+    sim.add_clock(1e-6, domain="sync")
+    sim.add_testbench(testbench)
+    sim.run()
+    return got
+
+
+EVERY_CODE = [[a, b, c] for a in range(16) for b in range(16) for c in (0, 15)]
+
+
+@pytest.mark.parametrize("arch,pipeline,extra", [
+    ("tree", 1, {}), ("tree", 3, {}), ("shiftadd", 2, {}), ("serial", 1, {}),
+    ("tree", 2, {"loadable_weights": True}), ("shiftadd", 2, {"split_bits": 3}),
+])
+def test_every_code_of_every_port_matches_the_gold_model(arch, pipeline, extra):
+    model = tight_model()
+    dut = make_component(UnitConfig(model, pipeline=pipeline, arch=arch, **extra))
+    assert dut.config.clamp and dut.config.range_flag      # the default: ranges are tighter
+    assert run_every_code(dut, EVERY_CODE) == [gold(model, row) for row in EVERY_CODE]
+
+
+def test_a_bank_clamps_and_flags_every_code():
+    model = tight_model(units=[Unit("p", (5, -7, 3), -20), Unit("q", (-2, 4, 1), 3),
+                               Unit("r", (1, 1, -1), 0)])
+    for arch, pipeline in (("tree", 2), ("serial", 1)):
+        dut = make_component(UnitConfig(model, pipeline=pipeline, arch=arch))
+        assert run_every_code(dut, EVERY_CODE) == [gold(model, row) for row in EVERY_CODE]
+
+
+def test_the_gold_model_sees_the_hole_that_the_guard_closes():
+    # The demo's crest_factor is declared <= 2047 on a 12-bit port: at 4095 the unguarded
+    # adder tree wraps and gives another score than the model on those very codes.
+    model = demo_model()
+    row = [1000] * len(model.features)
+    row[[f.name for f in model.features].index("crest_factor")] = 4095
+    unguarded = make_component(UnitConfig(model, clamp=False, range_flag=False))
+    guarded = make_component(UnitConfig(model))
+    (raw_score, _, _), = [(s, y, 0) for s, y in _score_and_y(unguarded, [row])]
+    assert raw_score != gold(model, row, clamp=False)[0]          # silently wrong before
+    assert run_every_code(guarded, [row]) == [gold(model, row)]    # clamped and flagged now
+    assert gold(model, row)[2] == 1
+
+
+def _score_and_y(dut, rows):
+    top = Module()
+    top.submodules.dut = dut
+    top.domains.sync = ClockDomain("sync")
+    got = []
+
+    async def testbench(ctx):
+        for row in rows:
+            ctx.set(dut.in_valid, 1)
+            ctx.set(dut.out_ready, 1)
+            for port, value in zip(dut.feature_ports, row):
+                ctx.set(port, value)
+            await ctx.tick()
+        ctx.set(dut.in_valid, 0)
+        for _ in range(dut.latency):
+            if ctx.get(dut.out_valid):
+                got.append((ctx.get(dut.score), ctx.get(dut.y)))
+            await ctx.tick()
+
+    sim = Simulator(top)
+    sim.add_clock(1e-6, domain="sync")
+    sim.add_testbench(testbench)
+    sim.run()
+    return got
+
+
+def test_defaults_and_choices():
+    tight, full = tight_model(), make_model([1, 2], bits=4)
+    assert (resolve_guard(tight).clamp, resolve_guard(tight).flag) == (True, True)
+    assert (resolve_guard(full).clamp, resolve_guard(full).flag) == (False, False)
+    # Nothing to guard: no logic and no port, the same file as with the guard turned off.
+    text = emit_verilog(make_component(UnitConfig(full)), full)
+    assert "out_of_range" not in text and "clamped" not in text
+    assert text == emit_verilog(make_component(UnitConfig(full, clamp=False,
+                                                          range_flag=False)), full)
+    clamp_only = make_component(UnitConfig(tight, range_flag=False))
+    assert "out_of_range" not in clamp_only.signature.members
+    flag_only = emit_verilog(make_component(UnitConfig(tight, clamp=False)), tight)
+    assert "out_of_range" in flag_only and "clamped" not in flag_only
+
+
+def test_flag_alone_leaves_results_of_flagged_inputs_unspecified():
+    model = tight_model()
+    dut = make_component(UnitConfig(model, pipeline=2, clamp=False))
+    got = run_every_code(dut, EVERY_CODE)
+    for row, (score, y, flag) in zip(EVERY_CODE, got):
+        want_score, want_y, want_flag = gold(model, row)
+        assert flag == want_flag
+        if not want_flag:
+            assert (score, y) == (want_score, want_y)
+
+
+def test_compare_reports_the_earliest_mismatch_over_every_output():
+    # The decision is wrong from cycle 20 on, the score already at cycle 3 and nowhere else:
+    # the first mismatch named must be the score's.
+    model = make_model([3, 1], bits=4)
+    rows = np.arange(40).reshape(20, 2) % 16
+    stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=0,
+                             valid_probability=1.0, ready_probability=1.0)
+    index = stimulus.expect_out_index
+    decisions = stimulus.expect_decisions[index].copy()
+    scores = np.asarray(stimulus.expect_scores)[index].copy()
+    decisions[5:] ^= 1
+    scores[3] += 1
+    checked = compare(stimulus, stimulus.expect_in_ready, stimulus.expect_out_valid,
+                      decisions, scores, limit=3)
+    assert checked.mismatches[0] == Mismatch(3, "score", int(scores[3]) - 1, int(scores[3]), 3)
+    assert checked.mismatch_count == 16
+
+
+def test_mismatches_are_counted_over_every_chunk(monkeypatch):
+    import thresh2hdl.flow as flow
+    monkeypatch.setattr(flow, "CHUNK_VECTORS", 300)
+    model = make_model([5, -3, 2, 7], -11, bits=6)
+    dut = make_component(UnitConfig(model, pipeline=1))
+    wrong = make_model([5, -3, 2, 7], -10, bits=6)      # the model judging is one off
+    verified = verify("amaranth", dut, "", port_table(dut, model), wrong, count=3000)
+    one_chunk = verify("amaranth", dut, "", port_table(dut, model), wrong, count=300)
+    assert verified.mismatches > 2 * one_chunk.mismatches
+    assert verified.vectors_checked >= 3000
+
+
+def test_vectors_reach_outside_every_tight_bound():
+    model = tight_model()
+    dut = make_component(UnitConfig(model))
+    vectors = make_vectors(dut.analysis, random_count=50, guard=dut.config.guard)
+    rows = vectors.array
+    assert (rows[:, 0] == 10).any() and (rows[:, 0] == 15).any()      # above a's max 9
+    assert (rows[:, 1] == 2).any() and (rows[:, 1] == 0).any()        # below b's min 3
+    assert (rows[:, 1] == 13).any()
+    plain = make_vectors(dut.analysis, random_count=50)
+    assert ((plain.array >= [0, 3, 0]) & (plain.array <= [9, 12, 15])).all()
+
+
+guard_cases = st.integers(1, 6).flatmap(lambda n: st.tuples(
+    st.lists(st.integers(-300, 300), min_size=n, max_size=n), st.integers(-5000, 5000),
+    st.integers(2, 10), st.booleans(), st.lists(st.tuples(st.floats(0, 1), st.floats(0, 1)),
+                                                min_size=n, max_size=n),
+    st.integers(0, 3), st.sampled_from(["tree", "shiftadd", "serial"]),
+    st.sampled_from([(None, None), (True, False), (False, True)])))
+
+
+@pytest.mark.verilator
+@pytest.mark.icarus
+@settings(max_examples=6, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(case=guard_cases)
+def test_random_guarded_models_lint_clean_and_agree_in_icarus_and_verilator(
+        tmp_path_factory, case):
+    # Independent simulators of the emitted file (Icarus Verilog 11, Verilator 5), judged on
+    # codes inside and outside the declared ranges against the integer model.
+    weights, bias, bits, is_signed, cuts, pipeline, arch, (clamp, flag) = case
+    lo_code = -(1 << (bits - 1)) if is_signed else 0
+    span = (1 << bits) - 1
+    ranges = []
+    for a, b in cuts:
+        lo, hi = sorted((lo_code + round(a * span), lo_code + round(b * span)))
+        ranges.append((lo, hi))
+    model = make_model(weights, bias, bits=bits, signed=is_signed, ranges=ranges)
+    pipeline = 1 if arch == "serial" else pipeline
+    dut = make_component(UnitConfig(model, pipeline=pipeline, arch=arch, clamp=clamp,
+                                    range_flag=flag))
+    rows = make_vectors(dut.analysis, random_count=150, guard=dut.config.guard).array
+    stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
+                             beats=dut.beats, valid_probability=0.8, ready_probability=0.7,
+                             guard=dut.config.guard)
+    assert_lint_clean_and_agrees(tmp_path_factory.mktemp("guard"), model, dut, stimulus)
+
+
+@pytest.fixture(scope="module")
+def demo_folder(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("guard") / "demo"
+    build(demo_model(), folder, BuildOptions(pipeline=2, simulator="amaranth", vectors=2000))
+    return folder
+
+
+def test_report_header_and_template_state_the_ranges_and_the_guard(demo_folder):
+    report = json.loads((demo_folder / "report.json").read_text())
+    guard = report["input_guard"]
+    assert guard["clamp"] and guard["flag"] and guard["flag_port"] == "out_of_range"
+    assert guard["guarded_features"] == ["crest_factor", "temperature"]
+    assert "clamped" in guard["statement"]
+    groups = dict(report["verification"]["vector_groups"])
+    assert groups["codes outside the declared ranges"] > 0
+    assert groups["random over every port code"] > 0
+    for name in ("pump_fault.v", "pump_fault_instance.vh"):
+        text = (demo_folder / name).read_text()
+        assert re.search(r"crest_factor: \[0, 2047\] of a 12-bit unsigned code; a code "
+                         r"outside it is clamped", text), name
+        assert "temperature: [400, 3400]" in text
+    for name in ("report.html", "report.md"):
+        text = (demo_folder / name).read_text()
+        assert "out_of_range" in text and "clamped to the nearest bound" in text, name
+
+
+def test_a_guard_turned_off_is_stated_in_words(tmp_path):
+    result = build(demo_model(), tmp_path / "off", BuildOptions(
+        simulator="amaranth", vectors=500, clamp=False, range_flag=False))
+    guard = result.report["input_guard"]
+    assert guard["changed_from_default"] == ["clamp", "flag"]
+    assert "turned off" in guard["statement"] and not guard["every_code_defined"]
+    assert "NOT guarded" in (tmp_path / "off" / "pump_fault.v").read_text()
+    assert "turned off" in (tmp_path / "off" / "report.md").read_text()
+    assert any("turned off" in line for line in result.summary())
+
+
+@pytest.mark.icarus
+@pytest.mark.verilator
+@pytest.mark.parametrize("simulator", ["icarus", "verilator"])
+def test_check_catches_a_missing_clamp_and_a_wrong_flag_bound(demo_folder, tmp_path,
+                                                              simulator):
+    require_tool("iverilog", "vvp", "verilator", "g++")
+    text = (demo_folder / "pump_fault.v").read_text()
+    assert check(demo_folder, simulator=simulator, vectors=2000).ok
+    no_clamp = re.sub(r"assign crest_factor_clamped = .*;",
+                      "assign crest_factor_clamped = crest_factor[10:0];", text)
+    late_flag = text.replace("$unsigned(crest_factor) > $unsigned(12'd2047)",
+                             "$unsigned(crest_factor) > $unsigned(12'd2048)")
+    assert no_clamp != text and late_flag != text
+    firsts = []
+    for name, mutant, signal in (("no_clamp.v", no_clamp, "score"),
+                                 ("late_flag.v", late_flag, "out_of_range")):
+        (tmp_path / name).write_text(mutant)
+        result = run("check", str(demo_folder), "--netlist", str(tmp_path / name),
+                     "--simulator", simulator, "--vectors", "2000")
+        assert result.returncode == 1 and f"{signal} = " in result.stderr, result.stderr
+        firsts.append(result.stderr.split("first: ")[1].split(":")[0])
+    # The corners outside the ranges come early, so every simulator names the same cycle.
+    assert firsts == ["cycle 35", "cycle 35"]
+
+
+@pytest.mark.icarus
+def test_exported_testbench_checks_the_flag(demo_folder, tmp_path):
+    import shutil
+    import subprocess
+    require_tool("iverilog", "vvp")
+    folder = tmp_path / "copy"
+    shutil.copytree(demo_folder, folder)
+    command = json.loads((folder / "report.json").read_text())["testbench"]["command"]
+    assert "PASS" in subprocess.run(command, shell=True, cwd=folder, capture_output=True,
+                                    text=True).stdout
+    path = folder / "pump_fault.v"
+    path.write_text(path.read_text().replace("assign guard_flag = |",
+                                             "assign guard_flag = 1'b0 & |"))
+    printed = subprocess.run(command, shell=True, cwd=folder, capture_output=True,
+                             text=True).stdout
+    assert "FAIL" in printed and "range flag" in printed
+
+
+def test_an_older_folder_without_a_guard_reloads_as_built(demo_folder, tmp_path):
+    import shutil
+    from thresh2hdl.flow import _load_folder
+    folder = tmp_path / "old"
+    shutil.copytree(demo_folder, folder)
+    report = json.loads((folder / "report.json").read_text())
+    del report["input_guard"]
+    (folder / "report.json").write_text(json.dumps(report))
+    _, _, _, component = _load_folder(folder)
+    assert not component.config.clamp and not component.config.range_flag
+    _, _, _, component = _load_folder(demo_folder)
+    assert component.config.clamp and component.config.range_flag
