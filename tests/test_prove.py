@@ -341,3 +341,82 @@ def test_assumptions_nothing_satisfies_prove_nothing(monkeypatch):
     tied = re.sub(r"assign y = [^;]*;", "assign y = 1'b1;", tied)
     outcome = proved(model, text=tied)
     assert outcome.status == "undecided" and "cannot all hold" in outcome.detail
+
+
+def fake_tools(folder, announce=True):
+    """Yosys and Boolector behind scripts that, asked for their version, first say what a
+    WebAssembly build says while it compiles for first use (yowasp-runtime 1.96's message)."""
+    folder.mkdir()
+    for name, real in zip(("yosys", "boolector"), proof_tools()):
+        line = f'echo "Preparing to run {name}. This might take a while..." >&2' \
+            if announce else ":"
+        script = folder / name
+        script.write_text(f'#!/bin/sh\ncase "$1" in -V|--version) {line};; esac\n'
+                          f'exec "{real}" "$@"\n')
+        script.chmod(0o755)
+
+
+class Notes:
+    """A build's progress: notes kept, percentages ignored."""
+
+    def __init__(self):
+        self.lines = []
+
+    def __call__(self, *args):
+        pass
+
+    def note(self, text):
+        self.lines.append(text)
+
+
+def test_a_first_use_compile_is_announced_and_kept_out_of_the_proof_time(tmp_path,
+                                                                         monkeypatch):
+    import os
+    import subprocess
+    import time
+    fake_tools(tmp_path / "bin")
+    monkeypatch.setenv("PATH", f"{tmp_path / 'bin'}{os.pathsep}{os.environ['PATH']}")
+    assert proof_tools() == (str(tmp_path / "bin" / "yosys"),
+                             str(tmp_path / "bin" / "boolector"))
+    # A fake clock on which each tool's first call (its version) compiles for 1000 s: no
+    # real time is measured, so nothing here depends on the machine's speed.
+    offset = [0.0]
+    real_clock, real_popen = time.perf_counter, subprocess.Popen
+
+    class Compiling(real_popen):
+        def __init__(self, args, *more, **options):
+            if isinstance(args, list) and args[-1] in ("-V", "--version"):
+                offset[0] += 1000
+            super().__init__(args, *more, **options)
+
+    monkeypatch.setattr(time, "perf_counter", lambda: real_clock() + offset[0])
+    monkeypatch.setattr(subprocess, "Popen", Compiling)
+    out = tmp_path / "demo"
+    notes = Notes()
+    built = build(demo_model(), out, BuildOptions(simulator="amaranth", vectors=50,
+                                                  prove=True), progress=notes)
+    timing = built.report["timing"]
+    assert timing["tool_warmup_s"] >= 2000 and timing["proof_s"] < 1000
+    assert built.report["proof"]["status"] == "proved"
+    for name in ("yosys", "boolector"):
+        assert any(f"compiling {name} for first use" in line for line in notes.lines)
+    notes.lines.clear()
+    # Proved within a 120 s timeout although the warm-up took 2000 s: outside the timeout.
+    result = prove(out, timeout_s=120, progress=notes.note)
+    assert result.ok and "compiled for first use" in result.summary()
+    assert result.seconds < 1000 and result.outcome.warmup_seconds >= 2000
+    timing = json.loads((out / "report.json").read_text())["timing"]
+    assert timing["tool_warmup_s"] >= 2000 and timing["proof_s"] < 1000
+    assert sum("for first use" in line for line in notes.lines) == 2
+
+
+def test_tools_that_do_not_compile_are_not_announced(tmp_path, monkeypatch):
+    import os
+    from thresh2hdl.tools import warm_up
+    fake_tools(tmp_path / "bin", announce=False)
+    monkeypatch.setenv("PATH", f"{tmp_path / 'bin'}{os.pathsep}{os.environ['PATH']}")
+    notes = []
+    for path, prefix in zip(proof_tools(), ("Yosys", "Boolector")):
+        version, compiled = warm_up(path, notes.append)
+        assert version.startswith(prefix) and not compiled
+    assert notes == []

@@ -481,11 +481,10 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     timing["simulation_s"] = time.perf_counter() - started
     proof = None
     if options.prove:
-        started = time.perf_counter()
         proof = _prove_text(verilog_text, verilog_name, component, model, ports,
                             timeout_s=options.prove_timeout_s, simulator=simulator,
                             progress=note)
-        timing["proof_s"] = time.perf_counter() - started
+        timing.update(proof.timing)
     reference = ReferenceModel.from_model(model)
     report = {
         "report_format": REPORT_FORMAT,
@@ -685,11 +684,14 @@ class ProofResult:
     """A proof's outcome as the report records it, and the counterexample if one was confirmed.
 
     ``status`` is ``proved``, ``counterexample`` (confirmed in a simulator) or ``undecided``.
+    ``seconds`` is the proof's time, its confirmation included; the tools' warm-up before it
+    (a first-use compile) is ``outcome.warmup_seconds``.
     """
 
     section: dict
     outcome: object                 # the solver's :class:`~thresh2hdl.proof.ProofOutcome`
     counterexample_csv: str | None
+    seconds: float = 0.0
 
     @property
     def status(self):
@@ -699,10 +701,18 @@ class ProofResult:
     def ok(self):
         return self.status == "proved"
 
+    @property
+    def timing(self):
+        """The report's timing keys for this proof."""
+        return {"proof_s": self.seconds, "tool_warmup_s": self.outcome.warmup_seconds}
+
     def summary(self):
         s = self.section
         line = (f"{s['netlist']}: {s['status']} ({s['lemmas']} lemmas, {s['solver']}, "
-                f"{s['yosys']}, {self.outcome.seconds:.1f} s)")
+                f"{s['yosys']}, {self.seconds:.1f} s)")
+        if self.outcome.compiled:
+            line += (f"; {' and '.join(self.outcome.compiled)} compiled for first use in "
+                     f"{self.outcome.warmup_seconds:.0f} s before, not counted")
         if s["status"] != "proved":
             line += f"; {s['detail']}"
         return line
@@ -733,6 +743,7 @@ def _confirm(simulator, component, text, ports, model, vector):
 
 
 def _prove_text(text, name, component, model, ports, *, timeout_s, simulator, progress):
+    clock = time.perf_counter()
     outcome = prove_netlist(text, component, model, ports, timeout_s=timeout_s,
                             progress=progress)
     extra = ", class" if model.is_bank else ""
@@ -767,7 +778,8 @@ def _prove_text(text, name, component, model, ports, *, timeout_s, simulator, pr
                     "vector": dict(zip(names, outcome.candidate)), "file": COUNTEREXAMPLE_FILE,
                     "confirmed_in": version_text, "mismatch": mismatch}
                 csv_text = ",".join(names) + "\n" + ",".join(map(str, outcome.candidate)) + "\n"
-    return ProofResult(section, outcome, csv_text)
+    seconds = time.perf_counter() - clock - outcome.warmup_seconds
+    return ProofResult(section, outcome, csv_text, seconds)
 
 
 def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto",
@@ -793,7 +805,8 @@ def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto
     is_own = path.resolve() == own.resolve()
     if is_own:
         settings["proof"] = result.section
-        settings.setdefault("timing", {})["proof_s"] = round(result.outcome.seconds, 3)
+        settings.setdefault("timing", {}).update(
+            {key: round(value, 3) for key, value in result.timing.items()})
         files = {out_dir / "report.json": report_json(settings),
                  out_dir / "report.html": report_html(settings),
                  out_dir / "report.md": report_markdown(settings)}
