@@ -166,7 +166,7 @@ def test_every_mutation_gives_a_counterexample_icarus_confirms(tmp_path, seed, m
     (tmp_path / "mutant.v").write_text(mutant)
     with pytest.raises(MismatchError, match="counterexample"):
         prove(out, netlist=tmp_path / "mutant.v", timeout_s=120, simulator="icarus")
-    lines = (out / "counterexample.csv").read_text().splitlines()
+    lines = (out / "counterexample-netlist-mutant.v.csv").read_text().splitlines()
     assert lines[0] == ",".join(f.name for f in model.features)
     vector = [int(v) for v in lines[1].split(",")]
     for (lo, hi), value in zip(model.feature_ranges, vector):
@@ -178,10 +178,12 @@ def test_every_mutation_gives_a_counterexample_icarus_confirms(tmp_path, seed, m
     assert np.atleast_1d(reference[0]).tolist() == scores
     assert simulate_icarus(model, component, mutant, vector).mismatches
     assert not simulate_icarus(model, component, text, vector).mismatches
-    # The folder's own file is still proved, and the report says so.
+    # The folder's own file is still proved, and the report says so beside the mutant's
+    # counterexample, which it names.
     assert prove(out, timeout_s=120).status == "proved"
-    assert json.loads((out / "report.json").read_text())["proof"]["status"] == "proved"
-    assert not (out / "counterexample.csv").exists()
+    report = assert_folder_agrees_with_report(out)
+    assert report["proof"]["status"] == "proved"
+    assert report["netlist_proofs"]["mutant.v"]["status"] == "counterexample"
 
 
 def test_a_decision_off_at_zero_that_random_vectors_miss_is_caught():
@@ -282,11 +284,15 @@ def test_prove_command_prints_a_confirmed_counterexample_with_exit_1(tmp_path):
     (tmp_path / "edited.v").write_text(mutant)
     before = (out / "report.json").read_text()
     result = run("prove", out, "--netlist", tmp_path / "edited.v", "--simulator", "icarus")
-    assert_one_line_error(result, 1, "counterexample written to counterexample.csv")
+    assert_one_line_error(result, 1, "counterexample written to "
+                                     "counterexample-netlist-edited.v.csv")
     assert "expected" in result.stderr and "rms_axial=" in result.stderr
-    # A proof of another file leaves the folder's report as it was.
-    assert (out / "report.json").read_text() == before
-    assert (out / "counterexample.csv").read_text().startswith("rms_axial,rms_radial,")
+    # A proof of another file is recorded apart: the rest of the report is as it was.
+    after = json.loads((out / "report.json").read_text())
+    assert after.pop("netlist_proofs")["edited.v"]["status"] == "counterexample"
+    assert after == json.loads(before)
+    assert (out / "counterexample-netlist-edited.v.csv").read_text().startswith(
+        "rms_axial,rms_radial,")
 
 
 # Netlists whose SMT export alone would look right (found in review): each must be refused or
@@ -341,3 +347,197 @@ def test_assumptions_nothing_satisfies_prove_nothing(monkeypatch):
     tied = re.sub(r"assign y = [^;]*;", "assign y = 1'b1;", tied)
     outcome = proved(model, text=tied)
     assert outcome.status == "undecided" and "cannot all hold" in outcome.detail
+
+
+# A folder never holds files that contradict its report: every counterexample file is one the
+# report names, and each proof (the folder's own Verilog under "proof", every --netlist file
+# under "netlist_proofs" by file name) is recorded beside it.
+
+def counterexample_files(out):
+    return {p.name for p in out.iterdir() if p.name.startswith("counterexample")}
+
+
+def referenced_files(report):
+    sections = [report.get("proof")] + list((report.get("netlist_proofs") or {}).values())
+    return {s["counterexample"]["file"] for s in sections if s and s.get("counterexample")}
+
+
+def assert_folder_agrees_with_report(out):
+    report = json.loads((out / "report.json").read_text())
+    assert counterexample_files(out) == referenced_files(report)
+    return report
+
+
+def demo_folder(tmp_path):
+    out = tmp_path / "demo"
+    build(demo_model(), out, BuildOptions(simulator="icarus", vectors=50))
+    return out, (out / "pump_fault.v").read_text()
+
+
+def test_a_netlist_proof_is_recorded_and_its_counterexample_named_after_it(tmp_path):
+    require_tool("iverilog", "vvp")
+    out, text = demo_folder(tmp_path)
+    assert prove(out, timeout_s=120).status == "proved"
+    edited = tmp_path / "edited.v"
+    edited.write_text(change_a_weight(text, np.random.default_rng(3)))
+    result = run("prove", out, "--netlist", edited, "--simulator", "icarus")
+    assert_one_line_error(result, 1, "counterexample written to "
+                                     "counterexample-netlist-edited.v.csv")
+    report = assert_folder_agrees_with_report(out)
+    assert report["proof"]["status"] == "proved"           # the folder's own file
+    other = report["netlist_proofs"]["edited.v"]
+    assert other["status"] == "counterexample" and other["netlist"] == "edited.v"
+    assert (out / other["counterexample"]["file"]).read_text().startswith("rms_axial,")
+    html, markdown = (out / "report.html").read_text(), (out / "report.md").read_text()
+    for page in (html, markdown):
+        assert "edited.v" in page and "counterexample-netlist-edited.v.csv" in page
+    # Undecided this time (a timeout): the report no longer names the counterexample, and
+    # the file goes with it.
+    with pytest.raises(UndecidedError):
+        prove(out, netlist=edited, timeout_s=0.001)
+    report = assert_folder_agrees_with_report(out)
+    assert report["netlist_proofs"]["edited.v"]["status"] == "undecided"
+    # The file fixed: proved.
+    edited.write_text(text)
+    assert prove(out, netlist=edited, timeout_s=120).status == "proved"
+    report = assert_folder_agrees_with_report(out)
+    assert counterexample_files(out) == set()
+    assert report["netlist_proofs"]["edited.v"]["status"] == "proved"
+    assert report["proof"]["status"] == "proved"
+
+
+def test_the_folders_own_file_proved_again_removes_its_counterexample(tmp_path):
+    require_tool("iverilog", "vvp")
+    out, text = demo_folder(tmp_path)
+    own = out / "pump_fault.v"
+    own.write_text(change_a_weight(text, np.random.default_rng(5)))
+    with pytest.raises(MismatchError, match="counterexample-pump_fault.v.csv"):
+        prove(out, timeout_s=120, simulator="icarus")
+    report = assert_folder_agrees_with_report(out)
+    assert report["proof"]["status"] == "counterexample"
+    assert counterexample_files(out) == {"counterexample-pump_fault.v.csv"}
+    assert "netlist_proofs" not in report
+    own.write_text(text)
+    assert prove(out, timeout_s=120).status == "proved"
+    report = assert_folder_agrees_with_report(out)
+    assert report["proof"]["status"] == "proved" and counterexample_files(out) == set()
+
+
+def test_build_prove_names_its_counterexample_in_the_report(tmp_path, monkeypatch):
+    # A writer that gets one weight wrong: the simulation finds the mismatch, and the proof's
+    # counterexample is written under the name the report gives it.
+    require_tool("iverilog", "vvp")
+    import thresh2hdl.flow as flow
+    real = flow.emit_verilog
+    monkeypatch.setattr(flow, "emit_verilog", lambda *a, **k: change_a_weight(
+        real(*a, **k), np.random.default_rng(3)))
+    out = tmp_path / "demo"
+    out.mkdir()
+    (out / "counterexample.csv").write_text("stale\n")     # replaced with the folder (--force)
+    with pytest.raises(MismatchError):
+        build(demo_model(), out, BuildOptions(simulator="icarus", vectors=50, prove=True,
+                                              force=True))
+    report = assert_folder_agrees_with_report(out)
+    assert report["proof"]["status"] == "counterexample"
+    assert counterexample_files(out) == {"counterexample-pump_fault.v.csv"}
+
+
+def test_an_older_report_still_loads_renders_and_loses_its_stale_counterexample(tmp_path):
+    # A folder from before netlist proofs were recorded: no netlist_proofs key, the proof
+    # section without the netlist's sha256, no warm-up timing, and a counterexample.csv that
+    # a failed --netlist proof left beside a report that says "proved".
+    from thresh2hdl.report_html import report_html, report_markdown
+    out = tmp_path / "demo"
+    build(demo_model(), out, BuildOptions(simulator="amaranth", vectors=50, prove=True))
+    report = json.loads((out / "report.json").read_text())
+    report.pop("netlist_proofs", None)
+    report["proof"].pop("netlist_sha256", None)
+    report["timing"].pop("tool_warmup_s", None)
+    (out / "report.json").write_text(json.dumps(report))
+    (out / "counterexample.csv").write_text("rms_axial\n1\n")
+    assert "proved" in report_html(report) and "proved" in report_markdown(report)
+    other = tmp_path / "copy.v"
+    other.write_text((out / "pump_fault.v").read_text())
+    assert prove(out, netlist=other, timeout_s=120).status == "proved"
+    report = assert_folder_agrees_with_report(out)
+    assert report["netlist_proofs"]["copy.v"]["status"] == "proved"
+    assert "copy.v" in (out / "report.html").read_text()
+
+
+def fake_tools(folder, announce=True):
+    """Yosys and Boolector behind scripts that, asked for their version, first say what a
+    WebAssembly build says while it compiles for first use (yowasp-runtime 1.96's message)."""
+    folder.mkdir()
+    for name, real in zip(("yosys", "boolector"), proof_tools()):
+        line = f'echo "Preparing to run {name}. This might take a while..." >&2' \
+            if announce else ":"
+        script = folder / name
+        script.write_text(f'#!/bin/sh\ncase "$1" in -V|--version) {line};; esac\n'
+                          f'exec "{real}" "$@"\n')
+        script.chmod(0o755)
+
+
+class Notes:
+    """A build's progress: notes kept, percentages ignored."""
+
+    def __init__(self):
+        self.lines = []
+
+    def __call__(self, *args):
+        pass
+
+    def note(self, text):
+        self.lines.append(text)
+
+
+def test_a_first_use_compile_is_announced_and_kept_out_of_the_proof_time(tmp_path,
+                                                                         monkeypatch):
+    import os
+    import subprocess
+    import time
+    fake_tools(tmp_path / "bin")
+    monkeypatch.setenv("PATH", f"{tmp_path / 'bin'}{os.pathsep}{os.environ['PATH']}")
+    assert proof_tools() == (str(tmp_path / "bin" / "yosys"),
+                             str(tmp_path / "bin" / "boolector"))
+    # A fake clock on which each tool's first call (its version) compiles for 1000 s: no
+    # real time is measured, so nothing here depends on the machine's speed.
+    offset = [0.0]
+    real_clock, real_popen = time.perf_counter, subprocess.Popen
+
+    class Compiling(real_popen):
+        def __init__(self, args, *more, **options):
+            if isinstance(args, list) and args[-1] in ("-V", "--version"):
+                offset[0] += 1000
+            super().__init__(args, *more, **options)
+
+    monkeypatch.setattr(time, "perf_counter", lambda: real_clock() + offset[0])
+    monkeypatch.setattr(subprocess, "Popen", Compiling)
+    out = tmp_path / "demo"
+    notes = Notes()
+    built = build(demo_model(), out, BuildOptions(simulator="amaranth", vectors=50,
+                                                  prove=True), progress=notes)
+    timing = built.report["timing"]
+    assert timing["tool_warmup_s"] >= 2000 and timing["proof_s"] < 1000
+    assert built.report["proof"]["status"] == "proved"
+    for name in ("yosys", "boolector"):
+        assert any(f"compiling {name} for first use" in line for line in notes.lines)
+    notes.lines.clear()
+    # Proved within a 120 s timeout although the warm-up took 2000 s: outside the timeout.
+    result = prove(out, timeout_s=120, progress=notes.note)
+    assert result.ok and "compiled for first use" in result.summary()
+    assert result.seconds < 1000 and result.outcome.warmup_seconds >= 2000
+    timing = json.loads((out / "report.json").read_text())["timing"]
+    assert timing["tool_warmup_s"] >= 2000 and timing["proof_s"] < 1000
+    assert sum("for first use" in line for line in notes.lines) == 2
+
+
+def test_tools_that_do_not_compile_are_not_announced(tmp_path, monkeypatch):
+    import os
+    from thresh2hdl.tools import warm_up
+    fake_tools(tmp_path / "bin", announce=False)
+    monkeypatch.setenv("PATH", f"{tmp_path / 'bin'}{os.pathsep}{os.environ['PATH']}")
+    notes = []
+    for path, prefix in zip(proof_tools(), ("Yosys", "Boolector")):
+        version, compiled = warm_up(path, notes.append)
+        assert version.startswith(prefix) and not compiled
+    assert notes == []

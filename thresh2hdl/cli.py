@@ -262,7 +262,8 @@ def estimate_command(out_dir, target, dsp):
 @cli.command("prove")
 @click.argument("out_dir", type=click.Path())
 @click.option("--netlist", type=click.Path(), default=None,
-              help="Prove this Verilog file (same module and ports) instead of the folder's.")
+              help="Prove this Verilog file (same module and ports) instead of the folder's; "
+              "recorded in the report by its file name.")
 @click.option("--timeout", type=float, default=DEFAULT_TIMEOUT_S, show_default=True,
               help="Seconds before the proof is reported undecided (exit code 3).")
 @click.option("--simulator", type=click.Choice(["auto", "verilator", "icarus"]), default="auto",

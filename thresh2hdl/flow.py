@@ -41,7 +41,8 @@ from .verilator import find_verilator, simulate_verilator, verilator_version
 from .verilog import emit_verilog, instance_template, port_table, range_comments
 
 __all__ = ["BuildOptions", "BuildResult", "build", "check", "estimate_folder", "prove",
-           "CheckResult", "ProofResult", "demo_model", "DEMO_SCENARIO", "SIMULATORS"]
+           "CheckResult", "ProofResult", "counterexample_file", "demo_model", "DEMO_SCENARIO",
+           "SIMULATORS"]
 
 DEMO_SCENARIO = "pump_vibration"
 SIMULATORS = ("auto", "amaranth", "verilator", "icarus")
@@ -507,11 +508,10 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     timing["simulation_s"] = time.perf_counter() - started
     proof = None
     if options.prove:
-        started = time.perf_counter()
         proof = _prove_text(verilog_text, verilog_name, component, model, ports,
                             timeout_s=options.prove_timeout_s, simulator=simulator,
                             progress=note)
-        timing["proof_s"] = time.perf_counter() - started
+        timing.update(proof.timing)
     reference = ReferenceModel.from_model(model)
     report = {
         "report_format": REPORT_FORMAT,
@@ -562,7 +562,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
                                          reload_count=200)
         write_testbench(staging, ports, model.module, exported, verilog_name)
         if proof is not None and proof.counterexample_csv is not None:
-            write_text(staging / COUNTEREXAMPLE_FILE, proof.counterexample_csv)
+            write_text(staging / proof.counterexample_file, proof.counterexample_csv)
     built = BuildResult(out_dir=out_dir, report=report, verilog_path=out_dir / verilog_name)
     if not built.ok:
         raise MismatchError(f"{verified.mismatches} mismatch(es) against the reference "
@@ -706,9 +706,17 @@ def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0):
     return outcome
 
 
-COUNTEREXAMPLE_FILE = "counterexample.csv"
+# The one name versions before netlist proofs were recorded gave any netlist's counterexample;
+# a folder may still hold one that its report does not name.
+LEGACY_COUNTEREXAMPLE = "counterexample.csv"
 PROOF_STATEMENT = ("for every input in the declared feature ranges, the outputs equal the "
                    "integer model's (decision{extra}), with any handshake")
+
+
+def counterexample_file(netlist_name, own=True):
+    """The name of a netlist's counterexample file in the build folder: after the netlist,
+    and apart for a ``--netlist`` file (which may share the folder's own file's name)."""
+    return f"counterexample-{'' if own else 'netlist-'}{netlist_name}.csv"
 
 
 @dataclass(frozen=True)
@@ -716,11 +724,14 @@ class ProofResult:
     """A proof's outcome as the report records it, and the counterexample if one was confirmed.
 
     ``status`` is ``proved``, ``counterexample`` (confirmed in a simulator) or ``undecided``.
+    ``seconds`` is the proof's time, its confirmation included; the tools' warm-up before it
+    (a first-use compile) is ``outcome.warmup_seconds``.
     """
 
     section: dict
     outcome: object                 # the solver's :class:`~thresh2hdl.proof.ProofOutcome`
     counterexample_csv: str | None
+    seconds: float = 0.0
 
     @property
     def status(self):
@@ -730,10 +741,23 @@ class ProofResult:
     def ok(self):
         return self.status == "proved"
 
+    @property
+    def counterexample_file(self):
+        example = self.section.get("counterexample")
+        return example["file"] if example else None
+
+    @property
+    def timing(self):
+        """The report's timing keys for this proof."""
+        return {"proof_s": self.seconds, "tool_warmup_s": self.outcome.warmup_seconds}
+
     def summary(self):
         s = self.section
         line = (f"{s['netlist']}: {s['status']} ({s['lemmas']} lemmas, {s['solver']}, "
-                f"{s['yosys']}, {self.outcome.seconds:.1f} s)")
+                f"{s['yosys']}, {self.seconds:.1f} s)")
+        if self.outcome.compiled:
+            line += (f"; {' and '.join(self.outcome.compiled)} compiled for first use in "
+                     f"{self.outcome.warmup_seconds:.0f} s before, not counted")
         if s["status"] != "proved":
             line += f"; {s['detail']}"
         return line
@@ -742,7 +766,8 @@ class ProofResult:
         s = self.section
         if s["status"] == "counterexample":
             raise MismatchError(f"{s['netlist']}: not equal to the model; counterexample "
-                                f"written to {COUNTEREXAMPLE_FILE}: {s['counterexample']['mismatch']}")
+                                f"written to {self.counterexample_file}: "
+                                f"{s['counterexample']['mismatch']}")
         if s["status"] == "undecided":
             raise UndecidedError(f"{s['netlist']}: undecided: {s['detail']}")
 
@@ -764,13 +789,18 @@ def _confirm(simulator, component, text, ports, model, vector):
     return checked.mismatches[0].describe(stimulus, names), version_text
 
 
-def _prove_text(text, name, component, model, ports, *, timeout_s, simulator, progress):
+def _prove_text(text, name, component, model, ports, *, timeout_s, simulator, progress,
+                own=True):
+    """Prove ``text`` (file ``name``; ``own``: the folder's own Verilog) and confirm a
+    counterexample in a simulator."""
+    clock = time.perf_counter()
     outcome = prove_netlist(text, component, model, ports, timeout_s=timeout_s,
                             progress=progress)
     extra = ", class" if model.is_bank else ""
     if model.ports.has_score:
         extra += ", scores" if model.is_bank else ", score"
     section = {"status": outcome.status, "netlist": name,
+               "netlist_sha256": hashlib.sha256(text.encode("utf-8")).hexdigest(),
                "statement": PROOF_STATEMENT.format(extra=extra),
                "method": "one lemma per datapath value and register (Yosys write_smt2, "
                          "Boolector), cut points at closed subtrees",
@@ -796,44 +826,57 @@ def _prove_text(text, name, component, model, ports, *, timeout_s, simulator, pr
             else:
                 section["status"] = "counterexample"
                 section["counterexample"] = {
-                    "vector": dict(zip(names, outcome.candidate)), "file": COUNTEREXAMPLE_FILE,
+                    "vector": dict(zip(names, outcome.candidate)),
+                    "file": counterexample_file(name, own),
                     "confirmed_in": version_text, "mismatch": mismatch}
                 csv_text = ",".join(names) + "\n" + ",".join(map(str, outcome.candidate)) + "\n"
-    return ProofResult(section, outcome, csv_text)
+    seconds = time.perf_counter() - clock - outcome.warmup_seconds
+    return ProofResult(section, outcome, csv_text, seconds)
 
 
 def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto",
           progress=None):
     """Prove a build folder's Verilog (or ``netlist``, same module and ports) equal to its model.
 
-    The result goes into the folder's report (for the folder's own Verilog) and a confirmed
-    counterexample into ``counterexample.csv``; then :class:`MismatchError` is raised for a
-    counterexample and :class:`UndecidedError` when the proof was not decided.
+    The outcome goes into the folder's report: under ``proof`` for the folder's own Verilog,
+    under ``netlist_proofs`` by file name for another file. A confirmed counterexample goes
+    into the file the report names (:func:`counterexample_file`), and once that netlist has
+    none its earlier file goes, so that the folder holds no counterexample its report does not
+    name. Then :class:`MismatchError` is raised for a counterexample and
+    :class:`UndecidedError` when the proof was not decided.
     """
     _check_timeout(timeout_s)
     out_dir, model, settings, component = _load_folder(out_dir)
+    others = settings.get("netlist_proofs") or {}
+    if not isinstance(others, dict) or not all(isinstance(s, dict) for s in others.values()):
+        raise InputError("netlist_proofs must map file names to proofs; remove the key or "
+                         "rebuild the folder", source=out_dir / "report.json")
     ports = port_table(component, model)
     own = out_dir / settings["verilog"]
     path = Path(netlist) if netlist is not None else own
     text = read_netlist(path, model, ports)
+    is_own = path.resolve() == own.resolve()
     try:
         result = _prove_text(text, path.name, component, model, ports, timeout_s=timeout_s,
-                             simulator=simulator, progress=progress)
+                             simulator=simulator, progress=progress, own=is_own)
     except InputError as error:
         raise InputError(str(error), source=path) from None
-    files = {}
-    is_own = path.resolve() == own.resolve()
     if is_own:
         settings["proof"] = result.section
-        settings.setdefault("timing", {})["proof_s"] = round(result.outcome.seconds, 3)
-        files = {out_dir / "report.json": report_json(settings),
-                 out_dir / "report.html": report_html(settings),
-                 out_dir / "report.md": report_markdown(settings)}
+        settings.setdefault("timing", {}).update(
+            {key: round(value, 3) for key, value in result.timing.items()})
+    else:
+        settings["netlist_proofs"] = dict(sorted({**others, path.name: result.section}.items()))
+    files = {out_dir / "report.json": report_json(settings),
+             out_dir / "report.html": report_html(settings),
+             out_dir / "report.md": report_markdown(settings)}
     if result.counterexample_csv is not None:
-        files[out_dir / COUNTEREXAMPLE_FILE] = result.counterexample_csv
-    if files:
-        write_files(files, force=True)
-    if result.ok and is_own:
-        (out_dir / COUNTEREXAMPLE_FILE).unlink(missing_ok=True)
+        files[out_dir / result.counterexample_file] = result.counterexample_csv
+    write_files(files, force=True)
+    named = {s["counterexample"].get("file") for s in [settings.get("proof"),
+                                                      *settings.get("netlist_proofs", {}).values()]
+             if isinstance(s, dict) and isinstance(s.get("counterexample"), dict)}
+    for stale in {counterexample_file(path.name, is_own), LEGACY_COUNTEREXAMPLE} - named:
+        (out_dir / stale).unlink(missing_ok=True)
     result.raise_unless_proved()
     return result

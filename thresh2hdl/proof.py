@@ -40,7 +40,7 @@ from pathlib import Path
 
 from .errors import InputError, ToolError
 from .ranges import signed_bits
-from .tools import find_tool, tool_version
+from .tools import find_tool, warm_up
 
 __all__ = ["ProofOutcome", "prove_netlist", "proof_tools", "DEFAULT_TIMEOUT_S"]
 
@@ -57,6 +57,10 @@ class ProofOutcome:
     whose outputs the solver says differ from the model's, to be confirmed in a simulator, or
     None when none was found) or ``"undecided"`` (timeout, or a netlist the method cannot
     read; ``detail`` says which).
+
+    ``seconds`` is the proof's time; ``warmup_seconds`` the tools' first calls before it (a
+    WebAssembly build compiles on its first call on a machine: ``compiled`` names those that
+    did).
     """
 
     status: str
@@ -68,6 +72,8 @@ class ProofOutcome:
     yosys: str
     seconds: float
     width_bits: int
+    warmup_seconds: float = 0.0
+    compiled: tuple = ()
 
 
 class _Undecided(Exception):
@@ -738,9 +744,18 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
     :func:`thresh2hdl.verilog.port_table` of it. Returns a :class:`ProofOutcome`.
     """
     yosys, boolector = proof_tools()
-    started = time.perf_counter()
     component._MustUse__silence = True    # read as a plan here, not elaborated: no warning
-    versions = tool_version(yosys), tool_version(boolector)
+    # Each tool's first call, for its version, before the clock starts: a WebAssembly build
+    # compiles then on a new machine (a minute or so), which is neither the proof's time nor
+    # part of its timeout.
+    warm = time.perf_counter()
+    (yosys_version, yosys_new), (solver_version, solver_new) = \
+        warm_up(yosys, progress), warm_up(boolector, progress)
+    versions = yosys_version, solver_version
+    tools = {"warmup_seconds": time.perf_counter() - warm,
+             "compiled": tuple(name for name, new in (("Yosys", yosys_new),
+                                                      ("Boolector", solver_new)) if new)}
+    started = time.perf_counter()
     uncovered = None
     if component.config.arch == "serial":
         # Its values are shared by every beat: a proof needs per-beat invariants of the
@@ -755,7 +770,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
     if uncovered is not None:
         return ProofOutcome("undecided", f"{uncovered}; the design is verified cycle by cycle "
                             f"in simulation", 0, (), None, versions[1], versions[0],
-                            time.perf_counter() - started, 0)
+                            time.perf_counter() - started, 0, **tools)
     plan = _Plan(component, model)
     with tempfile.TemporaryDirectory(prefix="thresh2hdl-prove-") as name:
         folder = Path(name)
@@ -770,7 +785,8 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
 
         def outcome(status, detail, lemmas=0, failing=(), candidate=None):
             return ProofOutcome(status, detail, lemmas, tuple(failing), candidate,
-                                versions[1], versions[0], time.perf_counter() - started, width)
+                                versions[1], versions[0], time.perf_counter() - started, width,
+                                **tools)
 
         try:
             _check_structure(structure, port_rows)

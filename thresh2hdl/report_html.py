@@ -228,7 +228,8 @@ def report_html(report):
                             f"{estimate['tool_versions']['nextpnr']}"]]))
     else:
         out.append("<p>Not estimated; run <code>thresh2hdl estimate</code> on this folder.</p>")
-    out += ["<h2>Proof</h2>", _proof_html(report.get("proof"))]
+    out += ["<h2>Proof</h2>", _proof_html(report.get("proof")),
+            _netlist_proofs_html(report.get("netlist_proofs"))]
     out.append("</body></html>\n")
     return "\n".join(out)
 
@@ -256,7 +257,10 @@ def _proof_html(proof):
     if not proof:
         return "<p>Not run; run <code>thresh2hdl prove</code> on this folder.</p>"
     css = {"proved": "ok", "counterexample": "bad"}.get(proof["status"], "warn")
-    rows = [["netlist", proof["netlist"]], ["statement", proof["statement"]],
+    rows = [["netlist", proof["netlist"]],
+            *([["netlist sha256", proof["netlist_sha256"]]] if proof.get("netlist_sha256")
+              else []),
+            ["statement", proof["statement"]],
             ["method", proof["method"]], ["lemmas", proof["lemmas"]],
             ["solver", f"{proof['solver']}, {proof['yosys']}"],
             ["arithmetic", f"{proof['arithmetic_bits']} bits"],
@@ -268,6 +272,27 @@ def _proof_html(proof):
         out.append(f"<p>Counterexample ({escape(example['file'])}), confirmed in "
                    f"{escape(example['confirmed_in'])}: {escape(example['mismatch'])}</p>")
     return "\n".join(out)
+
+
+def _netlist_proofs_html(proofs):
+    """Proofs of other Verilog files (``prove --netlist``) against this folder's model."""
+    if not proofs:
+        return ""
+    rows = [[name, p["status"], p["lemmas"], (p.get("counterexample") or {}).get("file", ""),
+             p["detail"]] for name, p in proofs.items()]
+    return ("<h3>Other Verilog files (prove --netlist)</h3>"
+            + _table(["file", "status", "lemmas", "counterexample", "detail"], rows))
+
+
+def _cell(text):
+    """Text for a Markdown table cell (a file name may hold a bar)."""
+    return str(text).replace("|", "\\|")
+
+
+def _proof_cell(proof):
+    example = proof.get("counterexample")
+    return (f"{proof['status']} ({proof['lemmas']} lemmas, {proof['solver']})"
+            + (f"; counterexample in {example['file']}" if example else ""))
 
 
 def report_markdown(report):
@@ -299,8 +324,9 @@ def report_markdown(report):
                      f"{estimate['dsps']} DSPs (multipliers {where}), "
                      f"{estimate['fmax_mhz']:.1f} MHz |")
     proof = report.get("proof")
-    lines.append(f"| proof | {proof['status']} ({proof['lemmas']} lemmas, {proof['solver']}) |"
-                 if proof else "| proof | not run |")
+    lines.append(f"| proof | {_proof_cell(proof)} |" if proof else "| proof | not run |")
+    lines += [f"| proof of --netlist {_cell(name)} | {_cell(_proof_cell(other))} |"
+              for name, other in (report.get("netlist_proofs") or {}).items()]
     lines += ["", "| node | bits | range |", "| --- | --- | --- |"]
     lines += [f"| {n['name']} | {n['bits']} | [{n['range'][0]}, {n['range'][1]}] |"
               for n in report["tree"]["nodes"]]
