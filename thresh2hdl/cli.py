@@ -14,6 +14,7 @@ from .errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
 from .fitting import fit_csv, quantize_npz
 from .flow import BuildOptions, build, check, demo_model, estimate_folder, prove
 from .proof import DEFAULT_TIMEOUT_S
+from .report import cost_text
 from .train import FitOptions
 
 __all__ = ["main"]
@@ -251,11 +252,12 @@ def check_command(out_dir, netlist, simulator, vectors, seed):
               help="Let synthesis put multipliers into DSP blocks, or not (default: without "
               "on ice40, with on ecp5).")
 def estimate_command(out_dir, target, dsp):
-    """Synthesise and place-and-route OUT_DIR's Verilog; add the cost to its report.json."""
+    """Synthesise and place-and-route OUT_DIR's Verilog; add the cost to its report.json.
+
+    Exit code 2 when the design does not fit the device (its synthesis figures are kept)."""
     figures = estimate_folder(out_dir, target=target, dsp=dsp, progress=_progress().note)
-    click.echo(f"{target}: {figures['luts']} LUTs, {figures['carries']} carries, "
-               f"{figures['flip_flops']} flip-flops, {figures['dsps']} DSPs, fmax "
-               f"{figures['fmax_mhz']:.1f} MHz ({figures['tool_versions']['yosys'].split(' (')[0]}, "
+    click.echo(f"{target} {figures['device_name']}: {cost_text(figures)} "
+               f"({figures['tool_versions']['yosys'].split(' (')[0]}, "
                f"{figures['tool_versions']['nextpnr']})")
 
 

@@ -4,8 +4,9 @@ Every error a user can cause is a :class:`ThreshError`; the CLI maps them to exi
 place (:mod:`thresh2hdl.cli`), so a user sees one line and never a traceback.
 """
 
-__all__ = ["ThreshError", "InputError", "MismatchError", "ToolError", "UndecidedError", "EXIT_OK",
-           "EXIT_MISMATCH", "EXIT_INPUT", "EXIT_UNDECIDED", "EXIT_INTERNAL"]
+__all__ = ["ThreshError", "InputError", "MismatchError", "ToolError", "DoesNotFitError",
+           "UndecidedError", "EXIT_OK", "EXIT_MISMATCH", "EXIT_INPUT", "EXIT_UNDECIDED",
+           "EXIT_INTERNAL"]
 
 EXIT_OK = 0
 EXIT_MISMATCH = 1
@@ -36,6 +37,15 @@ class InputError(ThreshError):
 
 class ToolError(ThreshError):
     """An external tool (Yosys, a simulator) is missing or failed."""
+
+
+class DoesNotFitError(ThreshError):
+    """The design needs more of a resource than the target device has (exit 2, like bad input:
+    the design, not the tool, has to change). ``figures``: the synthesis figures, not placed."""
+
+    def __init__(self, message, *, figures):
+        self.figures = figures
+        super().__init__(message)
 
 
 class MismatchError(ThreshError):

@@ -15,10 +15,11 @@ import subprocess
 import tempfile
 from pathlib import Path
 
-from .errors import ToolError
+from .errors import DoesNotFitError, ToolError
 from .tools import find_tool, tool_version
 
-__all__ = ["TARGETS", "estimate_cost", "wrapper_text"]
+__all__ = ["TARGETS", "CELL_NAMES", "LUT4_RULES", "device_name", "estimate_cost",
+           "lut4_equivalents", "needs_text", "shortfall", "wrapper_text"]
 
 TARGETS = {
     # target: (Yosys synthesis command, nextpnr program, device arguments)
@@ -30,6 +31,75 @@ TARGETS = {
 _DSP_DEFAULT = {"ice40": (False, "-dsp"), "ecp5": (True, "-nodsp")}
 
 _FLOP = re.compile(r"^(SB_DFF|TRELLIS_FF|FD)")
+
+# target: (LUT cell, carry cell), the raw cells the LUT4 equivalents are counted from.
+CELL_NAMES = {"ice40": ("SB_LUT4", "SB_CARRY"), "ecp5": ("LUT4", "CCU2C")}
+# LUT4 equivalents make the targets comparable. On iCE40 a logic cell is one LUT4 with its
+# carry logic and flip-flop, and SB_CARRY sits in the cell of the LUT4 that computes the sum
+# bit (iCE40 UltraPlus family data sheet, the logic cell; from memory). On ECP5 a CCU2C is a
+# whole slice in ripple mode, two LUT4s and their carry (ECP5 and ECP5-5G family data sheet,
+# the slice, from memory; Yosys 0.70's share/ecp5/ccu2c_sim.vh models it as LUT4 lut4_0 and
+# lut4_1). PFUMX and L6MUX21 only join LUT outputs and add none.
+_LUT4_PER_CARRY = {"ice40": 0, "ecp5": 2}
+LUT4_RULES = {
+    "ice40": "LUT4 equivalents are the SB_LUT4 cells: an SB_CARRY sits in the logic cell of "
+             "the LUT4 that computes its sum bit and adds none",
+    "ecp5": "LUT4 equivalents are the LUT4 cells plus two for each CCU2C: a CCU2C carry cell "
+            "is a slice of two LUT4s",
+}
+# nextpnr's names for what a device has (its "Device utilisation" table), in plain words.
+_RESOURCES = {"ICESTORM_LC": "logic cells", "ICESTORM_DSP": "DSP blocks",
+              "ICESTORM_RAM": "block RAMs", "SB_IO": "I/O pins", "SB_GB": "global buffers",
+              "TRELLIS_COMB": "LUT4s", "TRELLIS_FF": "flip-flops",
+              "MULT18X18D": "DSP multipliers (18x18)", "ALU54B": "DSP adders (ALU54B)",
+              "DP16KD": "block RAMs", "TRELLIS_IO": "I/O pins", "DCCA": "global buffers"}
+_FAMILY = {"ice40": "iCE40", "ecp5": "ECP5"}
+_DSP_RESOURCES = {"ICESTORM_DSP", "MULT18X18D", "ALU54B"}
+_LOGIC_RESOURCES = {"ICESTORM_LC", "TRELLIS_COMB", "TRELLIS_FF"}
+_USE = re.compile(r"^Info:\s+(\w+):\s+(\d+)/\s*(\d+)\s+\d+%\s*$", re.MULTILINE)
+
+
+def lut4_equivalents(target, luts, carries):
+    """Logic in LUT4s, comparable across targets (see LUT4_RULES)."""
+    return luts + _LUT4_PER_CARRY.get(target, 0) * carries
+
+
+def device_name(target, device):
+    """The part a target's nextpnr arguments select: ``--up5k`` is the UP5K, ``--25k`` the
+    LFE5U-25F (``--um-25k`` LFE5UM-25F, ``--um5g-25k`` LFE5UM5G-25F)."""
+    flag = next((a[2:] for a in device if a.startswith("--") and a != "--package"), "")
+    if target == "ecp5":
+        found = re.fullmatch(r"(?:(um5g|um)-)?(\d+)k", flag)
+        if found:
+            return f"LFE5{(found.group(1) or 'u').upper()}-{found.group(2)}F"
+    return flag.upper()
+
+
+def shortfall(log):
+    """What a design needs beyond the device, from nextpnr's "Device utilisation" table: a
+    list of {resource, cell, needed, available}, empty when everything fits."""
+    return [{"resource": _RESOURCES.get(cell, f"{cell} cells"), "cell": cell,
+             "needed": int(used), "available": int(have)}
+            for cell, used, have in _USE.findall(log) if int(used) > int(have)]
+
+
+def needs_text(name, missing):
+    """A shortfall in words: "needs 10 DSP blocks, the UP5K has 8"."""
+    return "; ".join(f"needs {m['needed']:,} {m['resource']}, the {name} has "
+                     f"{m['available']:,}" for m in missing)
+
+
+def _not_fit_message(target, name, missing):
+    needs = needs_text(name, missing)
+    cells = {m["cell"] for m in missing}
+    if cells <= _DSP_RESOURCES:
+        hint = "estimate with --no-dsp to build the multipliers from LUTs"
+    else:
+        hint = "make the design smaller (fewer units or features, narrower weights, " \
+               "--arch serial)" + (" or estimate with --target ecp5" if target == "ice40" else "")
+    # The placed design is the module in the wrapper that measures fmax: its logic counts too.
+    what = "the module in its measuring wrapper" if cells & _LOGIC_RESOURCES else "the module"
+    return f"{what} does not fit the {_FAMILY.get(target, target)} {name}: {needs}; {hint}"
 
 
 def _tool(name):
@@ -91,10 +161,12 @@ def wrapper_text(module, ports):
 
 def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None, seed=None,
                   dsp=None):
-    """LUTs, carries, flip-flops, DSPs and fmax of the module on ``target``.
+    """LUT4 equivalents, LUTs, carries, flip-flops, DSPs and fmax of the module on ``target``.
 
     ``dsp``: whether synthesis may put multipliers into DSP blocks (None: the target's
     custom, without on iCE40, with on ECP5), for a design that has them to spare.
+    A design larger than the device raises :class:`DoesNotFitError` with the synthesis
+    figures (``placed`` false, no fmax) and what it needs beyond the device.
     """
     if target not in TARGETS:
         raise ToolError(f"unknown target {target!r}; choose one of {', '.join(TARGETS)}")
@@ -120,25 +192,42 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None,
         if progress:
             progress("placing and routing with nextpnr")
         placement = [] if seed is None else ["--seed", str(int(seed))]
-        _run([nextpnr, *device, "--json", "top.json", "--freq", "12", "--timing-allow-fail",
-              *placement, "--log", "pnr.log"], work, "nextpnr place and route")
-        log = (work / "pnr.log").read_text()
-    found = re.findall(r"Max frequency for clock\s+'[^']*':\s+([0-9.]+)\s+MHz", log)
-    if not found:
-        raise ToolError("nextpnr reported no clock frequency")
+        try:
+            _run([nextpnr, *device, "--json", "top.json", "--freq", "12",
+                  "--timing-allow-fail", *placement, "--log", "pnr.log"], work,
+                 "nextpnr place and route")
+            missing = []
+        except ToolError:
+            log_file = work / "pnr.log"
+            missing = shortfall(log_file.read_text() if log_file.exists() else "")
+            if not missing:
+                raise
+        log = "" if missing else (work / "pnr.log").read_text()
 
     def count(prefixes):
         return sum(n for cell, n in cells.items() if cell.startswith(prefixes))
 
-    return {
-        "target": target, "device": " ".join(device),
-        "luts": count(("SB_LUT4", "LUT4")),
-        "carries": count(("SB_CARRY", "CCU2C")),
+    luts, carries = count(("SB_LUT4", "LUT4")), count(("SB_CARRY", "CCU2C"))
+    figures = {
+        "target": target, "device": " ".join(device), "device_name": device_name(target, device),
+        "lut4_equivalents": lut4_equivalents(target, luts, carries),
+        "lut4_rule": LUT4_RULES.get(target, ""),
+        "luts": luts, "carries": carries,
         "flip_flops": sum(n for cell, n in cells.items() if _FLOP.match(cell)),
         "dsps": count(("SB_MAC16", "MULT18X18D")),
         "dsp_inference": use_dsp,
-        "fmax_mhz": float(found[-1]),
+        "placed": not missing,
+        "fmax_mhz": None,
         "cells": dict(sorted(cells.items())),
         "tool_versions": {"yosys": tool_version(yosys), "nextpnr": tool_version(nextpnr)},
         "method": "cells: the module alone; fmax: the module between registers in a wrapper",
     }
+    if missing:
+        figures["does_not_fit"] = missing
+        raise DoesNotFitError(_not_fit_message(target, figures["device_name"], missing),
+                              figures=figures)
+    found = re.findall(r"Max frequency for clock\s+'[^']*':\s+([0-9.]+)\s+MHz", log)
+    if not found:
+        raise ToolError("nextpnr reported no clock frequency")
+    figures["fmax_mhz"] = float(found[-1])
+    return figures

@@ -23,7 +23,7 @@ import numpy as np
 from . import __version__
 from .circuit import UnitConfig, make_component, weight_addresses
 from .data import dataset_for_model, read_csv
-from .errors import InputError, MismatchError, ToolError, UndecidedError
+from .errors import DoesNotFitError, InputError, MismatchError, ToolError, UndecidedError
 from .model import Model, load_model, model_to_toml, parse_model
 from .ranges import ARCHITECTURES
 from .estimate import estimate_cost
@@ -32,7 +32,7 @@ from .proof import DEFAULT_TIMEOUT_S, prove_netlist
 from .outdir import check_output_folder, staged_folder, write_files, write_text
 from .reference import ReferenceModel
 from .report_html import report_html, report_markdown
-from .report import REPORT_FORMAT, SAFETY_CAUTION, report_json, summary_lines
+from .report import REPORT_FORMAT, SAFETY_CAUTION, report_json, store_estimate, summary_lines
 from .simulate import simulate_amaranth
 from .stimulus import make_reload_stimulus, make_stimulus
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
@@ -669,16 +669,23 @@ def _load_folder(out_dir):
 
 
 def estimate_folder(out_dir, *, target="ice40", dsp=None, progress=None):
-    """Cost of a build folder's Verilog on ``target``; written into its report.json.
-    ``dsp``: multipliers into DSP blocks (None: the target's custom; see estimate_cost)."""
+    """Cost of a build folder's Verilog on ``target``; written into its report.json beside the
+    other targets'. ``dsp``: multipliers into DSP blocks (None: the target's custom; see
+    estimate_cost). A design larger than the device is recorded unplaced, then refused."""
     out_dir, model, settings, component = _load_folder(out_dir)
     text = (out_dir / settings["verilog"]).read_text(encoding="utf-8")
-    figures = estimate_cost(text, model.module, port_table(component, model), target=target,
-                            progress=progress, dsp=dsp)
-    settings["estimate"] = figures
+    try:
+        figures, failure = estimate_cost(text, model.module, port_table(component, model),
+                                         target=target, progress=progress, dsp=dsp), None
+    except DoesNotFitError as error:
+        figures, failure = error.figures, error
+    store_estimate(settings, figures)
     write_files({out_dir / "report.json": report_json(settings),
                  out_dir / "report.html": report_html(settings),
                  out_dir / "report.md": report_markdown(settings)}, force=True)
+    if failure is not None:
+        raise DoesNotFitError(f"{out_dir}: {failure} (the synthesis figures are in report.json, "
+                              f"marked not placed)", figures=figures) from None
     return figures
 
 

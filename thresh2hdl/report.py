@@ -6,7 +6,11 @@ builds of the same model give byte-identical report.json apart from that section
 
 import json
 
-__all__ = ["SAFETY_CAUTION", "REPORT_FORMAT", "report_json", "summary_lines"]
+from .estimate import (CELL_NAMES, LUT4_RULES, TARGETS, device_name, lut4_equivalents,
+                       needs_text)
+
+__all__ = ["SAFETY_CAUTION", "REPORT_FORMAT", "cost_text", "estimate_facts", "estimates_of",
+           "report_json", "shortfall_text", "store_estimate", "summary_lines"]
 
 REPORT_FORMAT = 1
 
@@ -28,6 +32,53 @@ def _jsonable(value):
 
 def report_json(report):
     return json.dumps(_jsonable(report), indent=2, sort_keys=False) + "\n"
+
+
+def estimates_of(report):
+    """Each target's cost estimate, in the order of TARGETS. Reports written before there was
+    one per target have a single ``estimate``; it reads as its target's."""
+    found = dict(report.get("estimates") or {})
+    older = report.get("estimate")
+    if older and older.get("target") not in found:
+        found[older["target"]] = older
+    order = {target: index for index, target in enumerate(TARGETS)}
+    return {t: found[t] for t in sorted(found, key=lambda t: (order.get(t, len(order)), t))}
+
+
+def store_estimate(report, figures):
+    """Put ``figures`` in the report as its target's estimate, keeping the other targets'."""
+    estimates = estimates_of(report)
+    estimates[figures["target"]] = figures
+    report.pop("estimate", None)
+    report["estimates"] = estimates_of({"estimates": estimates})
+
+
+def estimate_facts(figures):
+    """An estimate's device name, LUT4 equivalents and rule, also for older reports'."""
+    target = figures["target"]
+    name = figures.get("device_name") or device_name(target, figures["device"].split())
+    equivalents = figures.get("lut4_equivalents")
+    if equivalents is None:
+        equivalents = lut4_equivalents(target, figures["luts"], figures["carries"])
+    return name, equivalents, figures.get("lut4_rule") or LUT4_RULES.get(target, "")
+
+
+def shortfall_text(figures):
+    """What a design that was not placed needs beyond the device, in words."""
+    return needs_text(estimate_facts(figures)[0], figures.get("does_not_fit", []))
+
+
+def cost_text(figures):
+    """One estimate in a line: LUT4 equivalents first, the raw cell counts beside them."""
+    _, equivalents, _ = estimate_facts(figures)
+    lut, carry = CELL_NAMES.get(figures["target"], ("LUT", "carry"))
+    text = (f"{equivalents:,} LUT4 equivalents ({figures['luts']:,} {lut}, "
+            f"{figures['carries']:,} {carry}), {figures['flip_flops']:,} flip-flops, "
+            f"{figures['dsps']} DSPs (multipliers "
+            f"{'may use DSPs' if figures.get('dsp_inference') else 'in LUTs'}), ")
+    if figures.get("placed", True):
+        return text + f"fmax {figures['fmax_mhz']:.1f} MHz"
+    return text + f"not placed: {shortfall_text(figures)}"
 
 
 def summary_lines(report):

@@ -5,6 +5,9 @@ Both are made from the same report dictionary as report.json, so the three never
 
 from html import escape
 
+from .estimate import CELL_NAMES
+from .report import cost_text, estimate_facts, estimates_of, shortfall_text
+
 __all__ = ["report_html", "report_markdown"]
 
 _STYLE = """
@@ -215,19 +218,7 @@ def report_html(report):
                 _polyline_chart(series, label_x=f"weight bits {sweep[0]['bits']} .. "
                                 f"{sweep[-1]['bits']}", label_y="against the float model",
                                 y_max=1.0, y_min=min(min(v) for _, v in series))]
-    estimate = report.get("estimate")
-    out.append("<h2>Cost</h2>")
-    if estimate:
-        out.append(_table(["target", "LUTs", "carries", "flip-flops", "DSPs",
-                           "multipliers may use DSPs", "fmax (MHz)", "tools"],
-                          [[estimate["target"], estimate["luts"], estimate["carries"],
-                            estimate["flip_flops"], estimate["dsps"],
-                            "yes" if estimate.get("dsp_inference") else "no",
-                            f"{estimate['fmax_mhz']:.1f}",
-                            f"{estimate['tool_versions']['yosys']}, "
-                            f"{estimate['tool_versions']['nextpnr']}"]]))
-    else:
-        out.append("<p>Not estimated; run <code>thresh2hdl estimate</code> on this folder.</p>")
+    out += ["<h2>Cost</h2>", _cost_html(estimates_of(report))]
     out += ["<h2>Proof</h2>", _proof_html(report.get("proof")),
             _netlist_proofs_html(report.get("netlist_proofs"))]
     out.append("</body></html>\n")
@@ -251,6 +242,32 @@ def _guard_html(guard):
     return "\n".join(["<h3>Codes outside the declared ranges</h3>",
                       f"<p class={css}>{escape(guard['statement'])}</p>",
                       _table(["", "value"], rows)])
+
+
+def _cost_html(estimates):
+    """One row per target estimated; a design that did not fit shows what it needs."""
+    if not estimates:
+        return "<p>Not estimated; run <code>thresh2hdl estimate</code> on this folder.</p>"
+    rows, notes = [], []
+    for target, e in estimates.items():
+        name, equivalents, rule = estimate_facts(e)
+        lut, carry = CELL_NAMES.get(target, ("LUT", "carry"))
+        placed = e.get("placed", True)
+        rows.append([target, name, "yes" if placed else "no", f"{equivalents:,}",
+                     f"{e['luts']:,} {lut}", f"{e['carries']:,} {carry}",
+                     f"{e['flip_flops']:,}", e["dsps"],
+                     "yes" if e.get("dsp_inference") else "no",
+                     f"{e['fmax_mhz']:.1f}" if placed else "-",
+                     f"{e['tool_versions']['yosys']}, {e['tool_versions']['nextpnr']}"])
+        notes.append(f"<p>{escape(target)}: {escape(rule)}.</p>")
+        if not placed:
+            notes.append(f"<p class=bad>{escape(target)} {escape(name)}: not placed, the design "
+                         f"does not fit; it {escape(shortfall_text(e))}. The figures are "
+                         f"Yosys's synthesis of the module.</p>")
+    table = _table(["target", "device", "placed", "LUT4 equivalents", "LUT cells",
+                    "carry cells", "flip-flops", "DSPs", "multipliers may use DSPs",
+                    "fmax (MHz)", "tools"], rows)
+    return "\n".join([f"<div class=wide>{table}</div>"] + notes)
 
 
 def _proof_html(proof):
@@ -316,13 +333,10 @@ def report_markdown(report):
              f"| simulator | {v['simulator_version']} |"]
     if report.get("data"):
         lines.append(f"| accuracy on {report['data']['file']} | {report['data']['accuracy']:.4f} |")
-    estimate = report.get("estimate")
-    if estimate:
-        where = "may use DSPs" if estimate.get("dsp_inference") else "in LUTs"
-        lines.append(f"| {estimate['target']} cost | {estimate['luts']} LUTs, "
-                     f"{estimate['carries']} carries, {estimate['flip_flops']} flip-flops, "
-                     f"{estimate['dsps']} DSPs (multipliers {where}), "
-                     f"{estimate['fmax_mhz']:.1f} MHz |")
+    for target, estimate in estimates_of(report).items():
+        name, _, rule = estimate_facts(estimate)
+        lines.append(f"| {target} {name} cost | {cost_text(estimate)} |")
+        lines.append(f"| {target} LUT4 equivalents | {rule} |")
     proof = report.get("proof")
     lines.append(f"| proof | {_proof_cell(proof)} |" if proof else "| proof | not run |")
     lines += [f"| proof of --netlist {_cell(name)} | {_cell(_proof_cell(other))} |"
