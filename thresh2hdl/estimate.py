@@ -159,6 +159,38 @@ def wrapper_text(module, ports):
     return "\n".join(lines) + "\n"
 
 
+def _synthesised_cells(yosys, synth, work, module):
+    """Yosys's cell counts of ``work/dut.v``'s module alone."""
+    _run([yosys, "-q", "-p", f"read_verilog dut.v; {synth} -top {module}; "
+          f"tee -q -o stat.json stat -json"], work, "Yosys synthesis")
+    stats = json.loads((work / "stat.json").read_text())
+    return next(iter(stats["modules"].values()))["num_cells_by_type"]
+
+
+def _synth_command(target, dsp):
+    synth, _, _ = TARGETS[target]
+    default, flag = _DSP_DEFAULT[target]
+    use_dsp = default if dsp is None else bool(dsp)
+    return (f"{synth} {flag}" if use_dsp != default else synth), use_dsp
+
+
+def synthesis_figures(verilog_text, module, *, target="ice40", dsp=None):
+    """LUT4 equivalents, LUTs, carries and flip-flops of the module, from synthesis alone (no
+    placement): to set two variants of one design side by side in seconds."""
+    if target not in TARGETS:
+        raise ToolError(f"unknown target {target!r}; choose one of {', '.join(TARGETS)}")
+    synth, _ = _synth_command(target, dsp)
+    with tempfile.TemporaryDirectory(prefix="thresh2hdl-synth-") as folder:
+        work = Path(folder)
+        (work / "dut.v").write_text(verilog_text, encoding="utf-8")
+        cells = _synthesised_cells(_tool("yosys"), synth, work, module)
+    luts = sum(n for cell, n in cells.items() if cell.startswith(("SB_LUT4", "LUT4")))
+    carries = sum(n for cell, n in cells.items() if cell.startswith(("SB_CARRY", "CCU2C")))
+    return {"lut4_equivalents": lut4_equivalents(target, luts, carries), "luts": luts,
+            "carries": carries,
+            "flip_flops": sum(n for cell, n in cells.items() if _FLOP.match(cell))}
+
+
 def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None, seed=None,
                   dsp=None):
     """LUT4 equivalents, LUTs, carries, flip-flops, DSPs and fmax of the module on ``target``.
@@ -170,11 +202,8 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None,
     """
     if target not in TARGETS:
         raise ToolError(f"unknown target {target!r}; choose one of {', '.join(TARGETS)}")
-    synth, pnr, device = TARGETS[target]
-    default, flag = _DSP_DEFAULT[target]
-    use_dsp = default if dsp is None else bool(dsp)
-    if use_dsp != default:
-        synth = f"{synth} {flag}"
+    _, pnr, device = TARGETS[target]
+    synth, use_dsp = _synth_command(target, dsp)
     yosys, nextpnr = _tool("yosys"), _tool(pnr)
     if progress:
         progress("synthesising with Yosys (the first WebAssembly call takes about a minute)")
@@ -183,10 +212,7 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None,
         (work / "dut.v").write_text(verilog_text, encoding="utf-8")
         (work / "top.v").write_text(wrapper_text(module, ports), encoding="utf-8")
         # The WebAssembly tools see only the working folder: relative paths throughout.
-        _run([yosys, "-q", "-p", f"read_verilog dut.v; {synth} -top {module}; "
-              f"tee -q -o stat.json stat -json"], work, "Yosys synthesis")
-        stats = json.loads((work / "stat.json").read_text())
-        cells = next(iter(stats["modules"].values()))["num_cells_by_type"]
+        cells = _synthesised_cells(yosys, synth, work, module)
         _run([yosys, "-q", "-p", f"read_verilog dut.v top.v; {synth} -top "
               f"thresh_estimate_top -json top.json"], work, "Yosys synthesis of the wrapper")
         if progress:

@@ -26,7 +26,7 @@ from .data import dataset_for_model, read_csv
 from .errors import DoesNotFitError, InputError, MismatchError, ToolError, UndecidedError
 from .model import Model, load_model, model_to_toml, parse_model
 from .ranges import ARCHITECTURES
-from .estimate import estimate_cost
+from .estimate import estimate_cost, synthesis_figures
 from .guard import guard_words
 from .proof import DEFAULT_TIMEOUT_S, prove_netlist
 from .outdir import check_output_folder, staged_folder, write_files, write_text
@@ -679,6 +679,17 @@ def estimate_folder(out_dir, *, target="ice40", dsp=None, progress=None):
                                          target=target, progress=progress, dsp=dsp), None
     except DoesNotFitError as error:
         figures, failure = error.figures, error
+    guard = component.config.guard
+    if guard.needed and (guard.clamp or guard.flag):
+        # The guard's cost: the same design without it, synthesised the same way.
+        if progress:
+            progress("synthesising the same design without the input guard, for its cost")
+        bare = make_component(replace(component.config, clamp=False, range_flag=False))
+        plain = synthesis_figures(emit_verilog(bare, model), model.module, target=target,
+                                  dsp=dsp)
+        figures["input_guard"] = {
+            "lut4_equivalents": figures["lut4_equivalents"] - plain["lut4_equivalents"],
+            "flip_flops": figures["flip_flops"] - plain["flip_flops"], "without_guard": plain}
     store_estimate(settings, figures)
     write_files({out_dir / "report.json": report_json(settings),
                  out_dir / "report.html": report_html(settings),

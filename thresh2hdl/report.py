@@ -76,9 +76,14 @@ def cost_text(figures):
             f"{figures['carries']:,} {carry}), {figures['flip_flops']:,} flip-flops, "
             f"{figures['dsps']} DSPs (multipliers "
             f"{'may use DSPs' if figures.get('dsp_inference') else 'in LUTs'}), ")
-    if figures.get("placed", True):
-        return text + f"fmax {figures['fmax_mhz']:.1f} MHz"
-    return text + f"not placed: {shortfall_text(figures)}"
+    text += f"fmax {figures['fmax_mhz']:.1f} MHz" if figures.get("placed", True) else \
+        f"not placed: {shortfall_text(figures)}"
+    guard = figures.get("input_guard")
+    if guard:
+        text += (f"; of which the input guard {guard['lut4_equivalents']:+,} LUT4 equivalents, "
+                 f"{guard['flip_flops']:+,} flip-flops (synthesis of the same design without "
+                 f"it: {guard['without_guard']['lut4_equivalents']:,})")
+    return text
 
 
 def summary_lines(report):

@@ -260,6 +260,13 @@ def _cost_html(estimates):
                      f"{e['fmax_mhz']:.1f}" if placed else "-",
                      f"{e['tool_versions']['yosys']}, {e['tool_versions']['nextpnr']}"])
         notes.append(f"<p>{escape(target)}: {escape(rule)}.</p>")
+        guard = e.get("input_guard")
+        if guard:
+            notes.append(f"<p>{escape(target)}: the input guard (clamp and/or out-of-range "
+                         f"flag) costs {guard['lut4_equivalents']:+,} LUT4 equivalents and "
+                         f"{guard['flip_flops']:+,} flip-flops against the same design without "
+                         f"it ({guard['without_guard']['lut4_equivalents']:,} LUT4 equivalents "
+                         f"by synthesis).</p>")
         if not placed:
             notes.append(f"<p class=bad>{escape(target)} {escape(name)}: not placed, the design "
                          f"does not fit; it {escape(shortfall_text(e))}. The figures are "
