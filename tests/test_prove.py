@@ -38,8 +38,8 @@ def tools():
         pytest.skip(str(error))
 
 
-def proved(model, *, pipeline=0, arch="tree", text=None, timeout_s=120):
-    component = make_component(UnitConfig(model, pipeline=pipeline, arch=arch))
+def proved(model, *, pipeline=0, arch="tree", text=None, timeout_s=120, **config):
+    component = make_component(UnitConfig(model, pipeline=pipeline, arch=arch, **config))
     text = emit_verilog(component, model) if text is None else text
     return prove_netlist(text, component, model, port_table(component, model),
                          timeout_s=timeout_s)
@@ -298,9 +298,9 @@ def test_prove_command_prints_a_confirmed_counterexample_with_exit_1(tmp_path):
 # Netlists whose SMT export alone would look right (found in review): each must be refused or
 # come out not proved, never "proved".
 
-def small_pipeline_text(pipeline, ranges=None):
+def small_pipeline_text(pipeline, ranges=None, **config):
     model = make_model([3, -5, 7, 2], 10, bits=4, ranges=ranges)
-    component = make_component(UnitConfig(model, pipeline=pipeline))
+    component = make_component(UnitConfig(model, pipeline=pipeline, **config))
     return model, emit_verilog(component, model)
 
 
@@ -338,15 +338,18 @@ def test_an_input_driven_inside_or_narrower_than_declared_is_refused():
 
 def test_assumptions_nothing_satisfies_prove_nothing(monkeypatch):
     # With the input check switched off, an input tied outside its declared range makes the
-    # assumptions contradictory; the guard must then answer undecided, not proved.
+    # assumptions contradictory; the check must then answer undecided, not proved. (Without
+    # the input guard: with its clamp the statement covers every code, assuming none.)
     import thresh2hdl.proof as proof
     monkeypatch.setattr(proof, "_check_structure", lambda *args: None)
-    model, text = small_pipeline_text(0, ranges=[(1, 15)] + [(0, 15)] * 3)
+    unguarded = {"clamp": False, "range_flag": False}
+    model, text = small_pipeline_text(0, ranges=[(1, 15)] + [(0, 15)] * 3, **unguarded)
     tied = text.replace("  assign in_ready = out_ready;",
                         "  assign in_ready = out_ready;\n  assign f0 = 4'd0;")
     tied = re.sub(r"assign y = [^;]*;", "assign y = 1'b1;", tied)
-    outcome = proved(model, text=tied)
+    outcome = proved(model, text=tied, **unguarded)
     assert outcome.status == "undecided" and "cannot all hold" in outcome.detail
+<<<<<<< HEAD
 
 
 # A folder never holds files that contradict its report: every counterexample file is one the
@@ -541,3 +544,11 @@ def test_tools_that_do_not_compile_are_not_announced(tmp_path, monkeypatch):
         version, compiled = warm_up(path, notes.append)
         assert version.startswith(prefix) and not compiled
     assert notes == []
+=======
+    # With the clamp, f0 = 0 is a code like any other: the wrong decision is found.
+    model, text = small_pipeline_text(0, ranges=[(1, 15)] + [(0, 15)] * 3, range_flag=False)
+    tied = text.replace("  assign in_ready = out_ready;",
+                        "  assign in_ready = out_ready;\n  assign f0 = 4'd0;")
+    tied = re.sub(r"assign y = [^;]*;", "assign y = 1'b1;", tied)
+    assert proved(model, text=tied, range_flag=False).status == "failed"
+>>>>>>> main

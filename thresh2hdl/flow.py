@@ -817,9 +817,18 @@ def _prove_text(text, name, component, model, ports, *, timeout_s, simulator, pr
     extra = ", class" if model.is_bank else ""
     if model.ports.has_score:
         extra += ", scores" if model.is_bank else ", score"
+    guard = component.config.guard
+    statement = PROOF_STATEMENT.format(extra=extra)
+    if guard.needed and guard.clamp:
+        statement = statement.replace("every input in the declared feature ranges",
+                                      "every code the input ports can carry") \
+            .replace("integer model's", "integer model's on the codes clamped to the declared "
+                     "ranges")
+    if guard.flag:
+        statement += "; the out-of-range output is high exactly when a code was outside its range"
     section = {"status": outcome.status, "netlist": name,
                "netlist_sha256": hashlib.sha256(text.encode("utf-8")).hexdigest(),
-               "statement": PROOF_STATEMENT.format(extra=extra),
+               "statement": statement,
                "method": "one lemma per datapath value and register (Yosys write_smt2, "
                          "Boolector), cut points at closed subtrees",
                "lemmas": outcome.lemmas, "solver": outcome.solver, "yosys": outcome.yosys,
