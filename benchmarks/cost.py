@@ -72,7 +72,7 @@ def main():
           f"shiftadd, {with_dsp['fmax_mhz']:.1f} MHz")
     # fmax of the pipelined multiplier-free unit: every level registered, with and without
     # split adders; nextpnr's placement seed moves fmax by a few MHz, so several seeds.
-    levels = analyse(model, arch="shiftadd").final_level + 1
+    levels = analyse(model, arch="shiftadd").levels
     for split, carry in FMAX_CONFIGS:
         dut = make_component(UnitConfig(model, pipeline=levels, arch="shiftadd",
                                         split_bits=split, carry_registers=carry))

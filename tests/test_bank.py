@@ -1,6 +1,8 @@
 """Banks of units sharing the inputs, decided by argmax with ties to the lowest index."""
 
 import itertools
+import random
+import re
 
 import numpy as np
 import pytest
@@ -10,14 +12,16 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from conftest import require_tool
 from test_verilog import assert_lint_clean_and_agrees
-from thresh2hdl.circuit import ThresholdBank, UnitConfig, make_component
-from thresh2hdl.flow import run_simulator
+from thresh2hdl.circuit import FULL_PIPELINE, ThresholdBank, UnitConfig, make_component
+from thresh2hdl.errors import InputError
+from thresh2hdl.flow import BuildOptions, run_simulator
 from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.ranges import analyse_bank
 from thresh2hdl.reference import ReferenceModel
+from thresh2hdl.report import argmax_report, node_table
 from thresh2hdl.stimulus import make_stimulus
 from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import port_table
+from thresh2hdl.verilog import emit_verilog, port_table
 
 
 def bank_model(weights, biases, *, bits=4, is_signed=False, ports=PortNames()):
@@ -115,3 +119,75 @@ def test_bank_score_port_names_must_not_clash():
     with pytest.raises(ValueError, match="clashes"):
         Model(module="m", features=[FeatureFormat("score_a", 4)],
               units=[Unit("a", (1,), 0), Unit("b", (2,), 0)])
+
+
+def test_report_names_every_node_where_the_verilog_holds_it():
+    # Random units and banks of every architecture and option (seeded): each node's place in
+    # the report is a wire the emitted Verilog declares, read with a pattern written here
+    # (Verilog-2001 declarations, IEEE 1364-2005 12.3.3), or an input port shifted, or
+    # explained (a constant, an unread value); a bank's nodes carry their unit's prefix.
+    declaration = re.compile(r"^\s*(?:\(\*[^*]*\*\)\s*)?(?:input|output|wire|reg)\s+"
+                             r"(?:wire\s+|reg\s+)?(?:signed\s+)?(?:\[\d+:\d+\]\s*)?(\w+)", re.M)
+    rng = random.Random(7)
+    designs = 0
+    while designs < 14:
+        features, units = rng.randint(1, 5), rng.choice([1, 2, 3])
+        weights = [[rng.choice([0, 1, -1, 2, -4, 3, -5, 7, 12]) for _ in range(features)]
+                   for _ in range(units)]
+        names = [rng.choice([f"f{i}", f"p{i}", f"s1_{i}"]) for i in range(features)]
+        options = {"arch": rng.choice(["tree", "shiftadd", "serial"])}
+        if options["arch"] != "serial":
+            options["pipeline"] = rng.choice([0, 1, 2, FULL_PIPELINE])
+            if units == 1 and options["pipeline"] != 0 and rng.random() < 0.3:
+                options["split_bits"] = rng.randint(3, 6)
+        if options["arch"] != "shiftadd" and not options.get("split_bits") and rng.random() < 0.2:
+            options.update(loadable_weights=True, pipeline=1)
+        try:
+            model = Model(module="m", features=[FeatureFormat(n, rng.randint(2, 8)) for n in names],
+                          units=[Unit(f"c{k}", tuple(w), rng.choice([0, 3, -7])) for k, w in
+                                 enumerate(weights)],
+                          ports=PortNames() if rng.random() < 0.7 else PortNames(score=""))
+            dut = make_component(UnitConfig(model, **options))
+        except (ValueError, InputError):
+            continue                 # a clash of names, or an option this design refuses
+        designs += 1
+        text = emit_verilog(dut, model)
+        declared = set(declaration.findall(text))
+        for node in node_table(dut, model, text):
+            if model.is_bank:
+                unit = [u.name for u in model.units].index(node["unit"])
+                assert node["name"].startswith(f"u{unit}_")
+            place = node["verilog"]
+            if place.startswith(("none: ", "the constant ")):
+                continue
+            wires = re.findall(r"(?<![\w\[:])[A-Za-z_]\w*", place)
+            assert wires and set(wires) <= declared, (options, node)
+            if node["kind"] != "product" and not options.get("split_bits") and \
+                    node["name"] not in {n for n in names} and dut.latency:
+                assert place == node["name"], (options, node)
+        for comparison in argmax_report(dut, model)[:-1]:
+            assert set(comparison["verilog"].split(", ")) <= declared
+
+
+def planned(model, **options):
+    """A component planned but not built (no "never elaborated" warning)."""
+    component = make_component(UnitConfig(model, **options))
+    component._MustUse__silence = True
+    return component
+
+
+def test_full_pipeline_is_resolved_when_the_design_is_planned():
+    model = bank_model([[1, 2, 3], [3, -2, 1], [0, 1, 1]], [0, 5, -5])
+    dut = planned(model, pipeline=FULL_PIPELINE)
+    plan = analyse_bank(model)
+    assert dut.config.pipeline == dut.latency == dut.levels == plan.levels
+    assert dut.stage_levels == tuple((k, k) for k in range(plan.levels))
+    # The deepest count is accepted, one more is refused in the same count.
+    assert planned(model, pipeline=plan.levels).latency == plan.levels
+    with pytest.raises(InputError, match=f"has {plan.levels} levels .* at most {plan.levels}"):
+        planned(model, pipeline=plan.levels + 1)
+    serial = planned(model, arch="serial", pipeline=FULL_PIPELINE)
+    assert serial.config.pipeline == serial.latency == serial.levels == 1
+    assert BuildOptions(pipeline=BuildOptions.FULL_PIPELINE).pipeline == FULL_PIPELINE
+    with pytest.raises(InputError, match="non-negative integer or 'full'"):
+        BuildOptions(pipeline="every")

@@ -71,6 +71,28 @@ def test_build_example_twice_from_two_folders_is_byte_identical(tmp_path):
     assert reports[0]["latency_cycles"] == 2
 
 
+def test_levels_are_one_count_and_full_registers_every_level(tmp_path):
+    # The demo has 10 features: products (level 0), ceil(log2 10) = 4 levels of pairwise
+    # adders, then the bias and decision: 6 levels (pairwise tree depth, common practice).
+    levels = 1 + 4 + 1
+    out = tmp_path / "full"
+    result = run("demo", "--out", out, "--pipeline", "full", "--simulator", "amaranth",
+                 "--vectors", "300")
+    assert result.returncode == 0, result.stderr
+    report = json.loads((out / "report.json").read_text())
+    tree = report["tree"]
+    assert tree["levels"] == levels == report["register_stages"] == report["latency_cycles"]
+    assert tree["stages"] == [{"stage": k + 1, "levels": [k, k]} for k in range(levels)]
+    assert tree["level_names"] == ["products"] + ["adders"] * 4 + ["bias and decision"]
+    assert sorted({n["level"] for n in tree["nodes"]}) == list(range(levels))
+    assert f"{levels} levels (0 products, 1-4 adders, 5 bias and decision)" in result.stdout
+    assert f"{levels} register stages, one after every level" in result.stdout
+    # One more than the levels is refused, in the same count, saying what to do.
+    refused = run("demo", "--out", tmp_path / "deep", "--pipeline", str(levels + 1))
+    assert_one_line_error(refused, 2, f"this design has {levels} levels")
+    assert f"at most {levels}: use {levels} or fewer, or 'full'" in refused.stderr
+
+
 def test_example_file_is_the_embedded_scenario():
     from thresh2hdl.model import load_model
     assert load_model(EXAMPLE) == demo_model()
@@ -91,6 +113,7 @@ def test_module_override_and_headroom(tmp_path):
     (("demo", "--module", "a/b"), "must be a Verilog identifier"),
     (("demo", "--pipeline", "99"), "register stages requested"),
     (("demo", "--pipeline", "-1"), "non-negative"),
+    (("demo", "--pipeline", "every"), "'every' is not a number of register stages or 'full'"),
     (("demo", "--score-bits", "4"), "needs at least"),
     (("demo", "--vectors", "ten"), "not a valid integer"),
     (("build",), "Missing argument"),

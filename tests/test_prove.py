@@ -349,7 +349,12 @@ def test_assumptions_nothing_satisfies_prove_nothing(monkeypatch):
     tied = re.sub(r"assign y = [^;]*;", "assign y = 1'b1;", tied)
     outcome = proved(model, text=tied, **unguarded)
     assert outcome.status == "undecided" and "cannot all hold" in outcome.detail
-<<<<<<< HEAD
+    # With the clamp, f0 = 0 is a code like any other: the wrong decision is found.
+    model, text = small_pipeline_text(0, ranges=[(1, 15)] + [(0, 15)] * 3, range_flag=False)
+    tied = text.replace("  assign in_ready = out_ready;",
+                        "  assign in_ready = out_ready;\n  assign f0 = 4'd0;")
+    tied = re.sub(r"assign y = [^;]*;", "assign y = 1'b1;", tied)
+    assert proved(model, text=tied, range_flag=False).status == "failed"
 
 
 # A folder never holds files that contradict its report: every counterexample file is one the
@@ -544,11 +549,3 @@ def test_tools_that_do_not_compile_are_not_announced(tmp_path, monkeypatch):
         version, compiled = warm_up(path, notes.append)
         assert version.startswith(prefix) and not compiled
     assert notes == []
-=======
-    # With the clamp, f0 = 0 is a code like any other: the wrong decision is found.
-    model, text = small_pipeline_text(0, ranges=[(1, 15)] + [(0, 15)] * 3, range_flag=False)
-    tied = text.replace("  assign in_ready = out_ready;",
-                        "  assign in_ready = out_ready;\n  assign f0 = 4'd0;")
-    tied = re.sub(r"assign y = [^;]*;", "assign y = 1'b1;", tied)
-    assert proved(model, text=tied, range_flag=False).status == "failed"
->>>>>>> main

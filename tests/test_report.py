@@ -5,10 +5,13 @@ import re
 import xml.etree.ElementTree as ElementTree
 from html.parser import HTMLParser
 
+import numpy as np
 import pytest
 
+from test_bank import bank_model
 from test_cli import run
 from test_fit_cli import HEADER, separable_rows, write_csv
+from thresh2hdl.flow import BuildOptions, build
 
 VOID = {"meta", "br", "img", "hr", "link", "input"}
 
@@ -74,7 +77,7 @@ def test_html_shows_the_report(built):
     assert "Confusion" in text
     assert 'aria-label="mistakes per epoch"' in text and report["training"]["log"] == "m.fit.json"
     for node in report["tree"]["nodes"]:
-        assert f"{node['name']} ({node['bits']} bits)" in text
+        assert f"<title>{node['name']}: {node['kind']}, {node['bits']} bits, " in text
     markdown = (built / "report.md").read_text()
     assert f"| mismatches | {report['mismatches']} |" in markdown
     assert f"| score port bits | {report['score_bits']} |" in markdown
@@ -88,3 +91,163 @@ def test_reports_are_deterministic(built, tmp_path):
                "--vectors", "500").returncode == 0
     for name in ("report.html", "report.md"):
         assert (again / name).read_bytes() == (built / name).read_bytes()
+
+
+# Identifiers the Verilog declares (ports, wires, registers): read here with a pattern of our
+# own, not the project's, from the Verilog-2001 declaration syntax (IEEE 1364-2005, 12.3.3
+# and 4.2).
+DECLARED = re.compile(r"^\s*(?:\(\*[^*]*\*\)\s*)?(?:input|output|wire|reg)\s+(?:wire\s+|reg\s+)?"
+                      r"(?:signed\s+)?(?:\[\d+:\d+\]\s*)?([A-Za-z_][A-Za-z0-9_]*)", re.M)
+BANK_WEIGHTS = [[1, -2, 3, 4], [2, 2, -1, 0], [-3, 1, 1, 1], [0, 1, -1, 2], [2, 0, 0, -1]]
+BANK_BIASES = [1, -2, 0, 5, -3]
+
+
+@pytest.fixture(scope="module")
+def bank_built(tmp_path_factory):
+    """A bank of five units (an odd one carried up the argmax), three register stages, with
+    labelled rows."""
+    folder = tmp_path_factory.mktemp("bank_report")
+    rng = np.random.default_rng(1)
+    x = rng.integers(0, 64, (300, 4))
+    labels = rng.integers(0, 5, 300)
+    data = write_csv(folder / "rows.csv", ["f0", "f1", "f2", "f3", "label"],
+                     [list(row) + [label] for row, label in zip(x, labels)])
+    model = bank_model(BANK_WEIGHTS, BANK_BIASES, bits=6)
+    built = build(model, folder / "out", BuildOptions(pipeline=3, simulator="amaranth",
+                                                      vectors=300, data=str(data)))
+    return built.out_dir, x, labels
+
+
+def test_bank_nodes_are_named_as_in_the_verilog(bank_built):
+    out, _, _ = bank_built
+    report = json.loads((out / "report.json").read_text())
+    declared = set(DECLARED.findall((out / report["verilog"]).read_text()))
+    features = {f["name"] for f in report["features"]}
+    units = [u["name"] for u in report["units"]]
+    nodes = report["tree"]["nodes"]
+    assert len({n["name"] for n in nodes}) == len(nodes)
+    own = 0
+    for node in nodes:
+        assert node["name"].startswith(f"u{units.index(node['unit'])}_")
+        if node["verilog"] == node["name"]:
+            assert node["name"] in declared
+            own += 1
+        else:
+            # A product by a power of two is the input itself, shifted: no wire of its own.
+            shifted = re.fullmatch(r"([A-Za-z_]\w*)(?: << (\d+))?", node["verilog"])
+            assert node["kind"] == "product" and shifted and shifted[1] in features
+            assert node["name"] not in declared
+    assert own >= len(nodes) // 2
+    markdown = (out / "report.md").read_text()
+    assert all(f"| {n['name']} | {n['level']} | {n['stage']} |" in markdown for n in nodes)
+
+
+def test_bank_report_has_each_units_score_by_class(bank_built):
+    out, x, labels = bank_built
+    report = json.loads((out / "report.json").read_text())
+    histograms = report["data"]["unit_histograms"]
+    # The scores from a plain matrix product, independent of the reference model.
+    scores = x @ np.array(BANK_WEIGHTS).T + np.array(BANK_BIASES)
+    assert [h["unit"] for h in histograms] == [u["name"] for u in report["units"]]
+    for k, histogram in enumerate(histograms):
+        edges = np.array(histogram["edges"])
+        own = np.histogram(scores[labels == k, k], bins=edges)[0].tolist()
+        others = np.histogram(scores[labels != k, k], bins=edges)[0].tolist()
+        assert histogram["counts"] == {f"class {k}": own, "other classes": others}
+        assert sum(own) + sum(others) == len(x)
+    assert report["data"]["score_seen"] == [float(scores.min()), float(scores.max())]
+    text = (out / "report.html").read_text()
+    for unit in report["units"]:
+        assert text.count(f'aria-label="score histogram of unit {unit["name"]}"') == 1
+
+
+def test_bank_report_shows_the_argmax_comparisons(bank_built):
+    out, _, _ = bank_built
+    report = json.loads((out / "report.json").read_text())
+    tree = report["tree"]
+    comparisons = tree["argmax"]
+    # The tournament as documented: neighbours compared level by level, the lower indices on
+    # the left, an odd last entry carried up; three levels after the scores for five units.
+    first = tree["levels"] - 3
+    gold = [(first, ["0"], ["1"]), (first, ["2"], ["3"]),
+            (first + 1, ["0", "1"], ["2", "3"]), (first + 2, ["0", "1", "2", "3"], ["4"])]
+    assert [(c["level"], c["left_classes"], c["right_classes"]) for c in comparisons] == gold
+    assert tree["level_names"][first:] == ["argmax"] * 3
+    for c in comparisons:
+        stage = next(s for s in tree["stages"] if s["levels"][0] <= c["level"] <= s["levels"][1])
+        assert c["stage"] == stage["stage"] and c["ties_to"] == "left"
+    assert "u0_score_sum" in comparisons[0]["left"] and "u4_" in comparisons[-1]["right"]
+    declared = set(DECLARED.findall((out / report["verilog"]).read_text()))
+    for c in comparisons[:-1]:
+        assert {f"{c['name']}_score", f"{c['name']}_class"} <= declared
+    text = (out / "report.html").read_text()
+    markdown = (out / "report.md").read_text()
+    assert "<h3>Argmax</h3>" in text and "a tie goes to the lower class index" in text
+    for c in comparisons:
+        assert f"<td class=l>{c['name']}</td><td>{c['level']}</td><td>{c['stage']}</td>" in text
+        assert f"| {c['name']} | {c['level']} | {c['stage']} |" in markdown
+
+
+def test_register_stages_are_told_by_the_levels_they_follow(bank_built, built):
+    for out in (bank_built[0], built):
+        report = json.loads((out / "report.json").read_text())
+        tree = report["tree"]
+        stages = tree["stages"]
+        assert len(stages) == report["register_stages"]
+        assert len(tree["level_names"]) == tree["levels"]
+        # The stages cover the levels 0 .. levels - 1 in order, each after its last level.
+        assert stages[0]["levels"][0] == 0 and stages[-1]["levels"][1] == tree["levels"] - 1
+        assert all(a["levels"][1] + 1 == b["levels"][0] for a, b in zip(stages, stages[1:]))
+        assert tree["register_after_levels"] == [s["levels"][1] for s in stages]
+        for node in tree["nodes"]:
+            stage = stages[node["stage"] - 1]
+            assert stage["levels"][0] <= node["level"] <= stage["levels"][1]
+        text = (out / "report.html").read_text()
+        spans = ", ".join(f"stage {s['stage']} after levels {s['levels'][0]}-{s['levels'][1]}"
+                          if s["levels"][0] != s["levels"][1] else
+                          f"stage {s['stage']} after level {s['levels'][0]}" for s in stages)
+        assert spans in text and spans in (out / "report.md").read_text()
+        assert f"<td class=l>levels</td><td>{tree['levels']} levels (0 products" in text
+
+
+def svg_of(text, label):
+    found = re.findall(rf'<svg[^>]*aria-label="{re.escape(label)}".*?</svg>', text, flags=re.S)
+    assert len(found) == 1, label
+    return ElementTree.fromstring(found[0])
+
+
+def test_datapath_is_drawn_as_the_tree(bank_built, built):
+    svg = "{http://www.w3.org/2000/svg}"
+    for out in (built, bank_built[0]):
+        report = json.loads((out / "report.json").read_text())
+        text = (out / "report.html").read_text()
+        assert "what the width can hold" not in text          # the range bars are gone
+        units = [u["name"] for u in report.get("units", [])] or [None]
+        for unit in units:
+            nodes = [n for n in report["tree"]["nodes"] if n.get("unit") == unit]
+            picture = svg_of(text, "datapath" if unit is None else f"unit {unit}")
+            boxes = picture.findall(f"{svg}g[@class='node']")
+            assert [b.find(f"{svg}title").text.split(":")[0] for b in boxes] == \
+                [n["name"] for n in nodes]
+            for box, node in zip(boxes, nodes):
+                shown = "".join(box.itertext())
+                assert f"{node['bits']} bits" in shown and \
+                    f"[{node['range'][0]}, {node['range'][1]}]" in shown
+            edges = picture.findall(f"{svg}path[@class='edge']")
+            assert len(edges) == sum(len(n["children"]) for n in nodes) > 0
+            assert len(picture.findall(f"{svg}line[@class='stage']")) >= 1
+
+
+def test_a_tree_too_large_to_draw_is_left_to_the_tables(tmp_path):
+    from thresh2hdl.model import FeatureFormat, Model, Unit
+    from thresh2hdl.report_html import TREE_PICTURE_MOST
+    model = Model(module="wide", features=[FeatureFormat(f"x{i}", 8) for i in range(90)],
+                  units=[Unit("u", tuple((i % 7) - 3 or 5 for i in range(90)), -10)])
+    built = build(model, tmp_path / "out", BuildOptions(simulator="amaranth", vectors=50))
+    nodes = built.report["tree"]["nodes"]
+    assert len(nodes) > TREE_PICTURE_MOST
+    text = (built.out_dir / "report.html").read_text()
+    assert 'aria-label="datapath"' not in text and f"{len(nodes)} values, too many to draw" in text
+    assert "<td class=l>0</td><td>products</td><td>90</td>" in text
+    markdown = (built.out_dir / "report.md").read_text()
+    assert all(f"| {n['name']} | {n['level']} |" in markdown for n in nodes)

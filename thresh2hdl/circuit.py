@@ -9,7 +9,7 @@ lowest index. The serial architecture instead takes one feature per beat into on
 multiply-accumulate per unit (:class:`SerialThreshold`).
 """
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from amaranth.hdl import Cat, Const, Module, Mux, Shape, Signal, signed, unsigned
 from amaranth.lib import wiring
@@ -21,19 +21,21 @@ from .guard import resolve_guard
 from .ranges import ARCHITECTURES, analyse, analyse_bank, signed_bits, value_bits
 
 __all__ = ["UnitConfig", "ThresholdUnit", "ThresholdBank", "SerialThreshold",
-           "make_component", "sample_shape", "weight_addresses"]
+           "make_component", "sample_shape", "weight_addresses", "FULL_PIPELINE"]
 
 MAX_SERIAL_FEATURES = 1024    # a sequencer's channels; keeps a verification chunk's cycles bounded
-MAX_PIPELINE_NOTE = "one register stage per level, the products' included, plus one on the " \
-                    "outputs"
+# ``pipeline`` asking for a register stage after every level, whatever the depth: resolved to
+# the plan's ``levels`` when the design is planned (``component.config.pipeline`` is the count).
+FULL_PIPELINE = "full"
 
 
 @dataclass(frozen=True)
 class UnitConfig:
-    """What to build: the model, register stages, an optional wider score port, architecture."""
+    """What to build: the model, register stages (or :data:`FULL_PIPELINE`), an optional
+    wider score port, architecture."""
 
     model: Model
-    pipeline: int = 1
+    pipeline: int | str = 1
     score_bits: int | None = None
     arch: str = "tree"
     loadable_weights: bool = False   # weights and biases in registers behind a write port
@@ -48,10 +50,11 @@ class UnitConfig:
     def __post_init__(self):
         if not isinstance(self.model, Model):
             raise TypeError(f"model must be a Model, not {type(self.model).__name__}")
-        if (not isinstance(self.pipeline, int) or isinstance(self.pipeline, bool)
+        if self.pipeline != FULL_PIPELINE and (
+                not isinstance(self.pipeline, int) or isinstance(self.pipeline, bool)
                 or self.pipeline < 0):
-            raise InputError(f"must be a non-negative integer, not {self.pipeline!r}",
-                             field="pipeline")
+            raise InputError(f"must be a non-negative integer or {FULL_PIPELINE!r}, not "
+                             f"{self.pipeline!r}", field="pipeline")
         if self.score_bits is not None and (not isinstance(self.score_bits, int)
                                             or not 1 <= self.score_bits <= 128):
             raise InputError(f"must be an integer from 1 to 128, not {self.score_bits!r}",
@@ -130,7 +133,7 @@ class UnitConfig:
             raise InputError(f"the serial architecture takes at most {MAX_SERIAL_FEATURES} "
                              f"features (one valid beat each), not "
                              f"{len(self.model.features)}; use tree or shiftadd", field="arch")
-        if self.arch == "serial" and self.pipeline != 1:
+        if self.arch == "serial" and self.pipeline not in (1, FULL_PIPELINE):
             raise InputError(f"the serial architecture has exactly one register stage (the "
                              f"accumulator and its result), so it must be 1, not "
                              f"{self.pipeline}", field="pipeline")
@@ -477,13 +480,14 @@ def _combine(node, analysis, operands):
     return operands[0] + bias if child.sign > 0 else bias - operands[0]
 
 
-def _check_pipeline(component, pipeline, final_level):
-    most = final_level + 1
-    if pipeline > most:
+def _check_pipeline(component, pipeline, levels):
+    if pipeline > levels:
         component._MustUse__silence = True   # refused before use: no "never elaborated" warning
+        argmax = ", the argmax" if component._config.model.is_bank else ""
         raise InputError(f"{pipeline} register stages requested, but this design has "
-                         f"{most - 1} combinational levels after the products, so at most "
-                         f"{most} ({MAX_PIPELINE_NOTE})", field="pipeline")
+                         f"{levels} levels (0 the products, then the adders, the bias and "
+                         f"decision{argmax}), so at most {levels}: use {levels} or fewer, or "
+                         f"{FULL_PIPELINE!r} for one after every level", field="pipeline")
 
 
 def _members(model, decision_bits, scores, config):
@@ -546,7 +550,10 @@ class _Common:
         self._config = config
         plan = plan_of(config.model, score_bits=config.score_bits, arch=config.arch,
                        **_loadable(config))
-        _check_pipeline(self, config.pipeline, final_level_of(plan))
+        if config.pipeline == FULL_PIPELINE:
+            self._config = config = replace(config, pipeline=plan.levels)
+        self._levels = plan.levels
+        _check_pipeline(self, config.pipeline, plan.levels)
         self._boundaries = _boundaries(final_level_of(plan), config.pipeline)
         return plan
 
@@ -568,6 +575,24 @@ class _Common:
     def register_boundaries(self):
         """Levels after which a register stage sits (level 0 = products)."""
         return self._boundaries
+
+    @property
+    def levels(self):
+        """How many levels the datapath has (:attr:`~thresh2hdl.ranges.Analysis.levels`,
+        numbered from 0): the most register stages it takes."""
+        return self._levels
+
+    def level_stage(self, level):
+        """The register stage (from 1) that ``level``'s values go through first; None when
+        there is none (combinational)."""
+        return next((k + 1 for k, boundary in enumerate(self._boundaries) if level <= boundary),
+                    None)
+
+    @property
+    def stage_levels(self):
+        """For each register stage, the first and last level it follows."""
+        starts = (0,) + tuple(boundary + 1 for boundary in self._boundaries)
+        return tuple(zip(starts, self._boundaries))
 
     @property
     def feature_ports(self):
@@ -810,6 +835,9 @@ class SerialThreshold(_Common, wiring.Component):
             decision_bits = 1
         self._units = units
         self._boundaries = (0,)
+        self._levels = 1
+        if config.pipeline == FULL_PIPELINE:
+            self._config = replace(config, pipeline=1)
         if model.ports.has_score:
             names = ["score"] if not model.is_bank else \
                 [f"score{i}" for i in range(len(units))]

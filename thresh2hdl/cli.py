@@ -10,6 +10,7 @@ import sys
 
 import click
 
+from .circuit import FULL_PIPELINE
 from .errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
 from .fitting import fit_csv, quantize_npz
 from .flow import BuildOptions, build, check, demo_model, estimate_folder, prove
@@ -18,6 +19,24 @@ from .report import cost_text
 from .train import FitOptions
 
 __all__ = ["main"]
+
+
+class _PipelineType(click.ParamType):
+    """A count of register stages, or the word for one after every level."""
+
+    name = "pipeline"
+
+    def get_metavar(self, *args, **kwargs):
+        return f"N|{FULL_PIPELINE}"
+
+    def convert(self, value, param, ctx):
+        if isinstance(value, int) or value == FULL_PIPELINE:
+            return value
+        try:
+            return int(value)
+        except ValueError:
+            self.fail(f"{value!r} is not a number of register stages or {FULL_PIPELINE!r}",
+                      param, ctx)
 
 
 def _build_options(command):
@@ -30,9 +49,10 @@ def _build_options(command):
                      show_default=True, help="tree: constant multipliers into an adder tree; "
                      "shiftadd: no multipliers, weights recoded in canonical signed digits; "
                      "serial: one multiply-accumulate per clock, one feature per valid beat."),
-        click.option("--pipeline", type=int, default=1, show_default=True,
+        click.option("--pipeline", type=_PipelineType(), default=1, show_default=True,
                      help="Register stages: 0 is combinational, 1 registers the outputs, more "
-                     "split the adder tree (serial: must be 1)."),
+                     f"split the adder tree, {FULL_PIPELINE!r} puts one after every level "
+                     "(serial: must be 1)."),
         click.option("--module", "module_name", default=None,
                      help="Verilog module name (default: the model file's)."),
         click.option("--score-bits", type=int, default=None,

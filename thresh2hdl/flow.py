@@ -17,11 +17,12 @@ from dataclasses import dataclass, replace
 from importlib import resources
 from importlib.metadata import version
 from pathlib import Path
+from typing import ClassVar
 
 import numpy as np
 
 from . import __version__
-from .circuit import UnitConfig, make_component, weight_addresses
+from .circuit import FULL_PIPELINE, UnitConfig, make_component, weight_addresses
 from .data import dataset_for_model, read_csv
 from .errors import DoesNotFitError, InputError, MismatchError, ToolError, UndecidedError
 from .model import Model, load_model, model_to_toml, parse_model
@@ -32,7 +33,9 @@ from .proof import DEFAULT_TIMEOUT_S, prove_netlist
 from .outdir import check_output_folder, staged_folder, write_files, write_text
 from .reference import ReferenceModel
 from .report_html import report_html, report_markdown
-from .report import REPORT_FORMAT, SAFETY_CAUTION, report_json, store_estimate, summary_lines
+from .report import (REPORT_FORMAT, SAFETY_CAUTION, argmax_report, level_names, node_table,
+                     report_json, stages_report, store_estimate, summary_lines,
+                     unit_histograms)
 from .simulate import simulate_amaranth
 from .stimulus import make_reload_stimulus, make_stimulus
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
@@ -241,7 +244,8 @@ def run_simulator(simulator, component, verilog_text, ports, module, stimulus, *
 class BuildOptions:
     """Choices for one build; validated once, here."""
 
-    pipeline: int = 1
+    FULL_PIPELINE: ClassVar[str] = FULL_PIPELINE   # pipeline: every level registered
+    pipeline: int | str = 1
     module: str | None = None
     score_bits: int | None = None
     vectors: int | None = None   # default: sized to the simulator (see DEFAULT_VECTORS)
@@ -264,10 +268,11 @@ class BuildOptions:
     def __post_init__(self):
         for key in ("pipeline", "vectors", "seed"):
             value = getattr(self, key)
-            if value is None and key == "vectors":
+            if (key, value) in (("vectors", None), ("pipeline", FULL_PIPELINE)):
                 continue
             if not isinstance(value, int) or isinstance(value, bool) or value < 0:
-                raise InputError(f"must be a non-negative integer, not {value!r}",
+                also = f" or {FULL_PIPELINE!r}" if key == "pipeline" else ""
+                raise InputError(f"must be a non-negative integer{also}, not {value!r}",
                                  field=f"--{key}")
         if self.arch not in ARCHITECTURES:
             raise InputError(f"must be one of {', '.join(ARCHITECTURES)}, not {self.arch!r}",
@@ -336,9 +341,13 @@ def data_summary(model, reference, dataset):
     summary = {"file": Path(dataset.source).name, "rows": len(dataset),
                "accuracy": float(np.mean(predicted == dataset.labels)), "per_class": per_class,
                "confusion": {"labels": labels, "rows_true_columns_predicted": confusion}}
-    if not model.is_bank:
+    scores = np.asarray(reference.scores(dataset.x), dtype=np.float64)
+    if model.is_bank:
+        # Each unit's score on its own class's rows against the others'.
+        summary["score_seen"] = [float(scores.min()), float(scores.max())]
+        summary["unit_histograms"] = unit_histograms(model, scores, dataset.labels)
+    else:
         # Score histogram per class, for the report's picture of the decision threshold.
-        scores = np.asarray(reference.scores(dataset.x), dtype=np.float64)
         edges = np.histogram_bin_edges(scores, bins=30)
         summary["score_seen"] = [float(scores.min()), float(scores.max())]
         summary["histogram"] = {"edges": [float(e) for e in edges], "counts": {
@@ -371,21 +380,23 @@ def unit_analyses(component):
     return plan.units if plan is not None else (component.analysis,)
 
 
-def _tree_report(analysis):
-    return {"arch": analysis.arch, "levels": analysis.tree_levels,
-            "nodes": [{"name": n.name, "kind": n.kind, "level": n.level, "range": [n.lo, n.hi],
-                       "bits": n.bits, "signed": n.is_signed, "sign": n.sign}
-                      for n in analysis.nodes]}
+def _tree_report(component, model, verilog_text):
+    """The datapath: its levels (the one count, from 0), the register stages after them, every
+    node as the Verilog names it."""
+    stages = stages_report(component)
+    return {"arch": component.analysis.arch, "levels": component.levels,
+            "level_names": level_names(component), "stages": stages,
+            "register_after_levels": [stage["levels"][1] for stage in stages],
+            "nodes": node_table(component, model, verilog_text)}
 
 
-def _units_report(model, analyses, component):
+def _units_report(model, analyses, component, verilog_text):
     """The report's sizing keys: of the unit, or for a bank per unit plus the widest."""
     first = analyses[0]
     common = {"feature_ranges": [list(r) for r in first.feature_ranges],
               "score_port": model.ports.has_score}
     if not model.is_bank:
-        tree = _tree_report(first)
-        tree["register_after_levels"] = list(component.register_boundaries)
+        tree = _tree_report(component, model, verilog_text)
         tree["split_bits"] = component.config.split_bits
         tree["carry_registers"] = component.config.carry_registers
         tree["result_parts"] = getattr(component, "result_parts", 1)
@@ -399,7 +410,7 @@ def _units_report(model, analyses, component):
               "bias": a.bias, "score_range": list(a.score_range),
               "score_bits_min": a.score_bits_min, "score_bits": a.score_bits,
               "headroom_bits": a.headroom_bits, "witness_min": list(a.witness_min),
-              "witness_max": list(a.witness_max), "tree": _tree_report(a)}
+              "witness_max": list(a.witness_max)}
              for unit, label, a in zip(model.units, model.labels, analyses)]
     return {"weights": [u["weights"] for u in units], "bias": [u["bias"] for u in units],
             **common,
@@ -409,10 +420,9 @@ def _units_report(model, analyses, component):
             "score_bits": max(a.score_bits for a in analyses),
             "headroom_bits": min(a.headroom_bits for a in analyses),
             "class_bits": component.plan.class_bits,
-            "tree": {"arch": first.arch, "levels": component.plan.final_level,
+            "tree": {**_tree_report(component, model, verilog_text),
                      "argmax_levels": component.plan.argmax_levels,
-                     "register_after_levels": list(component.register_boundaries),
-                     "nodes": [n for u in units for n in u["tree"]["nodes"]]},
+                     "argmax": argmax_report(component, model)},
             "units": units}
 
 
@@ -521,7 +531,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         "model_sha256": model_digest(model),
         "tool_versions": _tool_versions(),
         "features": [{"name": f.name, "bits": f.bits, "signed": f.signed} for f in model.features],
-        **_units_report(model, analyses, component),
+        **_units_report(model, analyses, component, verilog_text),
         "latency_cycles": component.latency,
         "register_stages": component.config.pipeline,
         "beats_per_result": component.beats,

@@ -159,6 +159,14 @@ class Analysis:
         return self.tree_levels + 1
 
     @property
+    def levels(self):
+        """How many levels the datapath has, the one count every message and report uses:
+        level 0 the products, then each adder level (``s{level}_*``), then the bias and
+        decision. One register stage after each is the deepest pipeline. A serial design has
+        one: its multiply-accumulate."""
+        return 1 if self.arch == "serial" else self.final_level + 1
+
+    @property
     def threshold(self):
         """When the score is not output, y = (root > threshold) (sign +1) or (root < threshold).
 
@@ -535,6 +543,11 @@ class BankPlan:
     @property
     def final_level(self):
         return self.score_level + self.argmax_levels
+
+    @property
+    def levels(self):
+        """As :attr:`Analysis.levels`, with the argmax's comparison levels after the scores."""
+        return 1 if self.units[0].arch == "serial" else self.final_level + 1
 
     def tournament(self, scores, merge):
         """The argmax as planned: neighbours compared level by level, the lower index on the

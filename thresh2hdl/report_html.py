@@ -6,7 +6,8 @@ Both are made from the same report dictionary as report.json, so the three never
 from html import escape
 
 from .estimate import CELL_NAMES
-from .report import cost_text, estimate_facts, estimates_of, shortfall_text
+from .report import (cost_text, estimate_facts, estimates_of, levels_text, shortfall_text,
+                     stages_text)
 
 __all__ = ["report_html", "report_markdown"]
 
@@ -42,28 +43,144 @@ def _table(headers, rows):
     return f"<table><tr>{head}</tr>{body}</table>"
 
 
-def _node_bars(nodes):
-    """Each tree node's range against the range its width can hold (headroom visible)."""
-    row, width, left = 16, 560, 170
-    parts = []
-    for i, node in enumerate(nodes):
+TREE_PICTURE_MOST = 160      # values per unit drawn as a tree; larger ones: the levels table
+
+
+def _capacity(node):
+    bits = node["bits"]
+    return (-(1 << (bits - 1)), (1 << (bits - 1)) - 1) if node["signed"] else (0, (1 << bits) - 1)
+
+
+def _tree_picture(nodes, stages, label):
+    """One unit's datapath as a tree, level 0 on the left: each value a box with its name,
+    width and exact range, a strip under it placing the range inside what the width holds,
+    lines to the operands (a minus where one is subtracted), register stages dashed."""
+    box_w, box_h, pitch, gap, top = 150, 40, 48, 44, 34
+    by_name = {node["name"]: node for node in nodes}
+    readers = {child for node in nodes for child in node.get("children", [])}
+    rows, y = {}, [0]
+
+    def place(name):                  # leaves in reading order, a value between its operands
+        if name in rows:
+            return rows[name]
+        children = [c for c in by_name[name].get("children", []) if c in by_name]
+        rows[name] = (sum(place(c) for c in children) / len(children)) if children else y[0]
+        y[0] += 0 if children else 1
+        return rows[name]
+
+    for node in nodes:
+        if node["name"] not in readers:
+            place(node["name"])
+    first = min(node["level"] for node in nodes)
+    last = max(node["level"] for node in nodes)
+    col = lambda level: 4 + (level - first) * (box_w + gap)
+    row = lambda name: top + rows[name] * pitch
+    parts = [f'<text x="{col(level)}" y="12">level {level}</text>'
+             for level in range(first, last + 1)]
+    for stage in stages:
+        after = stage["levels"][1]
+        if first <= after <= last:
+            x = col(after) + box_w + gap / 2
+            parts.append(f'<line class="stage" x1="{x:.1f}" y1="16" x2="{x:.1f}" '
+                         f'y2="{top + y[0] * pitch}" stroke="#b35900" stroke-dasharray="4 3"/>'
+                         f'<text x="{x + 3:.1f}" y="26" fill="#b35900">reg {stage["stage"]}</text>')
+    for node in nodes:
+        x, top_y = col(node["level"]), row(node["name"])
+        minus = {"sub": 1, "rsub": 0}.get(node["kind"])
+        for k, child in enumerate(node.get("children", [])):
+            if child not in by_name:
+                continue
+            x0, y0 = col(by_name[child]["level"]) + box_w, row(child) + box_h / 2
+            y1 = top_y + box_h / 2
+            parts.append(f'<path class="edge" d="M{x0:.1f} {y0:.1f}H{x - gap / 2:.1f}V{y1:.1f}'
+                         f'H{x:.1f}" fill="none" stroke="#777"/>')
+            if k == minus or (node["kind"] == "bias" and by_name[child].get("sign", 1) < 0):
+                parts.append(f'<text x="{x - 10:.1f}" y="{y1 - 3:.1f}">\u2212</text>')
         lo, hi = node["range"]
-        bits = node["bits"]
-        cap_lo, cap_hi = (-(1 << (bits - 1)), (1 << (bits - 1)) - 1) if node["signed"] \
-            else (0, (1 << bits) - 1)
-        span = cap_hi - cap_lo or 1
-        x0 = left + (lo - cap_lo) / span * width
-        x1 = left + (hi - cap_lo) / span * width
-        y = 18 + i * row
-        parts.append(f'<text x="0" y="{y + 10}">{escape(node["name"])} ({bits} bits)</text>'
-                     f'<rect x="{left}" y="{y}" width="{width}" height="11" fill="#eee" '
-                     f'stroke="#999"/><rect x="{x0:.1f}" y="{y}" width="{max(1.0, x1 - x0):.1f}"'
-                     f' height="11" fill="#4a7ebb"/>')
-    height = 24 + len(nodes) * row
-    return (f'<svg xmlns="http://www.w3.org/2000/svg" width="{left + width + 10}" '
-            f'height="{height}" role="img" aria-label="node ranges against widths">'
-            f'<text x="{left}" y="11">grey: what the width can hold; blue: the exact range'
-            f'</text>{"".join(parts)}</svg>')
+        cap_lo, cap_hi = _capacity(node)
+        span = (cap_hi - cap_lo) or 1
+        x0 = x + 4 + (lo - cap_lo) / span * (box_w - 8)
+        x1 = x + 4 + (hi - cap_lo) / span * (box_w - 8)
+        parts.append(f'<g class="node"><title>{escape(node["name"])}: {escape(node["kind"])}, '
+                     f'{node["bits"]} bits, [{lo}, {hi}] of [{cap_lo}, {cap_hi}]</title>'
+                     f'<rect x="{x}" y="{top_y:.1f}" width="{box_w}" height="{box_h}" rx="4" '
+                     f'fill="#f7f9fc" stroke="#4a7ebb"/><text x="{x + 5}" y="{top_y + 13:.1f}">'
+                     f'<tspan font-weight="bold">{escape(node["name"])}</tspan> '
+                     f'{node["bits"]} bits</text><text x="{x + 5}" y="{top_y + 26:.1f}">'
+                     f'[{lo}, {hi}]</text><rect x="{x + 4}" y="{top_y + 31:.1f}" '
+                     f'width="{box_w - 8}" height="4" fill="#ddd"/><rect x="{x0:.1f}" '
+                     f'y="{top_y + 31:.1f}" width="{max(1.0, x1 - x0):.1f}" height="4" '
+                     f'fill="#4a7ebb"/></g>')
+    width = col(last) + box_w + gap + 40
+    height = top + y[0] * pitch
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" '
+            f'role="img" aria-label="{escape(label)}">{"".join(parts)}</svg>')
+
+
+def _levels_table(report):
+    """Each level: what it holds, how many values, their widths, its register stage."""
+    tree = report["tree"]
+    names = tree.get("level_names") or []
+    nodes = tree["nodes"]
+    stages = tree.get("stages") or []
+    argmax = tree.get("argmax") or []
+    rows = []
+    for level, name in enumerate(names):
+        values = [n for n in nodes if n["level"] == level]
+        bits = sorted({n["bits"] for n in values})
+        count = len(values) + sum(1 for c in argmax if c.get("level") == level)
+        stage = next((s for s in stages if s["levels"][0] <= level <= s["levels"][1]), None)
+        widths = "" if not bits else f"{bits[0]}" if len(bits) == 1 else f"{bits[0]}-{bits[-1]}"
+        rows.append([level, name, count, widths,
+                     "none (combinational)" if stage is None else stage["stage"],
+                     f"register stage {stage['stage']}" if stage and stage["levels"][1] == level
+                     else ""])
+    return _table(["level", "holds", "values", "bits", "stage", "followed by"], rows)
+
+
+def _entry(comparison, side):
+    """One input of an argmax comparison and the classes it may carry."""
+    classes = comparison[f"{side}_classes"]
+    return (f"{comparison[side]} (class{'es' if len(classes) > 1 else ''} "
+            f"{', '.join(classes)})")
+
+
+def _datapath_html(report):
+    """The levels, each unit's tree, and a bank's argmax comparisons."""
+    tree = report["tree"]
+    if "level_names" not in tree:          # a report of an older version
+        return _table(["node", "bits", "range"], [[n["name"], n["bits"],
+                                                  f"[{n['range'][0]}, {n['range'][1]}]"]
+                                                 for n in tree["nodes"]])
+    out = [_levels_table(report)]
+    units = report.get("units") or [{"name": None}]
+    for k, unit in enumerate(units):
+        nodes = [n for n in tree["nodes"] if n.get("unit") == unit["name"]]
+        what = "datapath" if unit["name"] is None else f"unit {unit['name']}"
+        if not nodes:
+            out.append(f"<p>{escape(what)}: every weight is 0; the score is the bias.</p>")
+            continue
+        if len(nodes) > TREE_PICTURE_MOST:
+            out.append(f"<p>{escape(what)}: {len(nodes)} values, too many to draw; each is "
+                       f"in report.json and report.md.</p>")
+            continue
+        picture = f"<div class=wide>{_tree_picture(nodes, tree.get('stages', []), what)}</div>"
+        if unit["name"] is not None:
+            picture = (f"<details{' open' if k == 0 else ''}><summary>{escape(what)} (class "
+                       f"{escape(str(unit.get('class_label')))}): {len(nodes)} values"
+                       f"</summary>{picture}</details>")
+        out.append(picture)
+    if tree.get("argmax"):
+        out += ["<h3>Argmax</h3>", "<p>Each comparison takes its left input when left &ge; "
+                "right, so a tie goes to the lower class index; the last one gives the "
+                "decision.</p>",
+                "<div class=wide>" + _table(["comparison", "level", "stage", "left", "right",
+                                             "on a tie", "Verilog"],
+                       [[c["name"], "after the scores" if c["level"] is None else c["level"],
+                         "-" if c["stage"] is None else c["stage"], _entry(c, "left"),
+                         _entry(c, "right"), c["ties_to"], c["verilog"]]
+                        for c in tree["argmax"]]) + "</div>"]
+    return "\n".join(out)
 
 
 def _score_line(report):
@@ -86,14 +203,15 @@ def _score_line(report):
             f'role="img" aria-label="score range">{"".join(parts)}</svg>')
 
 
-def _histogram(data):
-    histogram = data.get("histogram")
+def _histogram(data, histogram=None, *, aria="score histogram per class", title="",
+               threshold=True, width=600, height=150, legend="class {}"):
+    histogram = histogram or data.get("histogram")
     if not histogram:
         return ""
     edges, counts = histogram["edges"], histogram["counts"]
     colours = ["#4a7ebb", "#c0504d", "#9bbb59", "#8064a2"]
     top = max(max(c) for c in counts.values()) or 1
-    width, height, left = 600, 150, 20
+    left = 20
     bar = width / (len(edges) - 1)
     parts = []
     for k, (label, values) in enumerate(counts.items()):
@@ -103,15 +221,29 @@ def _histogram(data):
                          f'y="{10 + height - h:.1f}" width="{bar / len(counts):.1f}" '
                          f'height="{h:.1f}" fill="{colours[k % len(colours)]}"/>')
         parts.append(f'<text x="{left + width + 8}" y="{20 + 14 * k}" '
-                     f'fill="{colours[k % len(colours)]}">class {escape(label)}</text>')
+                     f'fill="{colours[k % len(colours)]}">{escape(legend.format(label))}</text>')
+    if title:
+        parts.append(f'<text x="{left}" y="9">{escape(title)}</text>')
     lo, hi = edges[0], edges[-1]
-    if lo <= 0 <= hi:
+    if threshold and lo <= 0 <= hi:
         x = left + (0 - lo) / ((hi - lo) or 1) * width
         parts.append(f'<line x1="{x:.1f}" y1="5" x2="{x:.1f}" y2="{height + 12}" stroke="#a00"/>')
     parts.append(f'<text x="{left}" y="{height + 26}">score {lo:g} .. {hi:g}</text>')
-    return (f'<svg xmlns="http://www.w3.org/2000/svg" width="{left + width + 90}" '
-            f'height="{height + 32}" role="img" aria-label="score histogram per class">'
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" width="{left + width + 110}" '
+            f'height="{height + 32}" role="img" aria-label="{escape(aria)}">'
             f'{"".join(parts)}</svg>')
+
+
+def _unit_histograms(data):
+    """A bank's scores on the data: per unit, its own class's rows against the others'."""
+    panels = [_histogram(data, h, aria=f"score histogram of unit {h['unit']}",
+                         title=f"unit {h['unit']}", threshold=False, width=270, height=70,
+                         legend="{}") for h in data.get("unit_histograms") or []]
+    if not panels:
+        return ""
+    return ("<p>Each unit's score on the rows of its own class and on the other rows: the "
+            "argmax decides well where the first lies to the right of the second.</p>"
+            + "".join(panels))
 
 
 def _polyline_chart(series, *, label_x, label_y, y_max=None, y_min=0.0):
@@ -172,10 +304,11 @@ def report_html(report):
         ["score port bits", report["score_bits"]], ["headroom bits", report["headroom_bits"]],
         ["architecture", report["tree"]["arch"]], ["latency (cycles)", report["latency_cycles"]],
         ["valid beats per result", report.get("beats_per_result", 1)],
-        ["register stages after levels", ", ".join(map(str, report["tree"]["register_after_levels"])) or "none"],
+        ["levels", levels_text(report["tree"]) if "level_names" in report["tree"] else
+         report["tree"]["levels"]], ["register stages", stages_text(report)],
         *([["split adders", _split_text(report)]] if _split_text(report) else [])]),
         "<h3>Score range</h3>", _score_line(report),
-        "<h3>Datapath values: range against width</h3>", _node_bars(report["tree"]["nodes"])]
+        "<h3>Datapath</h3>", _datapath_html(report)]
     out += ["<h2>Verification</h2>",
             f"<p class={'ok' if ok else 'bad'}>{report['vectors_checked']} vectors over "
             f"{v['cycles']} cycles in {escape(v['simulator_version'])}: "
@@ -195,7 +328,7 @@ def report_html(report):
                 _table(["true \\ decided"] + confusion["labels"],
                        [[label] + row for label, row in zip(confusion["labels"],
                                                             confusion["rows_true_columns_predicted"])]),
-                _histogram(data)]
+                _histogram(data), _unit_histograms(data)]
     training = report.get("training")
     if training and training.get("mistakes_per_epoch"):
         curves = training["mistakes_per_epoch"][:5]
@@ -331,6 +464,8 @@ def report_markdown(report):
              f"| headroom bits | {report['headroom_bits']} |",
              f"| architecture | {report['tree']['arch']} |",
              f"| latency (cycles) | {report['latency_cycles']} |",
+             f"| levels | {levels_text(report['tree'])} |",
+             f"| register stages | {stages_text(report)} |",
              f"| valid beats per result | {report.get('beats_per_result', 1)} |",
              *([f"| codes outside the declared ranges | {_guard_text(report['input_guard'])} |"]
                if report.get("input_guard") else []),
@@ -348,7 +483,18 @@ def report_markdown(report):
     lines.append(f"| proof | {_proof_cell(proof)} |" if proof else "| proof | not run |")
     lines += [f"| proof of --netlist {_cell(name)} | {_cell(_proof_cell(other))} |"
               for name, other in (report.get("netlist_proofs") or {}).items()]
-    lines += ["", "| node | bits | range |", "| --- | --- | --- |"]
-    lines += [f"| {n['name']} | {n['bits']} | [{n['range'][0]}, {n['range'][1]}] |"
+    lines += ["", "| node | level | stage | bits | range | in the Verilog |",
+              "| --- | --- | --- | --- | --- | --- |"]
+    lines += [f"| {n['name']} | {n['level']} | {n.get('stage') or '-'} | {n['bits']} | "
+              f"[{n['range'][0]}, {n['range'][1]}] | {n.get('verilog', '')} |"
               for n in report["tree"]["nodes"]]
+    argmax = report["tree"].get("argmax")
+    if argmax:
+        lines += ["", "Argmax: each comparison takes the left input when left >= right (a tie "
+                  "goes to the lower class index).", "",
+                  "| comparison | level | stage | left | right | on a tie |",
+                  "| --- | --- | --- | --- | --- | --- |"]
+        lines += [f"| {c['name']} | {'-' if c['level'] is None else c['level']} | "
+                  f"{c['stage'] or '-'} | {_entry(c, 'left')} | {_entry(c, 'right')} | "
+                  f"{c['ties_to']} |" for c in argmax]
     return "\n".join(lines) + "\n"
