@@ -143,8 +143,15 @@ def test_estimate_demo_on_ice40_and_ecp5(demo_built, ice40_over_older, tmp_path)
         assert key in figures
     assert figures["luts"] > 50 and figures["carries"] > 10 and figures["fmax_mhz"] > 1
     assert figures["placed"] and figures["device_name"] == "UP5K"
-    # 18 score bits, the decision and one valid bit are registered (pipeline 1).
-    assert figures["flip_flops"] == before["score_bits"] + 2
+    # 18 score bits, the decision, the out-of-range flag and one valid bit are registered
+    # (pipeline 1).
+    assert figures["flip_flops"] == before["score_bits"] + 3
+    # The input guard's cost: the same design without it, synthesised beside it.
+    guard = figures["input_guard"]
+    assert guard["lut4_equivalents"] == \
+        figures["lut4_equivalents"] - guard["without_guard"]["lut4_equivalents"]
+    assert guard["flip_flops"] == 1 and guard["lut4_equivalents"] > 0
+    assert "of which the input guard" in result.stdout
     assert figures["tool_versions"]["yosys"].startswith("Yosys")
     assert (f"ice40 UP5K: {figures['lut4_equivalents']:,} LUT4 equivalents "
             f"({figures['luts']:,} SB_LUT4, {figures['carries']:,} SB_CARRY)") in result.stdout
