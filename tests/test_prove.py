@@ -248,7 +248,7 @@ def test_a_timeout_is_undecided_with_exit_3_never_proved(tmp_path):
     out = tmp_path / "b"
     build(model, out, BuildOptions(pipeline=0, simulator="amaranth", vectors=50))
     result = run("prove", out, "--timeout", "0.001")
-    assert_one_line_error(result, 3, "undecided")
+    assert_one_line_error(result, 3, "undecided", after_progress=True)
     report = json.loads((out / "report.json").read_text())
     assert report["proof"]["status"] == "undecided"
     with pytest.raises(UndecidedError):
@@ -282,7 +282,8 @@ def test_prove_command_prints_a_confirmed_counterexample_with_exit_1(tmp_path):
     (tmp_path / "edited.v").write_text(mutant)
     before = (out / "report.json").read_text()
     result = run("prove", out, "--netlist", tmp_path / "edited.v", "--simulator", "icarus")
-    assert_one_line_error(result, 1, "counterexample written to counterexample.csv")
+    assert_one_line_error(result, 1, "counterexample written to counterexample.csv",
+                          after_progress=True)
     assert "expected" in result.stderr and "rms_axial=" in result.stderr
     # A proof of another file leaves the folder's report as it was.
     assert (out / "report.json").read_text() == before

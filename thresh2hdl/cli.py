@@ -95,22 +95,30 @@ def _options(kwargs):
 
 
 class _Progress:
-    """Progress of the long steps on stderr: a percentage on a terminal, a line otherwise."""
+    """Progress of the long steps on stderr, so that a run never sits silent: a line per step,
+    and for a long simulation a percentage updated in place on a terminal, or a line at each
+    quarter in a log (CI), not a flood. An error still ends stderr as its one line."""
 
-    def __init__(self):
-        self.terminal = sys.stderr.isatty()
+    def __init__(self, terminal=None):
+        self.terminal = sys.stderr.isatty() if terminal is None else terminal
+        self.quarters = {}
 
     def __call__(self, done, total, text="simulating"):
-        if total < 20_000 and text == "simulating":
+        if total < 8192 and text == "simulating":     # a few seconds in Amaranth at most
             return
+        percent = done * 100 // max(total, 1)
         if self.terminal:
-            click.echo(f"\r  {text} {done * 100 // max(total, 1):3d}%", err=True,
-                       nl=done >= total)
+            click.echo(f"\r  {text} {percent:3d}%", err=True, nl=done >= total)
+            return
+        quarter = percent // 25
+        if quarter < self.quarters.get(text, 0):
+            self.quarters[text] = 0              # the same step again (the next chunk)
+        if quarter > self.quarters.get(text, 0):
+            self.quarters[text] = quarter
+            click.echo(f"  {text}: {percent}%", err=True)
 
     def note(self, text):
-        # Only on a terminal: in logs and scripts an error stays the one line on stderr.
-        if self.terminal:
-            click.echo(f"  {text}", err=True)
+        click.echo(f"  {text}", err=True)
 
 
 def _progress():
@@ -230,7 +238,8 @@ def quantize_command(float_file, out_path, bits, data_file, label, sweep, tolera
 @click.option("--seed", type=int, default=0, show_default=True)
 def check_command(out_dir, netlist, simulator, vectors, seed):
     """Re-verify the Verilog of build folder OUT_DIR against its model."""
-    result = check(out_dir, netlist=netlist, simulator=simulator, vectors=vectors, seed=seed)
+    result = check(out_dir, netlist=netlist, simulator=simulator, vectors=vectors, seed=seed,
+                   progress=_progress())
     click.echo(f"{result.netlist}: {result.vectors_checked} vectors in {result.simulator_version}"
                f", {result.mismatches} mismatches")
 

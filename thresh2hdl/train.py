@@ -14,7 +14,8 @@ import numpy as np
 
 from .data import check_ranges
 from .errors import InputError
-from .model import FeatureFormat, Model, Unit
+from .model import MAX_FEATURES, FeatureFormat, Model, Unit
+from .names import check_identifier
 from .quantize import to_integer_weights
 
 __all__ = ["FitOptions", "FitLog", "train_unit", "fit", "RULES", "KEEP"]
@@ -194,6 +195,10 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
     ranges come from the data, with a warning. Returns ``(model, log)``.
     """
     log = FitLog()
+    try:
+        check_identifier(module, "module name")
+    except ValueError as error:
+        raise InputError(str(error), field="--module") from None
     x, labels = dataset.x, dataset.labels
     classes = dataset.classes
     if len(classes) < 2:
@@ -202,6 +207,9 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
     if len(classes) > 256:
         raise InputError(f"has {len(classes)} classes, more than the limit of 256 units",
                          source=dataset.source, field="label")
+    if x.shape[1] > MAX_FEATURES:
+        raise InputError(f"has {x.shape[1]} feature columns, more than the limit of "
+                         f"{MAX_FEATURES}", source=dataset.source, field="line 1")
     if formats is None:
         formats = _formats_from_data(x, dataset.feature_names, log)
     elif len(formats) != x.shape[1]:
@@ -244,10 +252,15 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
                                     centre=centre)
         weights, biases = list(budget.weights), [int(v) for v in budget.biases]
 
-    units = [Unit(class_unit_name(c) if len(unit_classes) > 1 else "unit",
-                  tuple(int(v) for v in w), b) for c, w, b in zip(unit_classes, weights, biases)]
     labels_out = tuple(classes) if len(classes) > 2 else (classes[0], classes[1])
-    model = Model(module=module, features=formats, units=units, class_labels=labels_out)
+    try:
+        units = [Unit(class_unit_name(c) if len(unit_classes) > 1 else "unit",
+                      tuple(int(v) for v in w), b)
+                 for c, w, b in zip(unit_classes, weights, biases)]
+        model = Model(module=module, features=formats, units=units, class_labels=labels_out)
+    except ValueError as error:    # weights past 32 bits, say: a budget keeps them narrow
+        raise InputError(f"the trained model is refused: {error}; a smaller --weight-bits "
+                         f"keeps the weights narrow", source=dataset.source) from None
     log.train_accuracy = accuracy(model, x[train_idx], labels[train_idx])
     if held:
         log.holdout_accuracy = accuracy(model, x[held_idx], labels[held_idx])
