@@ -45,7 +45,8 @@ def main():
     for name, noise in (("separable", 0.0), ("noisy (5% flipped)", 0.05)):
         x, y = data(noise)
         a = np.hstack([x - 2048, np.full((ROWS, 1), 2048)])
-        options = FitOptions(rule="symmetric", epochs=EPOCHS, until_clean=False, shuffle=False)
+        options = FitOptions(rule="symmetric", keep="last", epochs=EPOCHS, until_clean=False,
+                             shuffle=False)      # the last weights, as scikit-learn returns
         ours = best_of(3, lambda: train_unit(a, y, options, np.random.default_rng(0)))
 
         def reference():

@@ -19,9 +19,14 @@ def run(*args, cwd=None):
                           capture_output=True, text=True, timeout=600)
 
 
-def assert_one_line_error(result, code=2, contains=None):
+def assert_one_line_error(result, code=2, contains=None, after_progress=False):
+    """One error line on stderr and nothing else; ``after_progress``: for errors found after
+    work began, progress lines (indented) may come first, the error line still last."""
     assert result.returncode == code, result.stderr + result.stdout
-    lines = result.stderr.strip().splitlines()
+    lines = result.stderr.rstrip().splitlines()
+    if after_progress:
+        assert all(line.startswith("  ") for line in lines[:-1]), result.stderr
+        lines = lines[-1:]
     assert len(lines) == 1, result.stderr
     assert "Traceback" not in result.stderr
     assert lines[0].startswith("thresh2hdl: error: ")
@@ -34,6 +39,11 @@ def test_demo_end_to_end(tmp_path):
     result = run("demo", "--out", out, "--simulator", "amaranth")
     assert result.returncode == 0, result.stderr
     assert "0 mismatches" in result.stdout and "not a safety-rated function" in result.stdout
+    # stderr is a pipe here, as in a CI log: a line per step and a few for the long simulation.
+    lines = result.stderr.splitlines()
+    assert "\r" not in result.stderr and all(line.startswith("  ") for line in lines)
+    assert lines[0].startswith("  planned") and lines[1].startswith("  verifying in amaranth")
+    assert lines[-1] == f"  writing {out}" and 4 <= len(lines) <= 10
     report = json.loads((out / "report.json").read_text())
     for key in ("module", "verilog", "weights", "bias", "feature_ranges", "score_range",
                 "score_bits", "headroom_bits", "latency_cycles", "vectors_checked", "mismatches"):
@@ -161,6 +171,87 @@ def test_output_folder_rules(tmp_path):
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
 
 
+def test_an_output_folder_one_rename_cannot_replace_is_refused(tmp_path):
+    # The current folder, a folder holding it, a symbolic link, a folder holding an input file:
+    # one line, exit 2, before any work; nothing changed and nothing left behind.
+    work = tmp_path / "work"
+    (work / "sub").mkdir(parents=True)
+    (work / "keep.txt").write_text("keep")
+    for out, cwd in ((".", work), ("..", work / "sub"), (work, work / "sub")):
+        result = run("demo", "--out", out, "--force", "--vectors", "10", cwd=cwd)
+        assert_one_line_error(result, 2, "is the current folder or holds it")
+    (tmp_path / "link").symlink_to(work)
+    assert_one_line_error(run("demo", "--out", tmp_path / "link", "--force", "--vectors", "10"),
+                          2, "is a symbolic link")
+    (work / "mine.toml").write_text(EXAMPLE.read_text())
+    assert_one_line_error(run("build", work / "mine.toml", "--out", work, "--force"), 2,
+                          "holds the input file")
+    (work / "rows.csv").write_text("x\n")
+    assert_one_line_error(run("build", EXAMPLE, "--out", work, "--force", "--data",
+                              work / "rows.csv"), 2, "holds the input file")
+    assert sorted(p.name for p in work.iterdir()) == ["keep.txt", "mine.toml", "rows.csv", "sub"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["link", "work"]
+
+
+def test_a_folder_rebuilds_from_its_own_model_file_only_when_nothing_is_lost(tmp_path):
+    out = tmp_path / "o"
+    options = ("--simulator", "amaranth", "--vectors", "100")
+    assert run("demo", "--out", out, *options).returncode == 0
+    # model.toml is written back unchanged: allowed.
+    result = run("build", out / "model.toml", "--out", out, "--force", "--pipeline", "2", *options)
+    assert result.returncode == 0, result.stderr
+    assert json.loads((out / "report.json").read_text())["latency_cycles"] == 2
+    # Another module name would write another model.toml: the given file would be lost.
+    assert_one_line_error(run("build", out / "model.toml", "--out", out, "--force", "--module",
+                              "other", *options), 2, "holds the input file")
+    assert (out / "pump_fault.v").exists()
+
+
+@pytest.mark.parametrize("failing", ["old folder", "new folder"])
+def test_a_replace_that_fails_keeps_the_previous_folder(tmp_path, monkeypatch, failing):
+    # A folder the system will not move (another device, no permission: simulated here) is
+    # named in one InputError, and the previous folder stays as it was, with no leftovers.
+    import errno
+    import os
+    from thresh2hdl import outdir
+    from thresh2hdl.errors import InputError
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "old.txt").write_text("old")
+    real = os.rename
+
+    def rename(source, target):
+        moving = Path(source).resolve() == out.resolve() if failing == "old folder" else \
+            ".out.partial-" in str(source)
+        if moving:
+            raise OSError(errno.EBUSY, "Device or resource busy")
+        return real(source, target)
+
+    monkeypatch.setattr(outdir.os, "rename", rename)
+    with pytest.raises(InputError, match="cannot replace the folder"):
+        with outdir.staged_folder(out, force=True) as staging:
+            (staging / "new.txt").write_text("new")
+    assert [p.name for p in out.iterdir()] == ["old.txt"]
+    assert [p.name for p in tmp_path.iterdir()] == ["out"]
+
+
+def test_progress_on_a_terminal_and_in_a_log(capsys):
+    from thresh2hdl.cli import _Progress
+    log = _Progress(terminal=False)
+    log.note("verifying")
+    for done in range(0, 100_000, 4096):
+        log(done, 100_000)
+    log(100_000, 100_000)
+    # In a log: a line for the step, one a quarter, no carriage returns.
+    assert capsys.readouterr().err.splitlines() == [
+        "  verifying", "  simulating: 28%", "  simulating: 53%", "  simulating: 77%",
+        "  simulating: 100%"]
+    terminal = _Progress(terminal=True)
+    terminal(50_000, 100_000)
+    terminal(100_000, 100_000)
+    assert capsys.readouterr().err == "\r  simulating  50%\r  simulating 100%\n"
+
+
 def test_help_for_each_command():
     for command in ((), ("build",), ("demo",)):
         result = run(*command, "--help")
@@ -188,8 +279,11 @@ def test_mismatch_writes_files_and_exits_1(tmp_path, monkeypatch, capsys):
     with pytest.raises(SystemExit) as info:
         main(["demo", "--out", str(tmp_path / "o"), "--vectors", "2000"])
     assert info.value.code == 1
-    err = capsys.readouterr().err
-    assert err.count("\n") == 1 and "mismatch" in err and "vector" in err
+    lines = capsys.readouterr().err.splitlines()
+    # Progress lines (indented) first, then the one error line last.
+    assert all(line.startswith("  ") for line in lines[:-1]) and len(lines) > 1
+    assert lines[-1].startswith("thresh2hdl: error: ") and "mismatch" in lines[-1] \
+        and "vector" in lines[-1]
     report = json.loads((tmp_path / "o" / "report.json").read_text())
     assert report["mismatches"] > 0 and report["verification"]["first_mismatches"]
 

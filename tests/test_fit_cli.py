@@ -178,3 +178,31 @@ def test_fit_refuses_to_overwrite_without_force(tmp_path):
     assert_one_line_error(run("fit", data, "--out", model, "--input-bits", "12"), 2, "exists")
     assert model.read_text() == "mine"
     assert run("fit", data, "--out", model, "--input-bits", "12", "--force").returncode == 0
+
+
+def test_fit_defaults_say_what_they_chose_and_keep_weights_narrow(tmp_path):
+    # Synthetic noisy 12-bit rows (test_train.noisy_codes): full-precision weights come out
+    # wider than 12 bits there.
+    from test_train import noisy_codes
+    x, y = noisy_codes(0)
+    data = write_csv(tmp_path / "noisy.csv", ["a", "b", "c", "d", "e", "f", "label"],
+                     [list(r) + [int(v)] for r, v in zip(x, y)])
+    model = tmp_path / "m.toml"
+    result = run("fit", data, "--out", model, "--input-bits", "12", "--holdout", "0.3")
+    assert result.returncode == 0 and result.stderr == "", result.stderr
+    assert "kept the pocket weights (default" in result.stdout
+    assert "brought into the default budget of 12 bits" in result.stdout
+    from thresh2hdl.model import load_model
+    assert max(abs(w) for w in load_model(model).unit.weights) < 1 << 11
+    log = json.loads((tmp_path / "m.fit.json").read_text())
+    assert log["weight_budget_bits"] == 12 < log["full_precision_weight_bits"]
+    assert log["options"]["keep"] == "pocket"
+    # Full precision on request, with a warning that says how wide and what to do.
+    result = run("fit", data, "--out", model, "--input-bits", "12", "--weight-bits", "full",
+                 "--force")
+    assert result.returncode == 0, result.stderr
+    assert "warning: the weights need" in result.stderr and "--weight-bits 12" in result.stderr
+    assert "at full precision (--weight-bits full)" in result.stdout
+    assert max(abs(w) for w in load_model(model).unit.weights) >= 1 << 11
+    assert_one_line_error(run("fit", data, "--out", model, "--weight-bits", "wide"), 2,
+                          "neither a number of bits nor 'full'")

@@ -250,7 +250,7 @@ def test_a_timeout_is_undecided_with_exit_3_never_proved(tmp_path):
     out = tmp_path / "b"
     build(model, out, BuildOptions(pipeline=0, simulator="amaranth", vectors=50))
     result = run("prove", out, "--timeout", "0.001")
-    assert_one_line_error(result, 3, "undecided")
+    assert_one_line_error(result, 3, "undecided", after_progress=True)
     report = json.loads((out / "report.json").read_text())
     assert report["proof"]["status"] == "undecided"
     with pytest.raises(UndecidedError):
@@ -285,7 +285,7 @@ def test_prove_command_prints_a_confirmed_counterexample_with_exit_1(tmp_path):
     before = (out / "report.json").read_text()
     result = run("prove", out, "--netlist", tmp_path / "edited.v", "--simulator", "icarus")
     assert_one_line_error(result, 1, "counterexample written to "
-                                     "counterexample-netlist-edited.v.csv")
+                                     "counterexample-netlist-edited.v.csv", after_progress=True)
     assert "expected" in result.stderr and "rms_axial=" in result.stderr
     # A proof of another file is recorded apart: the rest of the report is as it was.
     after = json.loads((out / "report.json").read_text())

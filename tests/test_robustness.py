@@ -1,5 +1,6 @@
 """No bad input breaks the tool: generated corruptions, limits, interrupted runs."""
 
+import json
 import signal
 import subprocess
 import sys
@@ -176,7 +177,7 @@ def test_wide_scores_use_exact_integers_end_to_end(tmp_path):
     independent = max((lo if lo >= 0 else ~lo).bit_length(), (hi if hi >= 0 else ~hi).bit_length()) + 1
     assert report["score_bits"] == independent > 64 and report["mismatches"] == 0
     result = run("build", path, "--out", tmp_path / "v", "--simulator", "verilator")
-    assert_one_line_error(result, 2, "use --simulator icarus")
+    assert_one_line_error(result, 2, "use --simulator icarus", after_progress=True)
 
 
 @pytest.mark.parametrize("how", [signal.SIGINT, signal.SIGKILL])
@@ -237,3 +238,127 @@ def test_a_bank_of_the_most_units_builds_and_verifies(tmp_path):
     x = rng.integers(0, 256, (200, 4))
     assert (ReferenceModel.from_model(model).decisions(x) ==
             np.argmax(x @ weights.T + biases, axis=1)).all()
+
+
+# Parser limits: nesting the parsers recurse through, numbers no field holds, values that
+# overflow later arithmetic. Each file is refused in one line naming it, with exit code 2.
+DEEP = "[" * 5000 + "]" * 5000
+DIGITS = "9" * 5000
+
+
+def exits_2_naming(tmp_path, capsys, argv, name):
+    with pytest.raises(SystemExit) as info:
+        main([str(a) for a in argv])
+    err = capsys.readouterr().err
+    assert info.value.code == 2, err
+    assert err.count("\n") == 1 and err.startswith("thresh2hdl: error: ") and name in err
+    assert len(err) < 400 and "Traceback" not in err
+    return err
+
+
+@pytest.mark.parametrize("text, expected", [
+    (f"model_format = 1\nx = {DEEP}\n", "nests arrays or tables too deeply"),
+    ("model_format = 1\nx = " + "{a = " * 3000 + "1" + "}" * 3000,
+     "nests arrays or tables too deeply"),
+    (f"model_format = {DIGITS}\n", "more than 4300 digits"),
+    (GOOD_MODEL.replace("bias = ", f"bias = 1{'0' * 60} #"), "unit[0].bias: an integer of"),
+])
+def test_model_files_past_the_parsers_limits(tmp_path, capsys, text, expected):
+    path = tmp_path / "m.toml"
+    path.write_text(text)
+    err = exits_2_naming(tmp_path, capsys, ["build", path, "--out", tmp_path / "o"], "m.toml")
+    assert expected in err and not (tmp_path / "o").exists()
+
+
+def test_formats_csv_and_netlist_files_past_the_parsers_limits(tmp_path, capsys):
+    data = tmp_path / "d.csv"
+    data.write_text("a,b,label\n1,2,0\n3,4,1\n")
+    formats = tmp_path / "formats.toml"
+    formats.write_text(f"x = {DEEP}\n")
+    exits_2_naming(tmp_path, capsys, ["fit", data, "--out", tmp_path / "m.toml", "--formats",
+                                      formats], "formats.toml")
+    big = tmp_path / "big.csv"
+    big.write_text(f"a,b,label\n1,{DIGITS},0\n3,4,1\n")
+    err = exits_2_naming(tmp_path, capsys, ["fit", big, "--out", tmp_path / "m.toml"], "big.csv")
+    assert "line 2" in err and "not a finite number" in err
+    wide = tmp_path / "wide.csv"
+    wide.write_text(",".join(f"c{i}" for i in range(5000)) + ",label\n"
+                    + ",".join("1" * 5000) + ",0\n" + ",".join("2" * 5000) + ",1\n")
+    exits_2_naming(tmp_path, capsys, ["fit", wide, "--out", tmp_path / "m.toml"],
+                   "more than the limit of 4096")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["big.csv", "d.csv", "formats.toml",
+                                                          "wide.csv"]
+
+
+@pytest.mark.parametrize("arrays, expected", [
+    ({"coef": np.array([[1e308, -1e308, 1.0]])}, "coef: the weights folded"),
+    ({"scale": np.array([1e-308, 1.0, 1.0])}, "coef: the weights folded"),
+    ({"input_hi": np.array([1e300, 15, 15])}, "input_hi: holds a code beyond 32 bits"),
+    ({"intercept": np.array([1e300])}, "intercept: the bias is too large"),
+    ({"coef": np.ones((300, 3)), "intercept": np.zeros(300)}, "at most 256 units"),
+    ({"classes": np.array([1, 1])}, "classes: must be 2 different labels"),
+])
+def test_float_models_past_the_arithmetics_limits(tmp_path, capsys, arrays, expected):
+    base = dict(coef=np.array([[0.5, -1.0, 0.25]]), intercept=np.array([0.1]),
+                input_lo=np.array([0, 0, 0]), input_hi=np.array([15, 15, 15]))
+    np.savez(tmp_path / "f.npz", **{**base, **arrays})
+    err = exits_2_naming(tmp_path, capsys, ["quantize", tmp_path / "f.npz", "--bits", "6",
+                                            "--out", tmp_path / "m.toml"], "f.npz")
+    assert expected in err and not (tmp_path / "m.toml").exists()
+
+
+@pytest.fixture(scope="module")
+def folder(tmp_path_factory):
+    out = tmp_path_factory.mktemp("built") / "demo"
+    build(demo_model(), out, BuildOptions(simulator="amaranth", vectors=50))
+    return out
+
+
+@pytest.mark.parametrize("edit, expected", [
+    (lambda r: DEEP, "nests arrays or tables too deeply"),
+    (lambda r: json.dumps({**r, "x": json.loads("[" * 40 + "]" * 40)}), "nests more than 32"),
+    (lambda r: json.dumps(r)[:-1] + f', "x": {DIGITS}}}', "more than 4300 digits"),
+    (lambda r: json.dumps({**r, "latency_cycles": float("inf")}), "not valid JSON"),
+    (lambda r: json.dumps({**r, "register_stages": 10 ** 30}), "register_stages: must be"),
+    (lambda r: json.dumps({**r, "weight_port": [1]}), "weight_port: must be a table"),
+    (lambda r: json.dumps({**r, "tree": {**r["tree"], "split_bits": 1}}),
+     "recorded build settings are refused"),
+    (lambda r: json.dumps({**r, "verilog": "../../x.v"}), "verilog: must be the name"),
+    (lambda r: json.dumps({**r, "features": 5}), "cannot show this report"),
+    (lambda r: json.dumps([r]), "is not a build report"),
+])
+def test_report_json_read_back_past_its_limits(folder, tmp_path, capsys, edit, expected):
+    import shutil
+    copy = tmp_path / "copy"
+    shutil.copytree(folder, copy)
+    report = json.loads((folder / "report.json").read_text())
+    (copy / "report.json").write_text(edit(report))
+    before = {p.name: p.read_bytes() for p in copy.iterdir()}
+    for command in (["check", copy], ["prove", copy], ["estimate", copy]):
+        err = exits_2_naming(tmp_path, capsys, command, "report.json")
+        assert expected in err
+    assert {p.name: p.read_bytes() for p in copy.iterdir()} == before
+
+
+@pytest.mark.parametrize("text, expected", [
+    (DEEP, "nests arrays or tables too deeply"),
+    ('{"mistakes_per_epoch": "abc", "epochs_run": [1], "train_accuracy": 1}',
+     "mistakes_per_epoch: must be"),
+    ('{"mistakes_per_epoch": [[1]], "epochs_run": [1], "train_accuracy": null}',
+     "train_accuracy: must be a number, not missing"),
+    ("[1]", "is not a fit log"),
+])
+def test_a_fit_log_beside_the_model_past_its_limits(tmp_path, capsys, text, expected):
+    model = tmp_path / "m.toml"
+    model.write_text(GOOD_MODEL)
+    (tmp_path / "m.fit.json").write_text(text)
+    err = exits_2_naming(tmp_path, capsys, ["build", model, "--out", tmp_path / "o"],
+                         "m.fit.json")
+    assert expected in err and not (tmp_path / "o").exists()
+
+
+def test_a_netlist_with_a_port_width_past_any_limit(folder, capsys, tmp_path):
+    netlist = tmp_path / "big.v"
+    netlist.write_text(f"module pump_fault(input [{DIGITS}:0] clk); endmodule\n")
+    err = exits_2_naming(tmp_path, capsys, ["check", folder, "--netlist", netlist], "big.v")
+    assert "is missing" in err

@@ -114,7 +114,7 @@ def test_check_passes_the_built_file_and_catches_a_changed_constant(built, tmp_p
     bad = tmp_path / "edited.v"
     bad.write_text(mutated)
     result = run("check", built, "--netlist", bad, "--simulator", simulator, "--vectors", "20000")
-    assert_one_line_error(result, 1, "mismatch")
+    assert_one_line_error(result, 1, "mismatch", after_progress=True)
     assert "band_bearing=" in result.stderr      # the failing vector is shown
 
 

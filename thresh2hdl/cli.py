@@ -16,7 +16,7 @@ from .fitting import fit_csv, quantize_npz
 from .flow import BuildOptions, build, check, demo_model, estimate_folder, prove
 from .proof import DEFAULT_TIMEOUT_S
 from .report import cost_text
-from .train import FitOptions
+from .train import DEFAULT_MAX_WEIGHT_BITS, FitOptions, choice_lines
 
 __all__ = ["main"]
 
@@ -123,23 +123,45 @@ def _options(kwargs):
                         range_flag=kwargs["range_flag"])
 
 
-class _Progress:
-    """Progress of the long steps on stderr: a percentage on a terminal, a line otherwise."""
+class _WeightBits(click.ParamType):
+    """``--weight-bits``: a number of bits, or ``full``."""
 
-    def __init__(self):
-        self.terminal = sys.stderr.isatty()
+    name = "B|full"
+
+    def convert(self, value, param, ctx):
+        if value == "full" or isinstance(value, int):
+            return value
+        try:
+            return int(value)
+        except ValueError:
+            self.fail(f"{value!r} is neither a number of bits nor 'full'", param, ctx)
+
+
+class _Progress:
+    """Progress of the long steps on stderr, so that a run never sits silent: a line per step,
+    and for a long simulation a percentage updated in place on a terminal, or a line at each
+    quarter in a log (CI), not a flood. An error still ends stderr as its one line."""
+
+    def __init__(self, terminal=None):
+        self.terminal = sys.stderr.isatty() if terminal is None else terminal
+        self.quarters = {}
 
     def __call__(self, done, total, text="simulating"):
-        if total < 20_000 and text == "simulating":
+        if total < 8192 and text == "simulating":     # a few seconds in Amaranth at most
             return
+        percent = done * 100 // max(total, 1)
         if self.terminal:
-            click.echo(f"\r  {text} {done * 100 // max(total, 1):3d}%", err=True,
-                       nl=done >= total)
+            click.echo(f"\r  {text} {percent:3d}%", err=True, nl=done >= total)
+            return
+        quarter = percent // 25
+        if quarter < self.quarters.get(text, 0):
+            self.quarters[text] = 0              # the same step again (the next chunk)
+        if quarter > self.quarters.get(text, 0):
+            self.quarters[text] = quarter
+            click.echo(f"  {text}: {percent}%", err=True)
 
     def note(self, text):
-        # Only on a terminal: in logs and scripts an error stays the one line on stderr.
-        if self.terminal:
-            click.echo(f"  {text}", err=True)
+        click.echo(f"  {text}", err=True)
 
 
 def _progress():
@@ -186,23 +208,28 @@ def demo_command(**kwargs):
               help="TOML file of [[feature]] tables declaring each column's format.")
 @click.option("--rule", type=click.Choice(["classic", "symmetric"]), default="classic",
               show_default=True, help="classic: w += (y - y_hat) x; symmetric: w += s x when s z <= 0.")
-@click.option("--keep", type=click.Choice(["last", "pocket", "averaged"]), default="last",
-              show_default=True, help="Which weights to keep.")
+@click.option("--keep", type=click.Choice(["last", "pocket", "averaged"]), default=None,
+              help="Which weights to keep (default pocket: the epoch's with the best training "
+              "accuracy).")
 @click.option("--epochs", type=int, default=100, show_default=True)
 @click.option("--all-epochs", is_flag=True, help="Run every epoch, even after one with no mistakes.")
 @click.option("--no-shuffle", is_flag=True, help="Visit rows in file order.")
 @click.option("--seed", type=int, default=0, show_default=True)
 @click.option("--holdout", type=float, default=0.0, show_default=True,
               help="Fraction of rows held out to measure accuracy.")
-@click.option("--weight-bits", type=int, default=None, help="Keep weights in B-bit signed range.")
+@click.option("--weight-bits", type=_WeightBits(), default=None,
+              help="Bring the weights into B-bit signed range, or 'full' to keep full "
+              f"precision (default: at most {DEFAULT_MAX_WEIGHT_BITS} bits).")
 @click.option("--module", "module_name", default="thresh_unit", show_default=True)
 @click.option("--force", is_flag=True, help="Replace existing output files.")
 def fit_command(data_file, out_path, label, input_bits, signed, formats_file, rule, keep, epochs,
                 all_epochs, no_shuffle, seed, holdout, weight_bits, module_name, force):
     """Train integer threshold units on raw codes in DATA_FILE (CSV with a header)."""
-    options = FitOptions(rule=rule, keep=keep, epochs=epochs, until_clean=not all_epochs,
-                         shuffle=not no_shuffle, seed=seed, holdout=holdout,
-                         weight_bits=weight_bits)
+    budget = {"weight_bits": None, "max_weight_bits": None} if weight_bits == "full" else \
+        {"weight_bits": weight_bits}
+    options = FitOptions(rule=rule, keep=keep or "pocket", epochs=epochs,
+                         until_clean=not all_epochs, shuffle=not no_shuffle, seed=seed,
+                         holdout=holdout, **budget)
     model, log = fit_csv(data_file, out_path, label=label, input_bits=input_bits,
                          signed=signed, formats_file=formats_file, options=options,
                          module=module_name, force=force)
@@ -212,6 +239,8 @@ def fit_command(data_file, out_path, label, input_bits, signed, formats_file, ru
     click.echo(f"trained {kind}: epochs {log.epochs_run}, train accuracy {log.train_accuracy:.4f}"
                + (f", held-out {log.holdout_accuracy:.4f}" if log.holdout_accuracy is not None
                   else ""))
+    for line in choice_lines(options, log, keep_given=keep is not None):
+        click.echo(line)
     click.echo(f"wrote {out_path}")
 
 
@@ -259,7 +288,8 @@ def quantize_command(float_file, out_path, bits, data_file, label, sweep, tolera
 @click.option("--seed", type=int, default=0, show_default=True)
 def check_command(out_dir, netlist, simulator, vectors, seed):
     """Re-verify the Verilog of build folder OUT_DIR against its model."""
-    result = check(out_dir, netlist=netlist, simulator=simulator, vectors=vectors, seed=seed)
+    result = check(out_dir, netlist=netlist, simulator=simulator, vectors=vectors, seed=seed,
+                   progress=_progress())
     click.echo(f"{result.netlist}: {result.vectors_checked} vectors in {result.simulator_version}"
                f", {result.mismatches} mismatches")
 

@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputError
+from .readers import shorten
 
 __all__ = ["Dataset", "read_csv", "check_ranges", "dataset_for_model", "MAX_ROWS"]
 
@@ -36,16 +37,17 @@ def _integer(cell, source, line, column):
         return int(text)
     except ValueError:
         pass
+    name = shorten(column)
     try:
         value = float(text)
     except ValueError:
-        raise InputError(f"{column!r} is {text!r}, not a number", source=source,
+        raise InputError(f"{name!r} is {shorten(text)!r}, not a number", source=source,
                          field=f"line {line}") from None
     if not math.isfinite(value):
-        raise InputError(f"{column!r} is {text}, not a finite number", source=source,
+        raise InputError(f"{name!r} is {shorten(text)}, not a finite number", source=source,
                          field=f"line {line}")
     if value != int(value):
-        raise InputError(f"{column!r} is {text}, not an integer code", source=source,
+        raise InputError(f"{name!r} is {shorten(text)}, not an integer code", source=source,
                          field=f"line {line}")
     return int(value)
 
@@ -97,7 +99,8 @@ def read_csv(path, *, label="label"):
         for column, cell in enumerate(row):
             value = _integer(cell, source, number, header[column])
             if not -(1 << 62) <= value < (1 << 62):
-                raise InputError(f"{header[column]!r} = {value} is too large", source=source,
+                raise InputError(f"{header[column]!r} = {shorten(value)} is too large for a code",
+                                 source=source,
                                  field=f"line {number}")
             values[number - 2, column] = value
     labels = values[:, label_index]

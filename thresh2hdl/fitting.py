@@ -13,6 +13,7 @@ import numpy as np
 from .data import check_ranges, read_csv
 from .errors import InputError
 from .model import FeatureFormat, Model, Unit, load_toml, model_to_toml, parse_features
+from .names import check_identifier
 from .outdir import write_files
 from .quantize import decide, fold_normalisation, load_float_model, to_integer_weights
 from .train import FitOptions, class_unit_name, fit
@@ -25,6 +26,16 @@ SWEEP_BITS = tuple(range(2, 13))
 def log_path_for(model_path, kind):
     model_path = Path(model_path)
     return model_path.with_name(f"{model_path.stem}.{kind}.json")
+
+
+def check_outputs(out_path, kind, inputs):
+    """Refuse a model or log path that is one of the input files: writing it would destroy
+    what it was made from."""
+    for output in (Path(out_path), log_path_for(out_path, kind)):
+        for name in inputs:
+            if name is not None and output.resolve() == Path(name).resolve():
+                raise InputError(f"is also the input file {name}; choose another --out",
+                                 source=output)
 
 
 def input_formats(names, *, input_bits=None, signed=False, formats_file=None):
@@ -54,6 +65,7 @@ def fit_csv(data_path, out_path, *, label="label", input_bits=None, signed=False
             formats_file=None, options=FitOptions(), module="thresh_unit", force=False):
     """Train on a CSV and write ``out_path`` (model file) and ``<stem>.fit.json`` (the log)."""
     out_path = Path(out_path)
+    check_outputs(out_path, "fit", (data_path, formats_file))
     dataset = read_csv(data_path, label=label)
     formats = input_formats(dataset.feature_names, input_bits=input_bits, signed=signed,
                             formats_file=formats_file)
@@ -99,6 +111,11 @@ def _formats_for(float_model, names):
 def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label", sweep=False,
                  tolerance=0.01, refine_epochs=20, module="thresh_unit", seed=0, force=False):
     """Fold a float model onto raw codes and write it as an integer model file."""
+    try:
+        check_identifier(module, "module name")
+    except ValueError as error:
+        raise InputError(str(error), field="--module") from None
+    check_outputs(out_path, "quantize", (npz_path, data_path))
     if bits is None and not sweep:
         raise InputError("give --bits B (2..32) or --sweep", field="--bits")
     if bits is not None and not 2 <= bits <= 32:
@@ -139,9 +156,12 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
     centre = np.array([(f.min + f.max) // 2 for f in formats])
 
     def at(b):
-        result = to_integer_weights(weights, bias, b, x, labels=labels,
-                                    refine_epochs=refine_epochs if labels is not None else 0,
-                                    seed=seed, centre=centre)
+        try:
+            result = to_integer_weights(weights, bias, b, x, labels=labels,
+                                        refine_epochs=refine_epochs if labels is not None else 0,
+                                        seed=seed, centre=centre)
+        except InputError as error:
+            raise InputError(str(error), source=npz_path) from None
         decided = decide(x.astype(np.float64) @ result.weights.T.astype(np.float64)
                          + result.biases.astype(np.float64))
         agreement = float(np.mean(decided == float_decisions))
@@ -164,10 +184,14 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
     chosen = bits if bits is not None else recommended
     result, agreement, accuracy = at(chosen)
     unit_names = ["unit"] if units == 1 else [class_unit_name(c) for c in classes]
-    model = Model(module=module, features=formats,
-                  units=[Unit(n, tuple(int(v) for v in w), int(b))
-                         for n, w, b in zip(unit_names, result.weights, result.biases)],
-                  class_labels=classes)
+    try:
+        model = Model(module=module, features=formats,
+                      units=[Unit(n, tuple(int(v) for v in w), int(b))
+                             for n, w, b in zip(unit_names, result.weights, result.biases)],
+                      class_labels=classes)
+    except ValueError as error:
+        raise InputError(f"cannot make an integer model of it: {error}",
+                         source=npz_path) from None
     outcome = QuantizeResult(model, chosen, agreement, accuracy, float_accuracy, tuple(table),
                              recommended, len(x), rows_source)
     record = {"float_model": Path(npz_path).name, "bits": chosen, "rows": rows_source,

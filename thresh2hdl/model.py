@@ -5,10 +5,10 @@ never the file, so a model is validated in exactly one place. The schema is docu
 ``docs/model-format.md``.
 """
 
-import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
+from . import readers
 from .errors import InputError
 from .names import check_identifier
 
@@ -349,24 +349,9 @@ def parse_model(data, *, source="<model>"):
 
 
 def load_toml(path, what="model file"):
-    """Read a TOML file; a missing, unreadable or malformed file is one :class:`InputError`."""
-    path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise InputError("no such file", source=path) from None
-    except IsADirectoryError:
-        raise InputError(f"is a folder, not a {what}", source=path) from None
-    except OSError as error:
-        raise InputError(f"cannot read: {error.strerror}", source=path) from None
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as error:
-        raise InputError(f"not UTF-8 text (byte {error.start})", source=path) from None
-    try:
-        return tomllib.loads(text)
-    except tomllib.TOMLDecodeError as error:
-        raise InputError(f"not valid TOML: {error}", source=path) from None
+    """Read a TOML file; a missing, unreadable, malformed or too deeply nested file, or one
+    holding a number no field can hold, is one :class:`InputError` (see :mod:`.readers`)."""
+    return readers.load_toml(path, what)
 
 
 def load_model(path):

@@ -16,39 +16,68 @@ from .errors import InputError
 __all__ = ["staged_folder", "check_output_folder", "write_text", "write_files"]
 
 
-def check_output_folder(path, *, force=False):
-    """Refuse, before any work, an output path that is a file or a non-empty folder."""
+def check_output_folder(path, *, force=False, inputs=()):
+    """Refuse, before any work, an output path the staged replace cannot take safely: a file,
+    a non-empty folder without ``force``, the current folder or one holding it, a mount point,
+    a symbolic link, or a folder holding one of ``inputs`` (files it would delete)."""
     path = Path(path)
+    if path.is_symlink():
+        raise InputError("is a symbolic link; the new folder would replace the link, not fill "
+                         "its target: give the target's own path as --out", source=path)
     if path.exists() and not path.is_dir():
         raise InputError("is a file, not a folder; choose another --out", source=path)
+    target = path.resolve()
+    here = Path.cwd().resolve()
+    if target == here or target in here.parents:
+        raise InputError("is the current folder or holds it, which cannot be replaced in one "
+                         "rename; give a new subfolder as --out (e.g. --out build)", source=path)
+    if target.parent == target or os.path.ismount(target):
+        raise InputError("is a mount point or the root, which cannot be replaced in one "
+                         "rename; give a subfolder as --out", source=path)
     if path.is_dir() and any(path.iterdir()) and not force:
         raise InputError("exists and is not empty; choose another --out or pass --force "
                          "to replace it", source=path)
+    for name in inputs:
+        if name is not None and target in Path(name).resolve().parents:
+            raise InputError(f"holds the input file {name}, which replacing the folder would "
+                             f"delete; move it out first or choose another --out", source=path)
 
 
 @contextmanager
 def staged_folder(path, *, force=False):
     """Yield a temporary folder; on success it replaces ``path`` in one rename."""
-    path = Path(path)
-    check_output_folder(path, force=force)
-    parent = path.parent if str(path.parent) else Path(".")
+    given = Path(path)
+    check_output_folder(given, force=force)
+    path = given.resolve()         # "out/.." and friends: the folder's real name and parent
+    parent = path.parent
     try:
         parent.mkdir(parents=True, exist_ok=True)
         staging = Path(tempfile.mkdtemp(prefix=f".{path.name}.partial-", dir=parent))
         staging.chmod(0o777 & ~_umask())   # mkdtemp makes it private; the output should not be
     except OSError as error:
         raise InputError(f"cannot create the output folder: {error.strerror}",
-                         source=path) from None
+                         source=given) from None
     try:
         yield staging
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)
         raise
     old = None
-    if path.exists():
-        old = Path(tempfile.mkdtemp(prefix=f".{path.name}.old-", dir=parent))
-        os.rename(path, old / "previous")
-    os.rename(staging, path)
+    try:
+        if path.exists():
+            old = Path(tempfile.mkdtemp(prefix=f".{path.name}.old-", dir=parent))
+            os.rename(path, old / "previous")
+        os.rename(staging, path)
+    except OSError as error:
+        # A folder that cannot be moved (no write permission on it, another device): put back
+        # what was moved, remove the new files, and say so.
+        shutil.rmtree(staging, ignore_errors=True)
+        if old is not None and (old / "previous").exists():
+            os.rename(old / "previous", path)   # it was just moved from there: it can go back
+        if old is not None:
+            old.rmdir()
+        raise InputError(f"cannot replace the folder ({error.strerror}); choose another --out",
+                         source=given) from None
     if old is not None:
         shutil.rmtree(old, ignore_errors=True)
 

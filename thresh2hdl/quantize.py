@@ -16,9 +16,14 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputError
+from .model import MAX_BIAS_BITS, MAX_FEATURES, MAX_UNITS
 
-__all__ = ["FloatModel", "load_float_model", "fold_normalisation", "IntegerWeights",
-           "to_integer_weights", "decide"]
+__all__ = ["FLOAT_ARRAYS", "FloatModel", "load_float_model", "fold_normalisation",
+           "IntegerWeights", "to_integer_weights", "decide"]
+
+
+# The arrays of a float model's .npz (documented in docs/model-format.md).
+FLOAT_ARRAYS = ("coef", "intercept", "offset", "scale", "input_lo", "input_hi", "classes")
 
 
 @dataclass(frozen=True)
@@ -51,7 +56,7 @@ def load_float_model(path):
             except Exception as error:
                 raise InputError(f"array {name!r} cannot be read ({error})",
                                  source=source) from None
-    known = {"coef", "intercept", "offset", "scale", "input_lo", "input_hi", "classes"}
+    known = set(FLOAT_ARRAYS)
     unknown = sorted(set(arrays) - known)
     if unknown:
         raise InputError(f"unknown array {unknown[0]!r}; expected {', '.join(sorted(known))}",
@@ -79,6 +84,10 @@ def load_float_model(path):
         raise InputError(f"must be (units, features), not shape {coef.shape}", source=source,
                          field="coef")
     units, features = coef.shape
+    if features > MAX_FEATURES or units > MAX_UNITS:
+        raise InputError(f"has {units} units of {features} features; a model takes at most "
+                         f"{MAX_UNITS} units of {MAX_FEATURES} features", source=source,
+                         field="coef")
     arrays["coef"] = coef
     coef = real("coef", (units, features))
     intercept = real("intercept", (units,)) if np.ndim(arrays["intercept"]) else \
@@ -95,6 +104,9 @@ def load_float_model(path):
     for name, value in (("input_lo", lo), ("input_hi", hi)):
         if np.any(value != np.round(value)):
             raise InputError("must hold integer codes", source=source, field=name)
+        if np.any(np.abs(value) >= 2.0 ** 32):
+            raise InputError("holds a code beyond 32 bits, wider than any input", source=source,
+                             field=name)
     if np.any(lo > hi):
         j = int(np.flatnonzero(lo > hi)[0])
         raise InputError(f"input_lo[{j}] = {lo[j]:g} is above input_hi[{j}] = {hi[j]:g}",
@@ -108,8 +120,18 @@ def load_float_model(path):
                              f"decisions 0 and 1; a bank: one per unit)", source=source,
                              field="classes")
         classes = tuple(int(v) for v in values)
-    return FloatModel(coef, intercept, offset, scale, lo.astype(np.int64), hi.astype(np.int64),
-                      source, classes)
+        if len(set(classes)) != len(classes):
+            raise InputError(f"must be {wanted} different labels", source=source,
+                             field="classes")
+    model = FloatModel(coef, intercept, offset, scale, lo.astype(np.int64), hi.astype(np.int64),
+                       source, classes)
+    with np.errstate(over="ignore", invalid="ignore"):
+        weights, bias = fold_normalisation(model)
+        reach = np.abs(weights) @ np.maximum(np.abs(lo), np.abs(hi)) + np.abs(bias)
+    if not np.all(np.isfinite(reach)):
+        raise InputError("the weights folded onto raw codes (coef / scale) give scores beyond "
+                         "double precision; rescale the float model", source=source, field="coef")
+    return model
 
 
 def fold_normalisation(model):
@@ -180,10 +202,16 @@ def to_integer_weights(weights, bias, bits, x, *, labels=None, refine_epochs=0, 
     # One scale for all units: exact for a bank (argmax), and for one unit the only unit.
     best = None
     for k in _candidates(weights, limit):
-        w, b = _round_weights(weights, bias, k, limit)
+        with np.errstate(over="ignore", invalid="ignore"):
+            w, b = _round_weights(weights, bias, k, limit)
+        if not np.all(np.abs(b) < 2.0 ** MAX_BIAS_BITS):   # also NaN: no model has this bias
+            continue
         score = agreement_of(w, b)
         if best is None or score > best[0] + 1e-12:
             best = (score, k, w, b)
+    if best is None:
+        raise InputError(f"the bias is too large next to the weights: at {bits}-bit weights it "
+                         f"needs more than {MAX_BIAS_BITS + 1} bits", field="intercept")
     agreement, k, w, b = best
     refined = False
     if labels is not None and refine_epochs:

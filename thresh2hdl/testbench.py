@@ -7,7 +7,6 @@ The testbench is filled in from the template ``sim/thresh_tb.v.in`` (shipped in 
 
 import shutil
 import subprocess
-from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -16,6 +15,7 @@ from .errors import ToolError
 from .outdir import write_text
 from .simulate import SimulationResult
 from .stimulus import write_columns
+from .templates import template_text
 
 __all__ = ["TestbenchFiles", "testbench_text", "write_testbench", "simulate_icarus",
            "icarus_version"]
@@ -41,7 +41,7 @@ class TestbenchFiles:
 
 
 def _template():
-    return resources.files("thresh2hdl.sim").joinpath("thresh_tb.v.in").read_text("utf-8")
+    return template_text("thresh_tb.v.in")
 
 
 def _range(width):

@@ -16,7 +16,6 @@ import shutil
 import subprocess
 import tempfile
 import time
-from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -24,6 +23,7 @@ import numpy as np
 from .errors import ToolError
 from .simulate import SimulationResult
 from .stimulus import write_columns
+from .templates import template_text
 
 __all__ = ["find_verilator", "verilator_version", "simulate_verilator", "cache_folder"]
 
@@ -146,7 +146,7 @@ def harness_text(ports, module):
                        if "out_of_range" in by_role else ""),
               "SCORE_READS": reads, "SCORE_PORTS": str(len(scores)),
               "SET_WRITES": "\n".join(writes), "CONTROL_WORDS": str(control_words(ports))}
-    text = resources.files("thresh2hdl.sim").joinpath("verilator_harness.cpp.in").read_text("utf-8")
+    text = template_text("verilator_harness.cpp.in")
     for key, value in values.items():
         text = text.replace(f"@{key}@", value)
     return text
