@@ -85,9 +85,10 @@ def _wire(node, name, component, model, unit_index, ports, declared):
             f"{model.ports.score}_{model.units[unit_index].name}"
     if analysis.arch == "serial" and node.name == "sample":
         return model.ports.sample
-    magnitudes = {abs(w) for w in analysis.weights}
-    if analysis.arch == "serial" and node.name == "magnitude" and len(magnitudes) == 1:
-        return f"the constant {magnitudes.pop()}"      # the same for every beat
+    if analysis.arch == "serial" and node.name == "magnitude":
+        magnitudes = {abs(w) for w in analysis.weights}
+        if len(magnitudes) == 1:
+            return f"the constant {magnitudes.pop()}"      # the same for every beat
     if analysis.arch == "serial" and len(model.features) == 1 and node.name == "accumulator":
         # one beat: the sum starts from the bias (a register, named after what it feeds, when
         # loadable)
