@@ -102,7 +102,8 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
 
     The first chunk holds the corners, the data rows and a segment with random stalls; later
     chunks of :func:`chunk_vectors` random vectors run with gaps only. Each chunk is judged by
-    the reference model while the next ones are simulated; a mismatch ends the run.
+    the reference model while the next ones are simulated; every chunk runs, so the count of
+    mismatches is over every vector and the first named is the earliest.
     """
     analysis = component.analysis
     reference = ReferenceModel.from_model(model)
@@ -221,7 +222,7 @@ def first_stimulus(component, model, rows, *, seed=0, reload_count=2000, **optio
         return stimulus, ()
     analysis = component.analysis
     sets = reload_sets(model, analysis.weight_range, analysis.bias_range,
-                       random_count=reload_count, seed=seed)
+                       random_count=reload_count, seed=seed, guard=component.config.guard)
     groups = [(f"loaded set {k + 1}: {name}", size) for k, (_, vectors) in enumerate(sets)
               for name, size in vectors.groups]
     return make_reload_stimulus(stimulus, sets, latency=component.latency,
@@ -457,7 +458,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     if not isinstance(options, BuildOptions):
         raise TypeError("options must be BuildOptions")
     out_dir = Path(out_dir)
-    check_output_folder(out_dir, force=options.force)
+    check_output_folder(out_dir, force=options.force)   # early; again below with the inputs
     history, source = {}, None
     if not isinstance(model, Model):
         source = Path(model)

@@ -215,8 +215,9 @@ class Model:
         for key in keys:
             value = getattr(self.ports, key)
             if value in taken:
+                hint = " (or build with --no-range-flag)" if key == "out_of_range" else ""
                 raise InputError(f"port name {value!r} of {OPTIONAL_PORTS[key]} clashes with "
-                                 f"{taken[value]}; rename one of them in [module.ports]",
+                                 f"{taken[value]}; rename one of them in [module.ports]{hint}",
                                  field=f"module.ports.{key}")
             taken[value] = f"port {key}"
 

@@ -15,9 +15,11 @@ Every lemma is stated over the netlist's own wires with its operands as the netl
 them, so by induction from the inputs every wire equals its linear form, and the score output
 equals the linear form of the root. A Python check then ties that form to the model: the
 weights and bias composed along the plan must be exactly the model's (:func:`_check_cover`).
-The assumptions are the declared input ranges and, for register contents, the exact range of
-the value a register carries; the latter is recomputed here from the model, not read from the
-range analysis. Inputs are constrained to their ranges, never truncated.
+The assumptions are the declared input ranges (none where the input guard clamps: then every
+code the ports can carry is covered, the features taken clamped) and, for register contents,
+the exact range of the value a register carries; the latter is recomputed here from the model,
+not read from the range analysis. Inputs are constrained to their ranges, never truncated. The
+out-of-range flag's lemmas are checked without the input ranges in any case.
 
 A lemma that fails is not yet a counterexample: a second query searches for an input whose
 outputs, after the pipeline latency with the sink ready, differ from the model's, and the

@@ -78,13 +78,14 @@ def _wire(node, name, component, model, unit_index, ports, declared):
         return "none: the decision is the same for every input, so nothing reads it"
     if node.kind == "product" and node.magnitude > 0 and not node.magnitude & (node.magnitude - 1):
         shift = node.magnitude.bit_length() - 1
-        feature = model.features[node.feature].name
+        feature = _guarded_input(component, model.features[node.feature].name, node.feature,
+                                 declared)
         return f"{feature} << {shift}" if shift else feature
     if component.latency == 0 and node.index == analysis.score_node and model.ports.has_score:
         return model.ports.score if unit_index is None else \
             f"{model.ports.score}_{model.units[unit_index].name}"
     if analysis.arch == "serial" and node.name == "sample":
-        return model.ports.sample
+        return _guarded_input(component, model.ports.sample, None, declared)
     if analysis.arch == "serial" and node.name == "magnitude":
         magnitudes = {abs(w) for w in analysis.weights}
         if len(magnitudes) == 1:
@@ -104,6 +105,17 @@ def _wire(node, name, component, model, unit_index, ports, declared):
     while wire in ports:
         wire, serial = f"{name}_{serial}", serial + 1
     return wire if wire in declared else NO_WIRE
+
+
+def _guarded_input(component, port, feature, declared):
+    """The port, or its clamped value where the input guard clamps it (circuit.py names it
+    ``{feature}_clamped``; the serial sample ``sample_clamped``)."""
+    guard = component.config.guard
+    if not guard.clamp or not guard.needed or (feature is not None and feature not in guard.tight):
+        return port
+    name = "sample_clamped" if feature is None else \
+        f"{component.config.model.features[feature].name}_clamped"
+    return name if name in declared else port
 
 
 def node_table(component, model, verilog_text):

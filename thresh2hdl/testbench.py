@@ -248,7 +248,9 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
     decisions = np.array([-1 if any(c in row[2] for c in "xXzZ") else int(row[2], 16)
                           for row in rows])
     has_flag = stimulus.expect_flags is not None
-    flags = np.array([row[3] == "1" for row in rows]) if has_flag else None
+    # An unknown (x or z) flag is -1, never a 0 that would pass where 0 is expected.
+    flags = np.array([1 if row[3] == "1" else 0 if row[3] == "0" else -1 for row in rows]) \
+        if has_flag else None
     first_score = 3 + has_flag
     scores = None
     if scores_ports:

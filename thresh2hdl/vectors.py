@@ -159,7 +159,7 @@ def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=
     return vectors
 
 
-def reload_sets(model, weight_range, bias_range, *, random_count=2000, seed=0):
+def reload_sets(model, weight_range, bias_range, *, random_count=2000, seed=0, guard=None):
     """Weight sets to load through the write port, each with the vectors to run after it.
 
     The first two put every weight and bias at the corners of the declared ranges that reach
@@ -190,5 +190,8 @@ def reload_sets(model, weight_range, bias_range, *, random_count=2000, seed=0):
         if corner:
             vectors.add("loaded corner", [corner])
         vectors.add("loaded random", random_vectors(rng, ranges, random_count))
+        if guard is not None and guard.test_outside:
+            corners, scattered = outside_vectors(guard, rng, min(100, random_count))
+            vectors.add("loaded, codes outside the declared ranges", corners + scattered.tolist())
         sets.append((loaded, vectors))
     return sets
