@@ -390,7 +390,7 @@ def test_a_netlist_proof_is_recorded_and_its_counterexample_named_after_it(tmp_p
     edited.write_text(change_a_weight(text, np.random.default_rng(3)))
     result = run("prove", out, "--netlist", edited, "--simulator", "icarus")
     assert_one_line_error(result, 1, "counterexample written to "
-                                     "counterexample-netlist-edited.v.csv")
+                                     "counterexample-netlist-edited.v.csv", after_progress=True)
     report = assert_folder_agrees_with_report(out)
     assert report["proof"]["status"] == "proved"           # the folder's own file
     other = report["netlist_proofs"]["edited.v"]
