@@ -10,8 +10,7 @@ from amaranth.hdl import ClockDomain, Module
 from amaranth.sim import Simulator
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import require_tool
-from test_verilog import assert_lint_clean_and_agrees
+from helpers import require_tool, assert_lint_clean_and_agrees, bank_model
 from thresh2hdl.circuit import FULL_PIPELINE, ThresholdBank, UnitConfig, make_component
 from thresh2hdl.errors import InputError
 from thresh2hdl.flow import BuildOptions, run_simulator
@@ -22,12 +21,6 @@ from thresh2hdl.report import argmax_report, node_table
 from thresh2hdl.stimulus import make_stimulus
 from thresh2hdl.vectors import make_vectors
 from thresh2hdl.verilog import emit_verilog, port_table
-
-
-def bank_model(weights, biases, *, bits=4, is_signed=False, ports=PortNames()):
-    features = [FeatureFormat(f"f{i}", bits, is_signed) for i in range(len(weights[0]))]
-    units = [Unit(f"c{k}", tuple(w), b) for k, (w, b) in enumerate(zip(weights, biases))]
-    return Model(module="bank", features=features, units=units, ports=ports)
 
 
 def gold(weights, biases, x):
@@ -162,9 +155,13 @@ def test_report_names_every_node_where_the_verilog_holds_it():
                 continue
             wires = re.findall(r"(?<![\w\[:])[A-Za-z_]\w*", place)
             assert wires and set(wires) <= declared, (options, node)
-            if node["kind"] != "product" and not options.get("split_bits") and \
-                    node["name"] not in {n for n in names} and dut.latency:
+            # (The serial sample is read clamped when the input guard clamps it.)
+            if node["kind"] not in ("product", "sample") and not options.get("split_bits") \
+                    and node["name"] not in {n for n in names} and dut.latency:
                 assert place == node["name"], (options, node)
+            if node["kind"] == "sample":
+                clamped = dut.config.clamp and dut.config.guard.needed
+                assert place == ("sample_clamped" if clamped else "sample"), (options, node)
         for comparison in argmax_report(dut, model)[:-1]:
             assert set(comparison["verilog"].split(", ")) <= declared
 

@@ -5,8 +5,7 @@ import subprocess
 
 import pytest
 
-from conftest import require_tool
-from test_cli import run
+from helpers import require_tool, run
 
 pytestmark = pytest.mark.browser
 

@@ -6,7 +6,7 @@ from amaranth.hdl import ClockDomain, Module
 from amaranth.sim import Simulator
 from hypothesis import given, settings, strategies as st
 
-from conftest import make_model
+from helpers import make_model, check_design
 from thresh2hdl.circuit import ThresholdUnit, UnitConfig
 from thresh2hdl.errors import InputError
 from thresh2hdl.model import PortNames
@@ -77,15 +77,6 @@ def test_ports_follow_the_computed_widths():
     assert len(dut.score) == 20 and dut.score.shape().signed
     assert [len(p) for p in dut.feature_ports] == [8, 8]
     assert "signed [19:0] score" in emit_verilog(dut, model)     # and the file says so
-
-
-def check_design(model, pipeline, *, vectors=300, seed=0, arch="tree"):
-    dut = ThresholdUnit(UnitConfig(model, pipeline=pipeline, arch=arch))
-    reference = ReferenceModel.from_model(model)
-    rows = make_vectors(dut.analysis, random_count=vectors, seed=seed).array
-    stimulus = make_stimulus(reference, rows, latency=dut.latency, seed=seed,
-                             valid_probability=0.7, ready_probability=0.6)
-    return simulate_amaranth(dut, stimulus).check(stimulus), stimulus
 
 
 random_models = st.integers(1, 7).flatmap(lambda n: st.tuples(

@@ -2,36 +2,16 @@
 
 import json
 import subprocess
-import sys
 from pathlib import Path
 
 import pytest
 
+from helpers import require_tool, run, assert_one_line_error
 from thresh2hdl.flow import demo_model
 from thresh2hdl.model import model_to_toml
 from thresh2hdl.ranges import signed_bits
 
 EXAMPLE = Path(__file__).parents[1] / "examples" / "pump_vibration" / "pump_fault.toml"
-
-
-def run(*args, cwd=None):
-    return subprocess.run([sys.executable, "-P", "-m", "thresh2hdl", *map(str, args)], cwd=cwd,
-                          capture_output=True, text=True, timeout=600)
-
-
-def assert_one_line_error(result, code=2, contains=None, after_progress=False):
-    """One error line on stderr and nothing else; ``after_progress``: for errors found after
-    work began, progress lines (indented) may come first, the error line still last."""
-    assert result.returncode == code, result.stderr + result.stdout
-    lines = result.stderr.rstrip().splitlines()
-    if after_progress:
-        assert all(line.startswith("  ") for line in lines[:-1]), result.stderr
-        lines = lines[-1:]
-    assert len(lines) == 1, result.stderr
-    assert "Traceback" not in result.stderr
-    assert lines[0].startswith("thresh2hdl: error: ")
-    if contains:
-        assert contains in lines[0]
 
 
 def test_demo_end_to_end(tmp_path):
@@ -290,7 +270,6 @@ def test_mismatch_writes_files_and_exits_1(tmp_path, monkeypatch, capsys):
 
 def test_console_script_is_installed(tmp_path):
     import shutil
-    from conftest import require_tool
     require_tool("thresh2hdl")          # the console script of the installed package
     script = shutil.which("thresh2hdl")
     result = subprocess.run([script, "--version"], capture_output=True, text=True)

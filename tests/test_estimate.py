@@ -11,9 +11,7 @@ from types import SimpleNamespace
 import pytest
 
 import thresh2hdl.estimate as estimate
-from conftest import IN_CI, require_tool
-from test_cli import assert_one_line_error, run
-from test_report import Structure
+from helpers import IN_CI, require_tool, run, assert_one_line_error, Structure
 from thresh2hdl.estimate import wrapper_text
 from thresh2hdl.report_html import report_html, report_markdown
 

@@ -5,26 +5,7 @@ import json
 import numpy as np
 import pytest
 
-from test_cli import assert_one_line_error, run
-
-
-def write_csv(path, header, rows):
-    path.write_text(",".join(header) + "\n" + "".join(",".join(map(str, r)) + "\n" for r in rows))
-    return path
-
-
-def separable_rows(count=300, seed=0):
-    rng = np.random.default_rng(seed)
-    rows = []
-    while len(rows) < count:
-        x = rng.integers(0, 4096, 4)
-        z = 3 * x[0] - 2 * x[1] + x[2] - 4000
-        if abs(z) > 200:
-            rows.append(list(x) + [int(z > 0)])
-    return rows
-
-
-HEADER = ["ch0", "ch1", "ch2", "ch3", "label"]
+from helpers import run, assert_one_line_error, HEADER, write_csv, separable_rows
 
 
 def test_fit_then_build_is_exact_on_separable_data(tmp_path):

@@ -13,9 +13,7 @@ from amaranth.hdl import ClockDomain, Module
 from amaranth.sim import Simulator
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import make_model, require_tool
-from test_cli import run
-from test_verilog import assert_lint_clean_and_agrees
+from helpers import IN_CI, require_tool, make_model, run, assert_lint_clean_and_agrees
 from thresh2hdl.circuit import UnitConfig, make_component
 from thresh2hdl.flow import BuildOptions, build, check, demo_model, verify
 from thresh2hdl.guard import resolve_guard
@@ -23,7 +21,7 @@ from thresh2hdl.model import FeatureFormat, Model, Unit
 from thresh2hdl.reference import ReferenceModel
 from thresh2hdl.stimulus import Mismatch, compare, make_stimulus
 from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog, instance_template, port_table
+from thresh2hdl.verilog import emit_verilog, port_table
 
 
 def gold(model, row, *, clamp=True):
@@ -339,7 +337,6 @@ def test_an_older_folder_without_a_guard_reloads_as_built(demo_folder, tmp_path)
 def _prove(model, text=None, **config):
     from thresh2hdl.errors import ToolError
     from thresh2hdl.proof import proof_tools, prove_netlist
-    from conftest import IN_CI
     try:
         proof_tools()
     except ToolError as error:

@@ -6,8 +6,7 @@ import subprocess
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import make_model, require_tool
-from test_verilog import assert_lint_clean_and_agrees
+from helpers import require_tool, make_model, assert_lint_clean_and_agrees
 from thresh2hdl.circuit import ThresholdUnit, UnitConfig
 from thresh2hdl.flow import demo_model
 from thresh2hdl.model import PortNames

@@ -10,9 +10,8 @@ from amaranth.hdl import ClockDomain, Module
 from amaranth.sim import Simulator
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import assert_agrees_in_amaranth, make_model, require_tool
-from test_cli import assert_one_line_error, run
-from test_verilog import assert_lint_clean_and_agrees
+from helpers import (IN_CI, require_tool, make_model, assert_agrees_in_amaranth, run,
+                     assert_one_line_error, assert_lint_clean_and_agrees)
 from thresh2hdl.circuit import UnitConfig, make_component, weight_addresses
 from thresh2hdl.errors import InputError
 from thresh2hdl.flow import first_stimulus, run_simulator
@@ -209,7 +208,6 @@ def test_narrow_weight_port_is_refused_by_the_library():
 
 
 def test_loadable_demo_reports_its_port_and_is_not_proved(tmp_path):
-    from conftest import IN_CI
     from thresh2hdl.proof import proof_tools
     out = tmp_path / "d"
     result = run("demo", "--out", out, "--simulator", "amaranth", "--loadable-weights",
@@ -245,6 +243,7 @@ def test_a_design_that_ignores_writes_is_caught_and_named(monkeypatch):
     assert "loaded set 1" in verified.first_mismatches[0]
 
 
+@pytest.mark.slow
 def test_later_chunks_count_as_random_vectors():
     from thresh2hdl.flow import chunk_vectors, verify
     model = make_model([3, -2], 5, bits=4)

@@ -12,9 +12,7 @@ import re
 import numpy as np
 import pytest
 
-from conftest import IN_CI, make_model, require_tool
-from test_bank import bank_model
-from test_cli import assert_one_line_error, run
+from helpers import IN_CI, require_tool, make_model, run, assert_one_line_error, bank_model
 from thresh2hdl.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError, MismatchError, ToolError, UndecidedError
 from thresh2hdl.flow import (BuildOptions, build, demo_model, prove, run_simulator,

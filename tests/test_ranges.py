@@ -4,7 +4,7 @@ import math
 import pytest
 from hypothesis import given, settings, strategies as st
 
-from conftest import make_model
+from helpers import make_model
 from thresh2hdl.errors import InputError
 from thresh2hdl.ranges import analyse, bit_growth_bound, signed_bits, unsigned_bits, value_bits
 

@@ -3,42 +3,12 @@
 import json
 import re
 import xml.etree.ElementTree as ElementTree
-from html.parser import HTMLParser
 
 import numpy as np
 import pytest
 
-from test_bank import bank_model
-from test_cli import run
-from test_fit_cli import HEADER, separable_rows, write_csv
+from helpers import run, bank_model, HEADER, write_csv, separable_rows, Structure
 from thresh2hdl.flow import BuildOptions, build
-
-VOID = {"meta", "br", "img", "hr", "link", "input"}
-
-
-class Structure(HTMLParser):
-    """Checks that tags nest (HTML5 void elements aside) and collects what a page loads."""
-
-    def __init__(self):
-        super().__init__()
-        self.stack, self.errors, self.loads, self.tags = [], [], [], set()
-
-    def handle_starttag(self, tag, attrs):
-        self.tags.add(tag)
-        for key, value in attrs:
-            if key in ("src", "href") and value:
-                self.loads.append(value)
-        if tag not in VOID:
-            self.stack.append(tag)
-
-    def handle_startendtag(self, tag, attrs):
-        self.tags.add(tag)
-
-    def handle_endtag(self, tag):
-        if not self.stack or self.stack[-1] != tag:
-            self.errors.append(f"</{tag}> closes {self.stack[-1] if self.stack else 'nothing'}")
-        else:
-            self.stack.pop()
 
 
 @pytest.fixture(scope="module")

@@ -5,18 +5,19 @@ import signal
 import subprocess
 import sys
 import time
+import tomllib
 
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import require_tool
-from test_cli import assert_one_line_error, run
+from helpers import require_tool, run, assert_one_line_error
 from thresh2hdl.cli import main
 from thresh2hdl.data import read_csv
 from thresh2hdl.errors import InputError
 from thresh2hdl.flow import BuildOptions, build, demo_model
-from thresh2hdl.model import FeatureFormat, Model, Unit, load_model, model_to_toml
+from thresh2hdl.model import (FeatureFormat, Model, Unit, load_model, model_to_toml,
+                              parse_model)
 from thresh2hdl.quantize import load_float_model
 
 GOOD_MODEL = model_to_toml(demo_model())
@@ -58,18 +59,29 @@ def only_input_errors(function, path):
         return None
 
 
+@pytest.mark.slow
 @settings(max_examples=4500, deadline=None, suppress_health_check=list(HealthCheck))
 @given(data=st.data())
 def test_corrupted_model_files(tmp_path_factory, data):
     path = tmp_path_factory.getbasetemp() / "corrupt.toml"
     path.write_bytes(corrupt(GOOD_MODEL, data).encode("utf-8", "surrogatepass"))
-    only_input_errors(load_model, path)
+    model = only_input_errors(load_model, path)
+    # A file that loads must really be a model: TOML to Python's own parser (tomllib, the
+    # standard library's), and the model read back from its canonical text is the same.
+    try:
+        document = tomllib.loads(path.read_bytes().decode("utf-8"))
+    except (UnicodeDecodeError, tomllib.TOMLDecodeError):
+        document = None
+    if model is not None:
+        assert document is not None
+        assert parse_model(tomllib.loads(model_to_toml(model))) == model
 
 
 GOOD_CSV = "a,b,c,label\n" + "".join(f"{i % 16},{(3 * i) % 16},{(5 * i) % 16},{i % 2}\n"
                                     for i in range(20))
 
 
+@pytest.mark.slow
 @settings(max_examples=3000, deadline=None, suppress_health_check=list(HealthCheck))
 @given(data=st.data())
 def test_corrupted_csv_files(tmp_path_factory, data):
@@ -108,6 +120,7 @@ arrays = st.sampled_from(["coef", "intercept", "offset", "scale", "input_lo", "i
                           "classes", "extra"])
 
 
+@pytest.mark.slow
 @settings(max_examples=3000, deadline=None, suppress_health_check=list(HealthCheck))
 @given(data=st.data())
 def test_corrupted_float_models(tmp_path_factory, data):
@@ -161,6 +174,7 @@ def test_limits_are_refused_by_name():
         FeatureFormat("x", 33)
 
 
+@pytest.mark.slow
 def test_wide_scores_use_exact_integers_end_to_end(tmp_path):
     # 64 products of 32-bit codes and 32-bit weights: a score wider than int64.
     weights = [-(1 << 31) + 7 * i for i in range(64)]
@@ -180,6 +194,7 @@ def test_wide_scores_use_exact_integers_end_to_end(tmp_path):
     assert_one_line_error(result, 2, "use --simulator icarus", after_progress=True)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("how", [signal.SIGINT, signal.SIGKILL])
 def test_an_interrupted_run_leaves_the_previous_output(tmp_path, how):
     out = tmp_path / "out"

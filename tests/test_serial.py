@@ -9,9 +9,8 @@ from amaranth.hdl import ClockDomain, Module
 from amaranth.sim import Simulator
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import IN_CI, assert_agrees_in_amaranth, make_model, require_tool
-from test_cli import assert_one_line_error, run
-from test_verilog import assert_lint_clean_and_agrees
+from helpers import (IN_CI, require_tool, make_model, assert_agrees_in_amaranth, run,
+                     assert_one_line_error, assert_lint_clean_and_agrees)
 from thresh2hdl.circuit import SerialThreshold, UnitConfig, make_component, sample_shape
 from thresh2hdl.errors import InputError
 from thresh2hdl.flow import run_simulator

@@ -5,8 +5,7 @@ import re
 
 from hypothesis import given, settings, strategies as st
 
-from conftest import make_model
-from test_circuit import check_design
+from helpers import make_model, check_design
 from thresh2hdl.circuit import ThresholdUnit, UnitConfig
 from thresh2hdl.ranges import analyse, csd_digits
 from thresh2hdl.verilog import emit_verilog

@@ -8,8 +8,7 @@ import subprocess
 import numpy as np
 import pytest
 
-from conftest import make_model, require_tool
-from test_cli import assert_one_line_error, run
+from helpers import require_tool, make_model, run, assert_one_line_error
 from thresh2hdl.circuit import ThresholdUnit, UnitConfig
 from thresh2hdl.flow import run_simulator
 from thresh2hdl.reference import ReferenceModel

