@@ -18,6 +18,7 @@ from amaranth.lib.wiring import In, Out
 from .errors import InputError
 from .model import Model
 from .guard import resolve_guard
+from .names import GUARD_FLAG, register_name, valid_name
 from .ranges import ARCHITECTURES, analyse, analyse_bank, signed_bits, value_bits
 
 __all__ = ["UnitConfig", "ThresholdUnit", "ThresholdBank", "SerialThreshold",
@@ -236,8 +237,9 @@ class _Stages:
 
     def put(self, name, value, stage, shift=0):
         """``shift``: the value's low bits are known zeros (a shifted input), which its
-        registers leave out: they carry ``value >> shift`` under the name ``{name}_r{k}``
-        (otherwise Yosys drops the constant flops and, with them, the register's name)."""
+        registers leave out: they carry ``value >> shift``, named by
+        :func:`~thresh2hdl.names.register_name` (otherwise Yosys drops the constant flops and,
+        with them, the register's name)."""
         self.values[(name, stage)] = value
         self.produced[name] = (stage, value.shape(), shift)
 
@@ -246,7 +248,8 @@ class _Stages:
         carried = self.values[(name, first)][shift:] if shift else None
         for k in range(first + 1, stage + 1):
             if (name, k) not in self.values:
-                register = Signal(Shape(shape.width - shift, shape.signed), name=f"{name}_r{k}",
+                register = Signal(Shape(shape.width - shift, shape.signed),
+                                  name=register_name(name, k),
                                   reset_less=True)
                 source = carried if shift else self.values[(name, k - 1)]
                 with self.m.If(self.advance):
@@ -263,7 +266,7 @@ def _handshake(m, component, latency):
         m.d.comb += [component.in_ready.eq(component.out_ready),
                      component.out_valid.eq(component.in_valid)]
         return advance
-    valid = [Signal(name=f"valid_s{k + 1}") for k in range(latency)]
+    valid = [Signal(name=valid_name(k + 1)) for k in range(latency)]
     m.d.comb += [advance.eq(component.out_ready | ~valid[-1]), component.in_ready.eq(advance),
                  component.out_valid.eq(valid[-1])]
     with m.If(advance):
@@ -536,7 +539,7 @@ def _guard_inputs(m, stages, features, config):
         m.d.comb += value.eq(clamped)
         guarded.append(value)
     if config.range_flag:
-        flag = Signal(name="guard_flag")
+        flag = Signal(name=GUARD_FLAG)
         m.d.comb += flag.eq(Cat(*outside).any() if outside else 0)
         stages.put(flag.name, flag, 0)
     return guarded
@@ -656,7 +659,7 @@ class ThresholdUnit(_Common, wiring.Component):
         stages = _Stages(m, advance, self._boundaries)
         features = _guard_inputs(m, stages, self.feature_ports, config)
         if config.range_flag:
-            m.d.comb += self.out_of_range.eq(stages.at("guard_flag", self.latency))
+            m.d.comb += self.out_of_range.eq(stages.at(GUARD_FLAG, self.latency))
         node = self._result
         if node is None:
             # Every weight is zero: the outputs are constants, valid whenever a result is.
@@ -752,7 +755,7 @@ class ThresholdBank(_Common, wiring.Component):
         stages = _Stages(m, advance, self._boundaries)
         features = _guard_inputs(m, stages, self.feature_ports, self._config)
         if self._config.range_flag:
-            m.d.comb += self.out_of_range.eq(stages.at("guard_flag", self.latency))
+            m.d.comb += self.out_of_range.eq(stages.at(GUARD_FLAG, self.latency))
         scores = []
         store = _WeightStore(m, self, self._config) if self._config.loadable_weights else None
         for index, analysis in enumerate(plan.units):
@@ -913,7 +916,7 @@ class SerialThreshold(_Common, wiring.Component):
                     m.d.sync += seen.eq(now)
             else:
                 m.d.comb += now.eq(below | above)
-            flag = Signal(name="guard_flag_r1", reset_less=True)
+            flag = Signal(name=register_name(GUARD_FLAG, 1), reset_less=True)
             with m.If(finish):
                 m.d.sync += flag.eq(now)
             m.d.comb += self.out_of_range.eq(flag)
@@ -948,7 +951,7 @@ class SerialThreshold(_Common, wiring.Component):
     def elaborate(self, platform):
         m = Module()
         count = self.beats
-        out_valid = Signal(name="valid_s1")
+        out_valid = Signal(name=valid_name(1))
         advance = Signal()
         transfer = Signal()
         if count > 1:

@@ -1,8 +1,21 @@
-"""Verilog identifier rules for module and port names taken from a model file."""
+"""Verilog identifier rules for module and port names taken from a model file, and the names
+of the signals that the circuit makes and the proof reads (one definition for both sides)."""
 
 import re
 
-__all__ = ["VERILOG_KEYWORDS", "check_identifier"]
+__all__ = ["VERILOG_KEYWORDS", "check_identifier", "GUARD_FLAG", "register_name", "valid_name"]
+
+GUARD_FLAG = "guard_flag"     # the input guard's out-of-range flag, made at the inputs
+
+
+def register_name(value, stage):
+    """The pipeline register that carries ``value`` into register stage ``stage``."""
+    return f"{value}_r{stage}"
+
+
+def valid_name(stage):
+    """The valid bit of register stage ``stage`` (1 is the first)."""
+    return f"valid_s{stage}"
 
 # Reserved words of IEEE 1364-2005 (Verilog) plus IEEE 1800-2017 (SystemVerilog), so that a name
 # accepted here is also usable when the file is read by a SystemVerilog front end. From the

@@ -41,6 +41,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from .errors import InputError, ToolError
+from .names import GUARD_FLAG, register_name, valid_name
 from .ranges import signed_bits
 from .tools import find_tool, warm_up
 
@@ -132,7 +133,7 @@ class _Plan:
         self.guard = component.config.guard
         if self.guard.flag:
             # The out-of-range flag: made at the inputs (stage 0), carried with the result.
-            self.add(_Value("guard_flag", "flag", (), 0, 0, 1, False))
+            self.add(_Value(GUARD_FLAG, "flag", (), 0, 0, 1, False))
         self.final_stage = self.stage_of(getattr(component, "plan", component.analysis)
                                          .final_level)
         if model.is_bank:
@@ -416,7 +417,7 @@ class _Query:
                 return self.define(f"{name} {state}", self._sort(),
                                    self.wide(name, state, value.signed))
             return self.formula(name, modulus_bits, state, needed)
-        register = f"{name}_r{stage}"
+        register = register_name(name, stage)
         if register not in self.net.registers:
             raise _Undecided(f"the netlist has no register {register!r}; the per-stage method "
                              f"needs the pipeline registers under the names thresh2hdl gives")
@@ -530,7 +531,7 @@ def _lemmas(plan, query, model):
         scores = [score]
     outputs = [("y", decided)]
     if plan.guard.flag:
-        outputs.append(("out_of_range", query.known("guard_flag", final, w, needed=needed)))
+        outputs.append(("out_of_range", query.known(GUARD_FLAG, final, w, needed=needed)))
     if model.ports.has_score:
         outputs += [("score" if not model.is_bank else f"score{u}", s)
                     for u, s in enumerate(scores)]
@@ -549,7 +550,7 @@ def _lemmas(plan, query, model):
     lemmas.append(("in_ready", f"(= {in_ready} (or {out_ready} (not {out_valid})))"))
     valid = [in_valid]
     for k in range(1, latency + 1):
-        name = f"valid_s{k}" if k < latency else query.ports["out_valid"][0]
+        name = valid_name(k) if k < latency else query.ports["out_valid"][0]
         valid.append((name, _bool(net, name, "s0"), _bool(net, name, "s1")))
     for k in range(1, latency + 1):
         name, now, after = valid[k]
@@ -574,7 +575,7 @@ def _lemmas(plan, query, model):
         name, stage = sorted(needed - done)[0]
         done.add((name, stage))
         value = plan.values[name]
-        reg, shift = f"{name}_r{stage}", value.register_shift
+        reg, shift = register_name(name, stage), value.register_shift
         bits = net.widths[reg]
         source = query.known(name, stage - 1, bits + shift, needed=needed)
         if shift:
@@ -811,9 +812,10 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
             common += [f"(assert {a})" for a in assumptions]
             # With the flag alone (no clamp), results are stated for inputs in range only,
             # but the flag for every code: its lemmas are checked without the input ranges.
-            flag_labels = {"guard_flag", ports["out_of_range"][0]} if "out_of_range" in ports \
+            flag_labels = {GUARD_FLAG, ports["out_of_range"][0]} if "out_of_range" in ports \
                 else set()
-            free = [l for l in lemmas if l[0] in flag_labels or l[0].startswith("guard_flag_r")]
+            flag_labels |= {register_name(GUARD_FLAG, k) for k in range(1, plan.latency + 1)}
+            free = [l for l in lemmas if l[0] in flag_labels]
             groups = [("\n".join(common + [f"(assert {a})" for a in inputs]),
                        [l for l in lemmas if l not in free]), ("\n".join(common), free)]
             common += [f"(assert {a})" for a in inputs]
