@@ -36,6 +36,18 @@ def require_tool(*names):
         pytest.skip(message)
 
 
+def require_proof_tools():
+    """Skip locally without Yosys and Boolector (the prove extra); fail in CI."""
+    from thresh2hdl.errors import ToolError
+    from thresh2hdl.proof import proof_tools
+    try:
+        proof_tools()
+    except ToolError as error:
+        if IN_CI:
+            pytest.fail(f"{error}; CI must have them (see .ci/run)")
+        pytest.skip(str(error))
+
+
 def make_model(weights, bias=0, *, bits=8, signed=False, ranges=None, module="dut",
                ports=None, score_bits=None):
     """A small model for tests: every feature of one format unless ``ranges`` tightens it."""

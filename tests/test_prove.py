@@ -12,7 +12,8 @@ import re
 import numpy as np
 import pytest
 
-from helpers import IN_CI, require_tool, make_model, run, assert_one_line_error, bank_model
+from helpers import (require_proof_tools, require_tool, make_model, run, assert_one_line_error,
+                     bank_model)
 from thresh2hdl.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError, MismatchError, ToolError, UndecidedError
 from thresh2hdl.flow import (BuildOptions, build, demo_model, prove, run_simulator,
@@ -28,12 +29,7 @@ pytestmark = pytest.mark.prove
 
 @pytest.fixture(autouse=True)
 def tools():
-    try:
-        proof_tools()
-    except ToolError as error:
-        if IN_CI:
-            pytest.fail(f"{error}; CI must have them (see .ci/run)")
-        pytest.skip(str(error))
+    require_proof_tools()
 
 
 def proved(model, *, pipeline=0, arch="tree", text=None, timeout_s=120, **config):
