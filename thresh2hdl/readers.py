@@ -62,17 +62,7 @@ def _parser_limit(error, source, what):
 
 def load_toml(path, what="model file"):
     """Read a TOML file and check it with :func:`check_document`."""
-    path = Path(path)
-    text = read_text(path, what)
-    try:
-        data = tomllib.loads(text)
-    except (ValueError, RecursionError, MemoryError) as error:
-        limit = _parser_limit(error, path, what)
-        if limit is not None:
-            raise limit from None
-        raise InputError(f"not valid TOML: {error}", source=path) from None
-    check_document(data, path)
-    return data
+    return _parsed(path, what, tomllib.loads, "TOML")
 
 
 def _finite(text):
@@ -88,15 +78,21 @@ def _no_constant(name):
 
 def load_json(path, what="report"):
     """Read a JSON file (no NaN or infinity) and check it with :func:`check_document`."""
+    return _parsed(path, what, lambda text: json.loads(text, parse_float=_finite,
+                                                       parse_constant=_no_constant), "JSON")
+
+
+def _parsed(path, what, parse, language):
+    """``parse`` of the file's text, checked; every failure one InputError naming the file."""
     path = Path(path)
     text = read_text(path, what)
     try:
-        data = json.loads(text, parse_float=_finite, parse_constant=_no_constant)
+        data = parse(text)
     except (ValueError, RecursionError, MemoryError) as error:
         limit = _parser_limit(error, path, what)
         if limit is not None:
             raise limit from None
-        raise InputError(f"not valid JSON: {error}", source=path) from None
+        raise InputError(f"not valid {language}: {error}", source=path) from None
     check_document(data, path)
     return data
 
