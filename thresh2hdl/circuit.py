@@ -514,6 +514,8 @@ def _guard_inputs(m, stages, features, config):
     guard clamps) and the out-of-range flag put into ``stages`` as ``guard_flag`` (stage 0),
     when the design has one."""
     guard = config.guard
+    if not (guard.clamp or guard.flag):
+        return list(features)
     guarded, outside = [], []
     for index, (port, feature) in enumerate(zip(features, config.model.features)):
         (lo, hi), (code_lo, code_hi) = guard.feature_ranges[index], guard.code_ranges[index]
