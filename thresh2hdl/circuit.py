@@ -567,6 +567,12 @@ class _Common:
         return self._config
 
     @property
+    def unit_analyses(self):
+        """The analysis of every unit, in unit order (one for a single unit)."""
+        plan = getattr(self, "plan", None)
+        return plan.units if plan is not None else (self.analysis,)
+
+    @property
     def latency(self):
         """Cycles from an accepted input to its result on the outputs (0: combinational)."""
         return self._config.pipeline

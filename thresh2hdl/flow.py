@@ -364,8 +364,7 @@ def data_summary(model, reference, dataset):
 
 def unit_analyses(component):
     """The analysis of every unit of a component, in unit order."""
-    plan = getattr(component, "plan", None)
-    return plan.units if plan is not None else (component.analysis,)
+    return component.unit_analyses
 
 
 def _tree_report(component, model, verilog_text):

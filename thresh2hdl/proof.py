@@ -109,11 +109,6 @@ def _form_range(coeffs, constant, ranges):
     return lo, hi
 
 
-def _units_of(component):
-    plan = getattr(component, "plan", None)
-    return plan.units if plan is not None else (component.analysis,)
-
-
 class _Plan:
     """The values of the design, their stages and linear forms, built from the model."""
 
@@ -126,7 +121,7 @@ class _Plan:
         self.values = {}
         self.unit_scores = []     # per unit: (value name or None, sign, bias) of its score
         self.closed = set()       # values that may be cut points
-        units = _units_of(component)
+        units = component.unit_analyses
         for index, analysis in enumerate(units):
             prefix = f"u{index}_" if model.is_bank else ""
             self._unit(analysis, prefix, model.units[index] if model.is_bank else model.unit)
