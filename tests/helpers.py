@@ -48,6 +48,17 @@ def require_proof_tools():
         pytest.skip(str(error))
 
 
+def exported_testbench(built, tmp_path):
+    """A copy of build folder ``built`` and a call that runs its exported testbench with the
+    command the report gives (Icarus Verilog), returning the finished process."""
+    import json
+    folder = tmp_path / "copy"
+    shutil.copytree(built, folder)
+    command = json.loads((folder / "report.json").read_text())["testbench"]["command"]
+    return folder, lambda: subprocess.run(command, shell=True, cwd=folder, capture_output=True,
+                                          text=True)
+
+
 def make_model(weights, bias=0, *, bits=8, signed=False, ranges=None, module="dut",
                ports=None, score_bits=None):
     """A small model for tests: every feature of one format unless ``ranges`` tightens it."""
