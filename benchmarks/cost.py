@@ -12,11 +12,11 @@ import statistics
 
 import numpy as np
 
-from thresh2hdl.circuit import UnitConfig, make_component
-from thresh2hdl.estimate import estimate_cost
-from thresh2hdl.model import FeatureFormat, Model, Unit
-from thresh2hdl.ranges import analyse
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.hardware.circuit import UnitConfig, make_component
+from thresh2hdl.cost.estimate import estimate_cost
+from thresh2hdl.model.records import FeatureFormat, Model, Unit
+from thresh2hdl.analysis.ranges import analyse
+from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 
 SEEDS = (1, 2, 3, 4, 5)

@@ -10,10 +10,10 @@ seeds), and each one's LUT4 against the unguarded design.
 
 import statistics
 
-from thresh2hdl.circuit import UnitConfig, make_component
-from thresh2hdl.estimate import estimate_cost
-from thresh2hdl.flow import demo_model
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.hardware.circuit import UnitConfig, make_component
+from thresh2hdl.cost.estimate import estimate_cost
+from thresh2hdl.app.flow import demo_model
+from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 SEEDS = (1, 2, 3)
 CHOICES = (("clamp and flag", True, True), ("clamp only", True, False),

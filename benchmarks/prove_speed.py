@@ -13,10 +13,10 @@ import argparse
 
 import numpy as np
 
-import thresh2hdl.proof as prove_module
-from thresh2hdl.circuit import UnitConfig, make_component
-from thresh2hdl.model import FeatureFormat, Model, Unit
-from thresh2hdl.verilog import emit_verilog, port_table
+import thresh2hdl.proof.prover as prove_module
+from thresh2hdl.hardware.circuit import UnitConfig, make_component
+from thresh2hdl.model.records import FeatureFormat, Model, Unit
+from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 TARGETS_S = {(16, 1): 5, (64, 1): 10, (256, 1): 60, (64, 10): 60}
 

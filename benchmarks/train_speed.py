@@ -15,7 +15,7 @@ import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.linear_model import Perceptron
 
-from thresh2hdl.train import FitOptions, train_unit
+from thresh2hdl.train.perceptron import FitOptions, train_unit
 
 ROWS, FEATURES, EPOCHS = 100_000, 16, 5
 

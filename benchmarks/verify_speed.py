@@ -13,15 +13,15 @@ import time
 
 import numpy as np
 
-from thresh2hdl.circuit import ThresholdUnit, UnitConfig, make_component
-from thresh2hdl.flow import CHUNK_VECTORS, chunk_vectors, verify
-from thresh2hdl.model import FeatureFormat, Model, Unit
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.simulate import simulate_amaranth
-from thresh2hdl.stimulus import make_stimulus
-from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilator import compiled_harness, simulate_verilator
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig, make_component
+from thresh2hdl.app.flow import CHUNK_VECTORS, chunk_vectors, verify
+from thresh2hdl.model.records import FeatureFormat, Model, Unit
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.verify.sim_amaranth import simulate_amaranth
+from thresh2hdl.verify.stimulus import make_stimulus
+from thresh2hdl.verify.vectors import make_vectors
+from thresh2hdl.verify.sim_verilator import compiled_harness, simulate_verilator
+from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 
 def main():

@@ -14,13 +14,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from thresh2hdl.circuit import ThresholdUnit, UnitConfig
-from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.simulate import simulate_amaranth
-from thresh2hdl.stimulus import make_stimulus
-from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog
+from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.verify.sim_amaranth import simulate_amaranth
+from thresh2hdl.verify.stimulus import make_stimulus
+from thresh2hdl.verify.vectors import make_vectors
+from thresh2hdl.emit.verilog import emit_verilog
 
 
 IN_CI = os.environ.get("CI", "").lower() in ("1", "true", "yes")
@@ -39,7 +39,7 @@ def require_tool(*names):
 def require_proof_tools():
     """Skip locally without Yosys and Boolector (the prove extra); fail in CI."""
     from thresh2hdl.errors import ToolError
-    from thresh2hdl.proof import proof_tools
+    from thresh2hdl.proof.prover import proof_tools
     try:
         proof_tools()
     except ToolError as error:
@@ -73,8 +73,8 @@ def make_model(weights, bias=0, *, bits=8, signed=False, ranges=None, module="du
 
 def assert_agrees_in_amaranth(model, dut, stimulus):
     """Every vector of ``stimulus`` through the Amaranth design: out, and no mismatch."""
-    from thresh2hdl.flow import run_simulator
-    from thresh2hdl.verilog import port_table
+    from thresh2hdl.app.flow import run_simulator
+    from thresh2hdl.emit.verilog import port_table
     result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), model.module,
                               stimulus)
     checked = result.check(stimulus)
@@ -121,8 +121,8 @@ def lint_icarus(folder, *files):
 def assert_lint_clean_and_agrees(folder, model, dut, stimulus):
     """The emitted file of ``dut``: no warning from Verilator or Icarus ``-Wall``, and zero
     mismatches in both (independent simulators of the same file)."""
-    from thresh2hdl.flow import run_simulator
-    from thresh2hdl.verilog import port_table
+    from thresh2hdl.app.flow import run_simulator
+    from thresh2hdl.emit.verilog import port_table
     require_tool("verilator", "g++", "iverilog", "vvp")
     text = emit_verilog(dut, model)
     (Path(folder) / f"{model.module}.v").write_text(text)

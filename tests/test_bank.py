@@ -11,16 +11,16 @@ from amaranth.sim import Simulator
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import require_tool, assert_lint_clean_and_agrees, bank_model
-from thresh2hdl.circuit import FULL_PIPELINE, ThresholdBank, UnitConfig, make_component
+from thresh2hdl.hardware.circuit import FULL_PIPELINE, ThresholdBank, UnitConfig, make_component
 from thresh2hdl.errors import InputError
-from thresh2hdl.flow import BuildOptions, run_simulator
-from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.ranges import analyse_bank
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.report import argmax_report, node_table
-from thresh2hdl.stimulus import make_stimulus
-from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.app.flow import BuildOptions, run_simulator
+from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
+from thresh2hdl.analysis.ranges import analyse_bank
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.reports.report import argmax_report, node_table
+from thresh2hdl.verify.stimulus import make_stimulus
+from thresh2hdl.verify.vectors import make_vectors
+from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 
 def gold(weights, biases, x):

@@ -7,15 +7,15 @@ from amaranth.sim import Simulator
 from hypothesis import given, settings, strategies as st
 
 from helpers import make_model, check_design
-from thresh2hdl.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
 from thresh2hdl.errors import InputError
-from thresh2hdl.model import PortNames
-from thresh2hdl.ranges import analyse
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.simulate import simulate_amaranth
-from thresh2hdl.stimulus import make_stimulus
-from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog
+from thresh2hdl.model.records import PortNames
+from thresh2hdl.analysis.ranges import analyse
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.verify.sim_amaranth import simulate_amaranth
+from thresh2hdl.verify.stimulus import make_stimulus
+from thresh2hdl.verify.vectors import make_vectors
+from thresh2hdl.emit.verilog import emit_verilog
 
 
 def gold(weights, bias, x):
@@ -135,8 +135,8 @@ def test_free_flowing_segment_matches_the_design(pipeline):
 
 
 def test_verification_in_chunks_covers_every_vector_and_catches_late_errors(monkeypatch):
-    import thresh2hdl.flow as flow
-    from thresh2hdl.verilog import port_table
+    import thresh2hdl.app.flow as flow
+    from thresh2hdl.emit.verilog import port_table
     monkeypatch.setattr(flow, "CHUNK_VECTORS", 300)
     model = make_model([5, -3, 2, 7], -11, bits=6)
     dut = ThresholdUnit(UnitConfig(model, pipeline=2))

@@ -7,9 +7,9 @@ from pathlib import Path
 import pytest
 
 from helpers import require_tool, run, assert_one_line_error
-from thresh2hdl.flow import demo_model
-from thresh2hdl.model import model_to_toml
-from thresh2hdl.ranges import signed_bits
+from thresh2hdl.app.flow import demo_model
+from thresh2hdl.model.records import model_to_toml
+from thresh2hdl.analysis.ranges import signed_bits
 
 EXAMPLE = Path(__file__).parents[1] / "examples" / "pump_vibration" / "pump_fault.toml"
 
@@ -84,7 +84,7 @@ def test_levels_are_one_count_and_full_registers_every_level(tmp_path):
 
 
 def test_example_file_is_the_embedded_scenario():
-    from thresh2hdl.model import load_model
+    from thresh2hdl.model.records import load_model
     assert load_model(EXAMPLE) == demo_model()
 
 
@@ -216,7 +216,7 @@ def test_a_replace_that_fails_keeps_the_previous_folder(tmp_path, monkeypatch, f
 
 
 def test_progress_on_a_terminal_and_in_a_log(capsys):
-    from thresh2hdl.cli import _Progress
+    from thresh2hdl.app.cli import _Progress
     log = _Progress(terminal=False)
     log.note("verifying")
     for done in range(0, 100_000, 4096):
@@ -244,9 +244,9 @@ def test_help_for_each_command():
 def test_mismatch_writes_files_and_exits_1(tmp_path, monkeypatch, capsys):
     # Feed the flow a reference whose bias is off by one: the check must fail, say so, keep the
     # files for inspection, and exit 1.
-    import thresh2hdl.flow as flow
-    from thresh2hdl.cli import main
-    from thresh2hdl.reference import ReferenceModel
+    import thresh2hdl.app.flow as flow
+    from thresh2hdl.app.cli import main
+    from thresh2hdl.verify.reference import ReferenceModel
 
     real = ReferenceModel.from_model
 

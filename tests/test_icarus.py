@@ -7,15 +7,15 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import require_tool, make_model, assert_lint_clean_and_agrees
-from thresh2hdl.circuit import ThresholdUnit, UnitConfig
-from thresh2hdl.flow import demo_model
-from thresh2hdl.model import PortNames
-from thresh2hdl.ranges import analyse
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.stimulus import make_stimulus
-from thresh2hdl.testbench import simulate_icarus
-from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.app.flow import demo_model
+from thresh2hdl.model.records import PortNames
+from thresh2hdl.analysis.ranges import analyse
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.verify.stimulus import make_stimulus
+from thresh2hdl.verify.sim_icarus import simulate_icarus
+from thresh2hdl.verify.vectors import make_vectors
+from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 pytestmark = pytest.mark.icarus
 

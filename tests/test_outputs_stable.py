@@ -20,9 +20,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from thresh2hdl.circuit import FULL_PIPELINE
-from thresh2hdl.flow import BuildOptions, build, demo_model
-from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
+from thresh2hdl.hardware.circuit import FULL_PIPELINE
+from thresh2hdl.app.flow import BuildOptions, build, demo_model
+from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 
 GOLDEN = Path(__file__).parent / "golden" / "outputs.json"
 VARIABLE_KEYS = ("timing", "tool_versions")

@@ -14,15 +14,14 @@ import pytest
 
 from helpers import (require_proof_tools, require_tool, make_model, run, assert_one_line_error,
                      bank_model)
-from thresh2hdl.circuit import UnitConfig, make_component
+from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError, MismatchError, ToolError, UndecidedError
-from thresh2hdl.flow import (BuildOptions, build, demo_model, prove, run_simulator,
-                             unit_analyses)
-from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.proof import proof_tools, prove_netlist
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.stimulus import make_stimulus
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.app.flow import BuildOptions, build, demo_model, prove, run_simulator, unit_analyses
+from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
+from thresh2hdl.proof.prover import proof_tools, prove_netlist
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.verify.stimulus import make_stimulus
+from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 pytestmark = pytest.mark.prove
 
@@ -334,7 +333,7 @@ def test_assumptions_nothing_satisfies_prove_nothing(monkeypatch):
     # With the input check switched off, an input tied outside its declared range makes the
     # assumptions contradictory; the check must then answer undecided, not proved. (Without
     # the input guard: with its clamp the statement covers every code, assuming none.)
-    import thresh2hdl.proof as proof
+    import thresh2hdl.proof.prover as proof
     monkeypatch.setattr(proof, "_check_structure", lambda *args: None)
     unguarded = {"clamp": False, "range_flag": False}
     model, text = small_pipeline_text(0, ranges=[(1, 15)] + [(0, 15)] * 3, **unguarded)
@@ -429,7 +428,7 @@ def test_build_prove_names_its_counterexample_in_the_report(tmp_path, monkeypatc
     # A writer that gets one weight wrong: the simulation finds the mismatch, and the proof's
     # counterexample is written under the name the report gives it.
     require_tool("iverilog", "vvp")
-    import thresh2hdl.flow as flow
+    import thresh2hdl.app.flow as flow
     real = flow.emit_verilog
     monkeypatch.setattr(flow, "emit_verilog", lambda *a, **k: change_a_weight(
         real(*a, **k), np.random.default_rng(3)))
@@ -448,7 +447,7 @@ def test_an_older_report_still_loads_renders_and_loses_its_stale_counterexample(
     # A folder from before netlist proofs were recorded: no netlist_proofs key, the proof
     # section without the netlist's sha256, no warm-up timing, and a counterexample.csv that
     # a failed --netlist proof left beside a report that says "proved".
-    from thresh2hdl.report_html import report_html, report_markdown
+    from thresh2hdl.reports.html import report_html, report_markdown
     out = tmp_path / "demo"
     build(demo_model(), out, BuildOptions(simulator="amaranth", vectors=50, prove=True))
     report = json.loads((out / "report.json").read_text())

@@ -6,7 +6,8 @@ from hypothesis import given, settings, strategies as st
 
 from helpers import make_model
 from thresh2hdl.errors import InputError
-from thresh2hdl.ranges import analyse, bit_growth_bound, signed_bits, unsigned_bits, value_bits
+from thresh2hdl.analysis.ranges import (analyse, bit_growth_bound, signed_bits, unsigned_bits,
+                                        value_bits)
 
 
 def twos_complement_bits(value):

@@ -1,8 +1,8 @@
 import numpy as np
 from hypothesis import given, settings, strategies as st
 
-from thresh2hdl.reference import BankReference, ReferenceModel, cycle_model
-from thresh2hdl.vectors import random_vectors
+from thresh2hdl.verify.reference import BankReference, ReferenceModel, cycle_model
+from thresh2hdl.verify.vectors import random_vectors
 
 
 def test_scores_equal_python_integer_arithmetic():

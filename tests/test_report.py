@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from helpers import run, bank_model, HEADER, write_csv, separable_rows, Structure
-from thresh2hdl.flow import BuildOptions, build
+from thresh2hdl.app.flow import BuildOptions, build
 
 
 @pytest.fixture(scope="module")
@@ -209,8 +209,8 @@ def test_datapath_is_drawn_as_the_tree(bank_built, built):
 
 
 def test_a_tree_too_large_to_draw_is_left_to_the_tables(tmp_path):
-    from thresh2hdl.model import FeatureFormat, Model, Unit
-    from thresh2hdl.report_html import TREE_PICTURE_MOST
+    from thresh2hdl.model.records import FeatureFormat, Model, Unit
+    from thresh2hdl.reports.html import TREE_PICTURE_MOST
     model = Model(module="wide", features=[FeatureFormat(f"x{i}", 8) for i in range(90)],
                   units=[Unit("u", tuple((i % 7) - 3 or 5 for i in range(90)), -10)])
     built = build(model, tmp_path / "out", BuildOptions(simulator="amaranth", vectors=50))

@@ -12,13 +12,13 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import require_tool, run, assert_one_line_error
-from thresh2hdl.cli import main
-from thresh2hdl.data import read_csv
+from thresh2hdl.app.cli import main
+from thresh2hdl.model.data import read_csv
 from thresh2hdl.errors import InputError
-from thresh2hdl.flow import BuildOptions, build, demo_model
-from thresh2hdl.model import (FeatureFormat, Model, Unit, load_model, model_to_toml,
-                              parse_model)
-from thresh2hdl.quantize import load_float_model
+from thresh2hdl.app.flow import BuildOptions, build, demo_model
+from thresh2hdl.model.records import (FeatureFormat, Model, Unit, load_model, model_to_toml,
+                                      parse_model)
+from thresh2hdl.train.quantize import load_float_model
 
 GOOD_MODEL = model_to_toml(demo_model())
 JUNK = st.one_of(st.sampled_from(["nan", "inf", "-inf", "1e999", "99999999999999999999999",
@@ -109,7 +109,7 @@ def test_corrupted_csv_files(tmp_path_factory, data):
     path.write_bytes(text.encode("utf-8", "surrogatepass"))
     dataset = only_input_errors(read_csv, path)
     if dataset is not None:
-        from thresh2hdl.train import FitOptions, fit
+        from thresh2hdl.train.perceptron import FitOptions, fit
         try:
             fit(dataset, options=FitOptions(epochs=2))
         except InputError as error:
@@ -249,7 +249,7 @@ def test_a_bank_of_the_most_units_builds_and_verifies(tmp_path):
     built = build(model, tmp_path / "out", BuildOptions(simulator="icarus", vectors=500,
                                                         pipeline=2))
     assert built.report["mismatches"] == 0 and built.report["vectors_checked"] > 500
-    from thresh2hdl.reference import ReferenceModel
+    from thresh2hdl.verify.reference import ReferenceModel
     x = rng.integers(0, 256, (200, 4))
     assert (ReferenceModel.from_model(model).decisions(x) ==
             np.argmax(x @ weights.T + biases, axis=1)).all()

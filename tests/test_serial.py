@@ -11,15 +11,15 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import (IN_CI, require_tool, make_model, assert_agrees_in_amaranth, run,
                      assert_one_line_error, assert_lint_clean_and_agrees)
-from thresh2hdl.circuit import SerialThreshold, UnitConfig, make_component, sample_shape
+from thresh2hdl.hardware.circuit import SerialThreshold, UnitConfig, make_component, sample_shape
 from thresh2hdl.errors import InputError
-from thresh2hdl.flow import run_simulator
-from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.ranges import analyse, bit_growth_bound, prefix_ranges
-from thresh2hdl.reference import ReferenceModel, cycle_model
-from thresh2hdl.stimulus import make_stimulus
-from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import port_table
+from thresh2hdl.app.flow import run_simulator
+from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
+from thresh2hdl.analysis.ranges import analyse, bit_growth_bound, prefix_ranges
+from thresh2hdl.verify.reference import ReferenceModel, cycle_model
+from thresh2hdl.verify.stimulus import make_stimulus
+from thresh2hdl.verify.vectors import make_vectors
+from thresh2hdl.emit.verilog import port_table
 
 
 def gold_score(weights, bias, x):
@@ -268,7 +268,7 @@ def test_exported_serial_testbench_passes_in_icarus(tmp_path):
 
 
 def test_prove_answers_undecided_for_serial(tmp_path):
-    from thresh2hdl.proof import proof_tools
+    from thresh2hdl.proof.prover import proof_tools
     try:
         proof_tools()
     except Exception as error:   # the prove extra is optional outside CI

@@ -9,12 +9,12 @@ import numpy as np
 import pytest
 
 from helpers import require_tool, make_model, run, assert_one_line_error, exported_testbench
-from thresh2hdl.circuit import ThresholdUnit, UnitConfig
-from thresh2hdl.flow import run_simulator
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.stimulus import make_stimulus
-from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import emit_verilog, port_table
+from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.app.flow import run_simulator
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.verify.stimulus import make_stimulus
+from thresh2hdl.verify.vectors import make_vectors
+from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 
 @pytest.mark.verilator

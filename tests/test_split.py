@@ -7,16 +7,16 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import (require_tool, make_model, assert_agrees_in_amaranth, run,
                      assert_one_line_error, assert_lint_clean_and_agrees)
-from thresh2hdl.circuit import UnitConfig, make_component
+from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError
-from thresh2hdl.flow import run_simulator
-from thresh2hdl.model import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.ranges import analyse
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.report_html import report_markdown
-from thresh2hdl.stimulus import make_stimulus
-from thresh2hdl.vectors import make_vectors
-from thresh2hdl.verilog import port_table
+from thresh2hdl.app.flow import run_simulator
+from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
+from thresh2hdl.analysis.ranges import analyse
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.reports.html import report_markdown
+from thresh2hdl.verify.stimulus import make_stimulus
+from thresh2hdl.verify.vectors import make_vectors
+from thresh2hdl.emit.verilog import port_table
 
 cases = st.tuples(
     st.lists(st.integers(-(1 << 9), 1 << 9), min_size=1, max_size=7),

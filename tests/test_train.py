@@ -12,11 +12,11 @@ from sklearn.linear_model import LogisticRegression, Perceptron, SGDClassifier
 from sklearn.model_selection import train_test_split
 from sklearn.preprocessing import StandardScaler
 
-from thresh2hdl.data import Dataset
-from thresh2hdl.model import FeatureFormat
-from thresh2hdl.quantize import FloatModel, decide, fold_normalisation, to_integer_weights
-from thresh2hdl.reference import ReferenceModel
-from thresh2hdl.train import FitOptions, accuracy, fit, train_unit
+from thresh2hdl.model.data import Dataset
+from thresh2hdl.model.records import FeatureFormat
+from thresh2hdl.train.quantize import FloatModel, decide, fold_normalisation, to_integer_weights
+from thresh2hdl.verify.reference import ReferenceModel
+from thresh2hdl.train.perceptron import FitOptions, accuracy, fit, train_unit
 
 # The rule as written: raw codes, a bias input of 1, rows in order, every epoch, the last
 # weights at full precision (not the command's defaults, pocket weights inside 12 bits).

@@ -13,15 +13,12 @@ __version__ = "0.1.0"
 
 from .errors import InputError, MismatchError, ThreshError, ToolError, UndecidedError
 from .model import FeatureFormat, Model, PortNames, Unit, load_model, model_to_toml, parse_model
-from .ranges import Analysis, analyse, signed_bits
-from .reference import ReferenceModel, cycle_model
-from .circuit import ThresholdUnit, UnitConfig
-from .verilog import emit_verilog, instance_template
-from .vectors import make_vectors
-from .stimulus import make_stimulus
-from .simulate import simulate_amaranth
-from .flow import (BuildOptions, BuildResult, CheckResult, ProofResult, build, check, demo_model,
-                   estimate_folder, prove)
+from .analysis import Analysis, analyse, signed_bits
+from .verify import ReferenceModel, cycle_model, make_stimulus, make_vectors, simulate_amaranth
+from .hardware import ThresholdUnit, UnitConfig
+from .emit import emit_verilog, instance_template
+from .app import (BuildOptions, BuildResult, CheckResult, ProofResult, build, check, demo_model,
+                  estimate_folder, prove)
 from .proof import ProofOutcome, prove_netlist
 
 __all__ = ["__version__", "InputError", "MismatchError", "ThreshError", "ToolError",

@@ -1,7 +1,7 @@
 """Domain errors and the exit codes they map to.
 
 Every error a user can cause is a :class:`ThreshError`; the CLI maps them to exit codes in one
-place (:mod:`thresh2hdl.cli`), so a user sees one line and never a traceback.
+place (:mod:`thresh2hdl.app.cli`), so a user sees one line and never a traceback.
 """
 
 __all__ = ["ThreshError", "InputError", "MismatchError", "ToolError", "DoesNotFitError",

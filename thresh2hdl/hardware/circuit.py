@@ -15,11 +15,10 @@ from amaranth.hdl import Cat, Const, Module, Mux, Shape, Signal, signed, unsigne
 from amaranth.lib import wiring
 from amaranth.lib.wiring import In, Out
 
-from .errors import InputError
-from .model import Model
-from .guard import resolve_guard
-from .names import GUARD_FLAG, register_name, valid_name
-from .ranges import ARCHITECTURES, analyse, analyse_bank, signed_bits, value_bits
+from ..errors import InputError
+from ..model import Model
+from ..analysis import ARCHITECTURES, analyse, analyse_bank, resolve_guard, signed_bits, value_bits
+from ..names import GUARD_FLAG, register_name, valid_name
 
 __all__ = ["UnitConfig", "ThresholdUnit", "ThresholdBank", "SerialThreshold",
            "make_component", "sample_shape", "weight_addresses", "FULL_PIPELINE"]
@@ -152,7 +151,7 @@ class UnitConfig:
 
     @property
     def guard(self):
-        """The input guard as resolved for this design (see :mod:`thresh2hdl.guard`)."""
+        """The input guard as resolved for this design (see :mod:`thresh2hdl.analysis.guard`)."""
         return resolve_guard(self.model, clamp=self.clamp, flag=self.range_flag,
                              code_ranges=self._code_ranges())
 
@@ -589,7 +588,7 @@ class _Common:
 
     @property
     def levels(self):
-        """How many levels the datapath has (:attr:`~thresh2hdl.ranges.Analysis.levels`,
+        """How many levels the datapath has (:attr:`~thresh2hdl.analysis.ranges.Analysis.levels`,
         numbered from 0): the most register stages it takes."""
         return self._levels
 
@@ -613,7 +612,7 @@ class _Common:
 class ThresholdUnit(_Common, wiring.Component):
     """One threshold unit, ``y = (w . x + b > 0)``, with a valid/ready handshake.
 
-    Ports (internal names; :mod:`thresh2hdl.verilog` gives them the model's names):
+    Ports (internal names; :mod:`thresh2hdl.emit.verilog` gives them the model's names):
     ``in_valid``, ``in_ready``, ``x0`` .. ``x{N-1}`` (each at its input format),
     ``out_valid``, ``out_ready``, ``y`` and, unless omitted, ``score`` (signed).
     """

@@ -15,8 +15,8 @@ import subprocess
 import tempfile
 from pathlib import Path
 
-from .errors import DoesNotFitError, ToolError
-from .tools import find_tool, tool_version
+from ..errors import DoesNotFitError, ToolError
+from ..tools import find_tool, tool_version
 
 __all__ = ["TARGETS", "CELL_NAMES", "LUT4_RULES", "device_name", "estimate_cost",
            "lut4_equivalents", "needs_text", "shortfall", "wrapper_text"]

@@ -15,8 +15,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
-from .model import MAX_BIAS_BITS, MAX_FEATURES, MAX_UNITS
+from ..errors import InputError
+from ..model import MAX_BIAS_BITS, MAX_FEATURES, MAX_UNITS
 
 __all__ = ["FLOAT_ARRAYS", "FloatModel", "load_float_model", "fold_normalisation",
            "IntegerWeights", "to_integer_weights", "decide"]

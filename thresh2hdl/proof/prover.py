@@ -40,10 +40,10 @@ from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 
-from .errors import InputError, ToolError
-from .names import GUARD_FLAG, register_name, valid_name
-from .ranges import signed_bits
-from .tools import find_tool, warm_up
+from ..errors import InputError, ToolError
+from ..names import GUARD_FLAG, register_name, valid_name
+from ..analysis import signed_bits
+from ..tools import find_tool, warm_up
 
 __all__ = ["ProofOutcome", "prove_netlist", "proof_tools", "DEFAULT_TIMEOUT_S"]
 
@@ -739,7 +739,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
     """Prove that ``verilog_text`` computes ``model`` exactly, or find where it does not.
 
     ``component`` gives the plan (values, stages) the lemmas follow; ``port_rows`` is
-    :func:`thresh2hdl.verilog.port_table` of it. Returns a :class:`ProofOutcome`.
+    :func:`thresh2hdl.emit.verilog.port_table` of it. Returns a :class:`ProofOutcome`.
     """
     yosys, boolector = proof_tools()
     component._MustUse__silence = True    # read as a plan here, not elaborated: no warning

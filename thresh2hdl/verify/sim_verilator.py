@@ -20,8 +20,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import ToolError
-from .simulate import SimulationResult
+from ..errors import ToolError
+from .sim_amaranth import SimulationResult
 from .stimulus import write_columns
 from .templates import template_text
 

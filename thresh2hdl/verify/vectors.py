@@ -4,7 +4,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from .model import Unit
+from ..model import Unit
 
 __all__ = ["VectorSet", "make_vectors", "outside_vectors", "random_vectors", "reload_sets",
            "RANDOM_GROUP"]

@@ -20,28 +20,23 @@ from typing import ClassVar
 
 import numpy as np
 
-from . import __version__
-from .circuit import FULL_PIPELINE, UnitConfig, make_component, weight_addresses
-from .data import dataset_for_model, read_csv
-from .errors import DoesNotFitError, InputError, MismatchError, ToolError, UndecidedError
-from .model import Model, load_model, model_to_toml, parse_model
-from .ranges import ARCHITECTURES
-from .estimate import estimate_cost, synthesis_figures
-from .guard import guard_words
-from .proof import DEFAULT_TIMEOUT_S, prove_netlist
-from .outdir import check_output_folder, staged_folder, write_files, write_text
-from .reference import ReferenceModel
-from .report_html import report_html, report_markdown
-from .readers import read_text, shorten
-from .report import (REPORT_FORMAT, SAFETY_CAUTION, argmax_report, level_names, node_table,
-                     read_build_settings, read_history, report_json, stages_report,
-                     store_estimate, summary_lines, unit_histograms)
-from .simulate import simulate_amaranth
-from .stimulus import make_reload_stimulus, make_stimulus
-from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
-from .testbench import TestbenchFiles, icarus_version, simulate_icarus, write_testbench
-from .verilator import find_verilator, simulate_verilator, verilator_version
-from .verilog import emit_verilog, instance_template, port_table, range_comments
+from .. import __version__
+from ..hardware import FULL_PIPELINE, UnitConfig, make_component, weight_addresses
+from ..model import Model, dataset_for_model, load_model, model_to_toml, parse_model, read_csv
+from ..errors import DoesNotFitError, InputError, MismatchError, ToolError, UndecidedError
+from ..analysis import ARCHITECTURES, guard_words
+from ..cost import estimate_cost, synthesis_figures
+from ..proof import DEFAULT_TIMEOUT_S, prove_netlist
+from ..outdir import check_output_folder, staged_folder, write_files, write_text
+from ..verify import (RANDOM_GROUP, ReferenceModel, TestbenchFiles, find_verilator, icarus_version,
+                      make_reload_stimulus, make_stimulus, make_vectors, random_vectors,
+                      reload_sets, simulate_amaranth, simulate_icarus, simulate_verilator,
+                      verilator_version, write_testbench)
+from ..reports import (REPORT_FORMAT, SAFETY_CAUTION, argmax_report, level_names, node_table,
+                       read_build_settings, read_history, report_html, report_json, report_markdown,
+                       stages_report, store_estimate, summary_lines, unit_histograms)
+from ..readers import read_text, shorten
+from ..emit import emit_verilog, instance_template, port_table, range_comments
 
 __all__ = ["BuildOptions", "BuildResult", "build", "check", "estimate_folder", "prove",
            "CheckResult", "ProofResult", "counterexample_file", "demo_model", "DEMO_SCENARIO",
@@ -212,7 +207,7 @@ class _Later:
 
 def first_stimulus(component, model, rows, *, seed=0, reload_count=2000, **options):
     """The stimulus of ``rows``; with loadable weights, followed by weight sets written
-    through the port and vectors run with each (see :func:`~thresh2hdl.vectors.reload_sets`).
+    through the port and vectors run with each (see :func:`~thresh2hdl.verify.vectors.reload_sets`).
     Returns the stimulus and the ``(group name, vectors)`` of the reloads."""
     reference = ReferenceModel.from_model(model)
     options["guard"] = component.config.guard
@@ -268,7 +263,7 @@ class BuildOptions:
     bias_bits: int | None = None     # hold the trained values)
     split_bits: int | None = None    # split adders wider than this (see UnitConfig)
     carry_registers: int = 1         # registers on each carry between split parts
-    clamp: bool | None = None        # the input guard (see thresh2hdl.guard): None takes the
+    clamp: bool | None = None        # the input guard (see thresh2hdl.analysis.guard): None takes the
     range_flag: bool | None = None   # default, both on where a declared range is tighter
 
     def __post_init__(self):

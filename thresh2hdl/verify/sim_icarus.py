@@ -2,7 +2,7 @@
 
 The testbench is filled in from the template ``sim/thresh_tb.v.in`` (shipped in the package as
 ``thresh2hdl/sim``). Stimulus and expectations are ``$readmemh`` files made from a
-:class:`~thresh2hdl.stimulus.Stimulus`, so the same cycles run here as in every other simulator.
+:class:`~thresh2hdl.verify.stimulus.Stimulus`, so the same cycles run here as in every other simulator.
 """
 
 import shutil
@@ -11,9 +11,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import ToolError
-from .outdir import write_text
-from .simulate import SimulationResult
+from ..errors import ToolError
+from ..outdir import write_text
+from .sim_amaranth import SimulationResult
 from .stimulus import write_columns
 from .templates import template_text
 
@@ -66,7 +66,7 @@ def _pad(expression, width):
 
 def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=False,
                    flag_masks_results=False):
-    """Testbench source for a module with ``ports`` (from :func:`thresh2hdl.verilog.port_table`).
+    """Testbench source for a module with ``ports`` (from :func:`thresh2hdl.emit.verilog.port_table`).
     ``flag_checked``: the expectations hold the out-of-range flag; ``flag_masks_results``: the
     decision and scores of a flagged result are not specified (a flag without a clamp), so
     they are compared only where the flag is low."""

@@ -1,6 +1,6 @@
 """File-level calls behind ``thresh2hdl fit`` and ``thresh2hdl quantize``.
 
-They read the user's files, run :mod:`thresh2hdl.train` or :mod:`thresh2hdl.quantize`, and
+They read the user's files, run :mod:`thresh2hdl.train` or :mod:`thresh2hdl.train.quantize`, and
 write the model file and its log together, atomically.
 """
 
@@ -10,13 +10,13 @@ from pathlib import Path
 
 import numpy as np
 
-from .data import check_ranges, read_csv
-from .errors import InputError
-from .model import FeatureFormat, Model, Unit, load_toml, model_to_toml, parse_features
-from .names import check_identifier
-from .outdir import write_files
-from .quantize import decide, fold_normalisation, load_float_model, to_integer_weights
-from .train import FitOptions, class_unit_name, fit
+from ..model import (FeatureFormat, Model, Unit, check_ranges, load_toml, model_to_toml,
+                     parse_features, read_csv)
+from ..errors import InputError
+from ..names import check_identifier
+from ..outdir import write_files
+from ..train import (FitOptions, class_unit_name, decide, fit, fold_normalisation, load_float_model,
+                     to_integer_weights)
 
 __all__ = ["fit_csv", "quantize_npz", "input_formats", "QuantizeResult", "SWEEP_BITS"]
 

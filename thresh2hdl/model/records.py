@@ -8,9 +8,9 @@ never the file, so a model is validated in exactly one place. The schema is docu
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
-from . import readers
-from .errors import InputError
-from .names import check_identifier
+from .. import readers
+from ..errors import InputError
+from ..names import check_identifier
 
 __all__ = ["MODEL_FORMAT", "MAX_FEATURES", "MAX_UNITS", "MAX_INPUT_BITS", "MAX_WEIGHT_BITS",
            "MAX_BIAS_BITS", "FeatureFormat", "Unit", "PortNames", "Model", "load_model",

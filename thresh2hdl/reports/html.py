@@ -5,7 +5,7 @@ Both are made from the same report dictionary as report.json, so the three never
 
 from html import escape
 
-from .estimate import CELL_NAMES
+from ..cost import CELL_NAMES
 from .report import (cost_text, estimate_facts, estimates_of, levels_text, shortfall_text,
                      stages_text)
 

@@ -17,7 +17,7 @@ import re
 from amaranth.hdl import Shape
 from amaranth.lib.wiring import In
 
-from .errors import ToolError
+from ..errors import ToolError
 from .netlist import netlist_of
 
 __all__ = ["write_verilog", "emit_verilog", "instance_template", "port_table", "range_comments"]

@@ -10,11 +10,10 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
-from .estimate import (CELL_NAMES, LUT4_RULES, TARGETS, device_name, lut4_equivalents,
-                       needs_text)
-from .readers import load_json, shorten
-from .verilog import port_table
+from ..errors import InputError
+from ..cost import CELL_NAMES, LUT4_RULES, TARGETS, device_name, lut4_equivalents, needs_text
+from ..readers import load_json, shorten
+from ..emit import port_table
 
 __all__ = ["SAFETY_CAUTION", "REPORT_FORMAT", "cost_text", "estimate_facts", "estimates_of",
            "report_json", "shortfall_text", "store_estimate", "summary_lines", "level_names",

@@ -9,7 +9,7 @@ copy stays hidden; there the templates are the checkout's ``sim/`` beside the pa
 from importlib import resources
 from pathlib import Path
 
-from .errors import ToolError
+from ..errors import ToolError
 
 __all__ = ["template_text"]
 
@@ -20,7 +20,7 @@ def template_text(name):
         return resources.files("thresh2hdl.sim").joinpath(name).read_text("utf-8")
     except (ModuleNotFoundError, FileNotFoundError):
         pass
-    beside = Path(__file__).resolve().parent.parent / "sim" / name
+    beside = Path(__file__).resolve().parents[2] / "sim" / name
     try:
         return beside.read_text(encoding="utf-8")
     except OSError:

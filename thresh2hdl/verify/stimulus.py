@@ -91,7 +91,7 @@ def make_stimulus(reference, vectors, *, latency, beats=1, seed=0, valid_probabi
     """Cycles for every vector: the first ``stall_vectors`` through the full handshake model
     with random gaps and stalls, the rest with gaps only (a long random run). ``beats``: valid
     beats per vector (a component's ``beats``: one per feature for the serial architecture).
-    ``guard``: the design's :class:`~thresh2hdl.guard.InputGuard`, which says what a code
+    ``guard``: the design's :class:`~thresh2hdl.analysis.guard.InputGuard`, which says what a code
     outside the declared ranges gives."""
     vectors = np.asarray(vectors, dtype=np.int64)
     rng = np.random.default_rng(seed)

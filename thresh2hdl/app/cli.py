@@ -10,13 +10,13 @@ import sys
 
 import click
 
-from .circuit import FULL_PIPELINE
-from .errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
-from .fitting import fit_csv, quantize_npz
+from ..hardware import FULL_PIPELINE
+from ..errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
+from .fit import fit_csv, quantize_npz
 from .flow import BuildOptions, build, check, demo_model, estimate_folder, prove
-from .proof import DEFAULT_TIMEOUT_S
-from .report import cost_text
-from .train import DEFAULT_MAX_WEIGHT_BITS, FitOptions, choice_lines
+from ..proof import DEFAULT_TIMEOUT_S
+from ..reports import cost_text
+from ..train import DEFAULT_MAX_WEIGHT_BITS, FitOptions, choice_lines
 
 __all__ = ["main"]
 

@@ -1,6 +1,6 @@
 """From the Amaranth component to a flat Yosys netlist (JSON), with Amaranth's own Yosys.
 
-The netlist is what :mod:`thresh2hdl.verilog` writes out. ``proc`` turns processes into flops
+The netlist is what :mod:`thresh2hdl.emit.verilog` writes out. ``proc`` turns processes into flops
 and multiplexers, ``opt_dff`` folds enables and synchronous resets into the flops, and
 ``wreduce`` trims arithmetic to the bits that are used, so that no wire carries an unused bit.
 None of these passes changes the function of the design.
@@ -10,7 +10,7 @@ import json
 
 from amaranth.back import rtlil
 
-from .errors import ToolError
+from ..errors import ToolError
 
 __all__ = ["NETLIST_PASSES", "rtlil_text", "netlist_of"]
 

@@ -13,7 +13,7 @@ costs no more than a positive one.
 import heapq
 from dataclasses import dataclass
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["BankPlan", "analyse_bank", "csd_digits", "ARCHITECTURES", "signed_bits", "unsigned_bits", "value_bits", "Node", "Analysis", "analyse",
            "bit_growth_bound", "MAX_SCORE_BITS", "SERIAL_NODES", "prefix_ranges"]

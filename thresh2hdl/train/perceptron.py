@@ -12,10 +12,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .data import check_ranges
-from .errors import InputError
-from .model import MAX_FEATURES, FeatureFormat, Model, Unit
-from .names import check_identifier
+from ..model import FeatureFormat, MAX_FEATURES, Model, Unit, check_ranges
+from ..errors import InputError
+from ..names import check_identifier
 from .quantize import to_integer_weights
 
 __all__ = ["FitOptions", "FitLog", "train_unit", "fit", "choice_lines", "weight_width", "RULES",

@@ -1,4 +1,4 @@
-"""Drive a design cycle by cycle with a :class:`~thresh2hdl.stimulus.Stimulus` and record it.
+"""Drive a design cycle by cycle with a :class:`~thresh2hdl.verify.stimulus.Stimulus` and record it.
 
 The Amaranth simulator is the embedded default: it needs nothing beyond pip. All inputs of a
 cycle are set with one ``ctx.set`` on their concatenation and all outputs read with one

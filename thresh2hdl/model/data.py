@@ -8,8 +8,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
-from .readers import shorten
+from ..errors import InputError
+from ..readers import shorten
 
 __all__ = ["Dataset", "read_csv", "check_ranges", "dataset_for_model", "MAX_ROWS"]
 
