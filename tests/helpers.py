@@ -73,7 +73,7 @@ def make_model(weights, bias=0, *, bits=8, signed=False, ranges=None, module="du
 
 def assert_agrees_in_amaranth(model, dut, stimulus):
     """Every vector of ``stimulus`` through the Amaranth design: out, and no mismatch."""
-    from thresh2hdl.app.flow import run_simulator
+    from thresh2hdl.verify.runner import run_simulator
     from thresh2hdl.emit.verilog import port_table
     result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), model.module,
                               stimulus)
@@ -121,7 +121,7 @@ def lint_icarus(folder, *files):
 def assert_lint_clean_and_agrees(folder, model, dut, stimulus):
     """The emitted file of ``dut``: no warning from Verilator or Icarus ``-Wall``, and zero
     mismatches in both (independent simulators of the same file)."""
-    from thresh2hdl.app.flow import run_simulator
+    from thresh2hdl.verify.runner import run_simulator
     from thresh2hdl.emit.verilog import port_table
     require_tool("verilator", "g++", "iverilog", "vvp")
     text = emit_verilog(dut, model)

@@ -13,7 +13,8 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 from helpers import require_tool, assert_lint_clean_and_agrees, bank_model
 from thresh2hdl.hardware.circuit import FULL_PIPELINE, ThresholdBank, UnitConfig, make_component
 from thresh2hdl.errors import InputError
-from thresh2hdl.app.flow import BuildOptions, run_simulator
+from thresh2hdl.app.flow import BuildOptions
+from thresh2hdl.verify.runner import run_simulator
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis.ranges import analyse_bank
 from thresh2hdl.verify.reference import ReferenceModel

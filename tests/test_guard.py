@@ -16,7 +16,8 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 from helpers import (require_proof_tools, require_tool, make_model, run,
                      assert_lint_clean_and_agrees, exported_testbench)
 from thresh2hdl.hardware.circuit import UnitConfig, make_component
-from thresh2hdl.app.flow import BuildOptions, build, check, demo_model, verify
+from thresh2hdl.app.flow import BuildOptions, build, check, demo_model
+from thresh2hdl.verify.runner import verify
 from thresh2hdl.analysis.guard import resolve_guard
 from thresh2hdl.model.records import FeatureFormat, Model, Unit
 from thresh2hdl.verify.reference import ReferenceModel
@@ -156,8 +157,8 @@ def test_compare_reports_the_earliest_mismatch_over_every_output():
 
 
 def test_mismatches_are_counted_over_every_chunk(monkeypatch):
-    import thresh2hdl.app.flow as flow
-    monkeypatch.setattr(flow, "CHUNK_VECTORS", 300)
+    import thresh2hdl.verify.runner as runner
+    monkeypatch.setattr(runner, "CHUNK_VECTORS", 300)
     model = make_model([5, -3, 2, 7], -11, bits=6)
     dut = make_component(UnitConfig(model, pipeline=1))
     wrong = make_model([5, -3, 2, 7], -10, bits=6)      # the model judging is one off

@@ -14,7 +14,7 @@ from helpers import (IN_CI, require_tool, make_model, assert_agrees_in_amaranth,
                      assert_one_line_error, assert_lint_clean_and_agrees)
 from thresh2hdl.hardware.circuit import UnitConfig, make_component, weight_addresses
 from thresh2hdl.errors import InputError
-from thresh2hdl.app.flow import first_stimulus, run_simulator
+from thresh2hdl.verify.runner import first_stimulus, run_simulator
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis.ranges import analyse, analyse_bank, bit_growth_bound
 from thresh2hdl.verify.vectors import make_vectors
@@ -234,7 +234,7 @@ def test_loadable_demo_reports_its_port_and_is_not_proved(tmp_path):
 
 def test_a_design_that_ignores_writes_is_caught_and_named(monkeypatch):
     import thresh2hdl.hardware.circuit as circuit
-    from thresh2hdl.app.flow import verify
+    from thresh2hdl.verify.runner import verify
     monkeypatch.setattr(circuit._WeightStore, "_write", staticmethod(lambda *args: None))
     model = make_model([3, -2, 1], 5, bits=4)
     dut = make_component(UnitConfig(model, loadable_weights=True, weight_bits=5, bias_bits=7))
@@ -245,7 +245,7 @@ def test_a_design_that_ignores_writes_is_caught_and_named(monkeypatch):
 
 @pytest.mark.slow
 def test_later_chunks_count_as_random_vectors():
-    from thresh2hdl.app.flow import chunk_vectors, verify
+    from thresh2hdl.verify.runner import chunk_vectors, verify
     model = make_model([3, -2], 5, bits=4)
     dut = make_component(UnitConfig(model, loadable_weights=True))
     count = chunk_vectors(2) + 300

@@ -16,7 +16,8 @@ from helpers import (require_proof_tools, require_tool, make_model, run, assert_
                      bank_model)
 from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError, MismatchError, ToolError, UndecidedError
-from thresh2hdl.app.flow import BuildOptions, build, demo_model, prove, run_simulator, unit_analyses
+from thresh2hdl.app.flow import BuildOptions, build, demo_model, prove
+from thresh2hdl.verify.runner import run_simulator
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.proof.prover import proof_tools, prove_netlist
 from thresh2hdl.verify.reference import ReferenceModel
@@ -118,7 +119,7 @@ def change_a_weight(text, rng):
 def narrow_a_node(text, component, rng):
     """One adder node whose range is non-negative declared one bit narrower (its readers
     zero-extend it, so the Verilog stays legal)."""
-    analyses = unit_analyses(component)
+    analyses = component.unit_analyses
     names = [(f"u{i}_" if len(analyses) > 1 else "") + n.name
              for i, analysis in enumerate(analyses) for n in analysis.nodes
              if n.kind in ("add", "sub", "rsub") and n.lo >= 0 and n.bits >= 2]

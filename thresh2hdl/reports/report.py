@@ -6,19 +6,15 @@ builds of the same model give byte-identical report.json apart from that section
 
 import json
 import re
-from pathlib import Path
 
 import numpy as np
 
-from ..errors import InputError
 from ..cost import CELL_NAMES, LUT4_RULES, TARGETS, device_name, lut4_equivalents, needs_text
-from ..readers import load_json, shorten
 from ..emit import port_table
 
 __all__ = ["SAFETY_CAUTION", "REPORT_FORMAT", "cost_text", "estimate_facts", "estimates_of",
            "report_json", "shortfall_text", "store_estimate", "summary_lines", "level_names",
-           "stages_report", "node_table", "argmax_report", "unit_histograms",
-           "read_build_settings", "read_history"]
+           "stages_report", "node_table", "argmax_report", "unit_histograms"]
 
 REPORT_FORMAT = 1
 
@@ -322,120 +318,3 @@ def summary_lines(report):
     return lines
 
 
-def _refuse(source, where, wanted, value, what="rebuild the folder"):
-    got = "missing" if value is None else f"{shorten(value)}"
-    raise InputError(f"must be {wanted}, not {got}; {what}", source=source, field=where)
-
-
-def read_build_settings(path):
-    """A build folder's report.json, and the settings in it that rebuild the design, checked
-    key by key: ``(report, settings for UnitConfig, recorded latency)``."""
-    report = load_json(path, "report")
-    if not isinstance(report, dict):
-        raise InputError("is not a build report (a JSON object); rebuild the folder", source=path)
-
-    def integer(where, value, optional=False):
-        if value is None and optional:
-            return None
-        if type(value) is not int or not 0 <= value <= 1 << 16:
-            _refuse(path, where, "an integer from 0 to 65536", value)
-        return value
-
-    def table(where):
-        value = report.get(where)
-        if value is not None and not isinstance(value, dict):
-            _refuse(path, where, "a table", value)
-        return value or {}
-
-    tree, port, guard = table("tree"), table("weight_port"), table("input_guard")
-    latency = integer("latency_cycles", report.get("latency_cycles"))
-    units = report.get("units")
-    if units:
-        if not isinstance(units, list) or not all(isinstance(u, dict) for u in units):
-            _refuse(path, "units", "a list of tables", units)
-        bits = [(integer(f"units[{k}].score_bits", u.get("score_bits")),
-                 integer(f"units[{k}].score_bits_min", u.get("score_bits_min")))
-                for k, u in enumerate(units)]
-        # One width for all units, wider than needed: the build asked for it (--score-bits).
-        score_bits = bits[0][0] if len({b for b, _ in bits}) == 1 and bits[0][0] != bits[0][1] \
-            else None
-    else:
-        score_bits = integer("score_bits", report.get("score_bits"))
-    arch = tree.get("arch", "tree")
-    if not isinstance(arch, str):
-        _refuse(path, "tree.arch", "a text", arch)
-    verilog = report.get("verilog")
-    if not isinstance(verilog, str) or Path(verilog).name != verilog or \
-            not verilog.endswith(".v"):
-        _refuse(path, "verilog", "the name of a .v file in the folder", verilog)
-    settings = {"pipeline": integer("register_stages", report.get("register_stages", latency)),
-                "score_bits": score_bits, "arch": arch,
-                "split_bits": integer("tree.split_bits", tree.get("split_bits"), True),
-                "carry_registers": integer("tree.carry_registers",
-                                           tree.get("carry_registers", 1)),
-                "loadable_weights": bool(port),
-                "weight_bits": integer("weight_port.weight_bits", port.get("weight_bits"), True),
-                "bias_bits": integer("weight_port.bias_bits", port.get("bias_bits"), True)}
-    # A folder from before the input guard was built without one.
-    for key, option in (("clamp", "clamp"), ("flag", "range_flag")):
-        value = guard.get(key, False)
-        if not isinstance(value, bool):
-            _refuse(path, f"input_guard.{key}", "true or false", value)
-        settings[option] = value
-    return report, settings, latency
-
-
-def _is_number(value, optional=False):
-    return (value is None and optional) or \
-        (isinstance(value, (int, float)) and not isinstance(value, bool))
-
-
-def _is_counts(value):
-    return isinstance(value, list) and all(
-        isinstance(row, list) and all(type(v) is int for v in row) for row in value)
-
-
-def _is_sweep(value):
-    return isinstance(value, list) and all(
-        isinstance(row, dict) and type(row.get("bits")) is int and _is_number(row.get("agreement"))
-        and _is_number(row.get("accuracy"), True) for row in value)
-
-
-# The fields of a fit or quantize log that a report shows, and the test each must pass.
-_HISTORY = {
-    "fit": ("training", {
-        "mistakes_per_epoch": ("lists of mistake counts", _is_counts),
-        "epochs_run": ("a list of epoch counts",
-                       lambda v: isinstance(v, list) and all(type(n) is int for n in v)),
-        "train_accuracy": ("a number", _is_number),
-        "holdout_accuracy": ("a number or null", lambda v: _is_number(v, True))}),
-    "quantize": ("quantization", {
-        "bits": ("an integer", lambda v: type(v) is int),
-        "agreement_with_float": ("a number", _is_number),
-        "accuracy": ("a number or null", lambda v: _is_number(v, True)),
-        "float_accuracy": ("a number or null", lambda v: _is_number(v, True)),
-        "sweep": ("a list of {bits, agreement, accuracy} tables", _is_sweep),
-        "recommended_bits": ("an integer or null", lambda v: v is None or type(v) is int)}),
-}
-
-
-def read_history(model_path):
-    """The training or quantization log written beside a model file (``<stem>.fit.json``,
-    ``<stem>.quantize.json``), as the report's ``training``/``quantization`` sections."""
-    model_path = Path(model_path)
-    history = {}
-    for kind, (key, fields) in _HISTORY.items():
-        log = model_path.with_name(f"{model_path.stem}.{kind}.json")
-        if not log.is_file():
-            continue
-        data = load_json(log, f"{kind} log")
-        if not isinstance(data, dict):
-            raise InputError(f"is not a {kind} log (a JSON object); make it again with "
-                             f"thresh2hdl {kind}, or delete it", source=log)
-        for field, (wanted, test) in fields.items():
-            if not test(data.get(field)):
-                _refuse(log, field, wanted, data.get(field),
-                        f"make it again with thresh2hdl {kind}, or delete it")
-        history[key] = {field: data.get(field) for field in fields}
-        history[key]["log"] = log.name
-    return history

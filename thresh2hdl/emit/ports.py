@@ -1,0 +1,52 @@
+"""The ports a Verilog file declares, and a user's netlist checked against the model's ports."""
+
+import re
+from pathlib import Path
+
+from ..errors import InputError
+
+__all__ = ["verilog_ports", "read_netlist"]
+
+
+_PORT_DECLARATION = re.compile(
+    r"\b(input|output)\s+(?:wire\s+|reg\s+)?(signed\s+)?"
+    r"(?:\[\s*(\d{1,9})\s*:\s*(\d{1,9})\s*\]\s*)?"   # wider than 9 digits: no port of ours
+    r"([A-Za-z_][A-Za-z0-9_$]*)")
+
+
+def verilog_ports(text, module):
+    """Port names, directions and widths declared by ``module`` in Verilog ``text``."""
+    start = re.search(rf"\bmodule\s+{re.escape(module)}\b", text)
+    if start is None:
+        return None
+    end = text.find("endmodule", start.end())
+    body = text[start.end(): end if end >= 0 else len(text)]
+    body = re.sub(r"//[^\n]*|/\*.*?\*/", "", body, flags=re.S)
+    ports = {}
+    for direction, _signed, hi, lo, name in _PORT_DECLARATION.findall(body):
+        width = abs(int(hi) - int(lo)) + 1 if hi else 1
+        ports[name] = (direction, width)
+    return ports
+
+
+def read_netlist(path, model, ports):
+    """The text of a Verilog file whose module ``model.module`` has exactly ``ports``."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as error:
+        raise InputError(f"cannot read the Verilog file ({error})", source=path) from None
+    declared = verilog_ports(text, model.module)
+    if declared is None:
+        raise InputError(f"has no module {model.module!r}", source=path)
+    wanted = {name: (direction, width) for _, name, direction, width, _ in ports}
+    for name, (direction, width) in wanted.items():
+        if declared.get(name) != (direction, width):
+            got = declared.get(name)
+            raise InputError(f"port {name!r} should be {direction} [{width - 1}:0], "
+                             f"{'is missing' if got is None else f'is {got[0]} of {got[1]} bits'}",
+                             source=path)
+    extra = sorted(set(declared) - set(wanted))
+    if extra:
+        raise InputError(f"has a port {extra[0]!r} that the model does not", source=path)
+    return text
