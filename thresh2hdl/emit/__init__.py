@@ -1,6 +1,6 @@
 """Emitters: ports, the netlist, and the Verilog writer."""
 
-from .ports import read_netlist, verilog_ports
+from .ports import Port, read_netlist, verilog_ports
 from .verilog import emit_verilog, instance_template, port_table, range_comments
 
-__all__ = ["read_netlist", "verilog_ports", "emit_verilog", "instance_template", "port_table", "range_comments"]
+__all__ = ["Port", "read_netlist", "verilog_ports", "emit_verilog", "instance_template", "port_table", "range_comments"]

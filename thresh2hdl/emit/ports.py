@@ -2,10 +2,22 @@
 
 import re
 from pathlib import Path
+from typing import NamedTuple
 
 from ..errors import InputError
 
-__all__ = ["verilog_ports", "read_netlist"]
+__all__ = ["Port", "verilog_ports", "read_netlist"]
+
+
+class Port(NamedTuple):
+    """One port of a design: the component's member name (``internal``: ``x0``, ``y``,
+    ``score``, ``clk``...), the name the Verilog gives it, direction, width and signedness."""
+
+    internal: str
+    name: str
+    direction: str       # "input" or "output"
+    width: int
+    signed: bool
 
 
 _PORT_DECLARATION = re.compile(
@@ -39,7 +51,7 @@ def read_netlist(path, model, ports):
     declared = verilog_ports(text, model.module)
     if declared is None:
         raise InputError(f"has no module {model.module!r}", source=path)
-    wanted = {name: (direction, width) for _, name, direction, width, _ in ports}
+    wanted = {port.name: (port.direction, port.width) for port in ports}
     for name, (direction, width) in wanted.items():
         if declared.get(name) != (direction, width):
             got = declared.get(name)

@@ -19,6 +19,7 @@ from amaranth.lib.wiring import In
 
 from ..errors import ToolError
 from .netlist import netlist_of
+from .ports import Port
 
 __all__ = ["write_verilog", "emit_verilog", "instance_template", "port_table", "range_comments"]
 
@@ -308,7 +309,7 @@ def write_verilog(module, name, *, port_names, port_order, header=()):
 
 
 def port_table(component, model):
-    """Ports of the component in declaration order: (internal name, Verilog name, direction, width, signed)."""
+    """Ports of the component in declaration order, as :class:`~thresh2hdl.emit.ports.Port` rows."""
     ports = model.ports
     names = {"clk": ports.clock, "rst": ports.reset, "in_valid": ports.in_valid,
              "in_ready": ports.in_ready, "out_valid": ports.out_valid,
@@ -323,11 +324,12 @@ def port_table(component, model):
             names[f"score{index}"] = f"{ports.score}_{unit.name}"
     table = []
     if component.latency > 0:
-        table += [("clk", names["clk"], "input", 1, False), ("rst", names["rst"], "input", 1, False)]
+        table += [Port("clk", names["clk"], "input", 1, False),
+                  Port("rst", names["rst"], "input", 1, False)]
     for member_name, member in component.signature.members.items():
         shape = Shape.cast(member.shape)
         direction = "input" if member.flow == In else "output"
-        table.append((member_name, names[member_name], direction, shape.width, shape.signed))
+        table.append(Port(member_name, names[member_name], direction, shape.width, shape.signed))
     return table
 
 
@@ -336,8 +338,8 @@ def emit_verilog(component, model, *, header=()):
     netlist = netlist_of(component, model.module)
     table = port_table(component, model)
     return write_verilog(netlist, model.module,
-                         port_names={internal: verilog for internal, verilog, *_ in table},
-                         port_order=[internal for internal, *_ in table], header=header)
+                         port_names={port.internal: port.name for port in table},
+                         port_order=[port.internal for port in table], header=header)
 
 
 def range_comments(component, model):

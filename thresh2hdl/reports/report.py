@@ -117,7 +117,7 @@ def node_table(component, model, verilog_text):
     """Every datapath value of every unit, named as in the Verilog (a bank's units with
     ``u{index}_``), with its level and register stage in the one count, its children, and
     where ``verilog_text`` (the emitted module) holds it."""
-    ports = {name for _, name, *_ in port_table(component, model)}
+    ports = {port.name for port in port_table(component, model)}
     declared = set(_DECLARED.findall(verilog_text))
     plan = getattr(component, "plan", None)
     units = plan.units if plan is not None else (component.analysis,)

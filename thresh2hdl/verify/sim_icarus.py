@@ -49,14 +49,13 @@ def _range(width):
 
 
 def _score_ports(ports):
-    return [(name, width) for internal, name, _, width, _ in ports
-            if internal.startswith("score")]
+    return [(port.name, port.width) for port in ports if port.internal.startswith("score")]
 
 
 def _write_ports(ports):
     """The weight write port (strobe, address, data), empty unless the weights are loadable."""
     order = ("weight_write", "weight_address", "weight_data")
-    rows = {internal: (name, width) for internal, name, _, width, _ in ports}
+    rows = {port.internal: (port.name, port.width) for port in ports}
     return [rows[key] for key in order if key in rows]
 
 
@@ -70,13 +69,14 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     ``flag_checked``: the expectations hold the out-of-range flag; ``flag_masks_results``: the
     decision and scores of a flagged result are not specified (a flag without a clamp), so
     they are compared only where the flag is low."""
-    by_role = {internal: (name, width, signed) for internal, name, _, width, signed in ports}
-    features = [(name, width) for internal, name, _, width, _ in ports if internal.startswith("x")]
+    by_role = {port.internal: (port.name, port.width, port.signed) for port in ports}
+    features = [(port.name, port.width) for port in ports if port.internal.startswith("x")]
     scores = _score_ports(ports)
     tb = lambda role: f"tb_{by_role[role][0]}"
-    input_regs = [f"  reg {_range(w)}tb_{n};" for i, n, d, w, s in ports
-                  if d == "input" and i not in ("clk", "rst")]
-    output_wires = [f"  wire {_range(w)}tb_{n};" for i, n, d, w, s in ports if d == "output"]
+    input_regs = [f"  reg {_range(port.width)}tb_{port.name};" for port in ports
+                  if port.direction == "input" and port.internal not in ("clk", "rst")]
+    output_wires = [f"  wire {_range(port.width)}tb_{port.name};" for port in ports
+                    if port.direction == "output"]
     connections = []
     for internal, name, direction, width, signed in ports:
         signal = {"clk": "clk", "rst": "rst"}.get(internal, f"tb_{name}")

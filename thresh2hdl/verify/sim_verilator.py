@@ -76,7 +76,7 @@ def wrapper_name(module):
 def code_type(ports):
     """The C++ type of one code in the vector file: the narrowest of 16, 32 and 64 bits that
     holds every input port (a serial ``sample`` can be 33 bits)."""
-    widest = max(width for internal, _, _, width, _ in ports if internal.startswith("x"))
+    widest = max(port.width for port in ports if port.internal.startswith("x"))
     return "int16_t" if widest <= 16 else "int32_t" if widest <= 32 else "int64_t"
 
 
@@ -111,8 +111,8 @@ def control_words(ports):
 
 
 def harness_text(ports, module):
-    by_role = {internal: (name, width) for internal, name, _, width, _ in ports}
-    features = [(name, width) for internal, name, _, width, _ in ports if internal.startswith("x")]
+    by_role = {port.internal: (port.name, port.width) for port in ports}
+    features = [(port.name, port.width) for port in ports if port.internal.startswith("x")]
     lines = []
     for index, (name, width) in enumerate(features):
         if width > 32:
@@ -126,7 +126,7 @@ def harness_text(ports, module):
         rst = by_role["rst"][0]
         reset = (f"    top.{rst} = 1;\n    top.{by_role['in_valid'][0]} = 0;\n    edge();\n"
                  f"    top.{rst} = 0;")
-    scores = [name for internal, name, _, _, _ in ports if internal.startswith("score")]
+    scores = [port.name for port in ports if port.internal.startswith("score")]
     writes = []
     if "weight_write" in by_role:
         data_name, data_width = by_role["weight_data"]
@@ -199,7 +199,7 @@ def compiled_harness(verilog_text, ports, module, *, progress=None):
 
 def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
     """Run ``stimulus`` through the emitted Verilog in Verilator; record every cycle."""
-    score_widths = [w for i, _, _, w, _ in ports if i.startswith("score")]
+    score_widths = [port.width for port in ports if port.internal.startswith("score")]
     if score_widths and max(score_widths) > 64:
         raise ToolError(f"the Verilator harness reads scores of up to 64 bits, this one has "
                         f"{max(score_widths)}; use --simulator icarus")
@@ -218,7 +218,7 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
     control[:, 1] = stimulus.out_ready
     control[:, 2] = stimulus.in_index
     if control.shape[1] > 3:
-        data_width = next(w for i, _, _, w, _ in ports if i == "weight_data")
+        data_width = next(port.width for port in ports if port.internal == "weight_data")
         if data_width > 64:
             raise ToolError(f"the Verilator harness writes weights of up to 64 bits, this "
                             f"port has {data_width}; use --simulator icarus")
