@@ -15,7 +15,7 @@ import numpy as np
 from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.cost.estimate import estimate_cost
 from thresh2hdl.model.records import FeatureFormat, Model, Unit
-from thresh2hdl.analysis.ranges import analyse
+from thresh2hdl.analysis import analyse
 from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 

@@ -16,7 +16,7 @@ from thresh2hdl.errors import InputError
 from thresh2hdl.app.flow import BuildOptions
 from thresh2hdl.verify.runner import run_simulator
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.analysis.ranges import analyse_bank
+from thresh2hdl.analysis import analyse_bank
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.reports.report import argmax_report, node_table
 from thresh2hdl.verify.stimulus import make_stimulus

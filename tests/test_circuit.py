@@ -10,7 +10,7 @@ from helpers import make_model, check_design
 from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
 from thresh2hdl.errors import InputError
 from thresh2hdl.model.records import PortNames
-from thresh2hdl.analysis.ranges import analyse
+from thresh2hdl.analysis import analyse
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.verify.sim_amaranth import simulate_amaranth
 from thresh2hdl.verify.stimulus import make_stimulus

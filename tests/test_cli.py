@@ -9,7 +9,7 @@ import pytest
 from helpers import require_tool, run, assert_one_line_error
 from thresh2hdl.app.flow import demo_model
 from thresh2hdl.model.records import model_to_toml
-from thresh2hdl.analysis.ranges import signed_bits
+from thresh2hdl.analysis import signed_bits
 
 EXAMPLE = Path(__file__).parents[1] / "examples" / "pump_vibration" / "pump_fault.toml"
 

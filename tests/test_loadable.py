@@ -16,7 +16,7 @@ from thresh2hdl.hardware.circuit import UnitConfig, make_component, weight_addre
 from thresh2hdl.errors import InputError
 from thresh2hdl.verify.runner import first_stimulus, run_simulator
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.analysis.ranges import analyse, analyse_bank, bit_growth_bound
+from thresh2hdl.analysis import analyse, analyse_bank, bit_growth_bound
 from thresh2hdl.verify.vectors import make_vectors
 from thresh2hdl.emit.verilog import port_table
 

@@ -6,8 +6,8 @@ from hypothesis import given, settings, strategies as st
 
 from helpers import make_model
 from thresh2hdl.errors import InputError
-from thresh2hdl.analysis.ranges import (analyse, bit_growth_bound, signed_bits, unsigned_bits,
-                                        value_bits)
+from thresh2hdl.analysis import (ARCHITECTURES, analyse, analyse_bank, bit_growth_bound,
+                                 check_architecture, signed_bits, unsigned_bits, value_bits)
 
 
 def twos_complement_bits(value):
@@ -150,3 +150,27 @@ def test_score_limit_is_refused():
     huge = make_model([1], bias=(1 << 127) - 1, bits=32, signed=True)
     with pytest.raises(InputError, match="limit of 128"):
         analyse(huge)
+
+
+def test_one_checker_names_the_architectures_and_the_callers_field():
+    assert [check_architecture(arch) for arch in ARCHITECTURES] == list(ARCHITECTURES)
+    with pytest.raises(InputError, match="must be one of tree, shiftadd, serial, not 'mac'") as error:
+        check_architecture("mac", field="--arch")
+    assert error.value.field == "--arch"
+    model = make_model([3, -2], 0)
+    for plan in (analyse, analyse_bank):
+        with pytest.raises(InputError) as error:
+            plan(model, arch="mac")
+        assert error.value.field == "arch"
+
+
+def test_loadable_refusals_name_the_analysis_parameters_not_options():
+    # Library calls: the field is analyse's own parameter, as a library user wrote it.
+    model = make_model([3, -2], 0)
+    with pytest.raises(InputError, match="use arch tree or serial") as error:
+        analyse(model, arch="shiftadd", weight_range=(-8, 7), bias_range=(-8, 7))
+    assert error.value.field == "weight_range"
+    wide = make_model([1, 1], bits=32, signed=True)
+    with pytest.raises(InputError, match="limit of 128") as error:
+        analyse(wide, weight_range=(-(1 << 100), 1 << 100), bias_range=(0, 0))
+    assert error.value.field == "weight_range"

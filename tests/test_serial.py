@@ -15,7 +15,7 @@ from thresh2hdl.hardware.circuit import SerialThreshold, UnitConfig, make_compon
 from thresh2hdl.errors import InputError
 from thresh2hdl.verify.runner import run_simulator
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.analysis.ranges import analyse, bit_growth_bound, prefix_ranges
+from thresh2hdl.analysis import analyse, bit_growth_bound, prefix_ranges
 from thresh2hdl.verify.reference import ReferenceModel, cycle_model
 from thresh2hdl.verify.stimulus import make_stimulus
 from thresh2hdl.verify.vectors import make_vectors

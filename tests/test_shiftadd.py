@@ -7,7 +7,7 @@ from hypothesis import given, settings, strategies as st
 
 from helpers import make_model, check_design
 from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
-from thresh2hdl.analysis.ranges import analyse, csd_digits
+from thresh2hdl.analysis import analyse, csd_digits
 from thresh2hdl.emit.verilog import emit_verilog
 
 # OEIS A007302: number of nonzero digits in the non-adjacent form (canonical signed digits)

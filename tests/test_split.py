@@ -11,7 +11,7 @@ from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError
 from thresh2hdl.verify.runner import run_simulator
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
-from thresh2hdl.analysis.ranges import analyse
+from thresh2hdl.analysis import analyse
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.reports.html import report_markdown
 from thresh2hdl.verify.stimulus import make_stimulus

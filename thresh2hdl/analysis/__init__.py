@@ -1,7 +1,19 @@
-"""Ranges and widths: one plan per architecture, and the input guard."""
+"""Ranges and widths: one plan per architecture, the records they give, and the input guard.
 
-from .guard import guard_words, resolve_guard
-from .ranges import ARCHITECTURES, Analysis, analyse, analyse_bank, signed_bits, value_bits
+``analyse`` plans one unit (:mod:`.plan` picks :mod:`.tree`, :mod:`.serial` or :mod:`.loadable`),
+``analyse_bank`` a bank (:mod:`.bank`); every plan is an :class:`Analysis` of :class:`Node`
+records (:mod:`.records`), sized with :mod:`.widths` over the exact ranges of :mod:`.intervals`.
+"""
 
-__all__ = ["guard_words", "resolve_guard", "ARCHITECTURES", "Analysis", "analyse", "analyse_bank",
-           "signed_bits", "value_bits"]
+from .bank import BankPlan, analyse_bank
+from .guard import InputGuard, guard_words, resolve_guard
+from .intervals import prefix_ranges
+from .plan import analyse
+from .records import ARCHITECTURES, SERIAL_NODES, Analysis, Node, check_architecture
+from .widths import (MAX_SCORE_BITS, bit_growth_bound, csd_digits, signed_bits, unsigned_bits,
+                     value_bits)
+
+__all__ = ["ARCHITECTURES", "SERIAL_NODES", "MAX_SCORE_BITS", "check_architecture", "Analysis",
+           "Node", "BankPlan", "analyse", "analyse_bank", "prefix_ranges", "csd_digits",
+           "signed_bits", "unsigned_bits", "value_bits", "bit_growth_bound", "InputGuard",
+           "guard_words", "resolve_guard"]

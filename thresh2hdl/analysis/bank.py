@@ -1,0 +1,74 @@
+"""The bank plan: several units sharing the inputs, decided by the argmax of their scores.
+
+Each unit is planned on its own (:func:`~.plan.analyse`); the bank adds the argmax's
+comparison levels after the scores and the width of the class index.
+"""
+
+from dataclasses import dataclass
+
+from ..errors import InputError
+from .plan import analyse
+
+__all__ = ["BankPlan", "analyse_bank"]
+
+
+@dataclass(frozen=True)
+class BankPlan:
+    """Several units sharing the inputs; the decision is the argmax of their scores."""
+
+    units: tuple          # one Analysis per unit
+    class_bits: int       # width of the class index
+    argmax_levels: int
+
+    @property
+    def tree_levels(self):
+        return max(unit.tree_levels for unit in self.units)
+
+    @property
+    def score_level(self):
+        """Level of the bias adders, common to every unit."""
+        return self.tree_levels + 1
+
+    @property
+    def final_level(self):
+        return self.score_level + self.argmax_levels
+
+    @property
+    def levels(self):
+        """As :attr:`Analysis.levels`, with the argmax's comparison levels after the scores."""
+        return 1 if self.units[0].arch == "serial" else self.final_level + 1
+
+    def tournament(self, scores, merge):
+        """The argmax as planned: neighbours compared level by level, the lower index on the
+        left (it wins ties), an odd last entry carried up unpaired. ``merge(level, tag, left,
+        right)`` makes the winner entry of two; returns the final entry."""
+        layer, level = list(scores), self.score_level
+        while len(layer) > 1:
+            level += 1
+            merged = [merge(level, f"best{level - self.score_level}_{k // 2}", layer[k],
+                            layer[k + 1]) for k in range(0, len(layer) - 1, 2)]
+            if len(layer) % 2:
+                merged.append(layer[-1])
+            layer = merged
+        return layer[0]
+
+
+def analyse_bank(model, *, score_bits=None, arch="tree", weight_range=None, bias_range=None):
+    """Analyse every unit of a bank; ``score_bits`` (if given) is the width of every score port."""
+    if score_bits is None:
+        score_bits = model.score_bits
+    units = []
+    loadable = {"weight_range": weight_range, "bias_range": bias_range}
+    for index in range(len(model.units)):
+        own = analyse(model, arch=arch, unit_index=index, **loadable)
+        if score_bits is not None:
+            if score_bits < own.score_bits_min:
+                raise InputError(f"score_bits {score_bits} cannot hold the score range "
+                                 f"{list(own.score_range)} of unit {model.units[index].name}; "
+                                 f"it needs at least {own.score_bits_min}", field="score_bits")
+            own = analyse(model, arch=arch, unit_index=index, score_bits=score_bits,
+                          **loadable)
+        units.append(own)
+    count = len(units)
+    return BankPlan(units=tuple(units), class_bits=max(1, (count - 1).bit_length()),
+                    argmax_levels=(count - 1).bit_length())
