@@ -8,7 +8,7 @@ import pytest
 
 from helpers import require_tool, run, assert_one_line_error
 from thresh2hdl.app.flow import demo_model
-from thresh2hdl.model.records import model_to_toml
+from thresh2hdl.model import model_to_toml
 from thresh2hdl.analysis import signed_bits
 
 EXAMPLE = Path(__file__).parents[1] / "examples" / "pump_vibration" / "pump_fault.toml"
@@ -84,7 +84,7 @@ def test_levels_are_one_count_and_full_registers_every_level(tmp_path):
 
 
 def test_example_file_is_the_embedded_scenario():
-    from thresh2hdl.model.records import load_model
+    from thresh2hdl.model import load_model
     assert load_model(EXAMPLE) == demo_model()
 
 

@@ -14,11 +14,11 @@ import numpy as np
 import pytest
 
 import thresh2hdl
-from thresh2hdl.model import records as model_module
+from thresh2hdl.model import file as model_file
 from thresh2hdl.verify import reference
 from thresh2hdl.app.fit import fit_csv, quantize_npz
 from thresh2hdl.app.flow import BuildOptions, build
-from thresh2hdl.model.records import PortNames, parse_features, parse_model
+from thresh2hdl.model import PortNames, parse_features, parse_model
 from thresh2hdl.train.perceptron import FitLog, FitOptions
 
 ROOT = Path(__file__).parents[1]
@@ -45,11 +45,11 @@ def test_the_documented_model_is_valid_and_uses_every_key_the_parser_accepts():
     # table the parser accepts, so that a key added to the parser without docs fails here.
     example = tomllib.loads(code_blocks(DOC, "toml")[0])
     parse_model(example, source="docs/model-format.md")
-    assert set(example) == model_module._TOP_KEYS
-    assert set(example["module"]) == model_module._MODULE_KEYS
+    assert set(example) == model_file._TOP_KEYS
+    assert set(example["module"]) == model_file._MODULE_KEYS
     assert set(example["module"]["ports"]) == {f.name for f in fields(PortNames)}
-    assert set().union(*example["feature"]) == model_module._FEATURE_KEYS
-    assert set().union(*example["unit"]) == model_module._UNIT_KEYS
+    assert set().union(*example["feature"]) == model_file._FEATURE_KEYS
+    assert set().union(*example["unit"]) == model_file._UNIT_KEYS
     # The formats file of `fit --formats` is the next block: [[feature]] tables only.
     formats = tomllib.loads(code_blocks(DOC, "toml")[1])
     assert set(formats) == {"feature"}

@@ -103,7 +103,7 @@ def test_quantize_folds_exactly_representable_weights(tmp_path):
     result = run("quantize", npz, "--bits", "4", "--out", model)
     assert result.returncode == 0, result.stderr
     assert "agreement with the float model 1.0000" in result.stdout
-    from thresh2hdl.model.records import load_model
+    from thresh2hdl.model import load_model
     unit = load_model(model).unit
     grid = np.array(np.meshgrid(*[range(16)] * 3)).reshape(3, -1).T
     folded = grid @ np.array([0.125, -0.5, 0.25]) + 1.1
@@ -173,7 +173,7 @@ def test_fit_defaults_say_what_they_chose_and_keep_weights_narrow(tmp_path):
     assert result.returncode == 0 and result.stderr == "", result.stderr
     assert "kept the pocket weights (default" in result.stdout
     assert "brought into the default budget of 12 bits" in result.stdout
-    from thresh2hdl.model.records import load_model
+    from thresh2hdl.model import load_model
     assert max(abs(w) for w in load_model(model).unit.weights) < 1 << 11
     log = json.loads((tmp_path / "m.fit.json").read_text())
     assert log["weight_budget_bits"] == 12 < log["full_precision_weight_bits"]

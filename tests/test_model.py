@@ -2,7 +2,7 @@ import pytest
 
 from thresh2hdl.errors import InputError
 from thresh2hdl.app.flow import demo_model
-from thresh2hdl.model.records import load_model, model_to_toml, parse_model
+from thresh2hdl.model import load_model, model_to_toml, parse_model
 from thresh2hdl.names import VERILOG_KEYWORDS, check_identifier
 
 GOOD = """
@@ -118,3 +118,24 @@ def test_identifier_rules():
 def test_parse_model_rejects_wrong_top_level_type():
     with pytest.raises(InputError, match="must be a table"):
         parse_model({"model_format": 1, "module": 3, "feature": [], "unit": []})
+
+
+def test_model_errors_name_fields_not_options(tmp_path):
+    model = load_model(write(tmp_path, GOOD))
+    for change, field in ((lambda: model.with_module("wire"), "module"),
+                          (lambda: model.with_score_bits(500), "score_bits")):
+        with pytest.raises(InputError) as info:
+            change()
+        assert info.value.field == field and "--" not in str(info.value)
+    assert model.with_module("trig2").module == "trig2"
+    assert model.with_score_bits(24).score_bits == 24
+
+
+def test_a_bank_has_no_single_unit_and_says_where_its_units_are(tmp_path):
+    bank = load_model(write(tmp_path, GOOD + "[[unit]]\nweights = [1, 1]\n"))
+    assert bank.is_bank and len(bank.units) == 2
+    with pytest.raises(InputError) as info:
+        bank.unit
+    message = str(info.value)
+    assert info.value.field == "unit" and "bank of 2 units" in message
+    assert "units[0] to units[1]" in message and "not supported" not in message

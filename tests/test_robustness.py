@@ -16,8 +16,7 @@ from thresh2hdl.app.cli import main
 from thresh2hdl.model.data import read_csv
 from thresh2hdl.errors import InputError
 from thresh2hdl.app.flow import BuildOptions, build, demo_model
-from thresh2hdl.model.records import (FeatureFormat, Model, Unit, load_model, model_to_toml,
-                                      parse_model)
+from thresh2hdl.model import FeatureFormat, Model, Unit, load_model, model_to_toml, parse_model
 from thresh2hdl.train.quantize import load_float_model
 
 GOOD_MODEL = model_to_toml(demo_model())

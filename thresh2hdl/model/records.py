@@ -1,22 +1,18 @@
-"""The model description file: a versioned TOML schema, loaded once into frozen dataclasses.
+"""The model's records: frozen dataclasses that validate themselves, whatever made them.
 
 Everything downstream (range analysis, circuit, reference model, report) reads these objects and
-never the file, so a model is validated in exactly one place. The schema is documented in
-``docs/model-format.md``.
+never the file, so a model is validated in exactly one place, whether it was read from a file
+(:mod:`.file`), trained or built in Python.
 """
 
 from dataclasses import dataclass, field, replace
-from pathlib import Path
 
-from .. import readers
 from ..errors import InputError
 from ..names import check_identifier
 
-__all__ = ["MODEL_FORMAT", "MAX_FEATURES", "MAX_UNITS", "MAX_INPUT_BITS", "MAX_WEIGHT_BITS",
-           "MAX_BIAS_BITS", "FeatureFormat", "Unit", "PortNames", "Model", "load_model",
-           "parse_model", "parse_features", "load_toml", "model_to_toml"]
+__all__ = ["MAX_FEATURES", "MAX_UNITS", "MAX_INPUT_BITS", "MAX_WEIGHT_BITS", "MAX_BIAS_BITS",
+           "OPTIONAL_PORTS", "FeatureFormat", "Unit", "PortNames", "Model", "is_int"]
 
-MODEL_FORMAT = 1
 MAX_FEATURES = 4096
 MAX_UNITS = 256
 MAX_INPUT_BITS = 32
@@ -24,7 +20,8 @@ MAX_WEIGHT_BITS = 32
 MAX_BIAS_BITS = 127
 
 
-def _is_int(value):
+def is_int(value):
+    """An integer and not a bool (TOML's true and false are bools, which Python counts as ints)."""
     return isinstance(value, int) and not isinstance(value, bool)
 
 
@@ -48,7 +45,7 @@ class FeatureFormat:
 
     def __post_init__(self):
         check_identifier(self.name, "feature name")
-        if not _is_int(self.bits) or not 1 <= self.bits <= MAX_INPUT_BITS:
+        if not is_int(self.bits) or not 1 <= self.bits <= MAX_INPUT_BITS:
             raise ValueError(f"bits must be an integer from 1 to {MAX_INPUT_BITS}, "
                              f"not {self.bits!r}")
         if not isinstance(self.signed, bool):
@@ -58,7 +55,7 @@ class FeatureFormat:
             value = getattr(self, key)
             if value is None:
                 object.__setattr__(self, key, code_lo if key == "min" else code_hi)
-            elif not _is_int(value):
+            elif not is_int(value):
                 raise ValueError(f"{key} must be an integer, not {value!r}")
             elif not code_lo <= value <= code_hi:
                 kind = "signed" if self.signed else "unsigned"
@@ -93,12 +90,12 @@ class Unit:
         object.__setattr__(self, "weights", tuple(self.weights))
         lo, hi = _signed_range(MAX_WEIGHT_BITS)
         for index, weight in enumerate(self.weights):
-            if not _is_int(weight):
+            if not is_int(weight):
                 raise ValueError(f"weights[{index}] must be an integer, not {weight!r}")
             if not lo <= weight <= hi:
                 raise ValueError(f"weights[{index}] = {weight} does not fit in "
                                  f"{MAX_WEIGHT_BITS}-bit signed range [{lo}, {hi}]")
-        if not _is_int(self.bias):
+        if not is_int(self.bias):
             raise ValueError(f"bias must be an integer, not {self.bias!r}")
         lo, hi = _signed_range(MAX_BIAS_BITS + 1)
         if not lo <= self.bias <= hi:
@@ -166,7 +163,7 @@ class Model:
                            if self.class_labels is not None else None)
         if self.class_labels is not None:
             wanted = 2 if len(self.units) == 1 else len(self.units)
-            if len(self.class_labels) != wanted or not all(_is_int(v) for v in self.class_labels):
+            if len(self.class_labels) != wanted or not all(is_int(v) for v in self.class_labels):
                 raise ValueError(f"class_labels must be {wanted} integers (for one unit: the "
                                  f"label of decision 0, then of decision 1; for a bank: one per "
                                  f"unit), not {list(self.class_labels)!r}")
@@ -176,7 +173,7 @@ class Model:
             if len(unit.weights) != len(self.features):
                 raise ValueError(f"unit[{index}] has {len(unit.weights)} weights but the model "
                                  f"declares {len(self.features)} features")
-        if self.score_bits is not None and (not _is_int(self.score_bits)
+        if self.score_bits is not None and (not is_int(self.score_bits)
                                             or not 1 <= self.score_bits <= 128):
             raise ValueError(f"score_bits must be an integer from 1 to 128, "
                              f"not {self.score_bits!r}")
@@ -215,7 +212,7 @@ class Model:
         for key in keys:
             value = getattr(self.ports, key)
             if value in taken:
-                hint = " (or build with --no-range-flag)" if key == "out_of_range" else ""
+                hint = " (or build without the out-of-range flag)" if key == "out_of_range" else ""
                 raise InputError(f"port name {value!r} of {OPTIONAL_PORTS[key]} clashes with "
                                  f"{taken[value]}; rename one of them in [module.ports]{hint}",
                                  field=f"module.ports.{key}")
@@ -237,8 +234,9 @@ class Model:
     def unit(self):
         """The single unit of a one-unit model."""
         if self.is_bank:
-            raise InputError(f"this is a bank of {len(self.units)} units; building banks is not "
-                             f"supported yet (one [[unit]] per model for now)", field="unit")
+            raise InputError(f"this model is a bank of {len(self.units)} units decided by argmax, "
+                             f"so it has no single unit; read units[0] to "
+                             f"units[{len(self.units) - 1}] instead", field="unit")
         return self.units[0]
 
     @property
@@ -246,156 +244,15 @@ class Model:
         return tuple(feature.feature_range for feature in self.features)
 
     def with_module(self, name):
-        """A copy with another module name (the ``--module`` option)."""
+        """A copy with another module name; a bad name is refused as the field ``module``."""
         try:
             return replace(self, module=name)
         except ValueError as error:
-            raise InputError(str(error), field="--module") from None
+            raise InputError(str(error), field="module") from None
 
     def with_score_bits(self, bits):
+        """A copy with another score port width; a bad one is refused as ``score_bits``."""
         try:
             return replace(self, score_bits=bits)
         except ValueError as error:
-            raise InputError(str(error), field="--score-bits") from None
-
-
-_TOP_KEYS = {"model_format", "module", "feature", "unit", "class_labels"}
-_MODULE_KEYS = {"name", "score_bits", "ports"}
-_FEATURE_KEYS = {"name", "bits", "signed", "min", "max"}
-_UNIT_KEYS = {"name", "weights", "bias"}
-
-
-def _check_keys(table, allowed, source, where):
-    if not isinstance(table, dict):
-        raise InputError(f"must be a table, not {type(table).__name__}", source=source, field=where)
-    unknown = sorted(set(table) - allowed)
-    if unknown:
-        raise InputError(f"unknown key {unknown[0]!r}; allowed keys are "
-                         f"{', '.join(sorted(allowed))}", source=source, field=where)
-
-
-def _build(factory, kwargs, source, where):
-    try:
-        return factory(**kwargs)
-    except ValueError as error:
-        raise InputError(str(error), source=source, field=where) from None
-
-
-def parse_features(features_data, *, source):
-    """The ``[[feature]]`` tables of a model (or input-formats) file, validated."""
-    if not isinstance(features_data, list) or not features_data:
-        raise InputError("missing [[feature]] tables; declare one per input", source=source,
-                         field="feature")
-    features = []
-    for index, table in enumerate(features_data):
-        where = f"feature[{index}]"
-        _check_keys(table, _FEATURE_KEYS, source, where)
-        if "bits" not in table:
-            raise InputError("missing key 'bits'", source=source, field=where)
-        kwargs = dict(table)
-        kwargs.setdefault("name", f"x{index}")
-        features.append(_build(FeatureFormat, kwargs, source, where))
-    seen = {}
-    for index, feature in enumerate(features):
-        if feature.name in seen:
-            raise InputError(f"name {feature.name!r} is already used by feature[{seen[feature.name]}]",
-                             source=source, field=f"feature[{index}]")
-        seen[feature.name] = index
-
-    return tuple(features)
-
-
-def parse_model(data, *, source="<model>"):
-    """Validate a model given as a parsed TOML document (a dict) and return a :class:`Model`."""
-    _check_keys(data, _TOP_KEYS, source, "top level")
-    if "model_format" not in data:
-        raise InputError(f"missing key 'model_format'; add 'model_format = {MODEL_FORMAT}' at "
-                         f"the top", source=source)
-    if data["model_format"] != MODEL_FORMAT or not _is_int(data["model_format"]):
-        raise InputError(f"this version reads model_format {MODEL_FORMAT}, not "
-                         f"{data['model_format']!r}", source=source, field="model_format")
-
-    module = data.get("module", {})
-    _check_keys(module, _MODULE_KEYS, source, "module")
-    ports_table = module.get("ports", {})
-    _check_keys(ports_table, set(PortNames.__dataclass_fields__), source, "module.ports")
-    ports = _build(PortNames, ports_table, source, "module.ports")
-
-    features = parse_features(data.get("feature"), source=source)
-
-    units_data = data.get("unit")
-    if not isinstance(units_data, list) or not units_data:
-        raise InputError("missing [[unit]] table with weights and bias", source=source,
-                         field="unit")
-    units = []
-    for index, table in enumerate(units_data):
-        where = f"unit[{index}]"
-        _check_keys(table, _UNIT_KEYS, source, where)
-        if "weights" not in table:
-            raise InputError("missing key 'weights'", source=source, field=where)
-        if not isinstance(table["weights"], list):
-            raise InputError("weights must be an array of integers", source=source,
-                             field=f"{where}.weights")
-        kwargs = dict(table)
-        kwargs.setdefault("name", "unit" if len(units_data) == 1 else f"unit{index}")
-        units.append(_build(Unit, kwargs, source, where))
-
-    labels = data.get("class_labels")
-    if labels is not None and not isinstance(labels, list):
-        raise InputError("class_labels must be an array of integers", source=source,
-                         field="class_labels")
-    kwargs = dict(module=module.get("name", "thresh_unit"), features=features, units=units,
-                  ports=ports, score_bits=module.get("score_bits"), class_labels=labels)
-    return _build(Model, kwargs, source, "module")
-
-
-def load_toml(path, what="model file"):
-    """Read a TOML file; a missing, unreadable, malformed or too deeply nested file, or one
-    holding a number no field can hold, is one :class:`InputError` (see :mod:`.readers`)."""
-    return readers.load_toml(path, what)
-
-
-def load_model(path):
-    """Read and validate a model file; every problem is an :class:`InputError` naming the field."""
-    return parse_model(load_toml(path), source=Path(path))
-
-
-def _toml_value(value):
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, str):
-        return '"' + value.replace("\\", "\\\\").replace('"', '\\"') + '"'
-    if isinstance(value, (list, tuple)):
-        return "[" + ", ".join(_toml_value(item) for item in value) + "]"
-    raise TypeError(f"cannot write {value!r} as TOML")
-
-
-def model_to_toml(model, *, comment=None):
-    """Write a model in the file format, so that ``parse_model`` reads back an equal model."""
-    lines = []
-    if comment:
-        lines += [f"# {line}".rstrip() for line in comment.splitlines()]
-    lines += [f"model_format = {MODEL_FORMAT}"]
-    if model.class_labels is not None:
-        lines.append(f"class_labels = {_toml_value(model.class_labels)}")
-    lines += ["", "[module]",
-              f"name = {_toml_value(model.module)}"]
-    if model.score_bits is not None:
-        lines.append(f"score_bits = {model.score_bits}")
-    defaults = PortNames()
-    changed = {key: value for key, value in model.ports.__dict__.items()
-               if getattr(defaults, key) != value}
-    if changed:
-        lines += ["", "[module.ports]"]
-        lines += [f"{key} = {_toml_value(value)}" for key, value in changed.items()]
-    for feature in model.features:
-        lines += ["", "[[feature]]", f"name = {_toml_value(feature.name)}",
-                  f"bits = {feature.bits}", f"signed = {_toml_value(feature.signed)}"]
-        if feature.feature_range != feature.code_range:
-            lines += [f"min = {feature.min}", f"max = {feature.max}"]
-    for unit in model.units:
-        lines += ["", "[[unit]]", f"name = {_toml_value(unit.name)}",
-                  f"weights = {_toml_value(unit.weights)}", f"bias = {unit.bias}"]
-    return "\n".join(lines) + "\n"
+            raise InputError(str(error), field="score_bits") from None
