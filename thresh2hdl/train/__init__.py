@@ -1,7 +1,16 @@
-"""Training and quantization of threshold units."""
+"""Making integer models: perceptron training on raw codes (:mod:`.perceptron`), and bringing a
+real-valued model's weights into a bit budget while keeping its decisions (:mod:`.quantize`).
 
-from .perceptron import DEFAULT_MAX_WEIGHT_BITS, FitOptions, choice_lines, class_unit_name, fit
-from .quantize import decide, fold_normalisation, load_float_model, to_integer_weights
+Both give :class:`~thresh2hdl.model.Model` records; reading data and writing model files is the
+app's (:mod:`thresh2hdl.app.fit`).
+"""
 
-__all__ = ["DEFAULT_MAX_WEIGHT_BITS", "FitOptions", "choice_lines", "class_unit_name", "fit",
-           "decide", "fold_normalisation", "load_float_model", "to_integer_weights"]
+from .perceptron import (DEFAULT_MAX_WEIGHT_BITS, KEEP, RULES, FitLog, FitOptions, accuracy,
+                         choice_lines, class_unit_name, fit, predict, train_unit, weight_width)
+from .quantize import (FLOAT_ARRAYS, FloatModel, IntegerWeights, decide, fold_normalisation,
+                       load_float_model, to_integer_weights)
+
+__all__ = ["DEFAULT_MAX_WEIGHT_BITS", "KEEP", "RULES", "FitLog", "FitOptions", "accuracy",
+           "choice_lines", "class_unit_name", "fit", "predict", "train_unit", "weight_width",
+           "FLOAT_ARRAYS", "FloatModel", "IntegerWeights", "decide", "fold_normalisation",
+           "load_float_model", "to_integer_weights"]

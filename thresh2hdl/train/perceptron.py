@@ -18,7 +18,7 @@ from ..names import check_identifier
 from .quantize import to_integer_weights
 
 __all__ = ["FitOptions", "FitLog", "train_unit", "fit", "choice_lines", "weight_width", "RULES",
-           "KEEP", "DEFAULT_MAX_WEIGHT_BITS"]
+           "KEEP", "DEFAULT_MAX_WEIGHT_BITS", "class_unit_name", "predict", "accuracy"]
 
 RULES = ("classic", "symmetric")
 KEEP = ("last", "pocket", "averaged")
@@ -84,6 +84,8 @@ class FitOptions:
 
 @dataclass
 class FitLog:
+    """What training did, for the fit log (``as_dict``) and the command's summary."""
+
     mistakes_per_epoch: list = field(default_factory=list)   # per unit: list of counts
     train_accuracy: float | None = None
     holdout_accuracy: float | None = None
@@ -221,8 +223,52 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
         check_identifier(module, "module name")
     except ValueError as error:
         raise InputError(str(error), field="--module") from None
-    x, labels = dataset.x, dataset.labels
-    classes = dataset.classes
+    formats = _checked_formats(dataset, formats, log)
+    x, labels, classes = dataset.x, dataset.labels, dataset.classes
+    train_idx, held_idx = _holdout_split(dataset, options)
+
+    centre = np.array([(f.min + f.max) // 2 for f in formats], dtype=np.int64) \
+        if options.centre else np.zeros(len(formats), dtype=np.int64)
+    scale = options.bias_input or max(1, max((f.max - f.min + 1) // 2 for f in formats))
+    a = np.hstack([x - centre, np.full((len(x), 1), scale, dtype=np.int64)])
+
+    unit_classes = [classes[1]] if len(classes) == 2 else list(classes)
+    weights, biases = [], []
+    for k, positive in enumerate(unit_classes):
+        w, mistakes, _ = train_unit(a[train_idx], labels[train_idx] == positive, options,
+                                    np.random.default_rng([options.seed, k]))
+        log.mistakes_per_epoch.append(mistakes)
+        log.epochs_run.append(len(mistakes))
+        weights.append(w[:-1])
+        # Fold centring and the bias input into one integer bias on raw codes (exact).
+        biases.append(int(w[-1]) * int(scale) - int(w[:-1] @ centre))
+
+    log.full_precision_bits = weight_width(weights)
+    log.budget_bits = _weight_budget(options, log)
+    if log.budget_bits is not None:
+        weights, biases = _into_budget(weights, biases, log.budget_bits, x[train_idx],
+                                       labels[train_idx], unit_classes, options, centre)
+
+    labels_out = tuple(classes) if len(classes) > 2 else (classes[0], classes[1])
+    try:
+        units = [Unit(class_unit_name(c) if len(unit_classes) > 1 else "unit",
+                      tuple(int(v) for v in w), b)
+                 for c, w, b in zip(unit_classes, weights, biases)]
+        model = Model(module=module, features=formats, units=units, class_labels=labels_out)
+    except ValueError as error:    # weights past 32 bits, say: a budget keeps them narrow
+        raise InputError(f"the trained model is refused: {error}; a smaller --weight-bits "
+                         f"keeps the weights narrow", source=dataset.source) from None
+    log.weight_bits = weight_width(u.weights for u in model.units)
+    log.train_accuracy = accuracy(model, x[train_idx], labels[train_idx])
+    if len(held_idx):
+        log.holdout_accuracy = accuracy(model, x[held_idx], labels[held_idx])
+    return model, log
+
+
+def _checked_formats(dataset, formats, log):
+    """The dataset's classes and columns within a model's limits, and the input formats: the
+    given ones, checked against the data, or ones that fit the data (with a warning)."""
+    x, classes = dataset.x, dataset.classes
     if len(classes) < 2:
         raise InputError(f"has one class only ({classes[0] if classes else 'none'}); training "
                          f"needs at least two", source=dataset.source, field="label")
@@ -238,32 +284,25 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
         raise InputError(f"{len(formats)} input formats declared for {x.shape[1]} feature "
                          f"columns", source=dataset.source)
     check_ranges(dataset, formats)
+    return formats
 
+
+def _holdout_split(dataset, options):
+    """Row indices to train on and to hold out (``options.holdout`` of the rows, at random)."""
+    count = len(dataset.labels)
     rng = np.random.default_rng(options.seed)
-    order = rng.permutation(len(labels)) if options.holdout else np.arange(len(labels))
-    held = int(round(options.holdout * len(labels)))
-    train_idx, held_idx = order[: len(labels) - held], order[len(labels) - held:]
+    order = rng.permutation(count) if options.holdout else np.arange(count)
+    held = int(round(options.holdout * count))
+    train_idx, held_idx = order[: count - held], order[count - held:]
     if options.holdout and (held == 0 or len(train_idx) == 0):
         raise InputError("the held-out split leaves no rows on one side; use more data or "
                          "another --holdout", source=dataset.source)
+    return train_idx, held_idx
 
-    centre = np.array([(f.min + f.max) // 2 for f in formats], dtype=np.int64) \
-        if options.centre else np.zeros(len(formats), dtype=np.int64)
-    scale = options.bias_input or max(1, max((f.max - f.min + 1) // 2 for f in formats))
-    a = np.hstack([x - centre, np.full((len(x), 1), scale, dtype=np.int64)])
 
-    unit_classes = [classes[1]] if len(classes) == 2 else list(classes)
-    weights, biases = [], []
-    for k, positive in enumerate(unit_classes):
-        w, mistakes, _ = train_unit(a[train_idx], labels[train_idx] == positive, options,
-                                 np.random.default_rng([options.seed, k]))
-        log.mistakes_per_epoch.append(mistakes)
-        log.epochs_run.append(len(mistakes))
-        weights.append(w[:-1])
-        # Fold centring and the bias input into one integer bias on raw codes (exact).
-        biases.append(int(w[-1]) * int(scale) - int(w[:-1] @ centre))
-
-    log.full_precision_bits = weight_width(weights)
+def _weight_budget(options, log):
+    """The bit budget to bring the weights into (None: keep full precision), warning when
+    full precision is kept though wide."""
     budget = options.weight_bits
     if budget is None and options.max_weight_bits is not None and \
             log.full_precision_bits > options.max_weight_bits:
@@ -272,32 +311,19 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
         log.warnings.append(f"the weights need {log.full_precision_bits} bits at full precision, "
                             f"and every multiplier and adder grows with them; --weight-bits "
                             f"{DEFAULT_MAX_WEIGHT_BITS} or fewer keeps them narrow")
-    log.budget_bits = budget
-    if budget is not None:
-        # Into the bit budget, then go on training inside it (see FitOptions).
-        targets = labels[train_idx] == unit_classes[0] if len(unit_classes) == 1 else \
-            np.searchsorted(unit_classes, labels[train_idx])
-        budget = to_integer_weights(np.array(weights, dtype=np.float64),
-                                    np.array(biases, dtype=np.float64), budget,
-                                    x[train_idx], labels=targets.astype(np.int64),
-                                    refine_epochs=options.refine_epochs, seed=options.seed,
-                                    centre=centre)
-        weights, biases = list(budget.weights), [int(v) for v in budget.biases]
+    return budget
 
-    labels_out = tuple(classes) if len(classes) > 2 else (classes[0], classes[1])
-    try:
-        units = [Unit(class_unit_name(c) if len(unit_classes) > 1 else "unit",
-                      tuple(int(v) for v in w), b)
-                 for c, w, b in zip(unit_classes, weights, biases)]
-        model = Model(module=module, features=formats, units=units, class_labels=labels_out)
-    except ValueError as error:    # weights past 32 bits, say: a budget keeps them narrow
-        raise InputError(f"the trained model is refused: {error}; a smaller --weight-bits "
-                         f"keeps the weights narrow", source=dataset.source) from None
-    log.weight_bits = weight_width(u.weights for u in model.units)
-    log.train_accuracy = accuracy(model, x[train_idx], labels[train_idx])
-    if held:
-        log.holdout_accuracy = accuracy(model, x[held_idx], labels[held_idx])
-    return model, log
+
+def _into_budget(weights, biases, budget, x, labels, unit_classes, options, centre):
+    """Into the bit budget, then go on training inside it (see :class:`FitOptions`)."""
+    targets = labels == unit_classes[0] if len(unit_classes) == 1 else \
+        np.searchsorted(unit_classes, labels)
+    narrow = to_integer_weights(np.array(weights, dtype=np.float64),
+                                np.array(biases, dtype=np.float64), budget, x,
+                                labels=targets.astype(np.int64),
+                                refine_epochs=options.refine_epochs, seed=options.seed,
+                                centre=centre)
+    return list(narrow.weights), [int(v) for v in narrow.biases]
 
 
 def accuracy(model, x, labels):

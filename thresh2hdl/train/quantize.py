@@ -28,6 +28,8 @@ FLOAT_ARRAYS = ("coef", "intercept", "offset", "scale", "input_lo", "input_hi", 
 
 @dataclass(frozen=True)
 class FloatModel:
+    """A real-valued linear model as read from a float model's .npz, checked."""
+
     coef: np.ndarray        # (units, features)
     intercept: np.ndarray   # (units,)
     offset: np.ndarray      # (features,): the model saw (code - offset) / scale
@@ -39,9 +41,29 @@ class FloatModel:
 
 
 def load_float_model(path):
-    """Read ``coef``, ``intercept``, optional ``offset``/``scale``, ``input_lo``/``input_hi``."""
+    """Read ``coef``, ``intercept``, optional ``offset``/``scale``, ``input_lo``/``input_hi``
+    and optional ``classes``; every problem is one :class:`InputError` naming the array."""
     path = Path(path)
     source = str(path)
+    arrays = _read_arrays(path, source)
+    coef, intercept, offset, scale = _coefficients(arrays, source)
+    units, features = coef.shape
+    lo, hi = _input_ranges(arrays, features, source)
+    classes = _classes(arrays, units, source)
+    model = FloatModel(coef, intercept, offset, scale, lo.astype(np.int64), hi.astype(np.int64),
+                       source, classes)
+    with np.errstate(over="ignore", invalid="ignore"):
+        weights, bias = fold_normalisation(model)
+        reach = np.abs(weights) @ np.maximum(np.abs(lo), np.abs(hi)) + np.abs(bias)
+    if not np.all(np.isfinite(reach)):
+        raise InputError("the weights folded onto raw codes (coef / scale) give scores beyond "
+                         "double precision; rescale the float model", source=source, field="coef")
+    return model
+
+
+def _read_arrays(path, source):
+    """Every array of the archive, read without pickles; only :data:`FLOAT_ARRAYS`, and the
+    ones a model needs."""
     try:
         archive = np.load(path, allow_pickle=False)
     except FileNotFoundError:
@@ -64,19 +86,26 @@ def load_float_model(path):
     for name in ("coef", "intercept", "input_lo", "input_hi"):
         if name not in arrays:
             raise InputError(f"missing array {name!r}", source=source)
+    return arrays
 
-    def real(name, shape):
-        value = arrays[name]
-        if value.dtype.kind not in "iuf" or value.dtype == bool:
-            raise InputError(f"must hold numbers, not {value.dtype}", source=source, field=name)
-        value = value.astype(np.float64)
-        if value.shape != shape:
-            raise InputError(f"has shape {value.shape}, expected {shape}", source=source,
-                             field=name)
-        if not np.all(np.isfinite(value)):
-            raise InputError("holds NaN or infinity", source=source, field=name)
-        return value
 
+def _real(arrays, name, shape, source):
+    """Array ``name`` as finite float64 numbers of ``shape``."""
+    value = arrays[name]
+    if value.dtype.kind not in "iuf" or value.dtype == bool:
+        raise InputError(f"must hold numbers, not {value.dtype}", source=source, field=name)
+    value = value.astype(np.float64)
+    if value.shape != shape:
+        raise InputError(f"has shape {value.shape}, expected {shape}", source=source,
+                         field=name)
+    if not np.all(np.isfinite(value)):
+        raise InputError("holds NaN or infinity", source=source, field=name)
+    return value
+
+
+def _coefficients(arrays, source):
+    """``coef`` as (units, features) within the model's limits, ``intercept`` one per unit,
+    ``offset`` (default 0) and ``scale`` (default 1, positive) one per feature."""
     coef = arrays["coef"]
     if coef.ndim == 1:
         coef = coef.reshape(1, -1)
@@ -89,18 +118,26 @@ def load_float_model(path):
                          f"{MAX_UNITS} units of {MAX_FEATURES} features", source=source,
                          field="coef")
     arrays["coef"] = coef
-    coef = real("coef", (units, features))
-    intercept = real("intercept", (units,)) if np.ndim(arrays["intercept"]) else \
-        real("intercept", ()).reshape(1)
+    coef = _real(arrays, "coef", (units, features), source)
+    intercept = _real(arrays, "intercept", (units,), source) if np.ndim(arrays["intercept"]) \
+        else _real(arrays, "intercept", (), source).reshape(1)
     if intercept.shape != (units,):
         raise InputError(f"has {intercept.shape[0]} values for {units} units", source=source,
                          field="intercept")
-    offset = real("offset", (features,)) if "offset" in arrays else np.zeros(features)
-    scale = real("scale", (features,)) if "scale" in arrays else np.ones(features)
+    offset = _real(arrays, "offset", (features,), source) if "offset" in arrays \
+        else np.zeros(features)
+    scale = _real(arrays, "scale", (features,), source) if "scale" in arrays \
+        else np.ones(features)
     if np.any(scale <= 0):
         raise InputError(f"must be positive, not {scale[scale <= 0][0]}", source=source,
                          field="scale")
-    lo, hi = real("input_lo", (features,)), real("input_hi", (features,))
+    return coef, intercept, offset, scale
+
+
+def _input_ranges(arrays, features, source):
+    """``input_lo`` and ``input_hi``: integer codes of at most 32 bits, ``lo <= hi``."""
+    lo = _real(arrays, "input_lo", (features,), source)
+    hi = _real(arrays, "input_hi", (features,), source)
     for name, value in (("input_lo", lo), ("input_hi", hi)):
         if np.any(value != np.round(value)):
             raise InputError("must hold integer codes", source=source, field=name)
@@ -111,27 +148,24 @@ def load_float_model(path):
         j = int(np.flatnonzero(lo > hi)[0])
         raise InputError(f"input_lo[{j}] = {lo[j]:g} is above input_hi[{j}] = {hi[j]:g}",
                          source=source, field="input_lo")
-    classes = None
-    if "classes" in arrays:
-        values = arrays["classes"]
-        wanted = 2 if units == 1 else units
-        if values.dtype.kind not in "iu" or values.shape != (wanted,):
-            raise InputError(f"must be {wanted} integer labels (one unit: the labels of "
-                             f"decisions 0 and 1; a bank: one per unit)", source=source,
-                             field="classes")
-        classes = tuple(int(v) for v in values)
-        if len(set(classes)) != len(classes):
-            raise InputError(f"must be {wanted} different labels", source=source,
-                             field="classes")
-    model = FloatModel(coef, intercept, offset, scale, lo.astype(np.int64), hi.astype(np.int64),
-                       source, classes)
-    with np.errstate(over="ignore", invalid="ignore"):
-        weights, bias = fold_normalisation(model)
-        reach = np.abs(weights) @ np.maximum(np.abs(lo), np.abs(hi)) + np.abs(bias)
-    if not np.all(np.isfinite(reach)):
-        raise InputError("the weights folded onto raw codes (coef / scale) give scores beyond "
-                         "double precision; rescale the float model", source=source, field="coef")
-    return model
+    return lo, hi
+
+
+def _classes(arrays, units, source):
+    """The data label of each decision, if the archive has ``classes``, else None."""
+    if "classes" not in arrays:
+        return None
+    values = arrays["classes"]
+    wanted = 2 if units == 1 else units
+    if values.dtype.kind not in "iu" or values.shape != (wanted,):
+        raise InputError(f"must be {wanted} integer labels (one unit: the labels of "
+                         f"decisions 0 and 1; a bank: one per unit)", source=source,
+                         field="classes")
+    classes = tuple(int(v) for v in values)
+    if len(set(classes)) != len(classes):
+        raise InputError(f"must be {wanted} different labels", source=source,
+                         field="classes")
+    return classes
 
 
 def fold_normalisation(model):
@@ -151,6 +185,8 @@ def decide(scores):
 
 @dataclass(frozen=True)
 class IntegerWeights:
+    """Integer weights and biases inside a bit budget, and how they were chosen."""
+
     weights: np.ndarray     # (units, features) int64, each inside B-bit signed range
     biases: np.ndarray      # (units,) Python ints (object)
     scale: float            # the common (bank) or first unit's scale chosen
