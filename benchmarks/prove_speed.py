@@ -14,6 +14,7 @@ import argparse
 import numpy as np
 
 import thresh2hdl.proof.prover as prove_module
+import thresh2hdl.proof.solve as solve_module
 from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.model.records import FeatureFormat, Model, Unit
 from thresh2hdl.emit.verilog import emit_verilog, port_table
@@ -55,15 +56,15 @@ def main():
               f"{'' if ok else '  MISSED'}")
     print(f"solver {comb.solver}, {comb.yosys}")
     # Baseline: one query holding every lemma, as a single solver call would.
-    batch = prove_module.BATCH_LEMMAS
+    batch = solve_module.BATCH_LEMMAS
     for features, units in [(64, 1), (16, 10)]:
         model = model_of(features, units)
         batched = prove_time(model, 0)
-        prove_module.BATCH_LEMMAS = 10 ** 9
+        solve_module.BATCH_LEMMAS = 10 ** 9
         try:
             single = prove_time(model, 0, timeout_s=120)
         finally:
-            prove_module.BATCH_LEMMAS = batch
+            solve_module.BATCH_LEMMAS = batch
         print(f"baseline {features} x 12, {units} unit(s): one query {single.seconds:.1f} s "
               f"({single.status}), batches of {batch} {batched.seconds:.1f} s: "
               f"{single.seconds / batched.seconds:.1f}x")

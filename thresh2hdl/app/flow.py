@@ -434,7 +434,7 @@ def _prove_text(text, name, component, model, ports, *, timeout_s, simulator, pr
                "detail": outcome.detail, "failing_lemmas": list(outcome.failing[:20]),
                "counterexample": None}
     csv_text = None
-    if outcome.status == "failed":
+    if outcome.status == "counterexample":     # the solver's, not yet confirmed
         section["status"] = "undecided"
         if outcome.candidate is None:
             section["detail"] += "; no input found whose outputs differ from the model's " \

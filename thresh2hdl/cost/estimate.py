@@ -11,12 +11,11 @@ the system when installed, else the WebAssembly builds from PyPI (``pip install
 
 import json
 import re
-import subprocess
 import tempfile
 from pathlib import Path
 
 from ..errors import DoesNotFitError, ToolError
-from ..tools import find_tool, tool_version
+from ..tools import find_tool, run, tool_version
 
 __all__ = ["TARGETS", "CELL_NAMES", "LUT4_RULES", "device_name", "estimate_cost",
            "lut4_equivalents", "needs_text", "shortfall", "wrapper_text"]
@@ -102,18 +101,6 @@ def _not_fit_message(target, name, missing):
     return f"{what} does not fit the {_FAMILY.get(target, target)} {name}: {needs}; {hint}"
 
 
-def _tool(name):
-    return find_tool(name, "install the synthesis tools with pip install 'thresh2hdl[synth]'")
-
-
-def _run(command, cwd, what):
-    result = subprocess.run(command, cwd=cwd, capture_output=True, text=True)
-    if result.returncode != 0:
-        lines = [l for l in (result.stderr + result.stdout).splitlines() if "ERROR" in l.upper()]
-        raise ToolError(f"{what} failed: {lines[0].strip() if lines else result.returncode}")
-    return result.stdout
-
-
 def wrapper_text(module, ports):
     """A top level with one data pin in, one out: inputs from a shift chain, every output
     captured in a register and folded to the pin through a tree of registered XORs."""
@@ -161,8 +148,8 @@ def wrapper_text(module, ports):
 
 def _synthesised_cells(yosys, synth, work, module):
     """Yosys's cell counts of ``work/dut.v``'s module alone."""
-    _run([yosys, "-q", "-p", f"read_verilog dut.v; {synth} -top {module}; "
-          f"tee -q -o stat.json stat -json"], work, "Yosys synthesis")
+    run([yosys, "-q", "-p", f"read_verilog dut.v; {synth} -top {module}; "
+         f"tee -q -o stat.json stat -json"], work, failure="Yosys synthesis failed")
     stats = json.loads((work / "stat.json").read_text())
     return next(iter(stats["modules"].values()))["num_cells_by_type"]
 
@@ -183,7 +170,7 @@ def synthesis_figures(verilog_text, module, *, target="ice40", dsp=None):
     with tempfile.TemporaryDirectory(prefix="thresh2hdl-synth-") as folder:
         work = Path(folder)
         (work / "dut.v").write_text(verilog_text, encoding="utf-8")
-        cells = _synthesised_cells(_tool("yosys"), synth, work, module)
+        cells = _synthesised_cells(find_tool("yosys"), synth, work, module)
     luts = sum(n for cell, n in cells.items() if cell.startswith(("SB_LUT4", "LUT4")))
     carries = sum(n for cell, n in cells.items() if cell.startswith(("SB_CARRY", "CCU2C")))
     return {"lut4_equivalents": lut4_equivalents(target, luts, carries), "luts": luts,
@@ -204,7 +191,7 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None,
         raise ToolError(f"unknown target {target!r}; choose one of {', '.join(TARGETS)}")
     _, pnr, device = TARGETS[target]
     synth, use_dsp = _synth_command(target, dsp)
-    yosys, nextpnr = _tool("yosys"), _tool(pnr)
+    yosys, nextpnr = find_tool("yosys"), find_tool(pnr)
     if progress:
         progress("synthesising with Yosys (the first WebAssembly call takes about a minute)")
     with tempfile.TemporaryDirectory(prefix="thresh2hdl-estimate-") as folder:
@@ -213,15 +200,16 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None,
         (work / "top.v").write_text(wrapper_text(module, ports), encoding="utf-8")
         # The WebAssembly tools see only the working folder: relative paths throughout.
         cells = _synthesised_cells(yosys, synth, work, module)
-        _run([yosys, "-q", "-p", f"read_verilog dut.v top.v; {synth} -top "
-              f"thresh_estimate_top -json top.json"], work, "Yosys synthesis of the wrapper")
+        run([yosys, "-q", "-p", f"read_verilog dut.v top.v; {synth} -top "
+             f"thresh_estimate_top -json top.json"], work,
+            failure="Yosys synthesis of the wrapper failed")
         if progress:
             progress("placing and routing with nextpnr")
         placement = [] if seed is None else ["--seed", str(int(seed))]
         try:
-            _run([nextpnr, *device, "--json", "top.json", "--freq", "12",
-                  "--timing-allow-fail", *placement, "--log", "pnr.log"], work,
-                 "nextpnr place and route")
+            run([nextpnr, *device, "--json", "top.json", "--freq", "12",
+                 "--timing-allow-fail", *placement, "--log", "pnr.log"], work,
+                failure="nextpnr place and route failed")
             missing = []
         except ToolError:
             log_file = work / "pnr.log"

@@ -1,5 +1,6 @@
 """The proof that a netlist makes the reference model's decisions."""
 
-from .prover import DEFAULT_TIMEOUT_S, ProofOutcome, prove_netlist
+from .outcome import DEFAULT_TIMEOUT_S, ProofOutcome
+from .prover import proof_tools, prove_netlist
 
-__all__ = ["DEFAULT_TIMEOUT_S", "ProofOutcome", "prove_netlist"]
+__all__ = ["DEFAULT_TIMEOUT_S", "ProofOutcome", "proof_tools", "prove_netlist"]

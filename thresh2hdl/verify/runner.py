@@ -2,7 +2,6 @@
 against the integer reference model chunk by chunk while the next chunks simulate."""
 
 import os
-import shutil
 import tempfile
 from collections import deque
 from concurrent.futures import ThreadPoolExecutor
@@ -12,6 +11,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..tools import which_tool
 from .reference import ReferenceModel
 from .sim_amaranth import simulate_amaranth
 from .sim_icarus import icarus_version, simulate_icarus
@@ -31,9 +31,9 @@ def choose_simulator(name):
         icarus_version()
     if name != "auto":
         return name
-    if find_verilator() and (shutil.which("g++") or shutil.which("c++")):
+    if find_verilator() and which_tool("c++"):
         return "verilator"
-    if shutil.which("iverilog") and shutil.which("vvp"):
+    if which_tool("iverilog") and which_tool("vvp"):
         return "icarus"
     return "amaranth"
 

@@ -13,6 +13,7 @@ import numpy as np
 
 from ..errors import ToolError
 from ..outdir import write_text
+from ..tools import find_tool, tool_version
 from .sim_amaranth import SimulationResult
 from .stimulus import write_columns
 from .templates import template_text
@@ -201,16 +202,11 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
 
 
 def _tool(name):
-    path = shutil.which(name)
-    if path is None:
-        raise ToolError(f"{name} (Icarus Verilog) was not found on PATH; install it (Debian: "
-                        f"apt-get install iverilog) or choose another simulator")
-    return path
+    return find_tool(name)
 
 
 def icarus_version():
-    result = subprocess.run([_tool("iverilog"), "-V"], capture_output=True, text=True)
-    return result.stdout.splitlines()[0].strip() if result.stdout else "unknown"
+    return tool_version(_tool("iverilog"))
 
 
 def _decode(text, width):

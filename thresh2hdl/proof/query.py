@@ -1,0 +1,215 @@
+"""One SMT-LIB query over the exported netlist's functions: its values known from wires,
+registers or their operands, in arithmetic wide enough that nothing overflows."""
+
+from ..analysis import signed_bits
+from ..names import register_name
+from .outcome import Undecided
+
+__all__ = ["Query", "bv", "port_names", "bool_signal"]
+
+
+def bv(value, width):
+    if value < 0:
+        value += 1 << width
+    return f"(_ bv{value} {width})"
+
+
+class Query:
+    """One SMT-LIB query over the netlist's functions, in ``width``-bit arithmetic."""
+
+    def __init__(self, plan, smt, width, ports, *, pure=False):
+        self.plan = plan
+        self.smt = smt
+        self.width = width
+        self.ports = ports      # internal port name -> (Verilog name, signed)
+        self.pure = pure        # every value from the inputs in state s0, wires ignored
+        self.lines = []
+        self.defined = {}
+        self.assumptions = []
+
+    def extend(self, expr, bits, signed):
+        if bits == self.width:
+            return expr
+        op = "sign_extend" if signed else "zero_extend"
+        return f"((_ {op} {self.width - bits}) {expr})"
+
+    def wide(self, wire, state, signed):
+        return self.extend(self.smt.bits(wire, state), self.smt.widths[wire], signed)
+
+    def define(self, key, sort, expr):
+        if key not in self.defined:
+            name = f"|t2h {key}|"
+            self.lines.append(f"(define-fun {name} () {sort} {expr})")
+            self.defined[key] = name
+        return self.defined[key]
+
+    def port(self, internal):
+        name, signed = self.ports[internal]
+        if not self.smt.has(name):
+            raise Undecided(f"the netlist has no port {name!r}")
+        return name, signed
+
+    def code(self, index, state="s0"):
+        """The code on feature ``index``'s port."""
+        name, signed = self.port(f"x{index}")
+        return self.define(f"x{index} {state}", self._sort(),
+                           self.wide(name, state, signed))
+
+    def feature(self, index, state="s0"):
+        """The feature as the arithmetic must see it: the code, clamped to its declared
+        range where the input guard clamps."""
+        code = self.code(index, state)
+        guard = self.plan.guard
+        if not guard.clamp or index not in guard.tight:
+            return code
+        (lo, hi), w = guard.feature_ranges[index], self.width
+        return self.define(f"clamped x{index} {state}", self._sort(),
+                           f"(ite (bvslt {code} {bv(lo, w)}) {bv(lo, w)} "
+                           f"(ite (bvsgt {code} {bv(hi, w)}) {bv(hi, w)} {code}))")
+
+    def outside(self, state="s0"):
+        """Bool: some feature's code lies outside its declared range."""
+        guard, w, tests = self.plan.guard, self.width, []
+        for index in guard.tight:
+            (lo, hi), (code_lo, code_hi) = guard.feature_ranges[index], guard.code_ranges[index]
+            x = self.code(index, state)
+            if lo > code_lo:
+                tests.append(f"(bvslt {x} {bv(lo, w)})")
+            if hi < code_hi:
+                tests.append(f"(bvsgt {x} {bv(hi, w)})")
+        return f"(or false {' '.join(tests)})" if tests else "false"
+
+    def input_ranges(self, state="s0"):
+        """Assumptions on the inputs: inside the declared ranges, unless the guard clamps
+        (then every code the ports can carry is covered)."""
+        if self.plan.guard.clamp:
+            return []
+        w, out = self.width, []
+        for index, (lo, hi) in enumerate(self.plan.ranges):
+            x = self.code(index, state)
+            out += [f"(bvsle {bv(lo, w)} {x})", f"(bvsle {x} {bv(hi, w)})"]
+        return out
+
+    def _sort(self):
+        return f"(_ BitVec {self.width})"
+
+    def holds_exactly(self, name, wire, shift=0):
+        """Whether ``wire`` is wide enough to hold every value ``name >> shift`` can take."""
+        value, bits = self.plan.values[name], self.smt.widths[wire]
+        lo, hi = value.lo >> shift, value.hi >> shift
+        if value.signed:
+            return bits >= signed_bits(lo, hi)
+        return bits >= max(1, hi.bit_length())
+
+    def known(self, name, stage, modulus_bits, state="s0", needed=None):
+        """An expression equal to ``name``'s true value modulo ``2**modulus_bits``, as seen by
+        ``stage`` (``modulus_bits == width``: the true value itself).
+
+        Synthesis may narrow a wire whose high bits no later step reads (Yosys computes
+        ``a + b`` at the width of its consumer); such a wire still holds its value modulo
+        its width, which is all that a narrower consumer needs.
+        """
+        value = self.plan.values[name]
+        if self.pure:
+            return self.formula(name, self.width, "s0")
+        if stage == value.stage:
+            if self.smt.has(name) and (self.holds_exactly(name, name)
+                                       or self.smt.widths[name] >= modulus_bits):
+                if name in self.smt.cut_ids:
+                    return self.cut(name, state)
+                return self.define(f"{name} {state}", self._sort(),
+                                   self.wide(name, state, value.signed))
+            return self.formula(name, modulus_bits, state, needed)
+        register = register_name(name, stage)
+        if register not in self.smt.registers:
+            raise Undecided(f"the netlist has no register {register!r}; the per-stage method "
+                             f"needs the pipeline registers under the names thresh2hdl gives")
+        shift = value.register_shift
+        if not (self.holds_exactly(name, register, shift)
+                or self.smt.widths[register] + shift >= modulus_bits):
+            raise Undecided(f"register {register!r} is narrower than its consumer")
+        if needed is not None:
+            needed.add((name, stage))
+        expr = self.wide(register, state, value.signed)
+        if shift:
+            expr = f"(bvshl {expr} {bv(shift, self.width)})"
+        return self.define(f"{register} {state}", self._sort(), expr)
+
+    def cut(self, name, state):
+        """A cut wire's free value, assumed inside its exact range when it can hold it."""
+        key = f"cut {name} {state}"
+        if key not in self.defined:
+            value, bits = self.plan.values[name], self.smt.widths[name]
+            free = self.smt.cut_value(name, state)
+            expr = self.define(key, self._sort(), self.extend(free, bits, value.signed))
+            if self.holds_exactly(name, name):
+                self.assumptions += [f"(bvsle {bv(value.lo, self.width)} {expr})",
+                                     f"(bvsle {expr} {bv(value.hi, self.width)})"]
+            return expr
+        return self.defined[key]
+
+    def formula(self, name, modulus_bits, state="s0", needed=None):
+        """``name`` computed from its operands (each known modulo ``2**modulus_bits``; the
+        argmax compares, so its operands are known exactly)."""
+        value = self.plan.values[name]
+        stage, w = value.stage, self.width
+        exact = value.kind in ("max", "pick")
+        bits = w if exact else modulus_bits
+
+        def operand(other):
+            return self.known(other, stage, bits, state, needed)
+
+        if value.kind == "product":
+            expr = f"(bvmul {self.feature(value.feature, state)} {bv(value.magnitude, w)})"
+        elif value.kind == "const":
+            expr = bv(value.constant, w)
+        elif value.kind == "flag":
+            expr = f"(ite {self.outside(state)} {bv(1, w)} {bv(0, w)})"
+        elif value.kind in ("add", "sub", "rsub"):
+            a, b = (operand(o) for o in value.operands)
+            expr = {"add": f"(bvadd {a} {b})", "sub": f"(bvsub {a} {b})",
+                    "rsub": f"(bvsub {b} {a})"}[value.kind]
+        elif value.kind in ("bias", "rbias"):
+            a = operand(value.operands[0])
+            child = self.plan.values[value.operands[0]]
+            bias = value.constant - (child.constant if value.kind == "bias" else -child.constant)
+            expr = f"(bvadd {a} {bv(bias, w)})" if value.kind == "bias" \
+                else f"(bvsub {bv(bias, w)} {a})"
+        elif value.kind == "max":
+            a, b = (operand(o) for o in value.operands)
+            expr = f"(ite (bvsge {a} {b}) {a} {b})"
+        elif value.kind == "pick":
+            a, b, ia, ib = value.operands
+            left = operand(ia) if ia is not None else bv(value.first, w)
+            right = operand(ib) if ib is not None else bv(value.last, w)
+            expr = f"(ite (bvsge {operand(a)} {operand(b)}) {left} {right})"
+        else:
+            raise RuntimeError(f"value kind {value.kind} has no formula")
+        return self.define(f"formula {name} {bits} {state}", self._sort(), expr)
+
+    def low(self, expr, bits):
+        """The low ``bits`` of a wide expression, shaped like a ``bits``-wide wire."""
+        return f"((_ extract {bits - 1} 0) {expr})"
+
+    def score(self, unit, stage, state="s0", needed=None):
+        """Unit ``unit``'s score as seen by ``stage`` (of its planned score value)."""
+        name, sign, bias = self.plan.unit_scores[unit]
+        if name is None:
+            return bv(bias, self.width)
+        value = self.known(name, stage, self.width, state, needed)
+        if sign == 1 and bias == 0:
+            return value
+        signed = value if sign == 1 else f"(bvneg {value})"
+        return f"(bvadd {signed} {bv(bias, self.width)})"
+
+
+def port_names(port_rows):
+    """Internal port name -> (its name in the netlist, whether it is signed)."""
+    return {internal: (name, signed) for internal, name, _d, _w, signed in port_rows}
+
+
+def bool_signal(smt, name, state):
+    """One-bit signal ``name`` as a Bool (a missing one: undecided)."""
+    if smt.widths.get(name) != 1:
+        raise Undecided(f"the netlist has no one-bit signal {name!r}")
+    return smt.raw(name, state)
