@@ -15,6 +15,7 @@ import numpy as np
 
 from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig, make_component
 from thresh2hdl.verify.runner import CHUNK_VECTORS, chunk_vectors, verify
+from thresh2hdl.verify.sim_verilator import VerilatorBackend
 from thresh2hdl.model.records import FeatureFormat, Model, Unit
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.verify.sim_amaranth import simulate_amaranth
@@ -41,7 +42,7 @@ def main():
     print(f"Verilator harness compile (or cache hit): {time.perf_counter() - start:.1f} s")
 
     start = time.perf_counter()
-    verified = verify("verilator", dut, text, ports, model, count=args.vectors)
+    verified = verify(VerilatorBackend(text, ports, model.module), dut, model, count=args.vectors)
     total = time.perf_counter() - start
     print(f"Verilator: {verified.vectors_checked} vectors end to end (made, simulated, "
           f"compared, in chunks of {chunk_vectors(16)}) in {total:.1f} s (target <= 10 s for 1e7), "
@@ -82,7 +83,8 @@ def main():
     result = min(runs, key=lambda r: r.run_seconds)
     mismatches = sum(r.check(stimulus).mismatch_count for r in runs)
     start = time.perf_counter()
-    verified = verify("verilator", bank_dut, bank_text, bank_ports, bank, count=2_000_000)
+    verified = verify(VerilatorBackend(bank_text, bank_ports, bank.module), bank_dut, bank,
+                      count=2_000_000)
     path = verified.vectors_checked / (time.perf_counter() - start)
     print(f"64-input 10-unit bank: {len(rows) / result.run_seconds:.3e} vectors/s in the "
           f"compiled model, {path:.3e} vectors/s for the whole path (target >= 1e6); "

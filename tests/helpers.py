@@ -73,10 +73,8 @@ def make_model(weights, bias=0, *, bits=8, signed=False, ranges=None, module="du
 
 def assert_agrees_in_amaranth(model, dut, stimulus):
     """Every vector of ``stimulus`` through the Amaranth design: out, and no mismatch."""
-    from thresh2hdl.verify.runner import run_simulator
-    from thresh2hdl.emit.verilog import port_table
-    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), model.module,
-                              stimulus)
+    from thresh2hdl.verify.sim_amaranth import AmaranthBackend
+    result = AmaranthBackend(dut).run(stimulus)
     checked = result.check(stimulus)
     assert checked.mismatch_count == 0 and checked.vectors_checked == len(stimulus.vectors)
 
@@ -121,7 +119,7 @@ def lint_icarus(folder, *files):
 def assert_lint_clean_and_agrees(folder, model, dut, stimulus):
     """The emitted file of ``dut``: no warning from Verilator or Icarus ``-Wall``, and zero
     mismatches in both (independent simulators of the same file)."""
-    from thresh2hdl.verify.runner import run_simulator
+    from thresh2hdl.verify.runner import make_backend
     from thresh2hdl.emit.verilog import port_table
     require_tool("verilator", "g++", "iverilog", "vvp")
     text = emit_verilog(dut, model)
@@ -132,7 +130,8 @@ def assert_lint_clean_and_agrees(folder, model, dut, stimulus):
     assert code == 0 and output.strip() == "", output
     ports = port_table(dut, model)
     for simulator in ("icarus", "verilator"):
-        result, _ = run_simulator(simulator, dut, text, ports, model.module, stimulus)
+        backend = make_backend(simulator, verilog_text=text, ports=ports, module=model.module)
+        result = backend.run(stimulus)
         assert result.check(stimulus).mismatch_count == 0, simulator
 
 

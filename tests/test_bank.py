@@ -14,14 +14,14 @@ from helpers import require_tool, assert_lint_clean_and_agrees, bank_model
 from thresh2hdl.hardware.circuit import FULL_PIPELINE, ThresholdBank, UnitConfig, make_component
 from thresh2hdl.errors import InputError
 from thresh2hdl.app.flow import BuildOptions
-from thresh2hdl.verify.runner import run_simulator
+from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis import analyse_bank
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.reports.report import argmax_report, node_table
 from thresh2hdl.verify.stimulus import make_stimulus
 from thresh2hdl.verify.vectors import make_vectors
-from thresh2hdl.emit.verilog import emit_verilog, port_table
+from thresh2hdl.emit.verilog import emit_verilog
 
 
 def gold(weights, biases, x):
@@ -94,8 +94,7 @@ def prepared(case, vectors=150):
 @given(banks)
 def test_random_banks_agree_with_reference_in_amaranth(case):
     model, dut, stimulus = prepared(case)
-    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), model.module,
-                              stimulus)
+    result = AmaranthBackend(dut).run(stimulus)
     assert result.check(stimulus).mismatch_count == 0
 
 

@@ -136,17 +136,16 @@ def test_free_flowing_segment_matches_the_design(pipeline):
 
 def test_verification_in_chunks_covers_every_vector_and_catches_late_errors(monkeypatch):
     import thresh2hdl.verify.runner as runner
-    from thresh2hdl.emit.verilog import port_table
+    from thresh2hdl.verify.sim_amaranth import AmaranthBackend
     monkeypatch.setattr(runner, "CHUNK_VECTORS", 300)
     model = make_model([5, -3, 2, 7], -11, bits=6)
     dut = ThresholdUnit(UnitConfig(model, pipeline=2))
-    ports = port_table(dut, model)
-    verified = runner.verify("amaranth", dut, "", ports, model, count=1000)
+    verified = runner.verify(AmaranthBackend(dut), dut, model, count=1000)
     assert verified.mismatches == 0
     corners = sum(n for name, n in verified.vector_groups if not name.startswith("random"))
     assert verified.vectors_checked == 1000 + corners
     assert dict(verified.vector_groups)["random within the declared ranges"] == 1000
     # Judged against a model whose bias is one off, the run must fail and say where.
     wrong = make_model([5, -3, 2, 7], -10, bits=6)
-    verified = runner.verify("amaranth", dut, "", ports, wrong, count=1000)
+    verified = runner.verify(AmaranthBackend(dut), dut, wrong, count=1000)
     assert verified.mismatches > 0 and verified.first_mismatches

@@ -18,10 +18,12 @@ from helpers import (require_proof_tools, require_tool, make_model, run,
 from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.app.flow import BuildOptions, build, check, demo_model
 from thresh2hdl.verify.runner import verify
+from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.analysis.guard import resolve_guard
 from thresh2hdl.model.records import FeatureFormat, Model, Unit
 from thresh2hdl.verify.reference import ReferenceModel
-from thresh2hdl.verify.stimulus import Mismatch, compare, make_stimulus
+from thresh2hdl.verify.compare import Mismatch, compare
+from thresh2hdl.verify.stimulus import make_stimulus
 from thresh2hdl.verify.vectors import make_vectors
 from thresh2hdl.emit.verilog import emit_verilog, port_table
 
@@ -162,8 +164,8 @@ def test_mismatches_are_counted_over_every_chunk(monkeypatch):
     model = make_model([5, -3, 2, 7], -11, bits=6)
     dut = make_component(UnitConfig(model, pipeline=1))
     wrong = make_model([5, -3, 2, 7], -10, bits=6)      # the model judging is one off
-    verified = verify("amaranth", dut, "", port_table(dut, model), wrong, count=3000)
-    one_chunk = verify("amaranth", dut, "", port_table(dut, model), wrong, count=300)
+    verified = verify(AmaranthBackend(dut), dut, wrong, count=3000)
+    one_chunk = verify(AmaranthBackend(dut), dut, wrong, count=300)
     assert verified.mismatches > 2 * one_chunk.mismatches
     assert verified.vectors_checked >= 3000
 

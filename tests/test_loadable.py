@@ -14,11 +14,11 @@ from helpers import (IN_CI, require_tool, make_model, assert_agrees_in_amaranth,
                      assert_one_line_error, assert_lint_clean_and_agrees)
 from thresh2hdl.hardware.circuit import UnitConfig, make_component, weight_addresses
 from thresh2hdl.errors import InputError
-from thresh2hdl.verify.runner import first_stimulus, run_simulator
+from thresh2hdl.verify.runner import first_stimulus
+from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis import analyse, analyse_bank, bit_growth_bound
 from thresh2hdl.verify.vectors import make_vectors
-from thresh2hdl.emit.verilog import port_table
 
 
 def test_score_range_is_exact_by_exhaustion():
@@ -112,8 +112,7 @@ def test_reload_stimulus_is_judged_with_the_loaded_weights():
     stimulus, groups = first_stimulus(dut, model, rows, reload_count=100, stall_vectors=50)
     assert [name for name, _ in groups][:2] == ["loaded set 1: loaded corner",
                                                 "loaded set 1: loaded random"]
-    ports = port_table(dut, model)
-    result, _ = run_simulator("amaranth", dut, "", ports, model.module, stimulus)
+    result = AmaranthBackend(dut).run(stimulus)
     assert result.check(stimulus).mismatch_count == 0
     # The loaded corners reach both ends of the declared score range: the widths are tried
     # at their bounds.
@@ -121,7 +120,7 @@ def test_reload_stimulus_is_judged_with_the_loaded_weights():
     assert stimulus.expect_scores.max() == dut.analysis.score_range[1]
     # The check can fail: without the writes the design keeps its trained weights.
     unwritten = dataclasses.replace(stimulus, writes=None)
-    result, _ = run_simulator("amaranth", dut, "", ports, model.module, unwritten)
+    result = AmaranthBackend(dut).run(unwritten)
     assert result.check(unwritten).mismatch_count > 0
 
 
@@ -238,7 +237,7 @@ def test_a_design_that_ignores_writes_is_caught_and_named(monkeypatch):
     monkeypatch.setattr(circuit._WeightStore, "_write", staticmethod(lambda *args: None))
     model = make_model([3, -2, 1], 5, bits=4)
     dut = make_component(UnitConfig(model, loadable_weights=True, weight_bits=5, bias_bits=7))
-    verified = verify("amaranth", dut, "", port_table(dut, model), model, count=200)
+    verified = verify(AmaranthBackend(dut), dut, model, count=200)
     assert verified.mismatches > 0
     assert "loaded set 1" in verified.first_mismatches[0]
 
@@ -249,7 +248,7 @@ def test_later_chunks_count_as_random_vectors():
     model = make_model([3, -2], 5, bits=4)
     dut = make_component(UnitConfig(model, loadable_weights=True))
     count = chunk_vectors(2) + 300
-    verified = verify("amaranth", dut, "", port_table(dut, model), model, count=count)
+    verified = verify(AmaranthBackend(dut), dut, model, count=count)
     groups = dict(verified.vector_groups)
     assert verified.mismatches == 0
     assert groups["random within the declared ranges"] == count

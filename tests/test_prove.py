@@ -17,7 +17,7 @@ from helpers import (require_proof_tools, require_tool, make_model, run, assert_
 from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError, MismatchError, ToolError, UndecidedError
 from thresh2hdl.app.flow import BuildOptions, build, demo_model, prove
-from thresh2hdl.verify.runner import run_simulator
+from thresh2hdl.verify.sim_icarus import IcarusBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.proof.prover import proof_tools, prove_netlist
 from thresh2hdl.verify.reference import ReferenceModel
@@ -103,8 +103,7 @@ def simulate_icarus(model, component, text, vector):
     reference = ReferenceModel.from_model(model)
     stimulus = make_stimulus(reference, np.array([vector]), latency=component.latency,
                              stall_vectors=0)
-    result, _ = run_simulator("icarus", component, text, port_table(component, model),
-                              model.module, stimulus)
+    result = IcarusBackend(text, port_table(component, model), model.module).run(stimulus)
     return result.check(stimulus)
 
 

@@ -13,13 +13,12 @@ from helpers import (IN_CI, require_tool, make_model, assert_agrees_in_amaranth,
                      assert_one_line_error, assert_lint_clean_and_agrees)
 from thresh2hdl.hardware.circuit import SerialThreshold, UnitConfig, make_component, sample_shape
 from thresh2hdl.errors import InputError
-from thresh2hdl.verify.runner import run_simulator
+from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis import analyse, bit_growth_bound, prefix_ranges
 from thresh2hdl.verify.reference import ReferenceModel, cycle_model
 from thresh2hdl.verify.stimulus import make_stimulus
 from thresh2hdl.verify.vectors import make_vectors
-from thresh2hdl.emit.verilog import port_table
 
 
 def gold_score(weights, bias, x):
@@ -215,11 +214,9 @@ def test_a_wrong_beat_count_is_caught():
     right = make_stimulus(reference, rows, latency=1, beats=4, stall_vectors=50)
     shorter = ReferenceModel.from_model(make_model([3, -2, 5], 1, bits=4))
     wrong = make_stimulus(shorter, rows[:, :3], latency=1, beats=3, stall_vectors=50)
-    ports = port_table(dut, model)
-    assert run_simulator("amaranth", dut, "", ports, "dut", right)[0].check(right) \
-        .mismatch_count == 0
-    assert run_simulator("amaranth", dut, "", ports, "dut", wrong)[0].check(wrong) \
-        .mismatch_count > 0
+    backend = AmaranthBackend(dut)
+    assert backend.run(right).check(right).mismatch_count == 0
+    assert backend.run(wrong).check(wrong).mismatch_count > 0
 
 
 def test_serial_refuses_other_register_stages():

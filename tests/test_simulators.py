@@ -10,7 +10,7 @@ import pytest
 
 from helpers import require_tool, make_model, run, assert_one_line_error, exported_testbench
 from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
-from thresh2hdl.verify.runner import run_simulator
+from thresh2hdl.verify.runner import make_backend, verify
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.verify.stimulus import make_stimulus
 from thresh2hdl.verify.vectors import make_vectors
@@ -81,7 +81,8 @@ def test_three_simulators_give_identical_outputs(pipeline):
     stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
                              valid_probability=0.8, ready_probability=0.7)
     ports = port_table(dut, model)
-    results = {name: run_simulator(name, dut, text, ports, model.module, stimulus)[0]
+    results = {name: make_backend(name, component=dut, verilog_text=text, ports=ports,
+                                  module=model.module).run(stimulus)
                for name in ("amaranth", "verilator", "icarus")}
     shown = stimulus.expect_out_valid
     first = results["amaranth"]
@@ -91,6 +92,30 @@ def test_three_simulators_give_identical_outputs(pipeline):
         assert np.array_equal(result.out_valid, first.out_valid)
         assert np.array_equal(result.decisions[shown], first.decisions[shown])
         assert list(result.scores[shown]) == list(first.scores[shown])
+
+
+def test_each_simulator_back_end_is_made_from_what_it_runs():
+    # Amaranth's simulator runs the component, Verilator and Icarus the Verilog text: asked
+    # for a simulator without what it runs, the factory says what is missing.
+    model = make_model([3, -2, 5], 1, bits=4)
+    dut = ThresholdUnit(UnitConfig(model, pipeline=1))
+    text = emit_verilog(dut, model)
+    ports = port_table(dut, model)
+    with pytest.raises(ValueError, match="component"):
+        make_backend("amaranth", verilog_text=text, ports=ports, module=model.module)
+    for name in ("verilator", "icarus"):
+        with pytest.raises(ValueError, match="Verilog"):
+            make_backend(name, component=dut)
+        backend = make_backend(name, component=dut, verilog_text=text, ports=ports,
+                               module=model.module)
+        assert backend.name == name and not backend.in_process
+    with pytest.raises(ValueError, match="no simulator"):
+        make_backend("spice", component=dut)
+    # The chunk runner reports the back end it was given.
+    backend = make_backend("amaranth", component=dut)
+    verified = verify(backend, dut, model, count=200)
+    assert verified.simulator == "amaranth" and verified.mismatches == 0
+    assert verified.simulator_version == backend.version()
 
 
 @pytest.fixture(scope="module")

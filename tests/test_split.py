@@ -9,14 +9,13 @@ from helpers import (require_tool, make_model, assert_agrees_in_amaranth, run,
                      assert_one_line_error, assert_lint_clean_and_agrees)
 from thresh2hdl.hardware.circuit import UnitConfig, make_component
 from thresh2hdl.errors import InputError
-from thresh2hdl.verify.runner import run_simulator
+from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis import analyse
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.reports.html import report_markdown
 from thresh2hdl.verify.stimulus import make_stimulus
 from thresh2hdl.verify.vectors import make_vectors
-from thresh2hdl.emit.verilog import port_table
 
 cases = st.tuples(
     st.lists(st.integers(-(1 << 9), 1 << 9), min_size=1, max_size=7),
@@ -82,7 +81,7 @@ def test_parts_of_a_wide_adder_each_take_their_own_stages():
     stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
                              valid_probability=0.7, ready_probability=0.6)
     assert list(stimulus.expect_scores[:len(gold)]) == gold
-    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), "dut", stimulus)
+    result = AmaranthBackend(dut).run(stimulus)
     assert result.check(stimulus).mismatch_count == 0
 
 
@@ -91,7 +90,7 @@ def test_the_check_can_fail_when_the_extra_stage_is_forgotten():
     dut = make_component(UnitConfig(model, pipeline=2, arch="shiftadd", split_bits=8))
     rows = make_vectors(dut.analysis, random_count=100).array
     wrong = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency - 1)
-    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), "dut", wrong)
+    result = AmaranthBackend(dut).run(wrong)
     assert result.check(wrong).mismatch_count > 0
 
 
@@ -147,6 +146,6 @@ def test_a_wider_score_port_is_sign_extended():
     assert dut.result_parts > 1 and len(dut.score) == 20
     rows = make_vectors(dut.analysis, random_count=300).array
     stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency)
-    result, _ = run_simulator("amaranth", dut, "", port_table(dut, model), "dut", stimulus)
+    result = AmaranthBackend(dut).run(stimulus)
     assert result.check(stimulus).mismatch_count == 0
     assert stimulus.expect_scores.min() < 0

@@ -26,7 +26,7 @@ from ..readers import read_text, shorten
 from ..reports import (build_report, model_digest, report_html, report_json, report_markdown,
                        store_estimate, summary_lines)
 from ..verify import (ReferenceModel, choose_simulator, first_stimulus, make_stimulus, make_vectors,
-                      run_simulator, verify, write_testbench)
+                      make_backend, verify, write_testbench)
 from .settings import read_build_settings, read_history
 
 __all__ = ["BuildOptions", "BuildResult", "build", "check", "estimate_folder", "prove",
@@ -173,7 +173,9 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
     note(f"verifying in {simulator}: corner cases, "
          + ("the data rows, " if dataset is not None else "") + f"{count} random vectors")
     started = time.perf_counter()
-    verified = verify(simulator, component, verilog_text, ports, model, count=count,
+    backend = make_backend(simulator, component=component, verilog_text=verilog_text,
+                           ports=ports, module=model.module)
+    verified = verify(backend, component, model, count=count,
                       seed=options.seed, data=None if dataset is None else dataset.x,
                       progress=progress)
     timing["simulation_s"] = time.perf_counter() - started
@@ -312,7 +314,8 @@ def check(out_dir, *, netlist=None, simulator="auto", vectors=None, seed=0, prog
     note = getattr(progress, "note", None)
     if note is not None:
         note(f"verifying {path.name} in {simulator}: corner cases, {count} random vectors")
-    verified = verify(simulator, component, text, ports, model, count=count, seed=seed,
+    backend = make_backend(simulator, verilog_text=text, ports=ports, module=model.module)
+    verified = verify(backend, component, model, count=count, seed=seed,
                       progress=progress)
     outcome = CheckResult(path, simulator, verified.simulator_version, verified.vectors_checked,
                           verified.mismatches, verified.first_mismatches)
@@ -396,8 +399,8 @@ def _confirm(simulator, component, text, ports, model, vector):
     stimulus = make_stimulus(reference, np.array([vector], dtype=np.int64),
                              latency=component.latency, beats=component.beats, stall_vectors=0,
                              guard=component.config.guard)
-    result, version_text = run_simulator(simulator, component, text, ports, model.module,
-                                         stimulus)
+    backend = make_backend(simulator, verilog_text=text, ports=ports, module=model.module)
+    result, version_text = backend.run(stimulus), backend.version()
     checked = result.check(stimulus)
     if not checked.mismatches:
         return None, version_text

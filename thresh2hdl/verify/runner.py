@@ -1,26 +1,24 @@
-"""The chunk runner: corner cases, data rows and random vectors through one simulator, judged
-against the integer reference model chunk by chunk while the next chunks simulate."""
+"""The chunk runner: corner cases, data rows and random vectors through one simulator back end,
+judged against the integer reference model chunk by chunk while the next chunks simulate."""
 
 import os
-import tempfile
 from collections import deque
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
-from importlib.metadata import version
-from pathlib import Path
+from functools import partial
 
 import numpy as np
 
 from ..tools import which_tool
 from .reference import ReferenceModel
-from .sim_amaranth import simulate_amaranth
-from .sim_icarus import icarus_version, simulate_icarus
-from .sim_verilator import find_verilator, simulate_verilator, verilator_version
+from .sim_amaranth import AmaranthBackend
+from .sim_icarus import IcarusBackend, icarus_version
+from .sim_verilator import VerilatorBackend, find_verilator, verilator_version
 from .stimulus import make_reload_stimulus, make_stimulus
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
 
-__all__ = ["choose_simulator", "chunk_vectors", "Verification", "verify", "first_stimulus",
-           "run_simulator", "CHUNK_VECTORS", "CHUNK_CODES"]
+__all__ = ["choose_simulator", "make_backend", "chunk_vectors", "Verification", "verify",
+           "first_stimulus", "CHUNK_VECTORS", "CHUNK_CODES"]
 
 
 def choose_simulator(name):
@@ -36,6 +34,22 @@ def choose_simulator(name):
     if which_tool("iverilog") and which_tool("vvp"):
         return "icarus"
     return "amaranth"
+
+
+def make_backend(simulator, *, component=None, verilog_text=None, ports=None, module=None):
+    """The back end of ``simulator`` (a name :func:`choose_simulator` returns), made from what
+    it runs: Amaranth's simulator the ``component``; Verilator and Icarus the Verilog text
+    with its ``ports`` (:func:`~thresh2hdl.emit.verilog.port_table`) and ``module`` name."""
+    if simulator == "amaranth":
+        if component is None:
+            raise ValueError("Amaranth's simulator runs a component; none was given")
+        return AmaranthBackend(component)
+    kinds = {"verilator": VerilatorBackend, "icarus": IcarusBackend}
+    if simulator not in kinds:
+        raise ValueError(f"no simulator {simulator!r}; one of amaranth, verilator, icarus")
+    if verilog_text is None or ports is None or module is None:
+        raise ValueError(f"{simulator} runs Verilog: give its text, ports and module")
+    return kinds[simulator](verilog_text, ports, module)
 
 
 CHUNK_VECTORS = 250_000   # random vectors simulated at a time: bounded memory, warm caches
@@ -67,9 +81,9 @@ class Verification:
     exported: object        # the first chunk's stimulus (corners, data, first random vectors)
 
 
-def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, data=None,
-           progress=None):
-    """Corner cases, optional data rows and ``count`` random vectors through one simulator.
+def verify(backend, component, model, *, count, seed=0, data=None, progress=None):
+    """Corner cases, optional data rows and ``count`` random vectors of ``component`` (its
+    plan, latency and guard) through one simulator ``backend`` (:func:`make_backend`).
 
     The first chunk holds the corners, the data rows and a segment with random stalls; later
     chunks of :func:`chunk_vectors` random vectors run with gaps only. Each chunk is judged by
@@ -91,45 +105,16 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
     # Later chunks are more random vectors: counted in that group (there are none without it).
     random_group = next((k for k, (name, _) in enumerate(groups) if name == RANDOM_GROUP), 0)
     groups += [list(g) for g in reloaded]
-
-    def first_origin(index):
-        """Where a vector of the first chunk came from: a group, or a weight set loaded."""
-        if index < len(vectors):
-            return vectors.origin(index)
-        index -= len(vectors)
-        for name, size in reloaded:
-            if index < size:
-                return name, index
-            index -= size
-        raise IndexError(index)
     checked_total = mismatches = cycles = 0
-    first, version_text = (), ""
+    first = ()
     remaining, chunk = count - first_count, 0
-
-    def simulate(stimulus, note):
-        return run_simulator(simulator, component, verilog_text, ports, model.module, stimulus,
-                             progress=note)
-
-    def next_chunk(chunk):
-        size = min(remaining, per_chunk)
-        rows = random_vectors(np.random.default_rng([seed, chunk]), analysis.feature_ranges, size)
-        return size, make_stimulus(reference, rows, latency=component.latency,
-                                   beats=component.beats, seed=[seed, chunk], stall_vectors=0,
-                                   guard=guard)
-
-    # Verilator and Icarus run in processes of their own: up to two chunks are simulated at a
-    # time (one per core, while their vectors fit in a few hundred MB) while this thread makes
-    # the next chunk and judges the last.
-    chunk_bytes = per_chunk * len(names) * 8
-    workers = 0 if simulator == "amaranth" else \
-        1 if (os.cpu_count() or 1) < 2 or chunk_bytes > 128 << 20 else 2
-    # Amaranth's simulator runs in this process: no thread (Ctrl-C must stop it at once).
+    workers = _workers(backend, per_chunk * len(names) * 8)
     pool = ThreadPoolExecutor(max_workers=workers) if workers else None
 
     def submit(stimulus, note):
         if pool is None:
-            return _Later(simulate, stimulus, note)
-        return pool.submit(simulate, stimulus, note)
+            return _Later(backend.run, stimulus, note)
+        return pool.submit(backend.run, stimulus, note)
 
     flight = deque()
     planned = 0
@@ -138,7 +123,8 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
         nonlocal remaining, planned
         while len(flight) < max(1, workers) and remaining > 0:
             planned += 1
-            size, upcoming = next_chunk(planned)
+            size = min(remaining, per_chunk)
+            upcoming = _random_chunk(reference, component, size, seed, planned)
             remaining -= size
             flight.append((planned, size, upcoming, submit(upcoming, None)))
 
@@ -147,10 +133,10 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
         while flight:
             chunk, size, stimulus, running = flight.popleft()
             launch()
-            result, version_text = running.result()
+            result = running.result()
             if progress is not None and count > per_chunk:
                 progress(min(count, first_count + chunk * per_chunk), count,
-                         f"verifying in {simulator}")
+                         f"verifying in {backend.name}")
             checked = result.check(stimulus)
             checked_total += checked.vectors_checked
             mismatches += checked.mismatch_count
@@ -158,8 +144,8 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
             if checked.mismatches and not first:
                 # Chunks run in order, so the first chunk with a mismatch holds the earliest;
                 # its cycles are counted from the start of the whole run.
-                origin = first_origin if chunk == 0 else (lambda i, k=chunk: (
-                    f"{RANDOM_GROUP}, chunk {k}", i))
+                origin = partial(_first_origin, vectors, reloaded) if chunk == 0 else \
+                    (lambda i, k=chunk: (f"{RANDOM_GROUP}, chunk {k}", i))
                 first = tuple(replace(m, cycle=m.cycle + cycles).describe(stimulus, names,
                                                                           origin)
                               for m in checked.mismatches)
@@ -167,8 +153,38 @@ def verify(simulator, component, verilog_text, ports, model, *, count, seed=0, d
     finally:
         if pool is not None:
             pool.shutdown(wait=False, cancel_futures=True)
-    return Verification(simulator, version_text, checked_total, mismatches, cycles,
+    return Verification(backend.name, backend.version(), checked_total, mismatches, cycles,
                         tuple(tuple(g) for g in groups), first, exported)
+
+
+def _workers(backend, chunk_bytes):
+    """Chunks simulated at a time. Verilator and Icarus run in processes of their own: up to
+    two (one per core, while their vectors fit in a few hundred MB) while this thread makes
+    the next chunk and judges the last. A back end that runs in this process gets no thread
+    (Ctrl-C must stop it at once)."""
+    if backend.in_process:
+        return 0
+    return 1 if (os.cpu_count() or 1) < 2 or chunk_bytes > 128 << 20 else 2
+
+
+def _random_chunk(reference, component, size, seed, chunk):
+    """The stimulus of a later chunk: ``size`` random vectors, with gaps only."""
+    rows = random_vectors(np.random.default_rng([seed, chunk]),
+                          component.analysis.feature_ranges, size)
+    return make_stimulus(reference, rows, latency=component.latency, beats=component.beats,
+                         seed=[seed, chunk], stall_vectors=0, guard=component.config.guard)
+
+
+def _first_origin(vectors, reloaded, index):
+    """Where a vector of the first chunk came from: a group, or a weight set loaded."""
+    if index < len(vectors):
+        return vectors.origin(index)
+    index -= len(vectors)
+    for name, size in reloaded:
+        if index < size:
+            return name, index
+        index -= size
+    raise IndexError(index)
 
 
 class _Later:
@@ -198,20 +214,3 @@ def first_stimulus(component, model, rows, *, seed=0, reload_count=2000, **optio
               for name, size in vectors.groups]
     return make_reload_stimulus(stimulus, sets, latency=component.latency,
                                 beats=component.beats, seed=seed, **options), tuple(groups)
-
-
-def run_simulator(simulator, component, verilog_text, ports, module, stimulus, *,
-                  progress=None):
-    """Simulate one stimulus: the Amaranth design, or the emitted Verilog text itself."""
-    if simulator == "amaranth":
-        return simulate_amaranth(component, stimulus, progress=progress), \
-            f"amaranth {version('amaranth')}"
-    if simulator == "verilator":
-        note = getattr(progress, "note", None)
-        return simulate_verilator(verilog_text, ports, module, stimulus, progress=note), \
-            verilator_version()
-    with tempfile.TemporaryDirectory(prefix="thresh2hdl-icarus-") as folder:
-        path = Path(folder) / f"{module}.v"
-        path.write_text(verilog_text, encoding="utf-8")
-        result, _ = simulate_icarus(path, ports, module, stimulus, Path(folder) / "run")
-    return result, icarus_version()

@@ -1,34 +1,37 @@
-"""Drive a design cycle by cycle with a :class:`~thresh2hdl.verify.stimulus.Stimulus` and record it.
+"""Amaranth's simulator: the component driven cycle by cycle with a
+:class:`~thresh2hdl.verify.stimulus.Stimulus`, its outputs recorded.
 
 The Amaranth simulator is the embedded default: it needs nothing beyond pip. All inputs of a
 cycle are set with one ``ctx.set`` on their concatenation and all outputs read with one
 ``ctx.get``, which is several times faster than a call per signal.
 """
 
-from dataclasses import dataclass
+from importlib.metadata import version
 
 import numpy as np
 from amaranth.hdl import Cat, ClockDomain, Module
 from amaranth.sim import Simulator
 
-from .stimulus import compare, write_columns
+from .backend import SimulationResult, SimulatorBackend
+from .stimulus import write_columns
 
-__all__ = ["SimulationResult", "simulate_amaranth"]
+__all__ = ["AmaranthBackend", "simulate_amaranth"]
 
 
-@dataclass(frozen=True)
-class SimulationResult:
-    simulator: str
-    in_ready: np.ndarray
-    out_valid: np.ndarray
-    decisions: np.ndarray
-    scores: np.ndarray | None
-    run_seconds: float | None = None     # the simulator's own run, without data marshalling
-    flags: np.ndarray | None = None      # the out-of-range output per cycle, if the design has it
+class AmaranthBackend(SimulatorBackend):
+    """Amaranth's simulator, which runs the component itself (no Verilog)."""
 
-    def check(self, stimulus, *, limit=10):
-        return compare(stimulus, self.in_ready, self.out_valid, self.decisions, self.scores,
-                       flags=self.flags, limit=limit)
+    name = "amaranth"
+    in_process = True
+
+    def __init__(self, component):
+        self.component = component
+
+    def version(self):
+        return f"amaranth {version('amaranth')}"
+
+    def run(self, stimulus, progress=None):
+        return simulate_amaranth(self.component, stimulus, progress=progress)
 
 
 def _pack_columns(columns, widths):

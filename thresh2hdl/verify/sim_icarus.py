@@ -7,6 +7,7 @@ The testbench is filled in from the template ``sim/thresh_tb.v.in`` (shipped in 
 
 import shutil
 import subprocess
+import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -14,12 +15,12 @@ import numpy as np
 from ..errors import ToolError
 from ..outdir import write_text
 from ..tools import find_tool, tool_version
-from .sim_amaranth import SimulationResult
+from .backend import SimulationResult, SimulatorBackend
 from .stimulus import write_columns
 from .templates import template_text
 
-__all__ = ["TestbenchFiles", "testbench_text", "write_testbench", "simulate_icarus",
-           "icarus_version"]
+__all__ = ["IcarusBackend", "TestbenchFiles", "testbench_text", "write_testbench",
+           "simulate_icarus", "icarus_version"]
 
 STIMULUS_FILE = "stimulus.hex"
 EXPECTED_FILE = "expected.hex"
@@ -79,9 +80,9 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     output_wires = [f"  wire {_range(port.width)}tb_{port.name};" for port in ports
                     if port.direction == "output"]
     connections = []
-    for internal, name, direction, width, signed in ports:
-        signal = {"clk": "clk", "rst": "rst"}.get(internal, f"tb_{name}")
-        connections.append(f"    .{name}({signal})")
+    for port in ports:
+        signal = {"clk": "clk", "rst": "rst"}.get(port.internal, f"tb_{port.name}")
+        connections.append(f"    .{port.name}({signal})")
     writes = _write_ports(ports)
     stim_concat = ", ".join([f"tb_{n}" for n, _ in reversed(writes)]
                             + [tb("out_ready"), tb("in_valid")]
@@ -170,7 +171,7 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     """Write the testbench and its two vector files into ``folder``; returns the file names."""
     folder = Path(folder)
     files = TestbenchFiles(module)
-    features = [w for internal, _, _, w, _ in ports if internal.startswith("x")]
+    features = [port.width for port in ports if port.internal.startswith("x")]
     inputs = stimulus.inputs
     columns = [inputs[:, i] for i in range(inputs.shape[1])]
     columns += [stimulus.in_valid.astype(np.int64), stimulus.out_ready.astype(np.int64)]
@@ -180,7 +181,7 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     write_text(folder / files.stimulus,
                _hex_lines(columns, features + [1, 1] + [w for _, w in writes]))
     scores = _score_ports(ports)
-    decision_bits = next(w for internal, _, _, w, _ in ports if internal == "y")
+    decision_bits = next(port.width for port in ports if port.internal == "y")
     index = np.maximum(stimulus.expect_out_index, 0)
     valid = stimulus.expect_out_valid
     decisions = np.where(valid, stimulus.expect_decisions[index], 0)
@@ -252,7 +253,28 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
     if scores_ports:
         scores = np.array([[_decode(row[first_score + k], width) for k, (_, width) in
                             enumerate(scores_ports)] for row in rows], dtype=object)
-        if len(scores_ports) == 1 and not any(i.startswith("score0") for i, *_ in ports):
+        if len(scores_ports) == 1 and not any(port.internal.startswith("score0")
+                                              for port in ports):
             scores = scores[:, 0]
     result = SimulationResult("icarus", in_ready, out_valid, decisions, scores, flags=flags)
     return result, outputs[-1]
+
+
+class IcarusBackend(SimulatorBackend):
+    """Icarus Verilog, which runs the Verilog text with the self-checking testbench."""
+
+    name = "icarus"
+
+    def __init__(self, verilog_text, ports, module):
+        self.verilog_text, self.ports, self.module = verilog_text, ports, module
+
+    def version(self):
+        return icarus_version()
+
+    def run(self, stimulus, progress=None):
+        with tempfile.TemporaryDirectory(prefix="thresh2hdl-icarus-") as folder:
+            path = Path(folder) / f"{self.module}.v"
+            path.write_text(self.verilog_text, encoding="utf-8")
+            result, _ = simulate_icarus(path, self.ports, self.module, stimulus,
+                                        Path(folder) / "run")
+        return result

@@ -21,11 +21,12 @@ import numpy as np
 
 from ..errors import ToolError
 from ..tools import find_tool, tool_version, which_tool
-from .sim_amaranth import SimulationResult
+from .backend import SimulationResult, SimulatorBackend
 from .stimulus import write_columns
 from .templates import template_text
 
-__all__ = ["find_verilator", "verilator_version", "simulate_verilator", "cache_folder"]
+__all__ = ["VerilatorBackend", "find_verilator", "verilator_version", "simulate_verilator",
+           "cache_folder"]
 
 
 def find_verilator():
@@ -76,12 +77,13 @@ def wrapper_text(ports, module):
     lines = [f"module {top} (", f"  input wire {WRAPPER_CLOCK},"]
     inner, registers = [], []
     declared = []
-    for internal, name, direction, width, _signed in ports:
-        bits = f"[{width - 1}:0] " if width > 1 else ""
-        if internal == "clk":
+    for port in ports:
+        name = port.name
+        bits = f"[{port.width - 1}:0] " if port.width > 1 else ""
+        if port.internal == "clk":
             inner.append(f"    .{name}({WRAPPER_CLOCK})")
             continue
-        if direction == "input":
+        if port.direction == "input":
             declared.append(f"  input wire {bits}{name}")
             registers += [f"  reg {bits}t2h_q_{name};",
                           f"  always @(posedge {WRAPPER_CLOCK}) t2h_q_{name} <= {name};"]
@@ -96,7 +98,7 @@ def wrapper_text(ports, module):
 
 def control_words(ports):
     """int32 words per cycle in the control file: 3, or 7 with a weight write port."""
-    return 7 if any(internal == "weight_write" for internal, *_ in ports) else 3
+    return 7 if any(port.internal == "weight_write" for port in ports) else 3
 
 
 def harness_text(ports, module):
@@ -241,9 +243,26 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
         # Verilator keeps a signed port's bits zero-extended in its C++ word: sign-extend.
         shifts = np.array([64 - w for w in score_widths], dtype=np.int64)
         scores = (raw << shifts) >> shifts
-        if not any(i == "score0" for i, *_ in ports):
+        if not any(port.internal == "score0" for port in ports):
             scores = scores[:, 0]
-    has_flag = any(i == "out_of_range" for i, *_ in ports)
+    has_flag = any(port.internal == "out_of_range" for port in ports)
     return SimulationResult("verilator", (flags & 1).astype(bool), (flags & 2).astype(bool),
                             ((flags >> 2) & 0x1FFF).astype(np.int64), scores, run_seconds,
                             flags=(flags >> 15).astype(bool) if has_flag else None)
+
+
+class VerilatorBackend(SimulatorBackend):
+    """Verilator, which runs the Verilog text in a compiled C++ harness."""
+
+    name = "verilator"
+
+    def __init__(self, verilog_text, ports, module):
+        self.verilog_text, self.ports, self.module = verilog_text, ports, module
+
+    def version(self):
+        return verilator_version()
+
+    def run(self, stimulus, progress=None):
+        # The harness is compiled once per design: only the note of that step is shown.
+        return simulate_verilator(self.verilog_text, self.ports, self.module, stimulus,
+                                  progress=getattr(progress, "note", None))

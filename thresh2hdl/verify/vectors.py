@@ -1,4 +1,5 @@
-"""Input vectors for verification: the corners the range analysis names, then random ones."""
+"""Input vectors for verification: the corners the range analysis names, then random ones;
+for loadable weights, the weight sets written through the port, each with its vectors."""
 
 from dataclasses import replace
 
