@@ -13,7 +13,7 @@ from thresh2hdl.verify.runner import run_simulator
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis.ranges import analyse
 from thresh2hdl.verify.reference import ReferenceModel
-from thresh2hdl.reports.html import report_markdown
+from thresh2hdl.reports.markdown import report_markdown
 from thresh2hdl.verify.stimulus import make_stimulus
 from thresh2hdl.verify.vectors import make_vectors
 from thresh2hdl.emit.verilog import port_table
