@@ -18,7 +18,7 @@ from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis import analyse_bank
 from thresh2hdl.verify.reference import ReferenceModel
-from thresh2hdl.reports.report import argmax_report, node_table
+from thresh2hdl.reports.tables import argmax_report, node_table
 from thresh2hdl.verify.stimulus import make_stimulus
 from thresh2hdl.verify.vectors import make_vectors
 from thresh2hdl.emit.verilog import emit_verilog

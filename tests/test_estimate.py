@@ -13,7 +13,8 @@ import pytest
 import thresh2hdl.cost.estimate as estimate
 from helpers import IN_CI, require_tool, run, assert_one_line_error, Structure
 from thresh2hdl.cost.estimate import wrapper_text
-from thresh2hdl.reports.html import report_html, report_markdown
+from thresh2hdl.reports.html import report_html
+from thresh2hdl.reports.markdown import report_markdown
 
 pytestmark = pytest.mark.synth
 

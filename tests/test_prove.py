@@ -447,7 +447,8 @@ def test_an_older_report_still_loads_renders_and_loses_its_stale_counterexample(
     # A folder from before netlist proofs were recorded: no netlist_proofs key, the proof
     # section without the netlist's sha256, no warm-up timing, and a counterexample.csv that
     # a failed --netlist proof left beside a report that says "proved".
-    from thresh2hdl.reports.html import report_html, report_markdown
+    from thresh2hdl.reports.html import report_html
+    from thresh2hdl.reports.markdown import report_markdown
     out = tmp_path / "demo"
     build(demo_model(), out, BuildOptions(simulator="amaranth", vectors=50, prove=True))
     report = json.loads((out / "report.json").read_text())

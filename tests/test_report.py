@@ -221,3 +221,93 @@ def test_a_tree_too_large_to_draw_is_left_to_the_tables(tmp_path):
     assert "<td class=l>0</td><td>products</td><td>90</td>" in text
     markdown = (built.out_dir / "report.md").read_text()
     assert all(f"| {n['name']} | {n['level']} |" in markdown for n in nodes)
+
+
+def test_the_record_is_the_report_json_and_reads_a_unit_and_a_bank_alike(built, bank_built,
+                                                                       tmp_path):
+    from thresh2hdl.app.flow import demo_model
+    from thresh2hdl.reports.record import Report
+    loadable = build(demo_model(), tmp_path / "w", BuildOptions(
+        simulator="amaranth", vectors=50, loadable_weights=True, arch="serial"))
+    for out in (built, bank_built[0], loadable.out_dir):
+        text = (out / "report.json").read_text()
+        data = json.loads(text)
+        record = Report.from_json(data)
+        # One conversion each way: the record writes report.json's data back, key for key
+        # and in the same order, and reads its own JSON form back to itself.
+        assert json.dumps(record.to_json()) == json.dumps(data)
+        assert Report.from_json(record.to_json()) == record
+        rows = record.sizes.units
+        if "units" in data:
+            assert [(u.name, list(u.weights), u.bias) for u in rows] == \
+                [(u["name"], u["weights"], u["bias"]) for u in data["units"]]
+            assert list(record.sizes.score_range) == [
+                min(u["score_range"][0] for u in data["units"]),
+                max(u["score_range"][1] for u in data["units"])] == data["score_range"]
+        else:
+            assert [(u.name, list(u.weights), u.bias) for u in rows] == \
+                [(None, data["weights"], data["bias"])]
+    assert loadable.report == json.loads((loadable.out_dir / "report.json").read_text())
+    assert loadable.report["weight_port"]["ports"] == ["weight_write", "weight_address",
+                                                       "weight_data"]
+
+
+def _paths(value, path=()):
+    """Every table, list and value of a JSON document (a list's first item standing for
+    the rest), by its path."""
+    if path:
+        yield path
+    if isinstance(value, dict):
+        for key, item in value.items():
+            yield from _paths(item, path + (key,))
+    elif isinstance(value, list) and value:
+        yield from _paths(value[0], path + (0,))
+
+
+PROOF = {"status": "counterexample", "netlist": "x.v", "netlist_sha256": "ab", "statement": "s",
+         "method": "m", "lemmas": 3, "solver": "Boolector", "yosys": "Yosys", "arithmetic_bits": 64,
+         "timeout_s": 10, "detail": "d", "failing_lemmas": ["y"], "counterexample": {
+             "vector": {"f0": 1}, "file": "c.csv", "confirmed_in": "Icarus", "mismatch": "m"}}
+ESTIMATE = {"target": "ice40", "device": "--up5k --package sg48", "device_name": "UP5K",
+            "lut4_equivalents": 9, "lut4_rule": "r", "luts": 9, "carries": 2, "flip_flops": 3,
+            "dsps": 0, "dsp_inference": False, "placed": False, "fmax_mhz": None, "cells": {},
+            "tool_versions": {"yosys": "Y", "nextpnr": "N"}, "method": "m", "does_not_fit": [
+                {"resource": "logic cells", "cell": "ICESTORM_LC", "needed": 9, "available": 1}],
+            "input_guard": {"lut4_equivalents": 2, "flip_flops": 1,
+                            "without_guard": {"lut4_equivalents": 7}}}
+QUANTIZATION = {"bits": 6, "agreement_with_float": 1.0, "accuracy": 0.9, "float_accuracy": 0.9,
+                "sweep": [{"bits": 2, "agreement": 0.5, "accuracy": 0.4}], "recommended_bits": 2,
+                "log": "m.quantize.json"}
+
+
+def test_a_report_json_edited_past_showing_is_one_error_naming_the_field(built, bank_built,
+                                                                          tmp_path):
+    # Every table, list and value of a report (every section filled: data, training,
+    # quantization, proofs, an estimate not placed) replaced by a value of another kind: the
+    # report still shows, or reading it is one InputError naming the file and the field;
+    # never another exception from inside a writer.
+    from thresh2hdl.app.flow import report_files
+    from thresh2hdl.errors import InputError
+    source = tmp_path / "report.json"
+    refused = re.compile(rf"^{re.escape(str(source))}: [^:]+: cannot show this report: must be "
+                         rf".+; rebuild the folder$")
+    for out in (built, bank_built[0]):
+        report = json.loads((out / "report.json").read_text())
+        report.update(quantization=QUANTIZATION, proof=PROOF, netlist_proofs={"x.v": PROOF},
+                      estimates={"ice40": ESTIMATE})
+        shown = report_files(tmp_path, report)
+        assert "not placed" in shown[tmp_path / "report.md"]
+        failures = 0
+        for path in _paths(report):
+            for value in (None, "x", -1, 0, 2.5, True, [], [0], {}):
+                edited = json.loads(json.dumps(report))
+                where = edited
+                for key in path[:-1]:
+                    where = where[key]
+                where[path[-1]] = value
+                try:
+                    report_files(tmp_path, edited)
+                except InputError as error:
+                    assert refused.match(str(error)), (path, value, str(error))
+                    failures += 1
+        assert failures > 100

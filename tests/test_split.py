@@ -13,7 +13,7 @@ from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis import analyse
 from thresh2hdl.verify.reference import ReferenceModel
-from thresh2hdl.reports.html import report_markdown
+from thresh2hdl.reports.markdown import report_markdown
 from thresh2hdl.verify.stimulus import make_stimulus
 from thresh2hdl.verify.vectors import make_vectors
 

@@ -22,9 +22,9 @@ from ..hardware import FULL_PIPELINE, UnitConfig, make_component
 from ..model import Model, dataset_for_model, load_model, model_to_toml, parse_model, read_csv
 from ..outdir import check_output_folder, staged_folder, write_files, write_text
 from ..proof import DEFAULT_TIMEOUT_S, prove_netlist
-from ..readers import read_text, shorten
+from ..readers import read_text
 from ..reports import (build_report, model_digest, report_html, report_json, report_markdown,
-                       store_estimate, summary_lines)
+                       report_record, store_estimate, summary_lines)
 from ..verify import (ReferenceModel, choose_simulator, first_stimulus, make_stimulus, make_vectors,
                       make_backend, verify, write_testbench)
 from .settings import read_build_settings, read_history
@@ -185,18 +185,19 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
                             timeout_s=options.prove_timeout_s, simulator=simulator,
                             progress=note)
         timing.update(proof.timing)
-    report = build_report(model, component, verilog_text, verilog_name, verified,
+    record = build_report(model, component, verilog_text, verilog_name, verified,
                           seed=options.seed, chosen_guard=(options.clamp, options.range_flag),
                           dataset=dataset, history=history,
                           proof=None if proof is None else proof.section, timing=timing)
+    report = record.to_json()
     note(f"writing {out_dir}")
     with staged_folder(out_dir, force=options.force) as staging:
         write_text(staging / verilog_name, verilog_text)
         write_text(staging / report["instance_template"], instance_template(component, model))
         write_text(staging / "model.toml", canonical)
-        write_text(staging / "report.json", report_json(report))
-        write_text(staging / "report.html", report_html(report))
-        write_text(staging / "report.md", report_markdown(report))
+        write_text(staging / "report.json", report_json(record))
+        write_text(staging / "report.html", report_html(record))
+        write_text(staging / "report.md", report_markdown(record))
         exported = verified.exported
         if len(exported.vectors) > EXPORTED_VECTORS + 8 * len(analysis.weights) + 2200:
             small = make_vectors(analysis, random_count=EXPORTED_VECTORS, seed=options.seed,
@@ -255,15 +256,12 @@ def _load_folder(out_dir):
 
 def report_files(out_dir, settings):
     """The report files of a folder from its (updated) report data, ready for write_files; a
-    report.json edited into something the formats cannot show is one InputError."""
-    try:
-        return {out_dir / "report.json": report_json(settings),
-                out_dir / "report.html": report_html(settings),
-                out_dir / "report.md": report_markdown(settings)}
-    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as error:
-        raise InputError(f"cannot show this report ({type(error).__name__}: "
-                         f"{shorten(str(error))}); rebuild the folder",
-                         source=out_dir / "report.json") from None
+    report.json edited into something the formats cannot show is one InputError (naming the
+    field) from reading it into the report record."""
+    record = report_record(settings, source=out_dir / "report.json")
+    return {out_dir / "report.json": report_json(settings),
+            out_dir / "report.html": report_html(record),
+            out_dir / "report.md": report_markdown(record)}
 
 
 def estimate_folder(out_dir, *, target="ice40", dsp=None, progress=None):

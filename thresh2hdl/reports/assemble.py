@@ -1,4 +1,5 @@
-"""The build report's sections, from the design, its Verilog and what verification found."""
+"""The build report's record (record.Report), from the design, its Verilog, what verification
+found and the sections the app hands in (history, proof, timing)."""
 
 import hashlib
 from importlib.metadata import version
@@ -11,8 +12,11 @@ from ..analysis import guard_words
 from ..hardware import weight_addresses
 from ..model import model_to_toml
 from ..verify import ReferenceModel, TestbenchFiles
-from .report import (REPORT_FORMAT, SAFETY_CAUTION, argmax_report, level_names, node_table,
-                     stages_report, unit_histograms)
+from .design import Datapath, FeatureRow, Sizes
+from .fields import Table, plain
+from .record import GuardSection, Report, Testbench, Verification, WeightPort
+from .sections import DataSummary, Histogram, ProofSection, QuantizationLog, TrainingLog
+from .tables import argmax_report, level_names, node_table, stages_report, unit_histograms
 
 __all__ = ["build_report", "model_digest", "data_summary", "guard_report"]
 
@@ -40,25 +44,24 @@ def data_summary(model, reference, dataset):
         per_class[str(label)] = {"rows": int(rows.sum()),
                                  "correct": int((predicted[rows] == label).sum()),
                                  "predicted": int((predicted == label).sum())}
-    labels = list(model.labels)
-    confusion = [[int(np.count_nonzero((dataset.labels == true) & (predicted == guess)))
-                  for guess in labels] for true in labels]
-    summary = {"file": Path(dataset.source).name, "rows": len(dataset),
-               "accuracy": float(np.mean(predicted == dataset.labels)), "per_class": per_class,
-               "confusion": {"labels": labels, "rows_true_columns_predicted": confusion}}
+    labels = tuple(model.labels)
+    confusion = tuple(tuple(int(np.count_nonzero((dataset.labels == true) & (predicted == guess)))
+                            for guess in labels) for true in labels)
     scores = np.asarray(reference.scores(dataset.x), dtype=np.float64)
+    seen = (float(scores.min()), float(scores.max()))
+    histogram = histograms = None
     if model.is_bank:
         # Each unit's score on its own class's rows against the others'.
-        summary["score_seen"] = [float(scores.min()), float(scores.max())]
-        summary["unit_histograms"] = unit_histograms(model, scores, dataset.labels)
+        histograms = tuple(unit_histograms(model, scores, dataset.labels))
     else:
         # Score histogram per class, for the report's picture of the decision threshold.
         edges = np.histogram_bin_edges(scores, bins=30)
-        summary["score_seen"] = [float(scores.min()), float(scores.max())]
-        summary["histogram"] = {"edges": [float(e) for e in edges], "counts": {
-            str(label): np.histogram(scores[dataset.labels == label], bins=edges)[0].tolist()
-            for label in labels}}
-    return summary
+        histogram = Histogram(tuple(float(e) for e in edges), {
+            str(label): tuple(np.histogram(scores[dataset.labels == label], bins=edges)[0]
+                              .tolist()) for label in labels})
+    return DataSummary(Path(dataset.source).name, len(dataset),
+                       float(np.mean(predicted == dataset.labels)), per_class, labels,
+                       confusion, seen, histogram, histograms)
 
 
 def _tree_report(component, model, verilog_text):
@@ -113,14 +116,12 @@ def guard_report(component, model, chosen=(None, None)):
     explicit = [name for name, value, default in (("clamp", chosen[0], guard.needed),
                                                   ("flag", chosen[1], guard.needed))
                 if value is not None and value != default]
-    return {"clamp": guard.clamp, "flag": guard.flag, "needed": guard.needed,
-            "flag_port": model.ports.out_of_range if guard.flag else None,
-            "guarded_features": [model.features[i].name for i in guard.tight],
-            "declared_ranges": [list(r) for r in guard.feature_ranges],
-            "port_ranges": [list(r) for r in guard.code_ranges],
-            "every_code_defined": guard.every_code_defined,
-            "changed_from_default": explicit,
-            "statement": guard_words(guard)}
+    return GuardSection(guard.clamp, guard.flag, guard.needed,
+                        model.ports.out_of_range if guard.flag else None,
+                        tuple(model.features[i].name for i in guard.tight),
+                        tuple(tuple(r) for r in guard.feature_ranges),
+                        tuple(tuple(r) for r in guard.code_ranges), guard.every_code_defined,
+                        tuple(explicit), guard_words(guard))
 
 
 def _weight_port_report(component, model):
@@ -128,51 +129,54 @@ def _weight_port_report(component, model):
     if not config.loadable_weights:
         return None
     features = len(model.features)
-    return {"weight_bits": config.weight_bits, "bias_bits": config.bias_bits,
-            "weight_range": list(component.analysis.weight_range),
-            "bias_range": list(component.analysis.bias_range),
-            "data_bits": max(config.weight_bits, config.bias_bits),
-            "addresses": weight_addresses(model),
-            "map": f"unit u weight i at u * {features + 1} + i, its bias at u * "
-                   f"{features + 1} + {features}; a write takes effect from the next clock; "
-                   f"write while no result is in flight",
-            "ports": [model.ports.weight_write, model.ports.weight_address,
-                      model.ports.weight_data]}
+    return WeightPort(config.weight_bits, config.bias_bits,
+                      tuple(component.analysis.weight_range),
+                      tuple(component.analysis.bias_range),
+                      max(config.weight_bits, config.bias_bits), weight_addresses(model),
+                      f"unit u weight i at u * {features + 1} + i, its bias at u * "
+                      f"{features + 1} + {features}; a write takes effect from the next clock; "
+                      f"write while no result is in flight",
+                      (model.ports.weight_write, model.ports.weight_address,
+                       model.ports.weight_data))
+
+
+def _history(history):
+    """The fit or quantize log's sections (app.settings.read_history reads them)."""
+    kinds = {"training": TrainingLog, "quantization": QuantizationLog}
+    return {key: kinds[key].from_json(Table(plain(section), key))
+            for key, section in history.items()}
 
 
 def build_report(model, component, verilog_text, verilog_name, verified, *, seed, chosen_guard,
                  dataset, history, proof, timing):
-    """The report of one build: sizes, ports, verification, data, proof section and timing."""
+    """The record of one build: sizes, ports, verification, data, proof section and timing.
+    ``history``: the report's ``training``/``quantization`` tables; ``proof``: the proof's
+    table, or None."""
     reference = ReferenceModel.from_model(model)
-    return {
-        "report_format": REPORT_FORMAT,
-        "module": model.module,
-        "verilog": verilog_name,
-        "instance_template": f"{model.module}_instance.vh",
-        "model_sha256": model_digest(model),
-        "tool_versions": _tool_versions(),
-        "features": [{"name": f.name, "bits": f.bits, "signed": f.signed} for f in model.features],
-        **_units_report(model, component.unit_analyses, component, verilog_text),
-        "latency_cycles": component.latency,
-        "register_stages": component.config.pipeline,
-        "beats_per_result": component.beats,
-        "weight_port": _weight_port_report(component, model),
-        "input_guard": guard_report(component, model, chosen=chosen_guard),
-        "vectors_checked": verified.vectors_checked,
-        "mismatches": verified.mismatches,
-        "testbench": {"file": f"{model.module}_tb.v", "command": TestbenchFiles(
-            model.module).run_command(verilog_name)},
-        "verification": {
-            "simulator": verified.simulator,
-            "simulator_version": verified.simulator_version,
-            "cycles": verified.cycles,
-            "vector_groups": [list(g) for g in verified.vector_groups],
-            "seed": seed,
-            "first_mismatches": list(verified.first_mismatches),
-        },
-        "data": None if dataset is None else data_summary(model, reference, dataset),
-        **history,
-        **({} if proof is None else {"proof": proof}),
-        "caution": SAFETY_CAUTION,
-        "timing": {key: round(value, 3) for key, value in timing.items()},
-    }
+    features = tuple(FeatureRow(f.name, f.bits, f.signed) for f in model.features)
+    # The sizing keys and the tree as report.json holds them, read into the record the way
+    # a loaded report.json is.
+    sizing = Table(plain(_units_report(model, component.unit_analyses, component,
+                                           verilog_text)))
+    sizes = Sizes.from_json(sizing, len(features))
+    return Report(
+        module=model.module, verilog=verilog_name, model_sha256=model_digest(model),
+        tool_versions=_tool_versions(), features=features, sizes=sizes,
+        datapath=Datapath.from_json(sizing.table("tree"), sizes.is_bank),
+        latency_cycles=component.latency,
+        verification=Verification(
+            verified.vectors_checked, verified.mismatches, verified.simulator,
+            verified.simulator_version, verified.cycles,
+            tuple(tuple(g) for g in verified.vector_groups), tuple(verified.first_mismatches),
+            seed),
+        testbench=Testbench(f"{model.module}_tb.v",
+                            TestbenchFiles(model.module).run_command(verilog_name)),
+        instance_template=f"{model.module}_instance.vh",
+        register_stages=component.config.pipeline, beats_per_result=component.beats,
+        weight_port=_weight_port_report(component, model),
+        input_guard=guard_report(component, model, chosen=chosen_guard),
+        data=None if dataset is None else data_summary(model, reference, dataset),
+        **_history(history),
+        proof=None if proof is None else ProofSection.from_json(Table(plain(proof),
+                                                                      "proof")),
+        timing={key: round(value, 3) for key, value in timing.items()})

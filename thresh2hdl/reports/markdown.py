@@ -1,0 +1,66 @@
+"""report.md: the report for review threads, read from the report record like report.json and
+report.html."""
+
+from .phrases import cost_text, entry_text, guard_text, levels_text, split_text, stages_text
+from .record import report_record
+
+__all__ = ["report_markdown"]
+
+
+def _cell(text):
+    """Text for a Markdown table cell (a file name may hold a bar)."""
+    return str(text).replace("|", "\\|")
+
+
+def _proof_cell(proof):
+    example = proof.counterexample
+    return (f"{proof.status} ({proof.lemmas} lemmas, {proof.solver})"
+            + (f"; counterexample in {example.file}" if example else ""))
+
+
+def report_markdown(report):
+    """The report (the record, or report.json's data) for review threads."""
+    report = report_record(report)
+    sizes, datapath, v = report.sizes, report.datapath, report.verification
+    split = split_text(datapath)
+    beats = report.beats_per_result
+    lines = [f"# {report.module}", "", f"> **Caution.** {report.caution}", "",
+             f"thresh2hdl {report.tool_versions['thresh2hdl']}, model sha256 "
+             f"`{report.model_sha256}`", "", "| quantity | value |", "| --- | --- |",
+             f"| score range | [{sizes.score_range[0]}, {sizes.score_range[1]}] |",
+             f"| score bits (fewest) | {sizes.score_bits_min} |",
+             f"| score port bits | {sizes.score_bits} |",
+             f"| headroom bits | {sizes.headroom_bits} |",
+             f"| architecture | {datapath.arch} |",
+             f"| latency (cycles) | {report.latency_cycles} |",
+             f"| levels | {levels_text(datapath)} |",
+             f"| register stages | {stages_text(report)} |",
+             f"| valid beats per result | {1 if beats is None else beats} |",
+             *([f"| codes outside the declared ranges | {guard_text(report.input_guard)} |"]
+               if report.input_guard else []),
+             *([f"| split adders | {split} |"] if split else []),
+             f"| vectors checked | {v.vectors_checked} |",
+             f"| mismatches | {v.mismatches} |",
+             f"| simulator | {v.simulator_version} |"]
+    if report.data:
+        lines.append(f"| accuracy on {report.data.file} | {report.data.accuracy:.4f} |")
+    for target, estimate in report.estimates.items():
+        lines.append(f"| {target} {estimate.name} cost | {cost_text(estimate)} |")
+        lines.append(f"| {target} LUT4 equivalents | {estimate.rule} |")
+    proof = report.proof
+    lines.append(f"| proof | {_proof_cell(proof)} |" if proof else "| proof | not run |")
+    lines += [f"| proof of --netlist {_cell(name)} | {_cell(_proof_cell(other))} |"
+              for name, other in report.netlist_proofs.items()]
+    lines += ["", "| node | level | stage | bits | range | in the Verilog |",
+              "| --- | --- | --- | --- | --- | --- |"]
+    lines += [f"| {n.name} | {n.level} | {n.stage or '-'} | {n.bits} | "
+              f"[{n.range[0]}, {n.range[1]}] | {n.verilog or ''} |" for n in datapath.nodes]
+    if datapath.argmax:
+        lines += ["", "Argmax: each comparison takes the left input when left >= right (a tie "
+                  "goes to the lower class index).", "",
+                  "| comparison | level | stage | left | right | on a tie |",
+                  "| --- | --- | --- | --- | --- | --- |"]
+        lines += [f"| {c.name} | {'-' if c.level is None else c.level} | "
+                  f"{c.stage or '-'} | {entry_text(c, 'left')} | {entry_text(c, 'right')} | "
+                  f"{c.ties_to} |" for c in datapath.argmax]
+    return "\n".join(lines) + "\n"

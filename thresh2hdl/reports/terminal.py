@@ -1,0 +1,50 @@
+"""The report's short form, for the terminal after a build."""
+
+from .phrases import levels_text, stages_text
+from .record import SAFETY_CAUTION, report_record
+
+__all__ = ["summary_lines"]
+
+
+def summary_lines(report):
+    """The short form of the report (the record, or report.json's data)."""
+    report = report_record(report)
+    sizes, datapath, verification = report.sizes, report.datapath, report.verification
+    lo, hi = sizes.score_range
+    split = datapath.split
+    lines = [
+        f"module {report.module}: {len(report.features)} features -> {report.verilog}",
+        f"  score range [{lo}, {hi}] needs {sizes.score_bits_min} bits; port "
+        f"{sizes.score_bits} bits (headroom {sizes.headroom_bits})",
+        (f"  serial multiply-accumulate: {report.beats_per_result} beats per result; "
+         if datapath.arch == "serial" else
+         f"  datapath: {levels_text(datapath)}, {len(datapath.nodes)} nodes; "
+         f"{stages_text(report)}; ") + (f"{split.split_adders} adders split in "
+                                        f"{split.split_bits}-bit parts; "
+                                        if split and split.split_adders else "")
+        + f"latency {report.latency_cycles} cycle(s)",
+        f"  verified in {verification.simulator_version}: {verification.vectors_checked} "
+        f"vectors over {verification.cycles} cycles, {verification.mismatches} mismatches",
+    ]
+    guard = report.input_guard
+    if guard and guard.needed:
+        what = " and ".join(word for word, on in (("clamped", guard.clamp),
+                                                  (f"flagged on {guard.flag_port}",
+                                                   guard.flag)) if on)
+        lines.append(f"  codes outside the declared ranges of "
+                     f"{', '.join(guard.guarded_features)}: "
+                     + (f"{what}" if what else "NOT guarded (turned off): results for such "
+                        "codes are not specified"))
+    if report.data:
+        data = report.data
+        lines.append(f"  accuracy on {data.file}: {data.accuracy:.4f} over {data.rows} rows")
+    proof = report.proof
+    if proof:
+        lines.append(f"  proof of {proof.netlist}: {proof.status} ({proof.lemmas} "
+                     f"lemmas, {proof.solver})")
+        if proof.status != "proved":
+            lines.append(f"  PROOF {proof.detail}")
+    for text in verification.first_mismatches[:3]:
+        lines.append(f"  MISMATCH {text}")
+    lines.append(f"  caution: {SAFETY_CAUTION}")
+    return lines
