@@ -41,7 +41,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..errors import InputError, ToolError
-from ..names import GUARD_FLAG, register_name, valid_name
+from ..names import (GUARD_FLAG, SCORE_CONST, argmax_names, register_name, unit_prefix,
+                     valid_name)
 from ..analysis import signed_bits
 from ..tools import find_tool, warm_up
 
@@ -123,16 +124,15 @@ class _Plan:
         self.closed = set()       # values that may be cut points
         units = component.unit_analyses
         for index, analysis in enumerate(units):
-            prefix = f"u{index}_" if model.is_bank else ""
+            prefix = unit_prefix(index) if model.is_bank else ""
             self._unit(analysis, prefix, model.units[index] if model.is_bank else model.unit)
         self.guard = component.config.guard
         if self.guard.flag:
             # The out-of-range flag: made at the inputs (stage 0), carried with the result.
             self.add(_Value(GUARD_FLAG, "flag", (), 0, 0, 1, False))
-        self.final_stage = self.stage_of(getattr(component, "plan", component.analysis)
-                                         .final_level)
+        self.final_stage = self.stage_of(component.final_level)
         if model.is_bank:
-            self.class_value = self._argmax(component.plan)
+            self.class_value = self._argmax(component.bank)
         _check_cover(self, model)
 
     def add(self, value):
@@ -192,7 +192,7 @@ class _Plan:
             self.linear(name, node.kind, (left.name, right.name), stage, coeffs,
                         fa * left.constant + fb * right.constant)
         if analysis.score_node is None and self.model.is_bank:
-            name = prefix + "score_const"
+            name = prefix + SCORE_CONST
             self.linear(name, "const", (), 0, {}, analysis.bias)
             self.unit_scores.append((name, 1, 0))
         elif analysis.score_node is None:
@@ -217,12 +217,12 @@ class _Plan:
             stage = self.stage_of(level)
             lo = min(self.values[a].lo, self.values[b].lo)
             hi = max(self.values[a].hi, self.values[b].hi)
-            self.closed.update((f"{tag}_score", f"{tag}_class"))
-            self.add(_Value(f"{tag}_score", "max", (a, b), stage, lo, hi, True,
-                            first=first, last=last))
-            self.add(_Value(f"{tag}_class", "pick", (a, b, ia, ib), stage, first, last,
+            score, chosen = argmax_names(tag)
+            self.closed.update((score, chosen))
+            self.add(_Value(score, "max", (a, b), stage, lo, hi, True, first=first, last=last))
+            self.add(_Value(chosen, "pick", (a, b, ia, ib), stage, first, last,
                             False, first=first, last=last))
-            return f"{tag}_score", f"{tag}_class", first, last
+            return score, chosen, first, last
 
         return plan.tournament(layer, merge)[1]      # None for a bank of one unit: class 0
 
@@ -738,11 +738,11 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
                   progress=None):
     """Prove that ``verilog_text`` computes ``model`` exactly, or find where it does not.
 
-    ``component`` gives the plan (values, stages) the lemmas follow; ``port_rows`` is
+    ``component``: the design's plan (:func:`~thresh2hdl.hardware.plan_design`) or its
+    component, whose values and stages the lemmas follow; ``port_rows`` is
     :func:`thresh2hdl.emit.verilog.port_table` of it. Returns a :class:`ProofOutcome`.
     """
     yosys, boolector = proof_tools()
-    component._MustUse__silence = True    # read as a plan here, not elaborated: no warning
     # Each tool's first call, for its version, before the clock starts: a WebAssembly build
     # compiles then on a new machine (a minute or so), which is neither the proof's time nor
     # part of its timeout.
@@ -759,7 +759,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
         # Its values are shared by every beat: a proof needs per-beat invariants of the
         # accumulator, which these per-value lemmas do not state.
         uncovered = "the serial architecture is not covered by the proof"
-    elif getattr(component, "split_parts", None):
+    elif component.split_parts:
         uncovered = "split adders are not covered by the proof (their parts have no " \
                     "registers of the plan's values)"
     elif component.config.loadable_weights:
