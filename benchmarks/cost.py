@@ -12,7 +12,7 @@ import statistics
 
 import numpy as np
 
-from thresh2hdl.hardware.circuit import UnitConfig, make_component
+from thresh2hdl.hardware import UnitConfig, make_component
 from thresh2hdl.cost.estimate import estimate_cost
 from thresh2hdl.model.records import FeatureFormat, Model, Unit
 from thresh2hdl.analysis import analyse

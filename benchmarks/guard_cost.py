@@ -10,7 +10,7 @@ seeds), and each one's LUT4 against the unguarded design.
 
 import statistics
 
-from thresh2hdl.hardware.circuit import UnitConfig, make_component
+from thresh2hdl.hardware import UnitConfig, make_component
 from thresh2hdl.cost.estimate import estimate_cost
 from thresh2hdl.app.flow import demo_model
 from thresh2hdl.emit.verilog import emit_verilog, port_table

@@ -15,7 +15,7 @@ import numpy as np
 
 import thresh2hdl.proof.prover as prove_module
 import thresh2hdl.proof.solve as solve_module
-from thresh2hdl.hardware.circuit import UnitConfig, make_component
+from thresh2hdl.hardware import UnitConfig, make_component
 from thresh2hdl.model.records import FeatureFormat, Model, Unit
 from thresh2hdl.emit.verilog import emit_verilog, port_table
 

@@ -13,7 +13,7 @@ import time
 
 import numpy as np
 
-from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig, make_component
+from thresh2hdl.hardware import ThresholdUnit, UnitConfig, make_component
 from thresh2hdl.verify.runner import CHUNK_VECTORS, chunk_vectors, verify
 from thresh2hdl.verify.sim_verilator import VerilatorBackend
 from thresh2hdl.model.records import FeatureFormat, Model, Unit

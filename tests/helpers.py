@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.hardware import ThresholdUnit, UnitConfig
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.verify.sim_amaranth import simulate_amaranth

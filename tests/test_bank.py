@@ -11,7 +11,8 @@ from amaranth.sim import Simulator
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import require_tool, assert_lint_clean_and_agrees, bank_model
-from thresh2hdl.hardware.circuit import FULL_PIPELINE, ThresholdBank, UnitConfig, make_component
+from thresh2hdl.hardware import (FULL_PIPELINE, ThresholdBank, UnitConfig, make_component,
+                                  plan_design)
 from thresh2hdl.errors import InputError
 from thresh2hdl.app.flow import BuildOptions
 from thresh2hdl.verify.sim_amaranth import AmaranthBackend
@@ -84,7 +85,7 @@ def prepared(case, vectors=150):
     pipeline = min(pipeline, analyse_bank(model, arch=arch).final_level + 1)
     dut = make_component(UnitConfig(model, pipeline=pipeline, arch=arch))
     rows = make_vectors(dut.analysis, random_count=vectors,
-                        others=dut.plan.units[1:]).array
+                        others=dut.unit_analyses[1:]).array
     stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
                              valid_probability=0.8, ready_probability=0.7)
     return model, dut, stimulus
@@ -167,10 +168,8 @@ def test_report_names_every_node_where_the_verilog_holds_it():
 
 
 def planned(model, **options):
-    """A component planned but not built (no "never elaborated" warning)."""
-    component = make_component(UnitConfig(model, **options))
-    component._MustUse__silence = True
-    return component
+    """A design planned, no component built."""
+    return plan_design(UnitConfig(model, **options))
 
 
 def test_full_pipeline_is_resolved_when_the_design_is_planned():

@@ -1,13 +1,18 @@
 """The Amaranth component against a deliberately simple gold model, in Amaranth's simulator."""
 
+import gc
+import warnings
+
 import numpy as np
 import pytest
-from amaranth.hdl import ClockDomain, Module
+from amaranth.hdl import ClockDomain, Fragment, Module, UnusedElaboratable
 from amaranth.sim import Simulator
 from hypothesis import given, settings, strategies as st
 
-from helpers import make_model, check_design
-from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
+from helpers import bank_model, make_model, check_design
+from thresh2hdl.hardware import (FULL_PIPELINE, DesignPlan, ThresholdUnit, UnitConfig,
+                                 make_component, plan_design)
+from thresh2hdl.hardware.component import PLAN_FACTS
 from thresh2hdl.errors import InputError
 from thresh2hdl.model.records import PortNames
 from thresh2hdl.analysis import analyse
@@ -149,3 +154,69 @@ def test_verification_in_chunks_covers_every_vector_and_catches_late_errors(monk
     wrong = make_model([5, -3, 2, 7], -10, bits=6)
     verified = runner.verify(AmaranthBackend(dut), dut, wrong, count=1000)
     assert verified.mismatches > 0 and verified.first_mismatches
+
+
+def _unused_components(caught):
+    return [w for w in caught if issubclass(w.category, UnusedElaboratable)]
+
+
+def test_every_kind_of_design_is_planned_alike_without_a_component():
+    # One plan for a unit, a bank and a serial design, with the same attributes, and the same
+    # answers as the component built from it. Planning makes no Amaranth elaboratable, so
+    # nothing is left "created but never used" (Amaranth 0.5 warns of those when collected).
+    unit = make_model([7, -3, 12, 5], -40, bits=6, signed=True)
+    bank = bank_model([[1, 2, 3], [3, -2, 1], [0, 1, 1]], [0, 5, -5])
+    configs = {"unit": UnitConfig(unit, pipeline=2),
+               "split": UnitConfig(unit, pipeline=2, split_bits=3, carry_registers=2),
+               "bank": UnitConfig(bank, pipeline=FULL_PIPELINE),
+               "serial": UnitConfig(unit, arch="serial"),
+               "serial bank": UnitConfig(bank, arch="serial", loadable_weights=True)}
+    gc.collect()          # what earlier tests left is not counted here
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        plans = {name: plan_design(config) for name, config in configs.items()}
+        gc.collect()
+    assert not _unused_components(caught)
+    kinds = {"unit": "unit", "split": "unit", "bank": "bank", "serial": "serial",
+             "serial bank": "serial"}
+    for name, plan in plans.items():
+        assert isinstance(plan, DesignPlan) and plan.kind == kinds[name]
+        component = make_component(configs[name])
+        Fragment.get(component, None)        # elaborated, so used
+        assert component.design.kind == plan.kind
+        for fact in set(PLAN_FACTS) - {"level_stage"}:
+            assert getattr(component, fact) == getattr(plan, fact), (name, fact)
+        assert [plan.level_stage(level) for level in range(plan.levels)] == \
+            [component.level_stage(level) for level in range(plan.levels)]
+        assert list(plan.signature.members) == list(component.signature.members)
+        assert plan.analysis is plan.unit_analyses[0]
+        assert (plan.bank is not None) == plan.config.model.is_bank
+        assert plan.feature_count == len(plan.config.model.features)
+        assert plan.score_port_count == len(component.score_ports)
+        assert plan.decision_bits == len(component.y)
+    unit_plan, split, bank_plan = plans["unit"], plans["split"], plans["bank"]
+    assert unit_plan.split_parts == {} and unit_plan.result_parts == 1
+    assert unit_plan.latency == 2 and unit_plan.beats == 1
+    assert split.split_parts and split.result_parts > 1
+    nodes = {node.name: node for node in split.analysis.nodes}
+    assert all(nodes[name].bits > 3 and parts == -(-nodes[name].bits // 3)
+               for name, parts in split.split_parts.items())
+    assert split.latency == 2 + (split.result_parts - 1) * 2
+    assert bank_plan.latency == bank_plan.levels == bank_plan.bank.levels
+    assert len(bank_plan.unit_analyses) == 3 and bank_plan.result_parts == 1
+    assert plans["serial"].beats == 4 and plans["serial bank"].beats == 3
+    assert plans["serial"].stage_levels == ((0, 0),) and plans["serial bank"].latency == 1
+
+
+def test_a_refused_component_leaves_nothing_unused():
+    unit = make_model([7, -3], 1, bits=4)
+    bank = bank_model([[1, 2], [3, -2]], [0, 5])
+    gc.collect()          # what earlier tests left is not counted here
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        with pytest.raises(InputError, match="at most"):
+            ThresholdUnit(UnitConfig(unit, pipeline=99))
+        with pytest.raises(ValueError, match="make_component"):
+            ThresholdUnit(UnitConfig(bank))
+        gc.collect()
+    assert not _unused_components(caught)

@@ -129,7 +129,7 @@ def test_readme_python_example_runs_from_the_checkout(tmp_path):
     prelude = ("import sys\nsys.meta_path[:] = [f for f in sys.meta_path\n"
                "                 if 'editable' not in getattr(f, '__module__', '')]\n")
     # The Verilator harness's template too (the other template reader).
-    after = ("\nfrom thresh2hdl.hardware.circuit import UnitConfig, make_component\n"
+    after = ("\nfrom thresh2hdl.hardware import UnitConfig, make_component\n"
              "from thresh2hdl.verify.sim_verilator import harness_text\n"
              "from thresh2hdl.emit.verilog import port_table\n"
              "component = make_component(UnitConfig(model, pipeline=2))\n"

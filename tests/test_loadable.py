@@ -12,7 +12,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import (IN_CI, require_tool, make_model, assert_agrees_in_amaranth, run,
                      assert_one_line_error, assert_lint_clean_and_agrees)
-from thresh2hdl.hardware.circuit import UnitConfig, make_component, weight_addresses
+from thresh2hdl.hardware import UnitConfig, make_component, weight_addresses
 from thresh2hdl.errors import InputError
 from thresh2hdl.verify.runner import first_stimulus
 from thresh2hdl.verify.sim_amaranth import AmaranthBackend
@@ -206,6 +206,21 @@ def test_narrow_weight_port_is_refused_by_the_library():
         UnitConfig(model, loadable_weights=True, weight_bits=7)
 
 
+def test_weight_port_refusals_name_the_config_field():
+    # The library names UnitConfig's fields, never command-line flags (the application maps
+    # fields to its options).
+    model = make_model([100, -3], bits=4)
+    for field, config in (("weight_bits", dict(loadable_weights=True, weight_bits=3)),
+                          ("weight_bits", dict(weight_bits=8)),
+                          ("bias_bits", dict(loadable_weights=True, bias_bits=99)),
+                          ("bias_bits", dict(bias_bits=8)),
+                          ("loadable_weights", dict(loadable_weights=True, arch="shiftadd")),
+                          ("pipeline", dict(loadable_weights=True, pipeline=0))):
+        with pytest.raises(InputError) as refused:
+            UnitConfig(model, **config)
+        assert refused.value.field == field and "--" not in str(refused.value), config
+
+
 def test_loadable_demo_reports_its_port_and_is_not_proved(tmp_path):
     from thresh2hdl.proof.prover import proof_tools
     out = tmp_path / "d"
@@ -232,9 +247,9 @@ def test_loadable_demo_reports_its_port_and_is_not_proved(tmp_path):
 
 
 def test_a_design_that_ignores_writes_is_caught_and_named(monkeypatch):
-    import thresh2hdl.hardware.circuit as circuit
+    from thresh2hdl.hardware import weights
     from thresh2hdl.verify.runner import verify
-    monkeypatch.setattr(circuit._WeightStore, "_write", staticmethod(lambda *args: None))
+    monkeypatch.setattr(weights.WeightStore, "_write", staticmethod(lambda *args: None))
     model = make_model([3, -2, 1], 5, bits=4)
     dut = make_component(UnitConfig(model, loadable_weights=True, weight_bits=5, bias_bits=7))
     verified = verify(AmaranthBackend(dut), dut, model, count=200)

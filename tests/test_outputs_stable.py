@@ -20,7 +20,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from thresh2hdl.hardware.circuit import FULL_PIPELINE
+from thresh2hdl.hardware import FULL_PIPELINE
 from thresh2hdl.app.flow import BuildOptions, build, demo_model
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 

@@ -14,7 +14,7 @@ import pytest
 
 from helpers import (require_proof_tools, require_tool, make_model, run, assert_one_line_error,
                      bank_model)
-from thresh2hdl.hardware.circuit import UnitConfig, make_component
+from thresh2hdl.hardware import UnitConfig, make_component, plan_design
 from thresh2hdl.errors import InputError, MismatchError, ToolError, UndecidedError
 from thresh2hdl.app.flow import BuildOptions, build, demo_model, prove
 from thresh2hdl.verify.sim_icarus import IcarusBackend
@@ -33,10 +33,11 @@ def tools():
 
 
 def proved(model, *, pipeline=0, arch="tree", text=None, timeout_s=120, **config):
-    component = make_component(UnitConfig(model, pipeline=pipeline, arch=arch, **config))
-    text = emit_verilog(component, model) if text is None else text
-    return prove_netlist(text, component, model, port_table(component, model),
-                         timeout_s=timeout_s)
+    config = UnitConfig(model, pipeline=pipeline, arch=arch, **config)
+    if text is None:
+        text = emit_verilog(make_component(config), model)
+    design = plan_design(config)       # what the proof reads: no component left unused
+    return prove_netlist(text, design, model, port_table(design, model), timeout_s=timeout_s)
 
 
 def random_model(seed, *, units=1, features=None, score=True):

@@ -11,7 +11,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import (IN_CI, require_tool, make_model, assert_agrees_in_amaranth, run,
                      assert_one_line_error, assert_lint_clean_and_agrees)
-from thresh2hdl.hardware.circuit import SerialThreshold, UnitConfig, make_component, sample_shape
+from thresh2hdl.hardware import SerialThreshold, UnitConfig, make_component, sample_shape
 from thresh2hdl.errors import InputError
 from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
@@ -178,7 +178,7 @@ def serial_prepared(case, vectors=120):
     ports = PortNames() if with_score else PortNames(score="")
     model = Model(module="ser", features=formats, units=unit_list, ports=ports)
     dut = make_component(UnitConfig(model, arch="serial"))
-    others = dut.plan.units[1:] if dut.plan is not None else ()
+    others = dut.unit_analyses[1:]
     rows = make_vectors(dut.analysis, random_count=vectors, others=others).array
     stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
                              beats=dut.beats, valid_probability=0.8, ready_probability=0.6)

@@ -6,7 +6,7 @@ import re
 from hypothesis import given, settings, strategies as st
 
 from helpers import make_model, check_design
-from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.hardware import ThresholdUnit, UnitConfig
 from thresh2hdl.analysis import analyse, csd_digits
 from thresh2hdl.emit.verilog import emit_verilog
 

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from helpers import require_tool, make_model, run, assert_one_line_error, exported_testbench
-from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.hardware import ThresholdUnit, UnitConfig
 from thresh2hdl.verify.runner import make_backend, verify
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.verify.stimulus import make_stimulus

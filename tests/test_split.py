@@ -7,7 +7,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import (require_tool, make_model, assert_agrees_in_amaranth, run,
                      assert_one_line_error, assert_lint_clean_and_agrees)
-from thresh2hdl.hardware.circuit import UnitConfig, make_component
+from thresh2hdl.hardware import UnitConfig, make_component
 from thresh2hdl.errors import InputError
 from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
@@ -98,15 +98,20 @@ def test_split_is_refused_where_it_does_not_apply():
     bank = Model(module="b", features=[FeatureFormat("a", 4)],
                  units=[Unit("p", (1,), 0), Unit("q", (2,), 0)])
     unit = make_model([3, 4], bits=8)
-    for config in (dict(model=bank, split_bits=8), dict(model=unit, split_bits=8, pipeline=0),
-                   dict(model=unit, split_bits=8, arch="serial"),
-                   dict(model=unit, split_bits=8, carry_registers=0),
-                   dict(model=unit, split_bits=8, carry_registers=5),
-                   dict(model=unit, split_bits=1), dict(model=unit, split_bits=8,
-                                                        loadable_weights=True)):
-        with pytest.raises(InputError, match="--split-adders|--carry-registers"):
+    # The error names the refused UnitConfig field, never a command-line flag (the
+    # application maps fields to its options).
+    for field, config in (
+            ("split_bits", dict(model=bank, split_bits=8)),
+            ("split_bits", dict(model=unit, split_bits=8, pipeline=0)),
+            ("split_bits", dict(model=unit, split_bits=8, arch="serial")),
+            ("carry_registers", dict(model=unit, split_bits=8, carry_registers=0)),
+            ("carry_registers", dict(model=unit, split_bits=8, carry_registers=5)),
+            ("split_bits", dict(model=unit, split_bits=1)),
+            ("split_bits", dict(model=unit, split_bits=8, loadable_weights=True))):
+        with pytest.raises(InputError, match=f"^{field}: ") as refused:
             UnitConfig(**config)
-    with pytest.raises(InputError, match="--carry-registers: applies only to split adders"):
+        assert refused.value.field == field and "--" not in str(refused.value), config
+    with pytest.raises(InputError, match="^carry_registers: applies only to split adders"):
         UnitConfig(model=unit, carry_registers=2)
 
 

@@ -9,7 +9,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import make_model, lint_verilator, lint_icarus
-from thresh2hdl.hardware.circuit import ThresholdUnit, UnitConfig
+from thresh2hdl.hardware import ThresholdUnit, UnitConfig
 from thresh2hdl.app.flow import demo_model
 from thresh2hdl.model.records import PortNames
 from thresh2hdl.analysis import analyse
@@ -70,7 +70,7 @@ def test_same_model_gives_byte_identical_verilog_with_no_paths_or_times():
 
 
 def test_verilog_is_identical_from_another_working_folder(tmp_path):
-    code = ("import sys, thresh2hdl; from thresh2hdl.hardware.circuit import *; "
+    code = ("import sys, thresh2hdl; from thresh2hdl.hardware import *; "
             "m = thresh2hdl.demo_model(); "
             "sys.stdout.write(thresh2hdl.emit_verilog(ThresholdUnit(UnitConfig(m)), m))")
     outputs = []

@@ -3,9 +3,11 @@ of the signals that the circuit makes and the proof reads (one definition for bo
 
 import re
 
-__all__ = ["VERILOG_KEYWORDS", "check_identifier", "GUARD_FLAG", "register_name", "valid_name"]
+__all__ = ["VERILOG_KEYWORDS", "check_identifier", "GUARD_FLAG", "SCORE_CONST", "register_name",
+           "valid_name", "unit_prefix", "argmax_names"]
 
 GUARD_FLAG = "guard_flag"     # the input guard's out-of-range flag, made at the inputs
+SCORE_CONST = "score_const"   # a bank unit's score when every weight is 0 (after its prefix)
 
 
 def register_name(value, stage):
@@ -16,6 +18,16 @@ def register_name(value, stage):
 def valid_name(stage):
     """The valid bit of register stage ``stage`` (1 is the first)."""
     return f"valid_s{stage}"
+
+
+def unit_prefix(index):
+    """What starts the name of every value of a bank's unit ``index``."""
+    return f"u{index}_"
+
+
+def argmax_names(tag):
+    """The winning score and its class of the argmax comparison ``tag``."""
+    return f"{tag}_score", f"{tag}_class"
 
 # Reserved words of IEEE 1364-2005 (Verilog) plus IEEE 1800-2017 (SystemVerilog), so that a name
 # accepted here is also usable when the file is read by a SystemVerilog front end. From the

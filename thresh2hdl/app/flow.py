@@ -18,7 +18,7 @@ from ..analysis import ARCHITECTURES
 from ..cost import estimate_cost, synthesis_figures
 from ..emit import emit_verilog, instance_template, port_table, range_comments, read_netlist
 from ..errors import DoesNotFitError, InputError, MismatchError, ToolError, UndecidedError
-from ..hardware import FULL_PIPELINE, UnitConfig, make_component
+from ..hardware import FULL_PIPELINE, UnitConfig, make_component, plan_design
 from ..model import Model, dataset_for_model, load_model, model_to_toml, parse_model, read_csv
 from ..outdir import check_output_folder, staged_folder, write_files, write_text
 from ..proof import DEFAULT_TIMEOUT_S, prove_netlist
@@ -232,7 +232,8 @@ class CheckResult:
 
 
 def _load_folder(out_dir):
-    """The model, report and rebuilt component of a build folder."""
+    """The model, report and design (its plan: nothing here elaborates it) of a build
+    folder."""
     out_dir = Path(out_dir)
     if not out_dir.is_dir():
         raise InputError("is not a build folder", source=out_dir)
@@ -241,7 +242,7 @@ def _load_folder(out_dir):
     settings, config, recorded = read_build_settings(source)
     report_files(out_dir, settings)     # a report edited past showing is refused now, not later
     try:
-        component = make_component(UnitConfig(model, **config))
+        component = plan_design(UnitConfig(model, **config))
     except InputError as error:
         raise InputError(f"the recorded build settings are refused ({error}); rebuild the "
                          f"folder", source=source) from None

@@ -1,5 +1,14 @@
-"""The Amaranth components: a unit, a bank with an argmax, a serial unit."""
+"""The hardware of a design: its plan (:class:`DesignPlan`, apart from any component) and the
+Amaranth components built from it: a unit, a bank with an argmax, a serial unit."""
 
-from .circuit import FULL_PIPELINE, ThresholdUnit, UnitConfig, make_component, weight_addresses
+from .config import FULL_PIPELINE, MAX_SERIAL_FEATURES, UnitConfig, sample_shape
+from .plan import DesignPlan, plan_design
+from .weights import weight_addresses
+from .unit import ThresholdUnit
+from .bank import ThresholdBank
+from .serial import SerialThreshold
+from .make import make_component
 
-__all__ = ["FULL_PIPELINE", "ThresholdUnit", "UnitConfig", "make_component", "weight_addresses"]
+__all__ = ["FULL_PIPELINE", "MAX_SERIAL_FEATURES", "UnitConfig", "sample_shape", "DesignPlan",
+           "plan_design", "weight_addresses", "ThresholdUnit", "ThresholdBank",
+           "SerialThreshold", "make_component"]

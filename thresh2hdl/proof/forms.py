@@ -8,7 +8,7 @@ and bias, term for term.
 
 from dataclasses import dataclass
 
-from ..names import GUARD_FLAG
+from ..names import GUARD_FLAG, SCORE_CONST, argmax_names, unit_prefix
 
 __all__ = ["Value", "Plan", "check_cover"]
 
@@ -53,16 +53,15 @@ class Plan:
         self.closed = set()       # values that may be cut points
         units = component.unit_analyses
         for index, analysis in enumerate(units):
-            prefix = f"u{index}_" if model.is_bank else ""
+            prefix = unit_prefix(index) if model.is_bank else ""
             self._unit(analysis, prefix, model.units[index] if model.is_bank else model.unit)
         self.guard = component.config.guard
         if self.guard.flag:
             # The out-of-range flag: made at the inputs (stage 0), carried with the result.
             self.add(Value(GUARD_FLAG, "flag", (), 0, 0, 1, False))
-        self.final_stage = self.stage_of(getattr(component, "plan", component.analysis)
-                                         .final_level)
+        self.final_stage = self.stage_of(component.final_level)
         if model.is_bank:
-            self.class_value = self._argmax(component.plan)
+            self.class_value = self._argmax(component.bank)
         check_cover(self, model)
 
     def add(self, value):
@@ -122,7 +121,7 @@ class Plan:
             self.linear(name, node.kind, (left.name, right.name), stage, coeffs,
                         fa * left.constant + fb * right.constant)
         if analysis.score_node is None and self.model.is_bank:
-            name = prefix + "score_const"
+            name = prefix + SCORE_CONST
             self.linear(name, "const", (), 0, {}, analysis.bias)
             self.unit_scores.append((name, 1, 0))
         elif analysis.score_node is None:
@@ -147,12 +146,12 @@ class Plan:
             stage = self.stage_of(level)
             lo = min(self.values[a].lo, self.values[b].lo)
             hi = max(self.values[a].hi, self.values[b].hi)
-            self.closed.update((f"{tag}_score", f"{tag}_class"))
-            self.add(Value(f"{tag}_score", "max", (a, b), stage, lo, hi, True,
-                            first=first, last=last))
-            self.add(Value(f"{tag}_class", "pick", (a, b, ia, ib), stage, first, last,
-                            False, first=first, last=last))
-            return f"{tag}_score", f"{tag}_class", first, last
+            score, chosen = argmax_names(tag)
+            self.closed.update((score, chosen))
+            self.add(Value(score, "max", (a, b), stage, lo, hi, True, first=first, last=last))
+            self.add(Value(chosen, "pick", (a, b, ia, ib), stage, first, last, False,
+                           first=first, last=last))
+            return score, chosen, first, last
 
         return plan.tournament(layer, merge)[1]      # None for a bank of one unit: class 0
 

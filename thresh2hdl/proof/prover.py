@@ -72,7 +72,6 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
     :func:`thresh2hdl.emit.verilog.port_table` of it. Returns a :class:`ProofOutcome`.
     """
     yosys, boolector = proof_tools()
-    component._MustUse__silence = True    # read as a plan here, not elaborated: no warning
     versions, tools = _warm_up(yosys, boolector, progress)
     started = time.perf_counter()
     uncovered = _uncovered(component)
@@ -115,7 +114,7 @@ def _uncovered(component):
         # Its values are shared by every beat: a proof needs per-beat invariants of the
         # accumulator, which these per-value lemmas do not state.
         return "the serial architecture is not covered by the proof"
-    if getattr(component, "split_parts", None):
+    if component.split_parts:
         return "split adders are not covered by the proof (their parts have no " \
                "registers of the plan's values)"
     if component.config.loadable_weights:

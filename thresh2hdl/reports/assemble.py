@@ -83,8 +83,8 @@ def _units_report(model, analyses, component, verilog_text):
         tree = _tree_report(component, model, verilog_text)
         tree["split_bits"] = component.config.split_bits
         tree["carry_registers"] = component.config.carry_registers
-        tree["result_parts"] = getattr(component, "result_parts", 1)
-        tree["split_adders"] = len(getattr(component, "split_parts", {}))
+        tree["result_parts"] = component.result_parts
+        tree["split_adders"] = len(component.split_parts)
         return {"weights": list(first.weights), "bias": first.bias, **common,
                 "score_range": list(first.score_range), "score_bits_min": first.score_bits_min,
                 "score_bits": first.score_bits, "headroom_bits": first.headroom_bits,
@@ -103,9 +103,9 @@ def _units_report(model, analyses, component, verilog_text):
             "score_bits_min": max(a.score_bits_min for a in analyses),
             "score_bits": max(a.score_bits for a in analyses),
             "headroom_bits": min(a.headroom_bits for a in analyses),
-            "class_bits": component.plan.class_bits,
+            "class_bits": component.bank.class_bits,
             "tree": {**_tree_report(component, model, verilog_text),
-                     "argmax_levels": component.plan.argmax_levels,
+                     "argmax_levels": component.bank.argmax_levels,
                      "argmax": argmax_report(component, model)},
             "units": units}
 

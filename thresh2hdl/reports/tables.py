@@ -17,7 +17,7 @@ def level_names(component):
     """What each level holds (level 0 first), as ``component.levels`` counts them."""
     if component.levels == 1 and component.analysis.arch == "serial":
         return ["multiply-accumulate"]
-    plan = getattr(component, "plan", None)
+    plan = component.bank
     units = plan.units if plan is not None else (component.analysis,)
     adders = max(unit.tree_levels for unit in units)
     has_bias = any(node.kind == "bias" for unit in units for node in unit.nodes)
@@ -46,7 +46,7 @@ def _wire(node, name, component, model, unit_index, ports, declared):
     shifted (a power-of-two product is wiring), an output port (the score, combinational), the
     parts of a split adder (below the top, the low bits of the part's sum, whose top bit is
     the carry), or nothing (a value nothing reads)."""
-    analysis = component.analysis if unit_index is None else component.plan.units[unit_index]
+    analysis = component.analysis if unit_index is None else component.bank.units[unit_index]
     low, high = analysis.score_range
     if not (analysis.has_score or analysis.loadable or model.is_bank) and (low > 0 or high <= 0):
         return "none: the decision is the same for every input, so nothing reads it"
@@ -68,7 +68,7 @@ def _wire(node, name, component, model, unit_index, ports, declared):
         # one beat: the sum starts from the bias (a register, named after what it feeds, when
         # loadable)
         return f"{name}_in" if analysis.loadable else f"the constant {analysis.bias}"
-    parts = getattr(component, "split_parts", {}).get(node.name, 1)
+    parts = component.split_parts.get(node.name, 1)
     if parts > 1:
         bits = component.config.split_bits
         found = [f"{name}_p{j}" if f"{name}_p{j}" in declared else
@@ -82,7 +82,7 @@ def _wire(node, name, component, model, unit_index, ports, declared):
 
 
 def _guarded_input(component, port, feature, declared):
-    """The port, or its clamped value where the input guard clamps it (circuit.py names it
+    """The port, or its clamped value where the input guard clamps it (input_guard.py names it
     ``{feature}_clamped``; the serial sample ``sample_clamped``)."""
     guard = component.config.guard
     if not guard.clamp or not guard.needed or (feature is not None and feature not in guard.tight):
@@ -98,7 +98,7 @@ def node_table(component, model, verilog_text):
     where ``verilog_text`` (the emitted module) holds it."""
     ports = {port.name for port in port_table(component, model)}
     declared = set(_DECLARED.findall(verilog_text))
-    plan = getattr(component, "plan", None)
+    plan = component.bank
     units = plan.units if plan is not None else (component.analysis,)
     rows = []
     for index, analysis in enumerate(units):
@@ -121,7 +121,7 @@ def argmax_report(component, model):
     """The argmax's comparisons as planned: which scores (or earlier winners) each takes and
     their classes, its level and register stage; a tie goes to the left input, whose classes
     are the lower indices."""
-    plan = getattr(component, "plan", None)
+    plan = component.bank
     if plan is None:
         return []
     serial = plan.units[0].arch == "serial"

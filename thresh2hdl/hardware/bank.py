@@ -1,0 +1,76 @@
+"""A bank of threshold units sharing the inputs, with an argmax over their scores:
+:class:`ThresholdBank`."""
+
+from amaranth.hdl import Const, Module, Mux, Signal, signed
+
+from ..names import GUARD_FLAG, SCORE_CONST, argmax_names, unit_prefix
+from .component import PlannedComponent
+from .input_guard import guard_inputs
+from .stages import Stages, handshake
+from .trees import build_tree
+from .weights import WeightStore
+
+__all__ = ["ThresholdBank"]
+
+
+class ThresholdBank(PlannedComponent):
+    """Units sharing the inputs; ``y`` is the index of the largest score (ties: lowest index).
+
+    Ports as :class:`~.unit.ThresholdUnit`, with ``y`` the class index and, unless the score
+    port is omitted, ``score0`` .. ``score{U-1}`` (signed), one per unit.
+    """
+
+    kind = "bank"
+
+    def elaborate(self, platform):
+        m = Module()
+        plan = self.bank
+        advance = handshake(m, self, self.latency)
+        stages = Stages(m, advance, self.register_boundaries)
+        features = guard_inputs(m, stages, self.feature_ports, self.config)
+        if self.config.range_flag:
+            m.d.comb += self.out_of_range.eq(stages.at(GUARD_FLAG, self.latency))
+        scores = []
+        store = WeightStore(m, self, self.config) if self.config.loadable_weights else None
+        for index, analysis in enumerate(plan.units):
+            prefix = unit_prefix(index)
+            if store is not None:
+                build_tree(m, stages, analysis, features, prefix,
+                           store.weights[index], store.biases[index])
+                scores.append(prefix + analysis.nodes[analysis.score_node].name)
+                continue
+            if analysis.score_node is None:
+                value = Signal(signed(analysis.score_bits), name=prefix + SCORE_CONST)
+                m.d.comb += value.eq(analysis.bias)
+                stages.put(value.name, value, 0)
+                scores.append(value.name)
+                continue
+            build_tree(m, stages, analysis, features, prefix)
+            scores.append(prefix + analysis.nodes[analysis.score_node].name)
+        # Argmax: a tree of comparisons; the left (lower index) wins ties.
+        def merge(level, name, left_entry, right_entry):
+            (_, left, left_index), (_, right, right_index) = left_entry, right_entry
+            stage = stages.stage_of(level)
+            a, b = stages.at(left, stage), stages.at(right, stage)
+            width = max(len(a) + (not a.shape().signed), len(b) + (not b.shape().signed))
+            score_name, class_name = argmax_names(name)
+            score = Signal(signed(width), name=score_name)
+            index = Signal(plan.class_bits, name=class_name)
+            take_left = a >= b
+            li = left_index if isinstance(left_index, Const) else stages.at(left_index, stage)
+            ri = right_index if isinstance(right_index, Const) else stages.at(right_index, stage)
+            m.d.comb += [score.eq(Mux(take_left, a, b)), index.eq(Mux(take_left, li, ri))]
+            stages.put(score.name, score, stage)
+            stages.put(index.name, index, stage)
+            return name, score.name, index.name
+
+        _, _, best = plan.tournament(
+            [(f"class{i}", name, Const(i, plan.class_bits)) for i, name in enumerate(scores)],
+            merge)
+        if isinstance(best, Const):
+            m.d.comb += self.y.eq(best)
+        else:
+            m.d.comb += self.y.eq(stages.at(best, self.latency))
+        for port, name in zip(self.score_ports, scores):
+            m.d.comb += port.eq(stages.at(name, self.latency))
+        return m

@@ -1,0 +1,174 @@
+"""What to build: :class:`UnitConfig`, validated once, and the limits it enforces.
+
+Errors name the refused field by its :class:`UnitConfig` name (``split_bits``,
+``loadable_weights``...) and never a command-line flag: the application layer maps field
+names to its own options.
+"""
+
+from dataclasses import dataclass
+
+from amaranth.hdl import signed, unsigned
+
+from ..errors import InputError
+from ..model import Model
+from ..analysis import ARCHITECTURES, resolve_guard, signed_bits
+
+__all__ = ["UnitConfig", "FULL_PIPELINE", "MAX_SERIAL_FEATURES", "sample_shape"]
+
+MAX_SERIAL_FEATURES = 1024    # a sequencer's channels; keeps a verification chunk's cycles bounded
+# ``pipeline`` asking for a register stage after every level, whatever the depth: resolved to
+# the plan's ``levels`` when the design is planned (``plan.config.pipeline`` is the count).
+FULL_PIPELINE = "full"
+# The most bits a loadable register may declare, by field.
+_MOST_BITS = {"weight_bits": 32, "bias_bits": 64}
+
+
+def _is_int(value):
+    return isinstance(value, int) and not isinstance(value, bool)
+
+
+@dataclass(frozen=True)
+class UnitConfig:
+    """What to build: the model, register stages (or :data:`FULL_PIPELINE`), an optional
+    wider score port, architecture."""
+
+    model: Model
+    pipeline: int | str = 1
+    score_bits: int | None = None
+    arch: str = "tree"
+    loadable_weights: bool = False   # weights and biases in registers behind a write port
+    weight_bits: int | None = None   # their declared signed widths (default: fewest for the
+    bias_bits: int | None = None     # trained values); every width is sized for these
+    split_bits: int | None = None    # adders wider than this are split into parts this wide,
+                                     # each part later than the one below (shorter carry chains)
+    carry_registers: int = 1         # registers on each carry from one part to the next
+    clamp: bool | None = None        # the input guard (guard.py): clamp codes outside the
+    range_flag: bool | None = None   # declared ranges, and/or flag them; None: the default
+
+    def __post_init__(self):
+        if not isinstance(self.model, Model):
+            raise TypeError(f"model must be a Model, not {type(self.model).__name__}")
+        self._check_basics()
+        for key in ("weight_bits", "bias_bits"):
+            self._check_register_width(key)
+        if self.loadable_weights and self.pipeline == 0:
+            raise InputError("loadable weights are registers and need a clock; use 1 or more "
+                             "register stages, not 0", field="pipeline")
+        if self.loadable_weights and self.arch == "shiftadd":
+            raise InputError("shiftadd recodes each constant weight into shifts and adds, so "
+                             "its weights cannot be loaded; use the tree or serial architecture",
+                             field="loadable_weights")
+        self._check_split()
+        self._resolve_guard()
+        self._check_serial()
+
+    def _check_basics(self):
+        if self.pipeline != FULL_PIPELINE and (not _is_int(self.pipeline) or self.pipeline < 0):
+            raise InputError(f"must be a non-negative integer or {FULL_PIPELINE!r}, not "
+                             f"{self.pipeline!r}", field="pipeline")
+        if self.score_bits is not None and (not isinstance(self.score_bits, int)
+                                            or not 1 <= self.score_bits <= 128):
+            raise InputError(f"must be an integer from 1 to 128, not {self.score_bits!r}",
+                             field="score_bits")
+        if self.arch not in ARCHITECTURES:
+            raise InputError(f"must be one of {', '.join(ARCHITECTURES)}, not {self.arch!r}",
+                             field="arch")
+        if not isinstance(self.loadable_weights, bool):
+            raise InputError(f"must be True or False, not {self.loadable_weights!r}",
+                             field="loadable_weights")
+
+    def _check_register_width(self, key):
+        """``weight_bits`` / ``bias_bits``: only with loadable weights, at least the trained
+        values' width (the default), at most :data:`_MOST_BITS`."""
+        value, most = getattr(self, key), _MOST_BITS[key]
+        if value is not None and not self.loadable_weights:
+            raise InputError("applies only to loadable weights; turn them on or leave it unset",
+                             field=key)
+        if not self.loadable_weights:
+            return
+        units = self.model.units
+        trained = [w for u in units for w in u.weights] if key == "weight_bits" else \
+            [u.bias for u in units]
+        needed = signed_bits(min(trained), max(trained))
+        if value is None and needed > most:
+            raise InputError(f"the trained values (from {min(trained)} to {max(trained)}) "
+                             f"need {needed} bits, more than the {most} a loadable register "
+                             f"may have", field=key)
+        if value is None:
+            value = needed
+            object.__setattr__(self, key, value)
+        if not _is_int(value) or not 1 <= value <= most:
+            raise InputError(f"must be an integer from 1 to {most}, not {value!r}", field=key)
+        if value < needed:
+            raise InputError(f"{value} bits cannot hold the trained values (from "
+                             f"{min(trained)} to {max(trained)}); the write port needs at "
+                             f"least {needed}", field=key)
+
+    def _check_split(self):
+        if self.split_bits is not None:
+            if not _is_int(self.split_bits) or not 2 <= self.split_bits <= 64:
+                raise InputError(f"must be an integer from 2 to 64, not {self.split_bits!r}",
+                                 field="split_bits")
+            refusal = ("a serial design has no adder tree" if self.arch == "serial" else
+                       "a bank is not split (one unit only, for now)" if self.model.is_bank else
+                       "loadable weights are not split (constant weights only, for now)"
+                       if self.loadable_weights else
+                       "the split needs register stages: ask for 1 or more"
+                       if self.pipeline == 0 else None)
+            if refusal:
+                raise InputError(f"cannot split the adders: {refusal}", field="split_bits")
+        if not _is_int(self.carry_registers) or not 1 <= self.carry_registers <= 4:
+            raise InputError(f"must be an integer from 1 to 4, not {self.carry_registers!r}",
+                             field="carry_registers")
+        if self.carry_registers != 1 and self.split_bits is None:
+            raise InputError("applies only to split adders; split them or leave it at 1",
+                             field="carry_registers")
+
+    def _resolve_guard(self):
+        for key in ("clamp", "range_flag"):
+            if getattr(self, key) is not None and not isinstance(getattr(self, key), bool):
+                raise InputError(f"must be True, False or None, not {getattr(self, key)!r}",
+                                 field=key)
+        guard = self.guard
+        object.__setattr__(self, "clamp", guard.clamp)
+        object.__setattr__(self, "range_flag", guard.flag)
+        self.model.check_optional_ports(
+            (["out_of_range"] if self.range_flag else [])
+            + (["sample"] if self.arch == "serial" else [])
+            + (["weight_write", "weight_address", "weight_data"] if self.loadable_weights
+               else []))
+
+    def _check_serial(self):
+        if self.arch == "serial" and len(self.model.features) > MAX_SERIAL_FEATURES:
+            raise InputError(f"the serial architecture takes at most {MAX_SERIAL_FEATURES} "
+                             f"features (one valid beat each), not "
+                             f"{len(self.model.features)}; use tree or shiftadd", field="arch")
+        if self.arch == "serial" and self.pipeline not in (1, FULL_PIPELINE):
+            raise InputError(f"the serial architecture has exactly one register stage (the "
+                             f"accumulator and its result), so it must be 1, not "
+                             f"{self.pipeline}", field="pipeline")
+
+    def _code_ranges(self):
+        """What the port carrying each feature can hold: its own format, or (serial) the
+        one sample bus."""
+        if self.arch != "serial":
+            return None
+        shape = sample_shape(self.model)
+        lo = -(1 << (shape.width - 1)) if shape.signed else 0
+        hi = (1 << (shape.width - 1)) - 1 if shape.signed else (1 << shape.width) - 1
+        return ((lo, hi),) * len(self.model.features)
+
+    @property
+    def guard(self):
+        """The input guard as resolved for this design (see :mod:`thresh2hdl.analysis.guard`)."""
+        return resolve_guard(self.model, clamp=self.clamp, flag=self.range_flag,
+                             code_ranges=self._code_ranges())
+
+
+def sample_shape(model):
+    """The serial input's format: one bus that carries every feature's declared format."""
+    unsigned_widths = [f.bits for f in model.features if not f.signed]
+    signed_widths = [f.bits for f in model.features if f.signed]
+    if not signed_widths:
+        return unsigned(max(unsigned_widths))
+    return signed(max(signed_widths + [w + 1 for w in unsigned_widths]))

@@ -1,0 +1,93 @@
+"""The input guard in the circuit: codes outside the declared feature ranges clamped to them,
+and/or flagged on ``out_of_range`` with the result they belong to (the guard itself is
+resolved in :mod:`thresh2hdl.analysis.guard`)."""
+
+from amaranth.hdl import Cat, Const, Mux, Signal, signed, unsigned
+
+from ..analysis import value_bits
+from ..names import GUARD_FLAG, register_name
+
+__all__ = ["guard_inputs", "guard_sample"]
+
+
+def guard_inputs(m, stages, features, config):
+    """The features as the arithmetic sees them (clamped to the declared ranges where the
+    guard clamps) and the out-of-range flag put into ``stages`` as ``guard_flag`` (stage 0),
+    when the design has one."""
+    guard = config.guard
+    if not (guard.clamp or guard.flag):
+        return list(features)
+    guarded, outside = [], []
+    for index, (port, feature) in enumerate(zip(features, config.model.features)):
+        (lo, hi), (code_lo, code_hi) = guard.feature_ranges[index], guard.code_ranges[index]
+        below = above = None
+        if lo > code_lo:
+            below = Signal(name=f"{feature.name}_below")
+            m.d.comb += below.eq(port < lo)
+        if hi < code_hi:
+            above = Signal(name=f"{feature.name}_above")
+            m.d.comb += above.eq(port > hi)
+        outside += [test for test in (below, above) if test is not None]
+        if not guard.clamp or (below is None and above is None):
+            guarded.append(port)
+            continue
+        bits, is_signed = value_bits(lo, hi)
+        value = Signal(signed(bits) if is_signed else unsigned(bits),
+                       name=f"{feature.name}_clamped")
+        clamped = port
+        if above is not None:
+            clamped = Mux(above, hi, clamped)
+        if below is not None:
+            clamped = Mux(below, lo, clamped)
+        m.d.comb += value.eq(clamped)
+        guarded.append(value)
+    if config.range_flag:
+        flag = Signal(name=GUARD_FLAG)
+        m.d.comb += flag.eq(Cat(*outside).any() if outside else 0)
+        stages.put(flag.name, flag, 0)
+    return guarded
+
+
+
+def guard_sample(m, component, beat, first, last, finish, transfer):
+    """The sample as the arithmetic sees it (clamped to this beat's feature's declared
+    range where the guard clamps) and the flag of the result: set when any beat of the
+    input was outside its range, registered with the result."""
+    guard, count = component.config.guard, component.beats
+    if not guard.needed:
+        if component.config.range_flag:
+            m.d.comb += component.out_of_range.eq(0)
+        return component.x
+
+    def by_beat(values):
+        chosen = Const(values[-1], component.x.shape())
+        for k in range(count - 2, -1, -1):
+            chosen = Mux(beat == k, values[k], chosen)
+        return chosen
+
+    los = [lo for lo, _ in guard.feature_ranges]
+    his = [hi for _, hi in guard.feature_ranges]
+    lo_now, hi_now = Signal(component.x.shape(), name="range_lo"), \
+        Signal(component.x.shape(), name="range_hi")
+    m.d.comb += [lo_now.eq(by_beat(los)), hi_now.eq(by_beat(his))]
+    below, above = Signal(name="below_range"), Signal(name="above_range")
+    m.d.comb += [below.eq(component.x < lo_now), above.eq(component.x > hi_now)]
+    sample = component.x
+    if guard.clamp:
+        sample = Signal(component.x.shape(), name="sample_clamped")
+        m.d.comb += sample.eq(Mux(below, lo_now, Mux(above, hi_now, component.x)))
+    if component.config.range_flag:
+        seen = Signal(name="outside_seen") if count > 1 else None
+        now = Signal(name="outside_now")
+        if count > 1:
+            m.d.comb += now.eq(below | above | (seen & ~first))
+            with m.If(transfer & ~last):
+                m.d.sync += seen.eq(now)
+        else:
+            m.d.comb += now.eq(below | above)
+        flag = Signal(name=register_name(GUARD_FLAG, 1), reset_less=True)
+        with m.If(finish):
+            m.d.sync += flag.eq(now)
+        m.d.comb += component.out_of_range.eq(flag)
+    return sample
+
