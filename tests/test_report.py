@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from helpers import run, bank_model, HEADER, write_csv, separable_rows, Structure
-from thresh2hdl.app.flow import BuildOptions, build
+from thresh2hdl.app import BuildOptions, build
 
 
 @pytest.fixture(scope="module")
