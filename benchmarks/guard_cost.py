@@ -12,7 +12,7 @@ import statistics
 
 from thresh2hdl.hardware import UnitConfig, make_component
 from thresh2hdl.cost.estimate import estimate_cost
-from thresh2hdl.app.flow import demo_model
+from thresh2hdl.app import demo_model
 from thresh2hdl.emit.verilog import emit_verilog, port_table
 
 SEEDS = (1, 2, 3)

@@ -14,7 +14,7 @@ from helpers import require_tool, assert_lint_clean_and_agrees, bank_model
 from thresh2hdl.hardware import (FULL_PIPELINE, ThresholdBank, UnitConfig, make_component,
                                   plan_design)
 from thresh2hdl.errors import InputError
-from thresh2hdl.app.flow import BuildOptions
+from thresh2hdl.app import BuildOptions
 from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.analysis import analyse_bank
@@ -186,4 +186,4 @@ def test_full_pipeline_is_resolved_when_the_design_is_planned():
     assert serial.config.pipeline == serial.latency == serial.levels == 1
     assert BuildOptions(pipeline=BuildOptions.FULL_PIPELINE).pipeline == FULL_PIPELINE
     with pytest.raises(InputError, match="non-negative integer or 'full'"):
-        BuildOptions(pipeline="every")
+        UnitConfig(model, pipeline="every")        # the design's fields are UnitConfig's to judge

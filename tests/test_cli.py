@@ -7,7 +7,7 @@ from pathlib import Path
 import pytest
 
 from helpers import require_tool, run, assert_one_line_error
-from thresh2hdl.app.flow import demo_model
+from thresh2hdl.app import demo_model
 from thresh2hdl.model import model_to_toml
 from thresh2hdl.analysis import signed_bits
 
@@ -40,7 +40,8 @@ def test_demo_end_to_end(tmp_path):
     assert (out / report["verilog"]).read_text().startswith("// pump_fault")
     assert sorted(p.name for p in out.iterdir()) == sorted(
         ["pump_fault.v", "pump_fault_instance.vh", "model.toml", "report.json",
-         "pump_fault_tb.v", "stimulus.hex", "expected.hex", "report.html", "report.md"])
+         "pump_fault_tb.v", "stimulus.hex", "expected.hex", "report.html", "report.md",
+         "build_settings.json"])
 
 
 def test_build_example_twice_from_two_folders_is_byte_identical(tmp_path):
@@ -244,7 +245,6 @@ def test_help_for_each_command():
 def test_mismatch_writes_files_and_exits_1(tmp_path, monkeypatch, capsys):
     # Feed the flow a reference whose bias is off by one: the check must fail, say so, keep the
     # files for inspection, and exit 1.
-    import thresh2hdl.app.flow as flow
     from thresh2hdl.app.cli import main
     from thresh2hdl.verify.reference import ReferenceModel
 
@@ -255,7 +255,7 @@ def test_mismatch_writes_files_and_exits_1(tmp_path, monkeypatch, capsys):
         return ReferenceModel(weights=ref.weights, bias=ref.bias + 1,
                               feature_ranges=ref.feature_ranges)
 
-    monkeypatch.setattr(flow.ReferenceModel, "from_model", staticmethod(off_by_one))
+    monkeypatch.setattr(ReferenceModel, "from_model", staticmethod(off_by_one))
     with pytest.raises(SystemExit) as info:
         main(["demo", "--out", str(tmp_path / "o"), "--vectors", "2000"])
     assert info.value.code == 1
@@ -274,3 +274,75 @@ def test_console_script_is_installed(tmp_path):
     script = shutil.which("thresh2hdl")
     result = subprocess.run([script, "--version"], capture_output=True, text=True)
     assert result.returncode == 0 and "0.1.0" in result.stdout
+
+
+def test_each_build_option_is_declared_once_and_the_commands_follow():
+    # build and demo make their options from BuildOptions' fields: the same names, flags,
+    # defaults and choices (the code's own constants), and their arguments map one to one.
+    from dataclasses import fields
+    from thresh2hdl.analysis import ARCHITECTURES
+    from thresh2hdl.app import BuildOptions
+    from thresh2hdl.app.cli import _options, cli
+    from thresh2hdl.app.options import SIMULATORS
+    for name in ("build", "demo"):
+        params = {p.name: p for p in cli.commands[name].params}
+        for field in fields(BuildOptions):
+            assert params[field.name].opts[0] == field.metadata["flag"].name
+            assert params[field.name].default == field.default, field.name
+        assert tuple(params["arch"].type.choices) == ARCHITECTURES
+        assert tuple(params["simulator"].type.choices) == SIMULATORS
+    context = cli.commands["build"].make_context("build", [
+        "m.toml", "--out", "o", "--split-adders", "9", "--no-clamp", "--prove", "--module", "m",
+        "--prove-timeout", "5", "--pipeline", "full"])
+    assert _options(context.params) == BuildOptions(
+        split_bits=9, clamp=False, prove=True, module="m", prove_timeout_s=5.0, pipeline="full")
+
+
+def test_errors_name_the_flags_of_the_command_line_and_the_fields_of_the_library(tmp_path):
+    from thresh2hdl.app import BuildOptions, build
+    from thresh2hdl.app.cli import cli, flags_named
+    from thresh2hdl.errors import InputError
+    params = cli.commands["build"].params
+    for field, flag in (("split_bits", "--split-adders"), ("--split-adders", "--split-adders"),
+                        ("prove_timeout_s", "--prove-timeout"), ("range_flag", "--range-flag")):
+        assert str(flags_named(InputError("wrong", field=field), params)) == f"{flag}: wrong"
+    assert str(flags_named(InputError("wrong", field="timeout_s"),
+                           cli.commands["prove"].params)) == "--timeout: wrong"
+    # A field in a file, or no option's, stays as it is.
+    for error in (InputError("wrong", source="m.toml", field="arch"),
+                  InputError("wrong", field="unit")):
+        assert flags_named(error, params) is error
+    # The design's fields are judged by UnitConfig alone, when the build plans the design
+    # (before any output): the library names the field, the command line its flag.
+    with pytest.raises(InputError, match="^pipeline: must be a non-negative integer"):
+        build(demo_model(), tmp_path / "o", BuildOptions(pipeline=-1, simulator="amaranth"))
+    with pytest.raises(InputError, match="^vectors: must be a non-negative integer"):
+        BuildOptions(vectors=-1)
+    for flag, value, said in (("--score-bits", "0", "must be an integer from 1 to 128"),
+                              ("--pipeline", "-1", "must be a non-negative integer"),
+                              ("--vectors", "-1", "must be a non-negative integer")):
+        result = run("demo", "--out", tmp_path / "o", "--simulator", "amaranth", flag, value)
+        assert_one_line_error(result, 2, f"error: {flag}: {said}")
+    assert not (tmp_path / "o").exists()
+
+
+def test_one_progress_interface_for_every_long_call(tmp_path):
+    from thresh2hdl.app import BuildOptions, Progress, build
+
+    class Kept(Progress):
+        def __init__(self):
+            self.notes, self.counts = [], []
+
+        def note(self, text):
+            self.notes.append(text)
+
+        def __call__(self, done, total, text="simulating"):
+            self.counts.append((done, total))
+
+    kept, out = Kept(), tmp_path / "o"
+    build(demo_model(), out, BuildOptions(simulator="amaranth", vectors=100), progress=kept)
+    assert kept.notes[0].startswith("planned") and kept.notes[-1] == f"writing {out}"
+    assert kept.counts and kept.counts[-1][0] == kept.counts[-1][1]
+    with pytest.raises(TypeError, match="progress must be"):
+        build(demo_model(), tmp_path / "p", BuildOptions(simulator="amaranth"), progress=print)
+    assert not (tmp_path / "p").exists()

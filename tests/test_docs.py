@@ -17,7 +17,7 @@ import thresh2hdl
 from thresh2hdl.model import file as model_file
 from thresh2hdl.verify import reference
 from thresh2hdl.app.fit import fit_csv, quantize_npz
-from thresh2hdl.app.flow import BuildOptions, build
+from thresh2hdl.app import BuildOptions, build, demo_model
 from thresh2hdl.model import PortNames, parse_features, parse_model
 from thresh2hdl.train.perceptron import FitLog, FitOptions
 
@@ -113,6 +113,13 @@ def test_every_key_of_a_report_is_described(tmp_path):
     assert {"units", "weight_port", "data", "training"} <= set(report)
     missing = sorted(key for key in report_keys(report) if not documented(key))
     assert missing == []
+
+
+def test_every_key_of_the_build_settings_record_is_described(tmp_path):
+    built = build(demo_model(), tmp_path / "o", BuildOptions(simulator="amaranth", vectors=50))
+    record = json.loads((built.out_dir / "build_settings.json").read_text())
+    assert "## The build folder's build_settings.json" in DOC and len(record) > 10
+    assert sorted(key for key in record if not documented(key)) == []
 
 
 def test_readme_python_example_runs_from_the_checkout(tmp_path):

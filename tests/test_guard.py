@@ -16,7 +16,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 from helpers import (require_proof_tools, require_tool, make_model, run,
                      assert_lint_clean_and_agrees, exported_testbench)
 from thresh2hdl.hardware import DesignPlan, UnitConfig, make_component, plan_design
-from thresh2hdl.app.flow import BuildOptions, build, check, demo_model
+from thresh2hdl.app import BuildOptions, build, check, demo_model
 from thresh2hdl.verify.runner import verify
 from thresh2hdl.verify.sim_amaranth import AmaranthBackend
 from thresh2hdl.analysis.guard import resolve_guard
@@ -295,15 +295,16 @@ def test_exported_testbench_checks_the_flag(demo_folder, tmp_path):
 
 def test_an_older_folder_without_a_guard_reloads_as_built(demo_folder, tmp_path):
     import shutil
-    from thresh2hdl.app.flow import _load_folder
+    from thresh2hdl.app.folder import load_folder
     folder = tmp_path / "old"
     shutil.copytree(demo_folder, folder)
     report = json.loads((folder / "report.json").read_text())
     del report["input_guard"]
     (folder / "report.json").write_text(json.dumps(report))
-    _, _, _, component = _load_folder(folder)
+    (folder / "build_settings.json").unlink()      # an older folder: the report's keys only
+    component = load_folder(folder).component
     assert not component.config.clamp and not component.config.range_flag
-    _, _, _, component = _load_folder(demo_folder)
+    component = load_folder(demo_folder).component
     assert component.config.clamp and component.config.range_flag
 
 
@@ -314,13 +315,15 @@ def test_a_folder_reloads_as_its_plan_leaving_no_component_unused(demo_folder):
     import gc
     import warnings
     from amaranth.hdl import UnusedElaboratable
-    from thresh2hdl.app.flow import _load_folder
+    from thresh2hdl.app.folder import load_folder
     gc.collect()          # what earlier tests left is not counted here
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        _, _, settings, design = _load_folder(demo_folder)
+        folder = load_folder(demo_folder)
+        design = folder.component
         assert isinstance(design, DesignPlan)
-        assert design.latency == settings["latency_cycles"] == design.config.pipeline == 2
+        assert design.latency == folder.report["latency_cycles"] == design.config.pipeline == 2
+        del folder
         del design
         gc.collect()
     assert not [w for w in caught if issubclass(w.category, UnusedElaboratable)]

@@ -8,7 +8,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import require_tool, make_model, assert_lint_clean_and_agrees
 from thresh2hdl.hardware import ThresholdUnit, UnitConfig
-from thresh2hdl.app.flow import demo_model
+from thresh2hdl.app import demo_model
 from thresh2hdl.model.records import PortNames
 from thresh2hdl.analysis import analyse
 from thresh2hdl.verify.reference import ReferenceModel

@@ -1,7 +1,7 @@
 import pytest
 
 from thresh2hdl.errors import InputError
-from thresh2hdl.app.flow import demo_model
+from thresh2hdl.app import demo_model
 from thresh2hdl.model import load_model, model_to_toml, parse_model
 from thresh2hdl.names import VERILOG_KEYWORDS, check_identifier
 

@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 
 from thresh2hdl.hardware import FULL_PIPELINE
-from thresh2hdl.app.flow import BuildOptions, build, demo_model
+from thresh2hdl.app import BuildOptions, build, demo_model
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 
 GOLDEN = Path(__file__).parent / "golden" / "outputs.json"

@@ -16,7 +16,7 @@ from helpers import (require_proof_tools, require_tool, make_model, run, assert_
                      bank_model)
 from thresh2hdl.hardware import UnitConfig, make_component, plan_design
 from thresh2hdl.errors import InputError, MismatchError, ToolError, UndecidedError
-from thresh2hdl.app.flow import BuildOptions, build, demo_model, prove
+from thresh2hdl.app import BuildOptions, build, demo_model, prove
 from thresh2hdl.verify.sim_icarus import IcarusBackend
 from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
 from thresh2hdl.proof.prover import proof_tools, prove_netlist
@@ -429,9 +429,9 @@ def test_build_prove_names_its_counterexample_in_the_report(tmp_path, monkeypatc
     # A writer that gets one weight wrong: the simulation finds the mismatch, and the proof's
     # counterexample is written under the name the report gives it.
     require_tool("iverilog", "vvp")
-    import thresh2hdl.app.flow as flow
-    real = flow.emit_verilog
-    monkeypatch.setattr(flow, "emit_verilog", lambda *a, **k: change_a_weight(
+    import thresh2hdl.app.building as building
+    real = building.emit_verilog
+    monkeypatch.setattr(building, "emit_verilog", lambda *a, **k: change_a_weight(
         real(*a, **k), np.random.default_rng(3)))
     out = tmp_path / "demo"
     out.mkdir()
@@ -526,7 +526,7 @@ def test_a_first_use_compile_is_announced_and_kept_out_of_the_proof_time(tmp_pat
         assert any(f"compiling {name} for first use" in line for line in notes.lines)
     notes.lines.clear()
     # Proved within a 120 s timeout although the warm-up took 2000 s: outside the timeout.
-    result = prove(out, timeout_s=120, progress=notes.note)
+    result = prove(out, timeout_s=120, progress=notes)
     assert result.ok and "compiled for first use" in result.summary()
     assert result.seconds < 1000 and result.outcome.warmup_seconds >= 2000
     timing = json.loads((out / "report.json").read_text())["timing"]

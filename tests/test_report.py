@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from helpers import run, bank_model, HEADER, write_csv, separable_rows, Structure
-from thresh2hdl.app.flow import BuildOptions, build
+from thresh2hdl.app import BuildOptions, build
 
 
 @pytest.fixture(scope="module")
@@ -225,7 +225,7 @@ def test_a_tree_too_large_to_draw_is_left_to_the_tables(tmp_path):
 
 def test_the_record_is_the_report_json_and_reads_a_unit_and_a_bank_alike(built, bank_built,
                                                                        tmp_path):
-    from thresh2hdl.app.flow import demo_model
+    from thresh2hdl.app import demo_model
     from thresh2hdl.reports.record import Report
     loadable = build(demo_model(), tmp_path / "w", BuildOptions(
         simulator="amaranth", vectors=50, loadable_weights=True, arch="serial"))
@@ -286,7 +286,7 @@ def test_a_report_json_edited_past_showing_is_one_error_naming_the_field(built, 
     # quantization, proofs, an estimate not placed) replaced by a value of another kind: the
     # report still shows, or reading it is one InputError naming the file and the field;
     # never another exception from inside a writer.
-    from thresh2hdl.app.flow import report_files
+    from thresh2hdl.app.folder import report_files
     from thresh2hdl.errors import InputError
     source = tmp_path / "report.json"
     refused = re.compile(rf"^{re.escape(str(source))}: [^:]+: cannot show this report: must be "

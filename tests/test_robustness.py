@@ -15,7 +15,7 @@ from helpers import require_tool, run, assert_one_line_error
 from thresh2hdl.app.cli import main
 from thresh2hdl.model.data import read_csv
 from thresh2hdl.errors import InputError
-from thresh2hdl.app.flow import BuildOptions, build, demo_model
+from thresh2hdl.app import BuildOptions, build, demo_model
 from thresh2hdl.model import FeatureFormat, Model, Unit, load_model, model_to_toml, parse_model
 from thresh2hdl.train.quantize import load_float_model
 
@@ -328,23 +328,28 @@ def folder(tmp_path_factory):
     return out
 
 
-@pytest.mark.parametrize("edit, expected", [
-    (lambda r: DEEP, "nests arrays or tables too deeply"),
-    (lambda r: json.dumps({**r, "x": json.loads("[" * 40 + "]" * 40)}), "nests more than 32"),
-    (lambda r: json.dumps(r)[:-1] + f', "x": {DIGITS}}}', "more than 4300 digits"),
-    (lambda r: json.dumps({**r, "latency_cycles": float("inf")}), "not valid JSON"),
-    (lambda r: json.dumps({**r, "register_stages": 10 ** 30}), "register_stages: must be"),
-    (lambda r: json.dumps({**r, "weight_port": [1]}), "weight_port: must be a table"),
+# ``older``: a folder built before build_settings.json, whose design is read from the report.
+@pytest.mark.parametrize("edit, expected, older", [
+    (lambda r: DEEP, "nests arrays or tables too deeply", False),
+    (lambda r: json.dumps({**r, "x": json.loads("[" * 40 + "]" * 40)}), "nests more than 32",
+     False),
+    (lambda r: json.dumps(r)[:-1] + f', "x": {DIGITS}}}', "more than 4300 digits", False),
+    (lambda r: json.dumps({**r, "latency_cycles": float("inf")}), "not valid JSON", False),
+    (lambda r: json.dumps({**r, "register_stages": 10 ** 30}), "register_stages: must be", True),
+    (lambda r: json.dumps({**r, "weight_port": [1]}), "weight_port: must be a table", True),
     (lambda r: json.dumps({**r, "tree": {**r["tree"], "split_bits": 1}}),
-     "recorded build settings are refused"),
-    (lambda r: json.dumps({**r, "verilog": "../../x.v"}), "verilog: must be the name"),
-    (lambda r: json.dumps({**r, "features": 5}), "cannot show this report"),
-    (lambda r: json.dumps([r]), "is not a build report"),
+     "recorded build settings are refused", True),
+    (lambda r: json.dumps({**r, "verilog": "../../x.v"}), "verilog: must be the name", True),
+    (lambda r: json.dumps({**r, "features": 5}), "cannot show this report", False),
+    (lambda r: json.dumps([r]), "is not a build report", False),
+    (lambda r: json.dumps([r]), "is not a build report", True),
 ])
-def test_report_json_read_back_past_its_limits(folder, tmp_path, capsys, edit, expected):
+def test_report_json_read_back_past_its_limits(folder, tmp_path, capsys, edit, expected, older):
     import shutil
     copy = tmp_path / "copy"
     shutil.copytree(folder, copy)
+    if older:
+        (copy / "build_settings.json").unlink()
     report = json.loads((folder / "report.json").read_text())
     (copy / "report.json").write_text(edit(report))
     before = {p.name: p.read_bytes() for p in copy.iterdir()}

@@ -135,11 +135,18 @@ def test_cli_split_build_reports_and_rebuilds(tmp_path):
     bad = run("demo", "--out", tmp_path / "b", "--split-adders", "0")
     assert_one_line_error(bad, contains="--split-adders")
     # A folder from a version that timed split adders otherwise (there: two parts, so another
-    # latency) is refused in one line, never judged a cycle off; its report still renders
-    # without the keys this version added.
+    # latency) is refused in one line, never judged a cycle off, whether its settings record
+    # or (a folder from before the record) its report holds the latency; its report still
+    # renders without the keys this version added.
+    record = json.loads((out / "build_settings.json").read_text())
+    (out / "build_settings.json").write_text(json.dumps({**record, "latency_cycles": 4}))
+    assert_one_line_error(run("check", out, "--simulator", "icarus"), 2,
+                          "build_settings.json: latency_cycles is 4")
+    (out / "build_settings.json").unlink()
     report["latency_cycles"] = 4
     (out / "report.json").write_text(json.dumps(report))
-    assert_one_line_error(run("check", out, "--simulator", "icarus"), 2, "rebuild the folder")
+    assert_one_line_error(run("check", out, "--simulator", "icarus"), 2,
+                          "report.json: latency_cycles is 4")
     for key in ("carry_registers", "result_parts", "split_adders"):
         report["tree"].pop(key)
     assert "| split adders |" in report_markdown(report)

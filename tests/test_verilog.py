@@ -10,7 +10,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from helpers import make_model, lint_verilator, lint_icarus
 from thresh2hdl.hardware import ThresholdUnit, UnitConfig
-from thresh2hdl.app.flow import demo_model
+from thresh2hdl.app import demo_model
 from thresh2hdl.model.records import PortNames
 from thresh2hdl.analysis import analyse
 from thresh2hdl.emit.verilog import emit_verilog, instance_template

@@ -1,7 +1,18 @@
-"""The application layer: build, check, prove, estimate, fit, and the command line."""
+"""The application layer: build, check, prove, estimate, fit, and the command line.
 
-from .flow import (BuildOptions, BuildResult, CheckResult, ProofResult, build, check, demo_model,
-                   estimate_folder, prove)
+One concern a module: ``options`` (BuildOptions, each option declared once), ``progress`` (the
+one progress interface), ``building`` (build), ``settings`` (the settings record a build
+writes, and an older folder's report keys), ``folder`` (a build folder read back),
+``checking``, ``proving``, ``estimating`` (what is done to a folder), ``fit`` and ``cli``.
+"""
 
-__all__ = ["BuildOptions", "BuildResult", "CheckResult", "ProofResult", "build", "check",
-           "demo_model", "estimate_folder", "prove"]
+from .building import BuildResult, build, demo_model
+from .checking import CheckResult, check
+from .estimating import estimate_folder
+from .options import BuildOptions
+from .progress import Progress
+from .proving import ProofResult, prove
+from .settings import BuildSettings
+
+__all__ = ["BuildOptions", "BuildResult", "BuildSettings", "CheckResult", "Progress",
+           "ProofResult", "build", "check", "demo_model", "estimate_folder", "prove"]

@@ -10,13 +10,19 @@ import sys
 
 import click
 
+from ..cost import TARGETS
+from ..errors import EXIT_INPUT, EXIT_INTERNAL, InputError, ThreshError
 from ..hardware import FULL_PIPELINE
-from ..errors import EXIT_INPUT, EXIT_INTERNAL, ThreshError
-from .fit import fit_csv, quantize_npz
-from .flow import BuildOptions, build, check, demo_model, estimate_folder, prove
 from ..proof import DEFAULT_TIMEOUT_S
 from ..reports import cost_text
 from ..train import DEFAULT_MAX_WEIGHT_BITS, FitOptions, choice_lines
+from .building import build, demo_model
+from .checking import check
+from .estimating import estimate_folder
+from .fit import fit_csv, quantize_npz
+from .options import SIMULATORS, BuildOptions, build_flags
+from .progress import Progress
+from .proving import prove
 
 __all__ = ["main"]
 
@@ -39,88 +45,37 @@ class _PipelineType(click.ParamType):
                       param, ctx)
 
 
+def _click_option(field, how):
+    """The click option of one build option, from its one declaration (options.py)."""
+    settings = {"default": field.default, "help": how.help}
+    if how.show_default:
+        settings["show_default"] = True
+    if how.choices:
+        settings["type"] = click.Choice(list(how.choices))
+    elif how.kind == "switch":
+        if "/" not in how.flag:         # else click's --name/--no-name, default None
+            settings["is_flag"] = True
+    elif how.kind != "text":
+        settings["type"] = {"int": int, "float": float, "path": click.Path(dir_okay=False),
+                            "pipeline": _PipelineType()}[how.kind]
+    return click.option(how.flag, field.name, **settings)
+
+
 def _build_options(command):
-    """The options every command that builds takes (`build` and `demo` share them)."""
-    options = [
-        click.option("--out", "out_dir", type=click.Path(file_okay=True, dir_okay=True),
-                     required=True, help="Output folder (created; must be empty or absent "
-                     "unless --force)."),
-        click.option("--arch", type=click.Choice(["tree", "shiftadd", "serial"]), default="tree",
-                     show_default=True, help="tree: constant multipliers into an adder tree; "
-                     "shiftadd: no multipliers, weights recoded in canonical signed digits; "
-                     "serial: one multiply-accumulate per clock, one feature per valid beat."),
-        click.option("--pipeline", type=_PipelineType(), default=1, show_default=True,
-                     help="Register stages: 0 is combinational, 1 registers the outputs, more "
-                     f"split the adder tree, {FULL_PIPELINE!r} puts one after every level "
-                     "(serial: must be 1)."),
-        click.option("--module", "module_name", default=None,
-                     help="Verilog module name (default: the model file's)."),
-        click.option("--score-bits", type=int, default=None,
-                     help="Width of the score port; wider than needed gives headroom."),
-        click.option("--split-adders", "split_bits", type=int, default=None,
-                     help="Split adders wider than this many bits into parts this wide, each "
-                     "part a register stage after the one below: shorter carry chains, higher "
-                     "fmax, more latency (one unit, tree or shiftadd, --pipeline 1 or more)."),
-        click.option("--carry-registers", type=int, default=1, show_default=True,
-                     help="Registers on each carry from one split part to the next (1 to 4): "
-                     "2 shortens the carry's routes for a higher fmax, at one more cycle of "
-                     "latency per part."),
-        click.option("--loadable-weights", is_flag=True,
-                     help="Weights and biases in registers, reset to the trained values, with "
-                     "a write port (strobe, address, data); widths sized for --weight-bits "
-                     "and --bias-bits."),
-        click.option("--weight-bits", type=int, default=None,
-                     help="Declared signed width of every loadable weight (default: the "
-                     "fewest that hold the trained weights)."),
-        click.option("--bias-bits", type=int, default=None,
-                     help="Declared signed width of every loadable bias (default: the fewest "
-                     "that hold the trained biases)."),
-        click.option("--clamp/--no-clamp", default=None,
-                     help="Clamp each feature to its declared range before the arithmetic "
-                     "(default: on when some declared range is tighter than its port)."),
-        click.option("--range-flag/--no-range-flag", default=None,
-                     help="An output bit, high with each result whose input had a feature "
-                     "outside its declared range (default: on when some declared range is "
-                     "tighter than its port)."),
-        click.option("--vectors", type=int, default=None,
-                     help="Random vectors to verify, on top of the corner cases (default: "
-                     "1000000 with Verilator, 10000 otherwise)."),
-        click.option("--simulator", type=click.Choice(["auto", "amaranth", "verilator",
-                                                       "icarus"]), default="auto",
-                     show_default=True, help="auto: Verilator if present, else Icarus, else "
-                     "Amaranth's simulator (which runs the Amaranth design, not the file)."),
-        click.option("--seed", type=int, default=0, show_default=True,
-                     help="Seed of the random vectors and handshake gaps."),
-        click.option("--force", is_flag=True, help="Replace a non-empty output folder."),
-        click.option("--data", type=click.Path(dir_okay=False), default=None,
-                     help="CSV of labelled rows (columns named as the model's features): "
-                     "report accuracy and verify these rows too."),
-        click.option("--label", default="label", show_default=True,
-                     help="Name of the label column in --data."),
-        click.option("--prove", "prove_too", is_flag=True,
-                     help="Also prove the Verilog equal to the model for every input in range "
-                     "(needs the prove extra: pip install 'thresh2hdl[prove]')."),
-        click.option("--prove-timeout", type=float, default=DEFAULT_TIMEOUT_S,
-                     show_default=True, help="Seconds the proof may take before it is "
-                     "reported undecided."),
-    ]
+    """The options every command that builds takes (`build` and `demo` share them): the
+    output folder, then each of BuildOptions' fields."""
+    options = [click.option("--out", "out_dir", type=click.Path(file_okay=True, dir_okay=True),
+                            required=True, help="Output folder (created; must be empty or "
+                            "absent unless --force).")]
+    options += [_click_option(field, how) for field, how in build_flags()]
     for option in reversed(options):
         command = option(command)
     return command
 
 
 def _options(kwargs):
-    return BuildOptions(pipeline=kwargs["pipeline"], module=kwargs["module_name"],
-                        score_bits=kwargs["score_bits"], vectors=kwargs["vectors"],
-                        simulator=kwargs["simulator"], arch=kwargs["arch"],
-                        seed=kwargs["seed"], force=kwargs["force"], data=kwargs["data"],
-                        label=kwargs["label"], prove=kwargs["prove_too"],
-                        prove_timeout_s=kwargs["prove_timeout"],
-                        loadable_weights=kwargs["loadable_weights"],
-                        weight_bits=kwargs["weight_bits"], bias_bits=kwargs["bias_bits"],
-                        split_bits=kwargs["split_bits"],
-                        carry_registers=kwargs["carry_registers"], clamp=kwargs["clamp"],
-                        range_flag=kwargs["range_flag"])
+    """BuildOptions from a building command's keyword arguments (named as its fields)."""
+    return BuildOptions(**{field.name: kwargs[field.name] for field, _ in build_flags()})
 
 
 class _WeightBits(click.ParamType):
@@ -137,7 +92,7 @@ class _WeightBits(click.ParamType):
             self.fail(f"{value!r} is neither a number of bits nor 'full'", param, ctx)
 
 
-class _Progress:
+class _Progress(Progress):
     """Progress of the long steps on stderr, so that a run never sits silent: a line per step,
     and for a long simulation a percentage updated in place on a terminal, or a line at each
     quarter in a log (CI), not a flood. An error still ends stderr as its one line."""
@@ -175,7 +130,37 @@ def _run_build(model, kwargs):
     click.echo(f"wrote {result.out_dir}")
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+def flags_named(error, params):
+    """``error`` with its field named as the command line names it: the library names a
+    field as its keyword (``split_bits``), a command's option of that name is a flag
+    (``--split-adders``). A field already a flag, or no option's, or in a file, stays."""
+    flags = {param.name: param.opts[0] for param in params if isinstance(param, click.Option)}
+    field = error.field
+    if not isinstance(error, InputError) or error.source is not None or field not in flags:
+        return error
+    message = str(error).removeprefix(f"{field}: ")
+    return InputError(message, field=flags[field])
+
+
+class _Command(click.Command):
+    """A command whose errors name its options by their flags (the one place they are
+    mapped; see :func:`flags_named`)."""
+
+    def invoke(self, ctx):
+        try:
+            return super().invoke(ctx)
+        except InputError as error:
+            named = flags_named(error, self.params)
+            if named is error:
+                raise
+            raise named from None
+
+
+class _Group(click.Group):
+    command_class = _Command
+
+
+@click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(package_name="thresh2hdl")
 def cli():
     """Turn a trained threshold unit into sized, verified Verilog."""
@@ -277,11 +262,15 @@ def quantize_command(float_file, out_path, bits, data_file, label, sweep, tolera
     click.echo(f"wrote {out_path}")
 
 
+# The simulators that run a Verilog file (Amaranth's runs the Amaranth design only).
+_VERILOG_SIMULATORS = [name for name in SIMULATORS if name != "amaranth"]
+
+
 @cli.command("check")
 @click.argument("out_dir", type=click.Path())
 @click.option("--netlist", type=click.Path(), default=None,
               help="Verify this Verilog file (same module and ports) instead of the folder's.")
-@click.option("--simulator", type=click.Choice(["auto", "verilator", "icarus"]), default="auto",
+@click.option("--simulator", type=click.Choice(_VERILOG_SIMULATORS), default="auto",
               show_default=True)
 @click.option("--vectors", type=int, default=None,
               help="Random vectors (default: 1000000 with Verilator, 10000 with Icarus).")
@@ -296,7 +285,7 @@ def check_command(out_dir, netlist, simulator, vectors, seed):
 
 @cli.command("estimate")
 @click.argument("out_dir", type=click.Path())
-@click.option("--target", type=click.Choice(["ice40", "ecp5"]), default="ice40",
+@click.option("--target", type=click.Choice(list(TARGETS)), default="ice40",
               show_default=True, help="ice40: UP5K (sg48); ecp5: LFE5U-25F (CABGA256).")
 @click.option("--dsp/--no-dsp", default=None,
               help="Let synthesis put multipliers into DSP blocks, or not (default: without "
@@ -305,7 +294,7 @@ def estimate_command(out_dir, target, dsp):
     """Synthesise and place-and-route OUT_DIR's Verilog; add the cost to its report.json.
 
     Exit code 2 when the design does not fit the device (its synthesis figures are kept)."""
-    figures = estimate_folder(out_dir, target=target, dsp=dsp, progress=_progress().note)
+    figures = estimate_folder(out_dir, target=target, dsp=dsp, progress=_progress())
     click.echo(f"{target} {figures['device_name']}: {cost_text(figures)} "
                f"({figures['tool_versions']['yosys'].split(' (')[0]}, "
                f"{figures['tool_versions']['nextpnr']})")
@@ -316,14 +305,15 @@ def estimate_command(out_dir, target, dsp):
 @click.option("--netlist", type=click.Path(), default=None,
               help="Prove this Verilog file (same module and ports) instead of the folder's; "
               "recorded in the report by its file name.")
-@click.option("--timeout", type=float, default=DEFAULT_TIMEOUT_S, show_default=True,
+@click.option("--timeout", "timeout_s", type=float, default=DEFAULT_TIMEOUT_S,
+              show_default=True,
               help="Seconds before the proof is reported undecided (exit code 3).")
-@click.option("--simulator", type=click.Choice(["auto", "verilator", "icarus"]), default="auto",
+@click.option("--simulator", type=click.Choice(_VERILOG_SIMULATORS), default="auto",
               show_default=True, help="Where a counterexample is re-run to confirm it.")
-def prove_command(out_dir, netlist, timeout, simulator):
+def prove_command(out_dir, netlist, timeout_s, simulator):
     """Prove OUT_DIR's Verilog equal to its model for every input in the declared ranges."""
-    result = prove(out_dir, netlist=netlist, timeout_s=timeout, simulator=simulator,
-                   progress=_progress().note)
+    result = prove(out_dir, netlist=netlist, timeout_s=timeout_s, simulator=simulator,
+                   progress=_progress())
     click.echo(result.summary())
 
 

@@ -1,12 +1,110 @@
-"""What a build folder recorded: the settings that rebuild its design, checked key by key, and
-the training or quantization log beside a model file."""
+"""What a build folder recorded: the settings that rebuild its design (its own record, or an
+older folder's report keys), checked key by key, and the training or quantization log beside a
+model file."""
 
+import json
+from dataclasses import asdict, dataclass, fields as dataclass_fields
 from pathlib import Path
 
 from ..errors import InputError
 from ..readers import load_json, shorten
 
-__all__ = ["read_build_settings", "read_history"]
+__all__ = ["BuildSettings", "SETTINGS_FILE", "SETTINGS_FORMAT", "read_build_settings",
+           "read_history", "read_report", "read_settings"]
+
+SETTINGS_FILE = "build_settings.json"
+SETTINGS_FORMAT = 1      # the layout of SETTINGS_FILE
+MAX_SETTING = 1 << 16    # a bound on every recorded count, far above any design's
+
+
+@dataclass(frozen=True, kw_only=True)
+class BuildSettings:
+    """What rebuilds a build folder's design: the :class:`~thresh2hdl.hardware.UnitConfig`
+    choices as the build resolved them (a ``full`` pipeline as its count, the guard and the
+    loadable widths as chosen), the module name, and the latency they gave, so that a version
+    which would time them otherwise refuses the folder rather than judge its Verilog a cycle
+    off. ``build`` writes it as :data:`SETTINGS_FILE`; check, prove and estimate read it."""
+
+    module: str
+    pipeline: int
+    score_bits: int | None
+    arch: str
+    loadable_weights: bool
+    weight_bits: int | None
+    bias_bits: int | None
+    split_bits: int | None
+    carry_registers: int
+    clamp: bool
+    range_flag: bool
+    latency_cycles: int
+
+    @classmethod
+    def of(cls, component, module):
+        """The settings of a planned component (its config as resolved)."""
+        config = component.config
+        return cls(module=module, latency_cycles=component.latency,
+                   **{key: getattr(config, key) for key in _DESIGN})
+
+    def unit_config(self):
+        """The keyword arguments of UnitConfig, beside the model, that rebuild the design."""
+        return {key: getattr(self, key) for key in _DESIGN}
+
+    def to_json(self):
+        """The record's file text: the fields in order, no paths, no times."""
+        return json.dumps({"settings_format": SETTINGS_FORMAT, **asdict(self)}, indent=2) + "\n"
+
+
+def _integer(value, optional=False):
+    return (value is None and optional) or (type(value) is int and 0 <= value <= MAX_SETTING)
+
+
+# Each field of the record: what it must be, and the test.
+_RECORD = {
+    "module": ("a module name", lambda v: isinstance(v, str) and v != ""),
+    "pipeline": (f"an integer from 0 to {MAX_SETTING}", _integer),
+    "score_bits": (f"an integer from 0 to {MAX_SETTING} or null", lambda v: _integer(v, True)),
+    "arch": ("a text", lambda v: isinstance(v, str)),
+    "loadable_weights": ("true or false", lambda v: isinstance(v, bool)),
+    "weight_bits": (f"an integer from 0 to {MAX_SETTING} or null", lambda v: _integer(v, True)),
+    "bias_bits": (f"an integer from 0 to {MAX_SETTING} or null", lambda v: _integer(v, True)),
+    "split_bits": (f"an integer from 0 to {MAX_SETTING} or null", lambda v: _integer(v, True)),
+    "carry_registers": (f"an integer from 0 to {MAX_SETTING}", _integer),
+    "clamp": ("true or false", lambda v: isinstance(v, bool)),
+    "range_flag": ("true or false", lambda v: isinstance(v, bool)),
+    "latency_cycles": (f"an integer from 0 to {MAX_SETTING}", _integer),
+}
+_DESIGN = tuple(f.name for f in dataclass_fields(BuildSettings) if f.name not in ("module",
+                                                                       "latency_cycles"))
+
+
+def read_settings(path):
+    """A folder's :data:`SETTINGS_FILE` as :class:`BuildSettings`, checked field by field; an
+    edited or damaged record is one InputError naming the file and the field."""
+    data = load_json(path, "build settings")
+    if not isinstance(data, dict):
+        raise InputError("is not a build settings record (a JSON object); rebuild the folder",
+                         source=path)
+    if data.get("settings_format") != SETTINGS_FORMAT:
+        _refuse(path, "settings_format", f"{SETTINGS_FORMAT} (this version's layout)",
+                data.get("settings_format"), "rebuild the folder with this version")
+    unknown = sorted(set(data) - set(_RECORD) - {"settings_format"})
+    if unknown:
+        raise InputError("is not a build setting; remove it or rebuild the folder", source=path,
+                         field=shorten(unknown[0]))
+    for key, (wanted, test) in _RECORD.items():
+        if key not in data or not test(data[key]):
+            got = shorten(json.dumps(data[key])) if key in data else "missing"
+            raise InputError(f"must be {wanted}, not {got}; rebuild the folder", source=path,
+                             field=key)
+    return BuildSettings(**{key: data[key] for key in _RECORD})
+
+
+def read_report(path):
+    """A build folder's report.json: a JSON object, within the readers' limits."""
+    report = load_json(path, "report")
+    if not isinstance(report, dict):
+        raise InputError("is not a build report (a JSON object); rebuild the folder", source=path)
+    return report
 
 
 def _refuse(source, where, wanted, value, what="rebuild the folder"):
@@ -16,10 +114,9 @@ def _refuse(source, where, wanted, value, what="rebuild the folder"):
 
 def read_build_settings(path):
     """A build folder's report.json, and the settings in it that rebuild the design, checked
-    key by key: ``(report, settings for UnitConfig, recorded latency)``."""
-    report = load_json(path, "report")
-    if not isinstance(report, dict):
-        raise InputError("is not a build report (a JSON object); rebuild the folder", source=path)
+    key by key: ``(report, settings for UnitConfig, recorded latency)``. For folders built
+    before :data:`SETTINGS_FILE` was written."""
+    report = read_report(path)
 
     def integer(where, value, optional=False):
         if value is None and optional:

@@ -1,0 +1,211 @@
+"""Proving a Verilog file equal to its model, the confirmation of a counterexample in a
+simulator, and the proof's place in a build folder's report."""
+
+import hashlib
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import InputError, MismatchError, UndecidedError
+from ..emit import port_table, read_netlist
+from ..outdir import write_files
+from ..proof import DEFAULT_TIMEOUT_S, prove_netlist
+from ..verify import ReferenceModel, choose_simulator, make_backend, make_stimulus
+from .folder import load_folder, report_files
+from .options import check_timeout
+from .progress import progress_of
+
+__all__ = ["ProofResult", "counterexample_file", "prove", "prove_text"]
+
+# The one name versions before netlist proofs were recorded gave any netlist's counterexample;
+# a folder may still hold one that its report does not name.
+LEGACY_COUNTEREXAMPLE = "counterexample.csv"
+PROOF_STATEMENT = ("for every input in the declared feature ranges, the outputs equal the "
+                   "integer model's (decision{extra}), with any handshake")
+
+
+def counterexample_file(netlist_name, own=True):
+    """The name of a netlist's counterexample file in the build folder: after the netlist,
+    and apart for a ``--netlist`` file (which may share the folder's own file's name)."""
+    return f"counterexample-{'' if own else 'netlist-'}{netlist_name}.csv"
+
+
+@dataclass(frozen=True)
+class ProofResult:
+    """A proof's outcome as the report records it, and the counterexample if one was confirmed.
+
+    ``status`` is ``proved``, ``counterexample`` (confirmed in a simulator) or ``undecided``.
+    ``seconds`` is the proof's time, its confirmation included; the tools' warm-up before it
+    (a first-use compile) is ``outcome.warmup_seconds``.
+    """
+
+    section: dict
+    outcome: object                 # the solver's :class:`~thresh2hdl.proof.ProofOutcome`
+    counterexample_csv: str | None
+    seconds: float = 0.0
+
+    @property
+    def status(self):
+        return self.section["status"]
+
+    @property
+    def ok(self):
+        return self.status == "proved"
+
+    @property
+    def counterexample_file(self):
+        example = self.section.get("counterexample")
+        return example["file"] if example else None
+
+    @property
+    def timing(self):
+        """The report's timing keys for this proof."""
+        return {"proof_s": self.seconds, "tool_warmup_s": self.outcome.warmup_seconds}
+
+    def summary(self):
+        s = self.section
+        line = (f"{s['netlist']}: {s['status']} ({s['lemmas']} lemmas, {s['solver']}, "
+                f"{s['yosys']}, {self.seconds:.1f} s)")
+        if self.outcome.compiled:
+            line += (f"; {' and '.join(self.outcome.compiled)} compiled for first use in "
+                     f"{self.outcome.warmup_seconds:.0f} s before, not counted")
+        if s["status"] != "proved":
+            line += f"; {s['detail']}"
+        return line
+
+    def raise_unless_proved(self):
+        s = self.section
+        if s["status"] == "counterexample":
+            raise MismatchError(f"{s['netlist']}: not equal to the model; counterexample "
+                                f"written to {self.counterexample_file}: "
+                                f"{s['counterexample']['mismatch']}")
+        if s["status"] == "undecided":
+            raise UndecidedError(f"{s['netlist']}: undecided: {s['detail']}")
+
+
+
+def _confirm(simulator, component, text, ports, model, vector):
+    """Run one vector through the Verilog in a simulator; the first mismatch line, if any."""
+    if simulator == "amaranth":
+        return None, None
+    reference = ReferenceModel.from_model(model)
+    stimulus = make_stimulus(reference, np.array([vector], dtype=np.int64),
+                             latency=component.latency, beats=component.beats, stall_vectors=0,
+                             guard=component.config.guard)
+    backend = make_backend(simulator, verilog_text=text, ports=ports, module=model.module)
+    result, version_text = backend.run(stimulus), backend.version()
+    checked = result.check(stimulus)
+    if not checked.mismatches:
+        return None, version_text
+    names = [f.name for f in model.features]
+    return checked.mismatches[0].describe(stimulus, names), version_text
+
+
+def _statement(component, model):
+    """What the proof shows, in words, for this design's outputs and input guard."""
+    extra = ", class" if model.is_bank else ""
+    if model.ports.has_score:
+        extra += ", scores" if model.is_bank else ", score"
+    guard = component.config.guard
+    statement = PROOF_STATEMENT.format(extra=extra)
+    if guard.needed and guard.clamp:
+        statement = statement.replace("every input in the declared feature ranges",
+                                      "every code the input ports can carry") \
+            .replace("integer model's", "integer model's on the codes clamped to the declared "
+                     "ranges")
+    if guard.flag:
+        statement += "; the out-of-range output is high exactly when a code was outside its range"
+    return statement
+
+
+def prove_text(text, name, component, model, ports, *, timeout_s, simulator, progress,
+               own=True):
+    """Prove ``text`` (file ``name``; ``own``: the folder's own Verilog) and confirm a
+    counterexample in a simulator. ``progress``: a :class:`~.progress.Progress`."""
+    clock = time.perf_counter()
+    outcome = prove_netlist(text, component, model, ports, timeout_s=timeout_s,
+                            progress=progress.note)
+    section = {"status": outcome.status, "netlist": name,
+               "netlist_sha256": hashlib.sha256(text.encode("utf-8")).hexdigest(),
+               "statement": _statement(component, model),
+               "method": "one lemma per datapath value and register (Yosys write_smt2, "
+                         "Boolector), cut points at closed subtrees",
+               "lemmas": outcome.lemmas, "solver": outcome.solver, "yosys": outcome.yosys,
+               "arithmetic_bits": outcome.width_bits, "timeout_s": timeout_s,
+               "detail": outcome.detail, "failing_lemmas": list(outcome.failing[:20]),
+               "counterexample": None}
+    csv_text = None
+    if outcome.status == "counterexample":     # the solver's, not yet confirmed
+        section["status"] = "undecided"
+        if outcome.candidate is None:
+            section["detail"] += "; no input found whose outputs differ from the model's " \
+                                 "with the sink always ready"
+        else:
+            mismatch, version_text = _confirm(choose_simulator(simulator), component, text,
+                                              ports, model, outcome.candidate)
+            names = [f.name for f in model.features]
+            if mismatch is None:
+                section["detail"] += (
+                    f"; candidate input {list(outcome.candidate)} not confirmed "
+                    + ("(install Icarus Verilog or Verilator to run the Verilog)"
+                       if version_text is None else f"in {version_text}"))
+            else:
+                section["status"] = "counterexample"
+                section["counterexample"] = {
+                    "vector": dict(zip(names, outcome.candidate)),
+                    "file": counterexample_file(name, own),
+                    "confirmed_in": version_text, "mismatch": mismatch}
+                csv_text = ",".join(names) + "\n" + ",".join(map(str, outcome.candidate)) + "\n"
+    seconds = time.perf_counter() - clock - outcome.warmup_seconds
+    return ProofResult(section, outcome, csv_text, seconds)
+
+
+def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto",
+          progress=None):
+    """Prove a build folder's Verilog (or ``netlist``, same module and ports) equal to its model.
+
+    The outcome goes into the folder's report: under ``proof`` for the folder's own Verilog,
+    under ``netlist_proofs`` by file name for another file. A confirmed counterexample goes
+    into the file the report names (:func:`counterexample_file`), and once that netlist has
+    none its earlier file goes, so that the folder holds no counterexample its report does not
+    name. Then :class:`MismatchError` is raised for a counterexample and
+    :class:`UndecidedError` when the proof was not decided.
+    """
+    check_timeout(timeout_s)
+    progress = progress_of(progress)
+    folder = load_folder(out_dir)
+    out_dir, model, report, component = folder.path, folder.model, folder.report, \
+        folder.component
+    others = report.get("netlist_proofs") or {}
+    if not isinstance(others, dict) or not all(isinstance(s, dict) for s in others.values()):
+        raise InputError("netlist_proofs must map file names to proofs; remove the key or "
+                         "rebuild the folder", source=out_dir / "report.json")
+    ports = port_table(component, model)
+    own = folder.verilog
+    path = Path(netlist) if netlist is not None else own
+    text = read_netlist(path, model, ports)
+    is_own = path.resolve() == own.resolve()
+    try:
+        result = prove_text(text, path.name, component, model, ports, timeout_s=timeout_s,
+                            simulator=simulator, progress=progress, own=is_own)
+    except InputError as error:
+        raise InputError(str(error), source=path) from None
+    if is_own:
+        report["proof"] = result.section
+        report.setdefault("timing", {}).update(
+            {key: round(value, 3) for key, value in result.timing.items()})
+    else:
+        report["netlist_proofs"] = dict(sorted({**others, path.name: result.section}.items()))
+    files = report_files(out_dir, report)
+    if result.counterexample_csv is not None:
+        files[out_dir / result.counterexample_file] = result.counterexample_csv
+    write_files(files, force=True)
+    named = {s["counterexample"].get("file") for s in [report.get("proof"),
+                                                      *report.get("netlist_proofs", {}).values()]
+             if isinstance(s, dict) and isinstance(s.get("counterexample"), dict)}
+    for stale in {counterexample_file(path.name, is_own), LEGACY_COUNTEREXAMPLE} - named:
+        (out_dir / stale).unlink(missing_ok=True)
+    result.raise_unless_proved()
+    return result
