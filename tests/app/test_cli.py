@@ -11,7 +11,7 @@ from thresh2hdl.app import demo_model
 from thresh2hdl.model import model_to_toml
 from thresh2hdl.analysis import signed_bits
 
-EXAMPLE = Path(__file__).parents[1] / "examples" / "pump_vibration" / "pump_fault.toml"
+EXAMPLE = Path(__file__).parents[2] / "examples" / "pump_vibration" / "pump_fault.toml"
 
 
 def test_demo_end_to_end(tmp_path):
