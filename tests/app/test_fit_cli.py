@@ -187,3 +187,26 @@ def test_fit_defaults_say_what_they_chose_and_keep_weights_narrow(tmp_path):
     assert max(abs(w) for w in load_model(model).unit.weights) >= 1 << 11
     assert_one_line_error(run("fit", data, "--out", model, "--weight-bits", "wide"), 2,
                           "neither a number of bits nor 'full'")
+
+
+@pytest.mark.parametrize("args, field, flag", [
+    (("--epochs", "0"), "epochs", "--epochs"),
+    (("--holdout", "1.5"), "holdout", "--holdout"),
+    (("--module", "9x"), "module", "--module"),
+])
+def test_training_errors_name_fields_in_the_library_and_flags_on_the_command(
+        tmp_path, args, field, flag):
+    # The core names its own fields; the command line names them as its options (cli.flags_named).
+    from thresh2hdl.errors import InputError
+    from thresh2hdl.model import read_csv
+    from thresh2hdl.train import FitOptions, fit
+    data = write_csv(tmp_path / "train.csv", HEADER, separable_rows())
+    result = run("fit", data, "--out", tmp_path / "m.toml", "--input-bits", "12", *args)
+    assert_one_line_error(result, contains=f"{flag}: ")
+    assert not (tmp_path / "m.toml").exists()
+    with pytest.raises(InputError) as caught:
+        if field == "module":
+            fit(read_csv(data, label="label"), module="9x")
+        else:
+            FitOptions(**{field: int(args[1]) if field == "epochs" else float(args[1])})
+    assert caught.value.field == field and "--" not in str(caught.value)

@@ -15,7 +15,7 @@ from ..errors import EXIT_INPUT, EXIT_INTERNAL, InputError, ThreshError
 from ..hardware import FULL_PIPELINE
 from ..proof import DEFAULT_TIMEOUT_S
 from ..reports import cost_text
-from ..train import DEFAULT_MAX_WEIGHT_BITS, FitOptions, choice_lines
+from ..train import DEFAULT_MAX_WEIGHT_BITS, KEEP, RULES, FitOptions, choice_lines
 from .building import build, demo_model
 from .checking import check
 from .estimating import estimate_folder
@@ -134,7 +134,12 @@ def flags_named(error, params):
     """``error`` with its field named as the command line names it: the library names a
     field as its keyword (``split_bits``), a command's option of that name is a flag
     (``--split-adders``). A field already a flag, or no option's, or in a file, stays."""
-    flags = {param.name: param.opts[0] for param in params if isinstance(param, click.Option)}
+    flags = {}
+    for param in params:
+        if isinstance(param, click.Option):
+            flag = next((o for o in param.opts if o.startswith("--")), param.opts[0])
+            flags[flag.lstrip("-").replace("-", "_")] = flag    # --module: module
+            flags[param.name] = flag                             # split_bits: --split-adders
     field = error.field
     if not isinstance(error, InputError) or error.source is not None or field not in flags:
         return error
@@ -191,9 +196,9 @@ def demo_command(**kwargs):
 @click.option("--signed", is_flag=True, help="With --input-bits: two's complement codes.")
 @click.option("--formats", "formats_file", type=click.Path(), default=None,
               help="TOML file of [[feature]] tables declaring each column's format.")
-@click.option("--rule", type=click.Choice(["classic", "symmetric"]), default="classic",
+@click.option("--rule", type=click.Choice(RULES), default="classic",
               show_default=True, help="classic: w += (y - y_hat) x; symmetric: w += s x when s z <= 0.")
-@click.option("--keep", type=click.Choice(["last", "pocket", "averaged"]), default=None,
+@click.option("--keep", type=click.Choice(KEEP), default=None,
               help="Which weights to keep (default pocket: the epoch's with the best training "
               "accuracy).")
 @click.option("--epochs", type=int, default=100, show_default=True)

@@ -21,7 +21,7 @@ from ..errors import ToolError
 from .netlist import netlist_of
 from .ports import Port
 
-__all__ = ["write_verilog", "emit_verilog", "instance_template", "port_table", "range_comments"]
+__all__ = ["bit_range", "write_verilog", "emit_verilog", "instance_template", "port_table", "range_comments"]
 
 _BINARY = {"$add": "+", "$sub": "-", "$mul": "*", "$and": "&", "$or": "|", "$xor": "^",
            "$xnor": "~^"}
@@ -245,7 +245,7 @@ class _Writer:
             if wire not in (self.port_names.get(p, p) for p in port_kind):
                 keep = "(* keep *) " if wire in kept and not is_flop else ""
                 declarations.append(f"  {keep}{'reg ' if is_flop else 'wire'} "
-                                    f"{_range(self.widths[wire])}{wire};")
+                                    f"{bit_range(self.widths[wire])}{wire};")
             if is_flop:
                 body += ["  " + line for line in self.flop(cell, wire)]
             else:
@@ -268,7 +268,7 @@ class _Writer:
             direction = "input " if port["direction"] == "input" else "output"
             kind = port_kind.get(name, "wire")
             sign = "signed " if port.get("signed") else ""
-            port_lines.append(f"  {direction} {kind} {sign}{_range(len(port['bits']))}"
+            port_lines.append(f"  {direction} {kind} {sign}{bit_range(len(port['bits']))}"
                               f"{self.port_names.get(name, name)}")
         lines = list(header)
         lines += ["`default_nettype none", "", f"module {self.name} ("]
@@ -295,7 +295,8 @@ def _natural_key(text):
     return [int(part) if part.isdigit() else part for part in re.split(r"(\d+)", text)]
 
 
-def _range(width):
+def bit_range(width):
+    """A declaration's range, ``[w-1:0] `` (nothing for one bit)."""
     return "" if width == 1 else f"[{width - 1}:0] "
 
 
@@ -373,7 +374,7 @@ def instance_template(component, model):
              f"the inputs.", *range_comments(component, model)]
     for _, name, direction, width, is_signed in table:
         sign = "signed " if is_signed else ""
-        lines.append(f"wire {sign}{_range(width)}{model.module}_{name};")
+        lines.append(f"wire {sign}{bit_range(width)}{model.module}_{name};")
     lines.append(f"{model.module} u_{model.module} (")
     pad = max(len(name) for _, name, *_ in table)
     for i, (_, name, *_rest) in enumerate(table):

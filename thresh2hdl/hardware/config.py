@@ -11,7 +11,7 @@ from amaranth.hdl import signed, unsigned
 
 from ..errors import InputError
 from ..model import Model
-from ..analysis import ARCHITECTURES, resolve_guard, signed_bits
+from ..analysis import check_architecture, resolve_guard, signed_bits
 
 __all__ = ["UnitConfig", "FULL_PIPELINE", "MAX_SERIAL_FEATURES", "sample_shape"]
 
@@ -70,9 +70,7 @@ class UnitConfig:
                                             or not 1 <= self.score_bits <= 128):
             raise InputError(f"must be an integer from 1 to 128, not {self.score_bits!r}",
                              field="score_bits")
-        if self.arch not in ARCHITECTURES:
-            raise InputError(f"must be one of {', '.join(ARCHITECTURES)}, not {self.arch!r}",
-                             field="arch")
+        check_architecture(self.arch)
         if not isinstance(self.loadable_weights, bool):
             raise InputError(f"must be True or False, not {self.loadable_weights!r}",
                              field="loadable_weights")

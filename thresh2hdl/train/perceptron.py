@@ -63,23 +63,23 @@ class FitOptions:
     def __post_init__(self):
         if self.rule not in RULES:
             raise InputError(f"must be one of {', '.join(RULES)}, not {self.rule!r}",
-                             field="--rule")
+                             field="rule")
         if self.keep not in KEEP:
             raise InputError(f"must be one of {', '.join(KEEP)}, not {self.keep!r}",
-                             field="--keep")
+                             field="keep")
         if not isinstance(self.epochs, int) or not 1 <= self.epochs <= 100_000:
             raise InputError(f"must be an integer from 1 to 100000, not {self.epochs!r}",
-                             field="--epochs")
+                             field="epochs")
         if not 0.0 <= self.holdout < 1.0:
             raise InputError(f"must be a fraction from 0 to below 1, not {self.holdout!r}",
-                             field="--holdout")
+                             field="holdout")
         for bits in (self.weight_bits, self.max_weight_bits):
             if bits is not None and (not isinstance(bits, int) or not 2 <= bits <= 32):
                 raise InputError(f"must be an integer from 2 to 32 or 'full', not {bits!r}",
-                                 field="--weight-bits")
+                                 field="weight_bits")
         if self.bias_input is not None and self.bias_input < 1:
             raise InputError(f"must be a positive integer, not {self.bias_input!r}",
-                             field="--bias-input")
+                             field="bias_input")
 
 
 @dataclass
@@ -222,7 +222,7 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
     try:
         check_identifier(module, "module name")
     except ValueError as error:
-        raise InputError(str(error), field="--module") from None
+        raise InputError(str(error), field="module") from None
     formats = _checked_formats(dataset, formats, log)
     x, labels, classes = dataset.x, dataset.labels, dataset.classes
     train_idx, held_idx = _holdout_split(dataset, options)

@@ -6,15 +6,15 @@ The testbench is filled in from the template ``sim/thresh_tb.v.in`` (shipped in 
 """
 
 import shutil
-import subprocess
 import tempfile
 from pathlib import Path
 
 import numpy as np
 
+from ..emit import bit_range as _range
 from ..errors import ToolError
 from ..outdir import write_text
-from ..tools import find_tool, tool_version
+from ..tools import find_tool, run, tool_version
 from .backend import SimulationResult, SimulatorBackend
 from .stimulus import write_columns
 from .templates import template_text
@@ -44,10 +44,6 @@ class TestbenchFiles:
 
 def _template():
     return template_text("thresh_tb.v.in")
-
-
-def _range(width):
-    return "" if width == 1 else f"[{width - 1}:0] "
 
 
 def _score_ports(ports):
@@ -231,7 +227,7 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
               verilog_path.name], [_tool("vvp"), "-n", compiled.name]]
     outputs = []
     for command in steps:
-        result = subprocess.run(command, cwd=workdir, capture_output=True, text=True)
+        result = run(command, cwd=workdir)
         if result.returncode != 0 or result.stderr.strip():
             message = (result.stderr or result.stdout).strip().splitlines()
             raise ToolError(f"{Path(command[0]).name} failed: "

@@ -12,7 +12,6 @@ place, so the cache never holds a half-built harness.
 import hashlib
 import os
 import shutil
-import subprocess
 import tempfile
 import time
 from pathlib import Path
@@ -20,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import ToolError
-from ..tools import find_tool, tool_version, which_tool
+from ..tools import find_tool, run, tool_version, which_tool
 from .backend import SimulationResult, SimulatorBackend
 from .stimulus import write_columns
 from .templates import template_text
@@ -169,7 +168,7 @@ def compiled_harness(verilog_text, ports, module, *, progress=None):
                    "--x-initial", "fast", "--Mdir", "obj", "-Wno-fatal", "--top-module",
                    wrapper_name(module), "-CFLAGS", "-O2", f"{module}.v", "wrapper.v",
                    "harness.cpp", "-o", f"V{module}"]
-        result = subprocess.run(command, cwd=work, capture_output=True, text=True)
+        result = run(command, cwd=work)
         built = work / "obj" / f"V{module}"
         if result.returncode != 0 or not built.exists():
             lines = [l for l in (result.stderr + result.stdout).splitlines() if "rror" in l]
@@ -226,9 +225,8 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
         vectors.tofile(folder / "vectors.bin")
         control.tofile(folder / "control.bin")
         started = time.perf_counter()
-        result = subprocess.run([str(binary)] + [str(folder / name) for name in
-                                ("vectors.bin", "control.bin", "flags.bin", "scores.bin")],
-                                capture_output=True, text=True)
+        result = run([binary] + [folder / name for name in
+                                 ("vectors.bin", "control.bin", "flags.bin", "scores.bin")])
         run_seconds = time.perf_counter() - started
         if result.returncode != 0:
             raise ToolError(f"the Verilator harness failed: {result.stderr.strip()[:200]}")
