@@ -195,3 +195,14 @@ class Structure(HTMLParser):
             self.errors.append(f"</{tag}> closes {self.stack[-1] if self.stack else 'nothing'}")
         else:
             self.stack.pop()
+
+
+def noisy_codes(seed, rows=2000):
+    """Synthetic: six 12-bit codes labelled by a random integer rule plus Gaussian noise, with
+    10% of the labels flipped besides: not separable, as sensor data rarely is."""
+    rng = np.random.default_rng(seed)
+    x = rng.integers(0, 4096, (rows, 6))
+    y = (((x - 2048) @ rng.integers(-5, 6, 6) + rng.normal(0, 2000, rows)) > 0).astype(int)
+    flip = rng.random(rows) < 0.1
+    y[flip] = 1 - y[flip]
+    return x, y

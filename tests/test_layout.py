@@ -93,3 +93,19 @@ def test_the_guide_maps_every_module_and_only_those():
               if relative.name not in ("__init__.py", "__main__.py")}
     assert actual - named == set(), f"modules the map does not name: {sorted(actual - named)}"
     assert named - actual == set(), f"the map names what is not there: {sorted(named - actual)}"
+
+
+def test_tests_mirror_the_package_and_share_helpers_only_through_helpers_py():
+    # A test module never imports another test module (a moved test must not break others):
+    # what they share lives in tests/helpers.py. Each folder of tests is a stage of the package.
+    tests = Path(__file__).parent
+    stages = {p.name for p in tests.iterdir() if p.is_dir() and list(p.glob("test_*.py"))}
+    assert stages <= set(RANK) - {""}, stages - set(RANK)
+    wrong = []
+    for path in sorted(tests.rglob("test_*.py")):
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            names = [node.module or ""] if isinstance(node, ast.ImportFrom) else \
+                [alias.name for alias in node.names] if isinstance(node, ast.Import) else []
+            wrong += [f"{path.relative_to(tests)}:{node.lineno} imports {name}"
+                      for name in names if name.split(".")[0].startswith("test_")]
+    assert not wrong, wrong

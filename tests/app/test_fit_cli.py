@@ -162,9 +162,9 @@ def test_fit_refuses_to_overwrite_without_force(tmp_path):
 
 
 def test_fit_defaults_say_what_they_chose_and_keep_weights_narrow(tmp_path):
-    # Synthetic noisy 12-bit rows (test_train.noisy_codes): full-precision weights come out
+    # Synthetic noisy 12-bit rows (helpers.noisy_codes): full-precision weights come out
     # wider than 12 bits there.
-    from test_train import noisy_codes
+    from helpers import noisy_codes
     x, y = noisy_codes(0)
     data = write_csv(tmp_path / "noisy.csv", ["a", "b", "c", "d", "e", "f", "label"],
                      [list(r) + [int(v)] for r, v in zip(x, y)])

@@ -17,6 +17,7 @@ from thresh2hdl.model.records import FeatureFormat
 from thresh2hdl.train.quantize import FloatModel, decide, fold_normalisation, to_integer_weights
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.train.perceptron import FitOptions, accuracy, fit, train_unit
+from helpers import noisy_codes
 
 # The rule as written: raw codes, a bias input of 1, rows in order, every epoch, the last
 # weights at full precision (not the command's defaults, pocket weights inside 12 bits).
@@ -237,17 +238,6 @@ def test_blockwise_trainer_equals_literal_loop(rule, keep, seed):
         np.testing.assert_allclose(mean, expected, rtol=1e-12)
     else:
         assert w.tolist() == expected.tolist()
-
-
-def noisy_codes(seed, rows=2000):
-    """Synthetic: six 12-bit codes labelled by a random integer rule plus Gaussian noise, with
-    10% of the labels flipped besides: not separable, as sensor data rarely is."""
-    rng = np.random.default_rng(seed)
-    x = rng.integers(0, 4096, (rows, 6))
-    y = (((x - 2048) @ rng.integers(-5, 6, 6) + rng.normal(0, 2000, rows)) > 0).astype(int)
-    flip = rng.random(rows) < 0.1
-    y[flip] = 1 - y[flip]
-    return x, y
 
 
 def test_defaults_keep_pocket_weights_in_12_bits_and_score_higher_held_out():

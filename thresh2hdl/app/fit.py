@@ -111,45 +111,15 @@ def _formats_for(float_model, names):
 def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label", sweep=False,
                  tolerance=0.01, refine_epochs=20, module="thresh_unit", seed=0, force=False):
     """Fold a float model onto raw codes and write it as an integer model file."""
-    try:
-        check_identifier(module, "module name")
-    except ValueError as error:
-        raise InputError(str(error), field="--module") from None
+    _check_quantize(module, bits, sweep, tolerance)
     check_outputs(out_path, "quantize", (npz_path, data_path))
-    if bits is None and not sweep:
-        raise InputError("give --bits B (2..32) or --sweep", field="--bits")
-    if bits is not None and not 2 <= bits <= 32:
-        raise InputError(f"must be an integer from 2 to 32, not {bits}", field="--bits")
-    if not 0 <= tolerance < 1:
-        raise InputError(f"must be a fraction from 0 to below 1, not {tolerance}",
-                         field="--tolerance")
     float_model = load_float_model(npz_path)
     units, count = float_model.coef.shape
-    names = [f"x{i}" for i in range(count)]
-    labels = None
-    if data_path is not None:
-        dataset = read_csv(data_path, label=label)
-        if len(dataset.feature_names) != count:
-            raise InputError(f"has {len(dataset.feature_names)} feature columns, the float model "
-                             f"{count}", source=dataset.source, field="line 1")
-        names = list(dataset.feature_names)
+    dataset = _dataset_for(float_model, data_path, label)
+    names = list(dataset.feature_names) if dataset is not None else [f"x{i}" for i in range(count)]
     formats = _formats_for(float_model, names)
     classes = float_model.classes or ((0, 1) if units == 1 else tuple(range(units)))
-    if data_path is not None:
-        x = dataset.x
-        check_ranges(dataset, formats)
-        lookup = {c: i for i, c in enumerate(classes)}
-        unknown = sorted(set(dataset.classes) - set(lookup))
-        if unknown:
-            raise InputError(f"label {unknown[0]} is not one of the model's classes "
-                             f"{list(classes)}", source=dataset.source, field="label")
-        labels = np.array([lookup[int(v)] for v in dataset.labels], dtype=np.int64)
-        rows_source = f"{Path(data_path).name} ({len(x)} rows)"
-    else:
-        rng = np.random.default_rng(seed)
-        x = rng.integers(float_model.input_lo, float_model.input_hi, size=(10_000, count),
-                         endpoint=True)
-        rows_source = "10000 random vectors within the input ranges"
+    x, labels, rows_source = _rows_for(float_model, dataset, formats, classes, seed)
     weights, bias = fold_normalisation(float_model)
     float_decisions = decide(x.astype(np.float64) @ weights.T + bias)
     float_accuracy = float(np.mean(float_decisions == labels)) if labels is not None else None
@@ -168,30 +138,10 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
         accuracy = float(np.mean(decided == labels)) if labels is not None else None
         return result, agreement, accuracy
 
-    table, recommended = [], None
-    if sweep:
-        for b in SWEEP_BITS:
-            _, agreement, accuracy = at(b)
-            table.append((b, agreement, accuracy))
-        for b, agreement, accuracy in table:
-            close = (accuracy >= float_accuracy - tolerance) if labels is not None \
-                else agreement >= 1 - tolerance
-            if close:
-                recommended = b
-                break
-        if recommended is None:
-            recommended = SWEEP_BITS[-1]
+    table, recommended = _sweep(at, float_accuracy, tolerance) if sweep else ([], None)
     chosen = bits if bits is not None else recommended
     result, agreement, accuracy = at(chosen)
-    unit_names = ["unit"] if units == 1 else [class_unit_name(c) for c in classes]
-    try:
-        model = Model(module=module, features=formats,
-                      units=[Unit(n, tuple(int(v) for v in w), int(b))
-                             for n, w, b in zip(unit_names, result.weights, result.biases)],
-                      class_labels=classes)
-    except ValueError as error:
-        raise InputError(f"cannot make an integer model of it: {error}",
-                         source=npz_path) from None
+    model = _integer_model(module, formats, classes, result, npz_path)
     outcome = QuantizeResult(model, chosen, agreement, accuracy, float_accuracy, tuple(table),
                              recommended, len(x), rows_source)
     record = {"float_model": Path(npz_path).name, "bits": chosen, "rows": rows_source,
@@ -206,3 +156,75 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
                  log_path_for(out_path, "quantize"): json.dumps(record, indent=2) + "\n"},
                 force=force)
     return outcome
+
+
+def _check_quantize(module, bits, sweep, tolerance):
+    try:
+        check_identifier(module, "module name")
+    except ValueError as error:
+        raise InputError(str(error), field="--module") from None
+    if bits is None and not sweep:
+        raise InputError("give --bits B (2..32) or --sweep", field="--bits")
+    if bits is not None and not 2 <= bits <= 32:
+        raise InputError(f"must be an integer from 2 to 32, not {bits}", field="--bits")
+    if not 0 <= tolerance < 1:
+        raise InputError(f"must be a fraction from 0 to below 1, not {tolerance}",
+                         field="--tolerance")
+
+
+def _dataset_for(float_model, data_path, label):
+    """The labelled rows, when given: one column per input of the float model."""
+    if data_path is None:
+        return None
+    dataset = read_csv(data_path, label=label)
+    count = float_model.coef.shape[1]
+    if len(dataset.feature_names) != count:
+        raise InputError(f"has {len(dataset.feature_names)} feature columns, the float model "
+                         f"{count}", source=dataset.source, field="line 1")
+    return dataset
+
+
+def _rows_for(float_model, dataset, formats, classes, seed):
+    """The rows the quantized model is judged on: the data (with class indices), else random
+    codes within the input ranges. Returns ``(x, labels or None, what they are)``."""
+    if dataset is None:
+        rng = np.random.default_rng(seed)
+        x = rng.integers(float_model.input_lo, float_model.input_hi,
+                         size=(10_000, float_model.coef.shape[1]), endpoint=True)
+        return x, None, "10000 random vectors within the input ranges"
+    check_ranges(dataset, formats)
+    lookup = {c: i for i, c in enumerate(classes)}
+    unknown = sorted(set(dataset.classes) - set(lookup))
+    if unknown:
+        raise InputError(f"label {unknown[0]} is not one of the model's classes "
+                         f"{list(classes)}", source=dataset.source, field="label")
+    labels = np.array([lookup[int(v)] for v in dataset.labels], dtype=np.int64)
+    return dataset.x, labels, f"{Path(dataset.source).name} ({len(dataset.x)} rows)"
+
+
+def _sweep(at, float_accuracy, tolerance):
+    """Every width of SWEEP_BITS, and the fewest bits within ``tolerance`` of the float model
+    (its accuracy with labels, else agreement with it); the widest when none is."""
+    table = []
+    for b in SWEEP_BITS:
+        _, agreement, accuracy = at(b)
+        table.append((b, agreement, accuracy))
+    for b, agreement, accuracy in table:
+        close = (accuracy >= float_accuracy - tolerance) if float_accuracy is not None \
+            else agreement >= 1 - tolerance
+        if close:
+            return table, b
+    return table, SWEEP_BITS[-1]
+
+
+def _integer_model(module, formats, classes, result, npz_path):
+    units = len(result.biases)
+    unit_names = ["unit"] if units == 1 else [class_unit_name(c) for c in classes]
+    try:
+        return Model(module=module, features=formats,
+                     units=[Unit(n, tuple(int(v) for v in w), int(b))
+                            for n, w, b in zip(unit_names, result.weights, result.biases)],
+                     class_labels=classes)
+    except ValueError as error:
+        raise InputError(f"cannot make an integer model of it: {error}",
+                         source=npz_path) from None

@@ -192,9 +192,38 @@ class _Writer:
 
     # --- module -----------------------------------------------------------------------------
     def write(self, header):
+        ports = self.ports
+        for name, port in ports.items():
+            if port["direction"] == "input":
+                self.own(self.port_names.get(name, name), port["bits"])
+        port_kind, kept, items = self._wires(self._net_names())
+        declarations, body = self._statements(items, port_kind, kept)
+        unused = self.unused_parts()
+        if unused:
+            # Verilator's lint exempts names matching *unused* (its -unused-regexp default):
+            # the usual way to say on purpose that these bits are not needed.
+            declarations.append(f"  wire _unused_ok = &{{1'b0, {', '.join(unused)}, 1'b0}};")
+        port_lines = []
+        for name in self.port_order:
+            port = ports[name]
+            direction = "input " if port["direction"] == "input" else "output"
+            kind = port_kind.get(name, "wire")
+            sign = "signed " if port.get("signed") else ""
+            port_lines.append(f"  {direction} {kind} {sign}{bit_range(len(port['bits']))}"
+                              f"{self.port_names.get(name, name)}")
+        lines = list(header)
+        lines += ["`default_nettype none", "", f"module {self.name} ("]
+        lines += [line + ("," if i + 1 < len(port_lines) else "")
+                  for i, line in enumerate(port_lines)]
+        lines += [");"]
+        if declarations:
+            lines += [""] + declarations
+        lines += [""] + body + ["", "endmodule", "", "`default_nettype wire", ""]
+        return "\n".join(lines)
+
+    def _net_names(self):
+        """The design's own name of each group of bits (the tree's nodes)."""
         ports, cells, netnames = self.ports, self.module["cells"], self.module["netnames"]
-        out_bits = {tuple(p["bits"]): name for name, p in ports.items()
-                    if p["direction"] == "output"}
         driven = {bit for cell in cells.values() for key in ("Q", "Y")
                   for bit in cell["connections"].get(key, ())}
         named, extended = {}, {}
@@ -212,11 +241,13 @@ class _Writer:
                     k -= 1
         for bits, net in extended.items():
             named.setdefault(bits, net)
+        return named
 
-        for name, port in ports.items():
-            if port["direction"] == "input":
-                self.own(self.port_names.get(name, name), port["bits"])
-
+    def _wires(self, named):
+        """A wire (or output port) for every cell: ``(port kinds, kept wires, items)``."""
+        cells = self.module["cells"]
+        out_bits = {tuple(p["bits"]): name for name, p in self.ports.items()
+                    if p["direction"] == "output"}
         port_kind = {}            # port -> "reg" | "wire" (when a cell drives it directly)
         kept = set()              # wires named in the design: the tree's nodes
         items = []                # (wire name, cell)
@@ -237,9 +268,11 @@ class _Writer:
                 self.counter += 1
             self.own(wire, bits)
             items.append((wire, cell))
+        return port_kind, kept, items
 
-        body = []
-        declarations = []
+    def _statements(self, items, port_kind, kept):
+        """The declarations and the body (assignments, flops, output ports' assignments)."""
+        body, declarations = [], []
         for wire, cell in items:
             is_flop = cell["type"] in _FLOPS
             if wire not in (self.port_names.get(p, p) for p in port_kind):
@@ -251,34 +284,11 @@ class _Writer:
             else:
                 body.append(f"  assign {wire} = {self.expression(cell)};")
         for name in self.port_order:
-            port = ports[name]
+            port = self.ports[name]
             if port["direction"] == "output" and name not in port_kind:
                 body.append(f"  assign {self.port_names.get(name, name)} = "
                             f"{self.ref(port['bits'])};")
-
-        unused = self.unused_parts()
-        if unused:
-            # Verilator's lint exempts names matching *unused* (its -unused-regexp default):
-            # the usual way to say on purpose that these bits are not needed.
-            declarations.append(f"  wire _unused_ok = &{{1'b0, {', '.join(unused)}, 1'b0}};")
-
-        port_lines = []
-        for name in self.port_order:
-            port = ports[name]
-            direction = "input " if port["direction"] == "input" else "output"
-            kind = port_kind.get(name, "wire")
-            sign = "signed " if port.get("signed") else ""
-            port_lines.append(f"  {direction} {kind} {sign}{bit_range(len(port['bits']))}"
-                              f"{self.port_names.get(name, name)}")
-        lines = list(header)
-        lines += ["`default_nettype none", "", f"module {self.name} ("]
-        lines += [line + ("," if i + 1 < len(port_lines) else "")
-                  for i, line in enumerate(port_lines)]
-        lines += [");"]
-        if declarations:
-            lines += [""] + declarations
-        lines += [""] + body + ["", "endmodule", "", "`default_nettype wire", ""]
-        return "\n".join(lines)
+        return declarations, body
 
     def unused_parts(self):
         """Bits of inputs and internal wires that nothing reads, grouped by wire."""

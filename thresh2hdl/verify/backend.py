@@ -12,7 +12,7 @@ import numpy as np
 
 from .compare import compare
 
-__all__ = ["SimulationResult", "SimulatorBackend"]
+__all__ = ["SimulationResult", "SimulatorBackend", "VerilogBackend"]
 
 
 @dataclass(frozen=True)
@@ -48,3 +48,11 @@ class SimulatorBackend(ABC):
     def run(self, stimulus, progress=None):
         """Every cycle of ``stimulus`` through the design: a :class:`SimulationResult`.
         ``progress``: the caller's progress reporter (each back end uses what it can)."""
+
+
+class VerilogBackend(SimulatorBackend):
+    """A simulator of the emitted file itself: made from the Verilog text, its ports
+    (:func:`~thresh2hdl.emit.port_table`) and its module name."""
+
+    def __init__(self, verilog_text, ports, module):
+        self.verilog_text, self.ports, self.module = verilog_text, ports, module

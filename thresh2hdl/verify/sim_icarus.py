@@ -15,7 +15,7 @@ from ..emit import bit_range as _range
 from ..errors import ToolError
 from ..outdir import write_text
 from ..tools import find_tool, run, tool_version
-from .backend import SimulationResult, SimulatorBackend
+from .backend import SimulationResult, VerilogBackend
 from .stimulus import write_columns
 from .templates import template_text
 
@@ -256,13 +256,10 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
     return result, outputs[-1]
 
 
-class IcarusBackend(SimulatorBackend):
+class IcarusBackend(VerilogBackend):
     """Icarus Verilog, which runs the Verilog text with the self-checking testbench."""
 
     name = "icarus"
-
-    def __init__(self, verilog_text, ports, module):
-        self.verilog_text, self.ports, self.module = verilog_text, ports, module
 
     def version(self):
         return icarus_version()

@@ -20,7 +20,7 @@ import numpy as np
 
 from ..errors import ToolError
 from ..tools import find_tool, run, tool_version, which_tool
-from .backend import SimulationResult, SimulatorBackend
+from .backend import SimulationResult, VerilogBackend
 from .stimulus import write_columns
 from .templates import template_text
 
@@ -249,13 +249,10 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
                             flags=(flags >> 15).astype(bool) if has_flag else None)
 
 
-class VerilatorBackend(SimulatorBackend):
+class VerilatorBackend(VerilogBackend):
     """Verilator, which runs the Verilog text in a compiled C++ harness."""
 
     name = "verilator"
-
-    def __init__(self, verilog_text, ports, module):
-        self.verilog_text, self.ports, self.module = verilog_text, ports, module
 
     def version(self):
         return verilator_version()
