@@ -5,10 +5,10 @@ import ast
 import re
 from pathlib import Path
 
-import thresh2hdl
-
-PACKAGE = Path(thresh2hdl.__file__).parent
-GUIDE = PACKAGE.parent / "DEVELOPERS.md"
+# The source tree (an install adds the sim/ templates inside the package, which is no stage).
+ROOT = Path(__file__).resolve().parents[1]
+PACKAGE = ROOT / "thresh2hdl"
+GUIDE = ROOT / "DEVELOPERS.md"
 
 # The stages in the order data flows (DEVELOPERS.md "How data flows"): a module may import from
 # its own subpackage and from stages ranked below its own, never from its own rank or above.
