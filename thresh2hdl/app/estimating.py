@@ -1,8 +1,8 @@
-"""The cost of a build folder's Verilog on an FPGA target, written into its report."""
+"""The cost of a build folder's Verilog on an FPGA part, written into its report."""
 
 from dataclasses import replace
 
-from ..cost import estimate_cost, synthesis_figures
+from ..cost import choose_device, estimate_cost, synthesis_figures
 from ..emit import emit_verilog, port_table
 from ..errors import DoesNotFitError
 from ..hardware import make_component
@@ -15,18 +15,22 @@ from .progress import progress_of
 __all__ = ["estimate_folder"]
 
 
-def estimate_folder(out_dir, *, target="ice40", dsp=None, progress=None):
-    """Cost of a build folder's Verilog on ``target``; written into its report.json beside the
-    other targets'. ``dsp``: multipliers into DSP blocks (None: the target's custom; see
+def estimate_folder(out_dir, *, target=None, device=None, dsp=None, progress=None):
+    """Cost of a build folder's Verilog on a part (``device``: a name of DEVICES; ``target``
+    alone: its family's default part); written into its report.json beside the other
+    devices'. ``dsp``: multipliers into DSP blocks (None: the family's custom; see
     estimate_cost). A design larger than the device is recorded unplaced, then refused.
     ``progress``: a :class:`~thresh2hdl.app.progress.Progress`."""
+    part = choose_device(device, target)        # a bad name is refused before any work
     progress = progress_of(progress)
     folder = load_folder(out_dir)
     model, component, report = folder.model, folder.component, folder.report
     text = read_text(folder.verilog, "Verilog file")
+    target = part.family
     try:
         figures, failure = estimate_cost(text, model.module, port_table(component, model),
-                                         target=target, progress=progress.note, dsp=dsp), None
+                                         device=part.key, progress=progress.note,
+                                         dsp=dsp), None
     except DoesNotFitError as error:
         figures, failure = error.figures, error
     guard = component.config.guard

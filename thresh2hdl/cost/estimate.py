@@ -14,14 +14,17 @@ import re
 import tempfile
 from pathlib import Path
 
-from ..errors import DoesNotFitError, ToolError
+from ..errors import DoesNotFitError, InputError, ToolError
 from ..tools import find_tool, run, tool_version
+from .devices import choose_device
 
-__all__ = ["TARGETS", "CELL_NAMES", "LUT4_RULES", "device_name", "estimate_cost",
-           "lut4_equivalents", "needs_text", "shortfall", "wrapper_text"]
+__all__ = ["TARGETS", "CELL_NAMES", "LUT4_RULES", "LOGIC_CELL_RULES", "device_name",
+           "estimate_cost", "lut4_equivalents", "needs_text", "shortfall", "share_used",
+           "wrapper_text"]
 
 TARGETS = {
-    # target: (Yosys synthesis command, nextpnr program, device arguments)
+    # target: (Yosys synthesis command, nextpnr program, its default device's arguments;
+    # the parts of each family are in devices.DEVICES)
     "ice40": ("synth_ice40", "nextpnr-ice40", ["--up5k", "--package", "sg48"]),
     "ecp5": ("synth_ecp5", "nextpnr-ecp5", ["--25k", "--package", "CABGA256"]),
 }
@@ -55,6 +58,19 @@ _RESOURCES = {"ICESTORM_LC": "logic cells", "ICESTORM_DSP": "DSP blocks",
 _FAMILY = {"ice40": "iCE40", "ecp5": "ECP5"}
 _DSP_RESOURCES = {"ICESTORM_DSP", "MULT18X18D", "ALU54B"}
 _LOGIC_RESOURCES = {"ICESTORM_LC", "TRELLIS_COMB", "TRELLIS_FF"}
+# Logic cells as nextpnr counts them when it places the module in its measuring wrapper (the
+# wrapper's shift chain and output registers included, so a little above the module's own):
+# on iCE40 the ICESTORM_LC cells, each a LUT4 with its carry and flip-flop (a LUT4 and a
+# flip-flop pack into one cell when the LUT feeds the flip-flop alone); on ECP5 the
+# TRELLIS_COMB cells, each one LUT4 of a slice (a CCU2C carry cell is two of them).
+_LOGIC_CELL = {"ice40": "ICESTORM_LC", "ecp5": "TRELLIS_COMB"}
+LOGIC_CELL_RULES = {
+    "ice40": "logic cells are nextpnr's ICESTORM_LC cells (a LUT4 with its carry and "
+             "flip-flop) of the module placed in its measuring wrapper",
+    "ecp5": "logic cells are nextpnr's TRELLIS_COMB cells (one LUT4 of a slice; a CCU2C is "
+            "two) of the module placed in its measuring wrapper",
+}
+_RAM_CELLS = ("SB_RAM40_4K", "DP16KD")
 _USE = re.compile(r"^Info:\s+(\w+):\s+(\d+)/\s*(\d+)\s+\d+%\s*$", re.MULTILINE)
 
 
@@ -83,9 +99,23 @@ def shortfall(log):
 
 
 def needs_text(name, missing):
-    """A shortfall in words: "needs 10 DSP blocks, the UP5K has 8"."""
+    """A shortfall in words: "needs 10 DSP blocks, the UP5K has 8 (2 too many)"."""
     return "; ".join(f"needs {m['needed']:,} {m['resource']}, the {name} has "
-                     f"{m['available']:,}" for m in missing)
+                     f"{m['available']:,} ({m['needed'] - m['available']:,} too many)"
+                     for m in missing)
+
+
+def share_used(used, capacity):
+    """Each resource's share of the device, ``used / capacity`` to four places, for the
+    resources the device has."""
+    return {key: round(used[key] / have, 4) for key, have in capacity.items()
+            if have and used.get(key) is not None}
+
+
+def _logic_cells(target, log):
+    """nextpnr's count of the logic cells it placed (or would have), None without its table."""
+    return next((int(used) for cell, used, _ in _USE.findall(log)
+                 if cell == _LOGIC_CELL.get(target)), None)
 
 
 def _not_fit_message(target, name, missing):
@@ -95,7 +125,7 @@ def _not_fit_message(target, name, missing):
         hint = "estimate with --no-dsp to build the multipliers from LUTs"
     else:
         hint = "make the design smaller (fewer units or features, narrower weights, " \
-               "--arch serial)" + (" or estimate with --target ecp5" if target == "ice40" else "")
+               "--arch serial) or estimate on a larger --device"
     # The placed design is the module in the wrapper that measures fmax: its logic counts too.
     what = "the module in its measuring wrapper" if cells & _LOGIC_RESOURCES else "the module"
     return f"{what} does not fit the {_FAMILY.get(target, target)} {name}: {needs}; {hint}"
@@ -178,19 +208,26 @@ def synthesis_figures(verilog_text, module, *, target="ice40", dsp=None):
             "flip_flops": sum(n for cell, n in cells.items() if _FLOP.match(cell))}
 
 
-def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None, seed=None,
-                  dsp=None):
-    """LUT4 equivalents, LUTs, carries, flip-flops, DSPs and fmax of the module on ``target``.
+def estimate_cost(verilog_text, module, ports, *, target=None, device=None, progress=None,
+                  seed=None, dsp=None):
+    """LUT4 equivalents, LUTs, carries, flip-flops, DSPs, logic cells and fmax of the module
+    on a part, with the part's capacity and the share of it used.
 
-    ``dsp``: whether synthesis may put multipliers into DSP blocks (None: the target's
+    ``device``: a name of :data:`~thresh2hdl.cost.devices.DEVICES` (``up5k``, ``ecp5-45``...);
+    ``target``: a family, alone its default part (``ice40``: the UP5K, ``ecp5``: the
+    LFE5U-25F), with ``device`` a check that the part is of that family.
+    ``dsp``: whether synthesis may put multipliers into DSP blocks (None: the family's
     custom, without on iCE40, with on ECP5), for a design that has them to spare.
     A design larger than the device raises :class:`DoesNotFitError` with the synthesis
     figures (``placed`` false, no fmax) and what it needs beyond the device.
     """
-    if target not in TARGETS:
-        raise ToolError(f"unknown target {target!r}; choose one of {', '.join(TARGETS)}")
-    _, pnr, device = TARGETS[target]
+    part = choose_device(device, target)
+    target = part.family
+    _, pnr, _ = TARGETS[target]
     synth, use_dsp = _synth_command(target, dsp)
+    if use_dsp and not part.dsps and dsp:
+        raise InputError(f"the {part.name} has no DSP blocks; estimate with --no-dsp or on "
+                         f"another --device", field="dsp")
     yosys, nextpnr = find_tool("yosys"), find_tool(pnr)
     if progress:
         progress("synthesising with Yosys (the first WebAssembly call takes about a minute)")
@@ -204,10 +241,10 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None,
              f"thresh_estimate_top -json top.json"], work,
             failure="Yosys synthesis of the wrapper failed")
         if progress:
-            progress("placing and routing with nextpnr")
+            progress(f"placing and routing with nextpnr on the {part.name}")
         placement = [] if seed is None else ["--seed", str(int(seed))]
         try:
-            run([nextpnr, *device, "--json", "top.json", "--freq", "12",
+            run([nextpnr, *part.arguments, "--json", "top.json", "--freq", "12",
                  "--timing-allow-fail", *placement, "--log", "pnr.log"], work,
                 failure="nextpnr place and route failed")
             missing = []
@@ -216,29 +253,36 @@ def estimate_cost(verilog_text, module, ports, *, target="ice40", progress=None,
             missing = shortfall(log_file.read_text() if log_file.exists() else "")
             if not missing:
                 raise
-        log = "" if missing else (work / "pnr.log").read_text()
+        log_file = work / "pnr.log"
+        log = log_file.read_text() if log_file.exists() else ""
 
     def count(prefixes):
         return sum(n for cell, n in cells.items() if cell.startswith(prefixes))
 
     luts, carries = count(("SB_LUT4", "LUT4")), count(("SB_CARRY", "CCU2C"))
+    used = {"logic_cells": _logic_cells(target, log),
+            "flip_flops": sum(n for cell, n in cells.items() if _FLOP.match(cell)),
+            "dsps": count(("SB_MAC16", "MULT18X18D")), "ram_blocks": count(_RAM_CELLS)}
     figures = {
-        "target": target, "device": " ".join(device), "device_name": device_name(target, device),
+        "target": target, "device": " ".join(part.arguments), "device_id": part.key,
+        "device_name": part.name,
         "lut4_equivalents": lut4_equivalents(target, luts, carries),
         "lut4_rule": LUT4_RULES.get(target, ""),
-        "luts": luts, "carries": carries,
-        "flip_flops": sum(n for cell, n in cells.items() if _FLOP.match(cell)),
-        "dsps": count(("SB_MAC16", "MULT18X18D")),
+        "logic_cells": used["logic_cells"], "logic_cell_rule": LOGIC_CELL_RULES[target],
+        "luts": luts, "carries": carries, "flip_flops": used["flip_flops"],
+        "dsps": used["dsps"], "ram_blocks": used["ram_blocks"],
+        "capacity": part.capacity, "share_used": share_used(used, part.capacity),
         "dsp_inference": use_dsp,
         "placed": not missing,
         "fmax_mhz": None,
         "cells": dict(sorted(cells.items())),
         "tool_versions": {"yosys": tool_version(yosys), "nextpnr": tool_version(nextpnr)},
-        "method": "cells: the module alone; fmax: the module between registers in a wrapper",
+        "method": "cells: the module alone; logic cells and fmax: the module between "
+                  "registers in a wrapper, placed by nextpnr",
     }
     if missing:
         figures["does_not_fit"] = missing
-        raise DoesNotFitError(_not_fit_message(target, figures["device_name"], missing),
+        raise DoesNotFitError(_not_fit_message(target, part.name, missing),
                               figures=figures)
     found = re.findall(r"Max frequency for clock\s+'[^']*':\s+([0-9.]+)\s+MHz", log)
     if not found:

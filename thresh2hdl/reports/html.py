@@ -212,34 +212,47 @@ def _guard_html(guard):
                       _table(["", "value"], rows)])
 
 
+def _share_cell(estimate, key):
+    """"412 of 5,280 (7.8%)": one resource against the device's capacity."""
+    used, have, share = estimate.used().get(key, (None, None, None))
+    if used is None:
+        return "-" if key == "logic_cells" else ""
+    return f"{used:,} of {have:,}" + (f" ({share:.1%})" if share is not None else "")
+
+
 def _cost_html(estimates):
-    """One row per target estimated; a design that did not fit shows what it needs."""
+    """One row per device estimated; a design that did not fit shows what it needs."""
     if not estimates:
         return "<p>Not estimated; run <code>thresh2hdl estimate</code> on this folder.</p>"
     rows, notes = [], []
-    for target, e in estimates.items():
-        lut, carry = CELL_NAMES.get(target, ("LUT", "carry"))
+    for key, e in estimates.items():
+        lut, carry = CELL_NAMES.get(e.target, ("LUT", "carry"))
         placed = e.is_placed
-        rows.append([target, e.name, "yes" if placed else "no", f"{e.equivalents:,}",
-                     f"{e.luts:,} {lut}", f"{e.carries:,} {carry}",
-                     f"{e.flip_flops:,}", e.dsps, "yes" if e.dsp_inference else "no",
+        rows.append([key, e.name, e.target, "yes" if placed else "no", f"{e.equivalents:,}",
+                     _share_cell(e, "logic_cells"), f"{e.luts:,} {lut}",
+                     f"{e.carries:,} {carry}",
+                     _share_cell(e, "flip_flops") or f"{e.flip_flops:,}",
+                     _share_cell(e, "dsps") or e.dsps, "yes" if e.dsp_inference else "no",
                      f"{e.fmax_mhz:.1f}" if placed else "-",
                      f"{e.tool_versions['yosys']}, {e.tool_versions['nextpnr']}"])
-        notes.append(f"<p>{escape(target)}: {escape(e.rule)}.</p>")
+        notes.append(f"<p>{escape(key)}: {escape(e.rule)}"
+                     + (f"; {escape(e.logic_cell_rule)}" if e.logic_cell_rule else "")
+                     + ".</p>")
         guard = e.input_guard
         if guard:
-            notes.append(f"<p>{escape(target)}: the input guard (clamp and/or out-of-range "
+            notes.append(f"<p>{escape(key)}: the input guard (clamp and/or out-of-range "
                          f"flag) costs {guard.lut4_equivalents:+,} LUT4 equivalents and "
                          f"{guard.flip_flops:+,} flip-flops against the same design without "
                          f"it ({guard.without_guard['lut4_equivalents']:,} LUT4 equivalents "
                          f"by synthesis).</p>")
         if not placed:
-            notes.append(f"<p class=bad>{escape(target)} {escape(e.name)}: not placed, the "
+            notes.append(f"<p class=bad>{escape(key)} {escape(e.name)}: not placed, the "
                          f"design does not fit; it {escape(e.shortfall_text())}. The figures are "
                          f"Yosys's synthesis of the module.</p>")
-    table = _table(["target", "device", "placed", "LUT4 equivalents", "LUT cells",
-                    "carry cells", "flip-flops", "DSPs", "multipliers may use DSPs",
-                    "fmax (MHz)", "tools"], rows)
+    table = _table(["device", "part", "family", "placed", "LUT4 equivalents",
+                    "logic cells of the part", "LUT cells", "carry cells",
+                    "flip-flops of the part", "DSPs of the part",
+                    "multipliers may use DSPs", "fmax (MHz)", "tools"], rows)
     return "\n".join([f"<div class=wide>{table}</div>"] + notes)
 
 

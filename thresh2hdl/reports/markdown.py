@@ -44,9 +44,11 @@ def report_markdown(report):
              f"| simulator | {v.simulator_version} |"]
     if report.data:
         lines.append(f"| accuracy on {report.data.file} | {report.data.accuracy:.4f} |")
-    for target, estimate in report.estimates.items():
-        lines.append(f"| {target} {estimate.name} cost | {cost_text(estimate)} |")
-        lines.append(f"| {target} LUT4 equivalents | {estimate.rule} |")
+    for key, estimate in report.estimates.items():
+        lines.append(f"| {key} {estimate.name} cost | {cost_text(estimate)} |")
+        lines.append(f"| {key} LUT4 equivalents | {estimate.rule} |")
+        if estimate.logic_cell_rule:
+            lines.append(f"| {key} logic cells | {estimate.logic_cell_rule} |")
     proof = report.proof
     lines.append(f"| proof | {_proof_cell(proof)} |" if proof else "| proof | not run |")
     lines += [f"| proof of --netlist {_cell(name)} | {_cell(_proof_cell(other))} |"

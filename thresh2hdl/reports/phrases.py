@@ -78,6 +78,9 @@ def cost_text(estimate):
             f"{estimate.carries:,} {carry}), {estimate.flip_flops:,} flip-flops, "
             f"{estimate.dsps} DSPs (multipliers "
             f"{'may use DSPs' if estimate.dsp_inference else 'in LUTs'}), ")
+    shares = estimate.capacity_text()
+    if shares:
+        text += f"on the {estimate.name}: {shares}; "
     text += f"fmax {estimate.fmax_mhz:.1f} MHz" if estimate.is_placed else \
         f"not placed: {estimate.shortfall_text()}"
     guard = estimate.input_guard

@@ -1,5 +1,6 @@
 """The report's sections that other stages hand in: the data's accuracy and histograms, the
-training or quantization log, proofs, and cost estimates (one per target).
+training or quantization log, proofs; the cost estimates (one per device) are in
+estimates.py, named here too.
 
 Each is a frozen record with ``to_json`` (its part of report.json, keys in the order written
 since the first version) and ``from_json`` (from a loaded report's table, see fields.Table).
@@ -7,7 +8,8 @@ since the first version) and ``from_json`` (from a loaded report's table, see fi
 
 from dataclasses import dataclass
 
-from ..cost import LUT4_RULES, TARGETS, device_name, lut4_equivalents, needs_text
+from .estimates import (CostEstimate, GuardCost, Shortfall, estimates_of, read_estimates,
+                        store_estimate)
 from .fields import present
 
 __all__ = ["Histogram", "UnitHistogram", "DataSummary", "TrainingLog", "SweepRow",
@@ -215,151 +217,3 @@ class ProofSection:
                    table.number("timeout_s"), table.text("detail"),
                    table.text("netlist_sha256", None), table.texts("failing_lemmas", None),
                    example and Counterexample.from_json(example))
-
-
-@dataclass(frozen=True)
-class Shortfall:
-    """What a design that was not placed needs beyond the device, for one resource."""
-    resource: str
-    cell: str | None
-    needed: int
-    available: int
-
-    def to_json(self):
-        return {"resource": self.resource, **present([("cell", self.cell)]),
-                "needed": self.needed, "available": self.available}
-
-
-@dataclass(frozen=True)
-class GuardCost:
-    """The input guard's cost: the estimate less the same design synthesised without it."""
-    lut4_equivalents: int
-    flip_flops: int
-    without_guard: dict             # the synthesis figures of the design without it
-
-    def to_json(self):
-        return {"lut4_equivalents": self.lut4_equivalents, "flip_flops": self.flip_flops,
-                "without_guard": dict(self.without_guard)}
-
-
-@dataclass(frozen=True)
-class CostEstimate:
-    """One target's synthesis and place-and-route figures (``thresh2hdl estimate``). Older
-    reports lack the device's name, the LUT4 equivalents and their rule: they are worked
-    out from the device and the cell counts (``device_name``, ``equivalents``, ``rule``)."""
-    target: str
-    device: str
-    luts: int
-    carries: int
-    flip_flops: int
-    dsps: int
-    fmax_mhz: float | None           # None when not placed
-    tool_versions: dict              # yosys, nextpnr
-    device_name: str | None = None
-    lut4_equivalents: int | None = None
-    lut4_rule: str | None = None
-    dsp_inference: bool | None = None
-    placed: bool | None = None       # older reports: absent, and placed
-    cells: dict | None = None
-    method: str | None = None
-    does_not_fit: tuple | None = None
-    input_guard: GuardCost | None = None
-
-    @property
-    def name(self):
-        return self.device_name or device_name(self.target, self.device.split())
-
-    @property
-    def equivalents(self):
-        if self.lut4_equivalents is not None:
-            return self.lut4_equivalents
-        return lut4_equivalents(self.target, self.luts, self.carries)
-
-    @property
-    def rule(self):
-        return self.lut4_rule or LUT4_RULES.get(self.target, "")
-
-    @property
-    def is_placed(self):
-        return self.placed is None or self.placed
-
-    def shortfall_text(self):
-        """What a design that was not placed needs beyond the device, in words."""
-        return needs_text(self.name, [s.to_json() for s in self.does_not_fit or ()])
-
-    def to_json(self):
-        return {"target": self.target, "device": self.device, **present([
-            ("device_name", self.device_name), ("lut4_equivalents", self.lut4_equivalents),
-            ("lut4_rule", self.lut4_rule)]), "luts": self.luts, "carries": self.carries,
-            "flip_flops": self.flip_flops, "dsps": self.dsps,
-            **present([("dsp_inference", self.dsp_inference), ("placed", self.placed)]),
-            "fmax_mhz": self.fmax_mhz, **present([
-                ("cells", self.cells), ("tool_versions", dict(self.tool_versions)),
-                ("method", self.method),
-                ("does_not_fit", None if self.does_not_fit is None else
-                 [s.to_json() for s in self.does_not_fit]),
-                ("input_guard", self.input_guard and self.input_guard.to_json())])}
-
-    @classmethod
-    def from_json(cls, table):
-        placed = table.flag("placed", None)
-        guard = table.table("input_guard", None, null=True)
-        versions = table.table("tool_versions")
-        missing = table.tables("does_not_fit", None)
-        return cls(
-            table.text("target"), table.text("device"), table.count("luts"),
-            table.count("carries"), table.count("flip_flops"), table.count("dsps"),
-            table.number("fmax_mhz", None, null=True) if placed is False else
-            table.number("fmax_mhz"),
-            {"yosys": versions.text("yosys"), "nextpnr": versions.text("nextpnr")},
-            table.text("device_name", None), table.count("lut4_equivalents", None),
-            table.text("lut4_rule", None), table.flag("dsp_inference", None), placed,
-            table.mapping("cells", lambda v: type(v) is int, "counts", None),
-            table.text("method", None),
-            None if missing is None else tuple(Shortfall(
-                m.text("resource"), m.text("cell", None), m.integer("needed"),
-                m.integer("available")) for m in missing),
-            guard and GuardCost(guard.integer("lut4_equivalents"), guard.integer("flip_flops"),
-                                _without_guard(guard)))
-
-
-def _without_guard(guard):
-    figures = guard.table("without_guard")
-    figures.count("lut4_equivalents")
-    return dict(figures.value)
-
-
-def _in_target_order(found):
-    order = {target: index for index, target in enumerate(TARGETS)}
-    return {t: found[t] for t in sorted(found, key=lambda t: (order.get(t, len(order)), t))}
-
-
-def estimates_of(report):
-    """A report.json's estimates by target, in the order of TARGETS, as its tables. Reports
-    written before there was one per target have a single ``estimate``; it reads as its
-    target's."""
-    found = dict(report.get("estimates") or {})
-    older = report.get("estimate")
-    if older and older.get("target") not in found:
-        found[older["target"]] = older
-    return _in_target_order(found)
-
-
-def read_estimates(table):
-    """:func:`estimates_of` for a loaded report: ``{target: CostEstimate}``."""
-    found = {name: CostEstimate.from_json(figures)
-             for name, figures in table.named_tables("estimates", None) or ()}
-    older = table.table("estimate", None, null=True)
-    if older is not None and older.value:
-        estimate = CostEstimate.from_json(older)
-        found.setdefault(estimate.target, estimate)
-    return _in_target_order(found)
-
-
-def store_estimate(report, figures):
-    """Put ``figures`` in a report.json's data as its target's estimate, keeping the other
-    targets'."""
-    estimates = estimates_of(report)
-    estimates[figures["target"]] = figures
-    report.pop("estimate", None)
-    report["estimates"] = estimates_of({"estimates": estimates})
