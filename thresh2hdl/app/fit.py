@@ -15,8 +15,8 @@ from ..model import (FeatureFormat, Model, Unit, check_ranges, load_toml, model_
 from ..errors import InputError
 from ..names import check_identifier
 from ..outdir import write_files
-from ..train import (FitOptions, class_unit_name, decide, fit, fold_normalisation, load_float_model,
-                     to_integer_weights)
+from ..train import (FitOptions, check_max_digits, class_unit_name, decide, fit,
+                     fold_normalisation, load_float_model, to_integer_weights)
 
 __all__ = ["fit_csv", "quantize_npz", "input_formats", "QuantizeResult", "SWEEP_BITS"]
 
@@ -87,10 +87,12 @@ class QuantizeResult:
     agreement: float
     accuracy: float | None
     float_accuracy: float | None
-    sweep: tuple            # ((bits, agreement, accuracy), ...) when swept
+    sweep: tuple            # ((bits, agreement, accuracy, digits), ...) when swept
     recommended_bits: int | None
     rows: int
     rows_source: str
+    max_digits: int | None = None   # the budget of nonzero signed digits per weight, if any
+    digits_per_unit: tuple = ()     # nonzero signed digits of each unit's weights
 
 
 def _formats_for(float_model, names):
@@ -109,9 +111,12 @@ def _formats_for(float_model, names):
 
 
 def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label", sweep=False,
-                 tolerance=0.01, refine_epochs=20, module="thresh_unit", seed=0, force=False):
-    """Fold a float model onto raw codes and write it as an integer model file."""
+                 tolerance=0.01, refine_epochs=20, module="thresh_unit", seed=0, force=False,
+                 max_digits=None):
+    """Fold a float model onto raw codes and write it as an integer model file; with
+    ``max_digits`` K, every weight has at most K nonzero canonical signed digits."""
     _check_quantize(module, bits, sweep, tolerance)
+    max_digits = check_max_digits(max_digits)
     check_outputs(out_path, "quantize", (npz_path, data_path))
     float_model = load_float_model(npz_path)
     units, count = float_model.coef.shape
@@ -129,8 +134,10 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
         try:
             result = to_integer_weights(weights, bias, b, x, labels=labels,
                                         refine_epochs=refine_epochs if labels is not None else 0,
-                                        seed=seed, centre=centre)
+                                        seed=seed, centre=centre, max_digits=max_digits)
         except InputError as error:
+            if error.field == "max_digits":     # the option's, not the file's: named as such
+                raise
             raise InputError(str(error), source=npz_path) from None
         decided = decide(x.astype(np.float64) @ result.weights.T.astype(np.float64)
                          + result.biases.astype(np.float64))
@@ -143,15 +150,19 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
     result, agreement, accuracy = at(chosen)
     model = _integer_model(module, formats, classes, result, npz_path)
     outcome = QuantizeResult(model, chosen, agreement, accuracy, float_accuracy, tuple(table),
-                             recommended, len(x), rows_source)
+                             recommended, len(x), rows_source, max_digits, result.digits)
     record = {"float_model": Path(npz_path).name, "bits": chosen, "rows": rows_source,
               "agreement_with_float": agreement, "accuracy": accuracy,
               "float_accuracy": float_accuracy, "scale": result.scale,
-              "sweep": [{"bits": b, "agreement": a, "accuracy": c} for b, a, c in table],
+              "max_digits": max_digits, "digits_per_unit": list(result.digits),
+              "digits_total": sum(result.digits),
+              "sweep": [{"bits": b, "agreement": a, "accuracy": c, "digits": d}
+                        for b, a, c, d in table],
               "recommended_bits": recommended, "tolerance": tolerance}
     comment = (f"Folded and quantized by thresh2hdl quantize from {Path(npz_path).name} at "
-               f"{chosen}-bit weights; agreement with the float model {agreement:.4f} on "
-               f"{rows_source}")
+               f"{chosen}-bit weights"
+               + (f" of at most {max_digits} nonzero signed digits" if max_digits else "")
+               + f"; agreement with the float model {agreement:.4f} on {rows_source}")
     write_files({Path(out_path): model_to_toml(model, comment=comment),
                  log_path_for(out_path, "quantize"): json.dumps(record, indent=2) + "\n"},
                 force=force)
@@ -203,13 +214,14 @@ def _rows_for(float_model, dataset, formats, classes, seed):
 
 
 def _sweep(at, float_accuracy, tolerance):
-    """Every width of SWEEP_BITS, and the fewest bits within ``tolerance`` of the float model
-    (its accuracy with labels, else agreement with it); the widest when none is."""
+    """Every width of SWEEP_BITS with its digits in all, and the fewest bits within
+    ``tolerance`` of the float model (its accuracy with labels, else agreement with it); the
+    widest when none is."""
     table = []
     for b in SWEEP_BITS:
-        _, agreement, accuracy = at(b)
-        table.append((b, agreement, accuracy))
-    for b, agreement, accuracy in table:
+        result, agreement, accuracy = at(b)
+        table.append((b, agreement, accuracy, sum(result.digits)))
+    for b, agreement, accuracy, _ in table:
         close = (accuracy >= float_accuracy - tolerance) if float_accuracy is not None \
             else agreement >= 1 - tolerance
         if close:

@@ -1,16 +1,20 @@
 """Making integer models: perceptron training on raw codes (:mod:`.perceptron`), and bringing a
-real-valued model's weights into a bit budget while keeping its decisions (:mod:`.quantize`).
+real-valued model's weights into a bit budget while keeping its decisions (:mod:`.quantize`),
+optionally with few nonzero signed digits per weight (:mod:`.digits`).
 
 Both give :class:`~thresh2hdl.model.Model` records; reading data and writing model files is the
 app's (:mod:`thresh2hdl.app.fit`).
 """
 
+from .digits import DigitBudget, check_max_digits, digit_count, digits_per_unit
 from .perceptron import (DEFAULT_MAX_WEIGHT_BITS, KEEP, RULES, FitLog, FitOptions, accuracy,
-                         choice_lines, class_unit_name, fit, predict, train_unit, weight_width)
+                         choice_lines, class_unit_name, digits_line, fit, predict, train_unit,
+                         weight_width)
 from .quantize import (FLOAT_ARRAYS, FloatModel, IntegerWeights, decide, fold_normalisation,
                        load_float_model, to_integer_weights)
 
-__all__ = ["DEFAULT_MAX_WEIGHT_BITS", "KEEP", "RULES", "FitLog", "FitOptions", "accuracy",
+__all__ = ["DigitBudget", "check_max_digits", "digit_count", "digits_per_unit", "digits_line",
+           "DEFAULT_MAX_WEIGHT_BITS", "KEEP", "RULES", "FitLog", "FitOptions", "accuracy",
            "choice_lines", "class_unit_name", "fit", "predict", "train_unit", "weight_width",
            "FLOAT_ARRAYS", "FloatModel", "IntegerWeights", "decide", "fold_normalisation",
            "load_float_model", "to_integer_weights"]

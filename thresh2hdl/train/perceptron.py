@@ -15,6 +15,7 @@ import numpy as np
 from ..model import FeatureFormat, MAX_FEATURES, Model, Unit, check_ranges
 from ..errors import InputError
 from ..names import check_identifier
+from .digits import check_max_digits, digits_per_unit
 from .quantize import to_integer_weights
 
 __all__ = ["FitOptions", "FitLog", "train_unit", "fit", "choice_lines", "weight_width", "RULES",
@@ -45,7 +46,12 @@ class FitOptions:
     Without ``weight_bits``, weights wider than ``max_weight_bits`` (default 12) at full
     precision are brought into that many bits the same way; None keeps full precision. Raw
     12-bit codes easily train into 16-22-bit weights, and every multiplier and adder of the
-    circuit grows with them; 12 bits lost no held-out accuracy on the noisy sets tried."""
+    circuit grows with them; 12 bits lost no held-out accuracy on the noisy sets tried.
+
+    ``max_digits`` K: every weight has at most K nonzero canonical signed digits, the adders of
+    its product in ``shiftadd``: the weights are brought into the bit budget (the full-precision
+    width when there is none) at the nearest values within K digits, and the refinement keeps
+    them there (see :func:`~thresh2hdl.train.quantize.to_integer_weights`)."""
 
     rule: str = "classic"
     keep: str = "pocket"
@@ -59,6 +65,7 @@ class FitOptions:
     centre: bool = True
     bias_input: int | None = None     # default: half the widest declared span
     refine_epochs: int = 20
+    max_digits: int | None = None
 
     def __post_init__(self):
         if self.rule not in RULES:
@@ -80,6 +87,7 @@ class FitOptions:
         if self.bias_input is not None and self.bias_input < 1:
             raise InputError(f"must be a positive integer, not {self.bias_input!r}",
                              field="bias_input")
+        check_max_digits(self.max_digits)
 
 
 @dataclass
@@ -94,13 +102,15 @@ class FitLog:
     full_precision_bits: int | None = None   # signed width of the widest weight as trained
     budget_bits: int | None = None           # the budget applied (None: full precision kept)
     weight_bits: int | None = None           # signed width of the widest weight kept
+    digits_per_unit: list = field(default_factory=list)   # nonzero signed digits, per unit
 
     def as_dict(self):
         return {"mistakes_per_epoch": self.mistakes_per_epoch, "epochs_run": self.epochs_run,
                 "train_accuracy": self.train_accuracy, "holdout_accuracy": self.holdout_accuracy,
                 "full_precision_weight_bits": self.full_precision_bits,
                 "weight_budget_bits": self.budget_bits, "weight_bits": self.weight_bits,
-                "warnings": self.warnings}
+                "digits_per_unit": self.digits_per_unit,
+                "digits_total": sum(self.digits_per_unit), "warnings": self.warnings}
 
 
 def weight_width(weights):
@@ -245,8 +255,10 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
 
     log.full_precision_bits = weight_width(weights)
     log.budget_bits = _weight_budget(options, log)
-    if log.budget_bits is not None:
-        weights, biases = _into_budget(weights, biases, log.budget_bits, x[train_idx],
+    bits = log.budget_bits if log.budget_bits is not None or options.max_digits is None \
+        else log.full_precision_bits      # a digit budget alone: scaled within the same width
+    if bits is not None:
+        weights, biases = _into_budget(weights, biases, bits, x[train_idx],
                                        labels[train_idx], unit_classes, options, centre)
 
     labels_out = tuple(classes) if len(classes) > 2 else (classes[0], classes[1])
@@ -259,6 +271,7 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
         raise InputError(f"the trained model is refused: {error}; a smaller --weight-bits "
                          f"keeps the weights narrow", source=dataset.source) from None
     log.weight_bits = weight_width(u.weights for u in model.units)
+    log.digits_per_unit = digits_per_unit([u.weights for u in model.units])
     log.train_accuracy = accuracy(model, x[train_idx], labels[train_idx])
     if len(held_idx):
         log.holdout_accuracy = accuracy(model, x[held_idx], labels[held_idx])
@@ -322,7 +335,7 @@ def _into_budget(weights, biases, budget, x, labels, unit_classes, options, cent
                                 np.array(biases, dtype=np.float64), budget, x,
                                 labels=targets.astype(np.int64),
                                 refine_epochs=options.refine_epochs, seed=options.seed,
-                                centre=centre)
+                                centre=centre, max_digits=options.max_digits)
     return list(narrow.weights), [int(v) for v in narrow.biases]
 
 
@@ -355,4 +368,12 @@ def choice_lines(options, log, *, keep_given=False):
                    f"{options.max_weight_bits} bits")
     else:
         weights = f"weights: {width} bits at full precision (--weight-bits full)"
-    return [kept, weights]
+    return [kept, weights, digits_line(log.digits_per_unit, options.max_digits)]
+
+
+def digits_line(per_unit, max_digits):
+    """The weights' nonzero signed digits for a command's summary: the adders of ``shiftadd``."""
+    per = f" (per unit {', '.join(map(str, per_unit))})" if len(per_unit) > 1 else ""
+    budget = f"at most {max_digits} per weight (--max-digits {max_digits})" \
+        if max_digits is not None else "no budget per weight (--max-digits K sets one)"
+    return f"signed digits: {sum(per_unit)} nonzero in all{per}, {budget}"

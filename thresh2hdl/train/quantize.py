@@ -7,7 +7,8 @@ past the point where the largest weights clip are included, because one near-con
 (a tiny normalisation ``scale``) can fold into a weight so large that scaling by it rounds every
 other weight to zero. A bank of units decided by argmax shares one scale, since only a common
 scale leaves an argmax unchanged. With labelled data the integer weights are then refined by
-perceptron-style corrections of one step, clipped to B bits, keeping the best (pocket).
+perceptron-style corrections of one step, clipped to B bits, keeping the best (pocket). A budget
+of nonzero signed digits per weight (:mod:`.digits`) is kept by both steps.
 """
 
 from dataclasses import dataclass
@@ -17,6 +18,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..model import MAX_BIAS_BITS, MAX_FEATURES, MAX_UNITS
+from .digits import DigitBudget, check_max_digits, digit_count, digits_per_unit
 
 __all__ = ["FLOAT_ARRAYS", "FloatModel", "load_float_model", "fold_normalisation",
            "IntegerWeights", "to_integer_weights", "decide"]
@@ -192,6 +194,8 @@ class IntegerWeights:
     scale: float            # the common (bank) or first unit's scale chosen
     agreement: float        # with the real-valued decisions on the rows used
     refined: bool
+    max_digits: int | None = None   # the budget of nonzero signed digits per weight, if any
+    digits: tuple = ()              # nonzero signed digits of each unit's weights, summed
 
 
 def _round_weights(weights, bias, k, limit):
@@ -218,30 +222,37 @@ def _candidates(weights, limit):
 
 
 def to_integer_weights(weights, bias, bits, x, *, labels=None, refine_epochs=0, seed=0,
-                       centre=None):
+                       centre=None, max_digits=None):
     """Integer weights within ``bits`` (signed) and integer biases for real ``weights``/``bias``.
 
     ``x`` are raw-code rows on which decisions are compared: the scale is chosen to agree best
     with the real-valued decisions there. With ``labels`` (decision indices: 0/1 for one unit,
     the unit index for a bank) and ``refine_epochs``, the weights are then corrected on those
-    rows, one step at a time, clipped to ``bits``, keeping the most accurate.
+    rows, one step at a time, clipped to ``bits``, keeping the most accurate. ``max_digits`` K:
+    each weight becomes the nearest value of at most K nonzero signed digits (at the scale of
+    :func:`_within_digits`), and a correction that leaves the budget moves to the nearest value
+    within it.
     """
+    max_digits = check_max_digits(max_digits)
     weights = np.atleast_2d(np.asarray(weights, dtype=np.float64))
     bias = np.atleast_1d(np.asarray(bias, dtype=np.float64))
     x = np.asarray(x, dtype=np.int64)
     limit = (1 << (bits - 1)) - 1
+    budget = DigitBudget(max_digits, limit) if max_digits is not None else None
     wanted = decide(_scores(weights, bias, x))
 
     def agreement_of(w, b):
         return float(np.mean(decide(_scores(w, b, x)) == wanted))
 
     # One scale for all units: exact for a bank (argmax), and for one unit the only unit.
+    tried = []
     best = None
     for k in _candidates(weights, limit):
         with np.errstate(over="ignore", invalid="ignore"):
             w, b = _round_weights(weights, bias, k, limit)
         if not np.all(np.abs(b) < 2.0 ** MAX_BIAS_BITS):   # also NaN: no model has this bias
             continue
+        tried.append((k, b))
         score = agreement_of(w, b)
         if best is None or score > best[0] + 1e-12:
             best = (score, k, w, b)
@@ -249,17 +260,65 @@ def to_integer_weights(weights, bias, bits, x, *, labels=None, refine_epochs=0, 
         raise InputError(f"the bias is too large next to the weights: at {bits}-bit weights it "
                          f"needs more than {MAX_BIAS_BITS + 1} bits", field="intercept")
     agreement, k, w, b = best
+    if budget is not None:
+        agreement, k, w, b = _within_digits(weights, k, tried, budget, agreement_of)
     refined = False
     if labels is not None and refine_epochs:
-        w, b = _refine(w, b, x, np.asarray(labels), limit, refine_epochs, seed, centre)
+        w, b = _refine(w, b, x, np.asarray(labels), limit, refine_epochs, seed, centre,
+                       budget)
         refined = True
         agreement = agreement_of(w, b)
+    if budget is not None:
+        _check_some_decision_kept(w, b, x, wanted, budget,
+                                  lambda: to_integer_weights(weights, bias, bits, x, labels=labels,
+                                                             refine_epochs=refine_epochs,
+                                                             seed=seed, centre=centre))
     biases = np.array([int(v) for v in b], dtype=object)
-    return IntegerWeights(w, biases, float(k), agreement, refined)
+    return IntegerWeights(w, biases, float(k), agreement, refined, max_digits,
+                          tuple(digits_per_unit(w)))
 
 
-def _refine(w, b, x, labels, limit, epochs, seed, centre):
-    """Perceptron-style corrections of one step per weight (the sign of the centred code)."""
+def _within_digits(weights, chosen, tried, budget, agreement_of):
+    """The scale and weights within the digit budget: each weight the nearest value of at most
+    K digits, at the scale that best keeps the decisions so, among the scales whose weights have
+    no more digits in all than at the scale the bits alone chose. There no weight gains a digit,
+    so before the refinement the budget never costs more digits in all than no budget. Choosing
+    on agreement alone was measured to give more digits in all at K = 2 than without a budget,
+    and lower accuracy (digits set, 6 bits, fitted: 941 against 890 digits, test accuracy 0.951
+    against 0.958 with this cap).
+    """
+    options = []
+    for order, (k, b) in enumerate(tried):
+        w = budget.nearest(weights * k)
+        options.append((agreement_of(w, b), int(digit_count(w).sum()), k == chosen, order, k,
+                        w, b))
+    cap = next(digits for _, digits, is_chosen, *_ in options if is_chosen)
+    best = max((o for o in options if o[1] <= cap), key=lambda o: (o[0], -o[1], -o[3]))
+    agreement, _, _, _, k, w, b = best
+    return agreement, k, w, b
+
+
+def _check_some_decision_kept(w, b, x, wanted, budget, unbudgeted):
+    """Refuse a digit budget under which every row gets one decision, where the real-valued
+    weights' decisions differ and the same bits without the budget keep some apart."""
+    decided = decide(_scores(w, b, x))
+    if len(np.unique(decided)) > 1 or len(np.unique(wanted)) == 1:
+        return
+    plain = unbudgeted()
+    if len(np.unique(decide(_scores(plain.weights, plain.biases.astype(np.float64), x)))) > 1:
+        digits = f"{budget.k} nonzero signed digit" + ("s" if budget.k > 1 else "")
+        raise InputError(f"with at most {digits} per weight every row "
+                         f"gets the same decision, where the real-valued weights' decisions "
+                         f"differ; allow more digits per weight", field="max_digits")
+
+
+def _refine(w, b, x, labels, limit, epochs, seed, centre, budget=None):
+    """Perceptron-style corrections of one step per weight (the sign of the centred code),
+    kept within the digit ``budget`` if there is one: a weight a step takes out of it moves to
+    the nearest value within it, often back where it was (4 + 1 goes back to 4 with one digit),
+    so only small weights move. Going on to the next value in the step's direction instead
+    (4 + 1 to 8) was measured to lose training accuracy: digits set, 6 bits, K = 1, 0.958
+    against 0.973, and more digits in all (601 against 547)."""
     rng = np.random.default_rng(seed)
     w = w.copy()
     b = b.astype(np.float64).copy()
@@ -269,6 +328,10 @@ def _refine(w, b, x, labels, limit, epochs, seed, centre):
 
     def accuracy(wc, bc):
         return float(np.mean(decide(_scores(wc, bc, x)) == labels))
+
+    def within(row, step):
+        moved = np.clip(row + step, -limit, limit)
+        return moved if budget is None else budget.nearest(moved)
 
     best = (accuracy(w, b), w.copy(), b.copy())
     bias_step = max(1.0, float(np.abs(x - centre).mean()))
@@ -280,14 +343,14 @@ def _refine(w, b, x, labels, limit, epochs, seed, centre):
                 if predicted == labels[i]:
                     continue
                 sign = 1 if labels[i] else -1
-                w[0] = np.clip(w[0] + sign * step_rows[i], -limit, limit)
+                w[0] = within(w[0], sign * step_rows[i])
                 b[0] += sign * bias_step
             else:
                 predicted = int(np.argmax(scores))
                 if predicted == labels[i]:
                     continue
-                w[labels[i]] = np.clip(w[labels[i]] + step_rows[i], -limit, limit)
-                w[predicted] = np.clip(w[predicted] - step_rows[i], -limit, limit)
+                w[labels[i]] = within(w[labels[i]], step_rows[i])
+                w[predicted] = within(w[predicted], -step_rows[i])
                 b[labels[i]] += bias_step
                 b[predicted] -= bias_step
         current = accuracy(w, b)

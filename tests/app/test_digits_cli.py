@@ -1,0 +1,141 @@
+"""``--max-digits`` on ``fit`` and ``quantize``: the weights written, the logs, the summaries and
+the refusals."""
+
+import json
+
+import numpy as np
+import pytest
+
+from thresh2hdl.errors import InputError
+from thresh2hdl.model import load_model
+from helpers import run, assert_one_line_error, HEADER, write_csv, separable_rows
+
+
+def naf_weight(n):
+    """Nonzero digits of ``n`` in non-adjacent form (OEIS A007302's definition: digits -1, 0,
+    1, no two adjacent nonzero), counted here apart from the package's own count."""
+    n, count = abs(int(n)), 0
+    while n:
+        if n % 2:
+            n -= 2 - n % 4
+            count += 1
+        n //= 2
+    return count
+
+
+def unit_digits(model_path):
+    return [sum(naf_weight(w) for w in unit.weights) for unit in load_model(model_path).units]
+
+
+def float_npz(path, coef=((0.5, -1.0, 0.25, 0.8),), intercept=(0.1,)):
+    # Synthetic: a float model on four 4-bit codes centred at 8.
+    np.savez(path, coef=np.array(coef), intercept=np.array(intercept),
+             offset=np.full(4, 8.0), scale=np.array([4.0, 2.0, 1.0, 3.0]),
+             input_lo=np.zeros(4, int), input_hi=np.full(4, 15))
+    return path
+
+
+def test_quantize_keeps_weights_within_the_budget_and_logs_their_digits(tmp_path):
+    npz = float_npz(tmp_path / "f.npz")
+    model = tmp_path / "m.toml"
+    result = run("quantize", npz, "--bits", "8", "--max-digits", "1", "--out", model)
+    assert result.returncode == 0, result.stderr
+    assert max(naf_weight(w) for w in load_model(model).unit.weights) <= 1
+    log = json.loads((tmp_path / "m.quantize.json").read_text())
+    assert log["max_digits"] == 1
+    assert log["digits_per_unit"] == unit_digits(model)
+    assert log["digits_total"] == sum(unit_digits(model))
+    assert (f"signed digits: {log['digits_total']} nonzero in all, at most 1 per weight "
+            f"(--max-digits 1)") in result.stdout
+    # Without a budget the 8-bit weights need more digits, and the log says there was none.
+    result = run("quantize", npz, "--bits", "8", "--out", tmp_path / "n.toml")
+    assert result.returncode == 0, result.stderr
+    plain = json.loads((tmp_path / "n.quantize.json").read_text())
+    assert plain["max_digits"] is None and plain["digits_total"] > log["digits_total"]
+    assert "no budget per weight (--max-digits K sets one)" in result.stdout
+
+
+def test_quantize_sweep_lists_digits_per_width(tmp_path):
+    npz = float_npz(tmp_path / "f.npz")
+    model = tmp_path / "m.toml"
+    result = run("quantize", npz, "--sweep", "--max-digits", "2", "--out", model)
+    assert result.returncode == 0, result.stderr
+    log = json.loads((tmp_path / "m.quantize.json").read_text())
+    rows = {row["bits"]: row["digits"] for row in log["sweep"]}
+    assert rows[log["recommended_bits"]] == log["digits_total"] == sum(unit_digits(model))
+    for bits, digits in rows.items():
+        assert f"{bits:2d} bits: agreement " in result.stdout
+        assert f"signed digits {digits}\n" in result.stdout
+    assert max(rows.values()) <= 2 * 4       # four weights of at most two digits
+
+
+def test_fit_keeps_a_bank_within_the_budget_and_says_so(tmp_path):
+    # Synthetic: three 4-bit clusters, one unit per class.
+    rng = np.random.default_rng(1)
+    centres = [(3, 3, 12), (12, 4, 4), (6, 13, 8)]
+    rows = [[int(np.clip(c + rng.integers(-2, 3), 0, 15)) for c in centres[label]] + [label]
+            for label in rng.integers(0, 3, 150)]
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "c", "label"], rows)
+    model = tmp_path / "m.toml"
+    result = run("fit", data, "--out", model, "--input-bits", "4", "--weight-bits", "8",
+                 "--max-digits", "2")
+    assert result.returncode == 0, result.stderr
+    assert all(naf_weight(w) <= 2 for unit in load_model(model).units for w in unit.weights)
+    log = json.loads((tmp_path / "m.fit.json").read_text())
+    assert log["options"]["max_digits"] == 2
+    assert log["digits_per_unit"] == unit_digits(model)
+    per_unit = ", ".join(map(str, log["digits_per_unit"]))
+    assert (f"signed digits: {log['digits_total']} nonzero in all (per unit {per_unit}), at "
+            f"most 2 per weight (--max-digits 2)") in result.stdout
+
+
+def test_fit_with_a_budget_alone_keeps_full_precision_width(tmp_path):
+    # Full precision (no bit budget): the digit budget still holds, at the trained width.
+    data = write_csv(tmp_path / "d.csv", HEADER, separable_rows(200))
+    model = tmp_path / "m.toml"
+    result = run("fit", data, "--out", model, "--input-bits", "12", "--weight-bits", "full",
+                 "--max-digits", "1")
+    assert result.returncode == 0, result.stderr
+    assert max(naf_weight(w) for w in load_model(model).unit.weights) <= 1
+
+
+@pytest.mark.parametrize("command", ["fit", "quantize"])
+@pytest.mark.parametrize("value, expected", [
+    ("0", "--max-digits: must be a positive whole number of nonzero digits per weight, not 0"),
+    ("-2", "--max-digits: must be a positive whole number"),
+    ("1.5", "'--max-digits': '1.5' is not a valid integer"),
+    ("two", "'--max-digits': 'two' is not a valid integer")])
+def test_bad_budgets_are_one_line_errors_without_files(tmp_path, command, value, expected):
+    if command == "fit":
+        source = write_csv(tmp_path / "d.csv", HEADER, separable_rows(50))
+        extra = ["--input-bits", "12"]
+    else:
+        source = float_npz(tmp_path / "f.npz")
+        extra = ["--bits", "6"]
+    result = run(command, source, "--out", tmp_path / "m.toml", *extra, "--max-digits", value)
+    assert_one_line_error(result, 2, expected)
+    assert sorted(p.name for p in tmp_path.iterdir()) == [source.name]
+
+
+def test_a_budget_that_keeps_no_decision_is_refused(tmp_path):
+    # 3a + 3b > 89: only the corner a = b = 15 of the 4-bit codes is decided 1; one digit per
+    # weight leaves every row decided 0 (see tests/train/test_digits.py).
+    npz = tmp_path / "f.npz"
+    np.savez(npz, coef=np.array([[3.0, 3.0]]), intercept=np.array([-89.0]),
+             input_lo=np.zeros(2, int), input_hi=np.full(2, 15))
+    result = run("quantize", npz, "--bits", "6", "--max-digits", "1", "--out", tmp_path / "m.toml")
+    assert_one_line_error(result, 2, "--max-digits: with at most 1 nonzero signed digit per "
+                          "weight every row gets the same decision")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["f.npz"]
+
+
+def test_the_library_names_its_field_and_the_command_its_flag(tmp_path):
+    from thresh2hdl.app.fit import quantize_npz
+    from thresh2hdl.train import FitOptions
+    with pytest.raises(InputError) as caught:
+        quantize_npz(float_npz(tmp_path / "f.npz"), tmp_path / "m.toml", bits=6, max_digits=0)
+    assert caught.value.field == "max_digits" and "--" not in str(caught.value)
+    with pytest.raises(InputError) as caught:
+        FitOptions(max_digits=0)
+    assert caught.value.field == "max_digits"
+    assert not (tmp_path / "m.toml").exists()
