@@ -14,7 +14,8 @@ from .markdown import report_markdown
 from .phrases import cost_text
 from .record import (REPORT_FORMAT, SAFETY_CAUTION, GuardSection, Report, Testbench,
                      Verification, WeightPort, report_json, report_record)
-from .sections import (CostEstimate, DataSummary, ProofSection, estimates_of, store_estimate)
+from .estimates import CostEstimate, estimates_of, store_estimate
+from .sections import DataSummary, ProofSection
 from .tables import argmax_report, level_names, node_table, stages_report, unit_histograms
 from .terminal import summary_lines
 

@@ -3,7 +3,7 @@ stages and split adders in words, the input guard's statement, an argmax input, 
 
 from ..cost import CELL_NAMES
 from .fields import Table
-from .sections import CostEstimate
+from .estimates import CostEstimate
 
 __all__ = ["count", "levels_text", "stages_text", "split_text", "guard_text", "entry_text",
            "cost_text"]

@@ -17,7 +17,8 @@ from dataclasses import dataclass, field
 
 from .design import Datapath, FeatureRow, Sizes
 from .fields import Table, plain, present
-from .sections import DataSummary, ProofSection, QuantizationLog, TrainingLog, read_estimates
+from .estimates import read_estimates
+from .sections import DataSummary, ProofSection, QuantizationLog, TrainingLog
 
 __all__ = ["REPORT_FORMAT", "SAFETY_CAUTION", "Report", "WeightPort", "GuardSection",
            "Verification", "Testbench", "report_json", "report_record"]

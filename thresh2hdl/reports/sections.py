@@ -1,6 +1,6 @@
 """The report's sections that other stages hand in: the data's accuracy and histograms, the
-training or quantization log, proofs; the cost estimates (one per device) are in
-estimates.py, named here too.
+training or quantization log, proofs (the cost estimates, one per device, are in
+estimates.py).
 
 Each is a frozen record with ``to_json`` (its part of report.json, keys in the order written
 since the first version) and ``from_json`` (from a loaded report's table, see fields.Table).
@@ -8,13 +8,10 @@ since the first version) and ``from_json`` (from a loaded report's table, see fi
 
 from dataclasses import dataclass
 
-from .estimates import (CostEstimate, GuardCost, Shortfall, estimates_of, read_estimates,
-                        store_estimate)
 from .fields import present
 
 __all__ = ["Histogram", "UnitHistogram", "DataSummary", "TrainingLog", "SweepRow",
-           "QuantizationLog", "Counterexample", "ProofSection", "Shortfall", "GuardCost",
-           "CostEstimate", "estimates_of", "read_estimates", "store_estimate"]
+           "QuantizationLog", "Counterexample", "ProofSection"]
 
 
 @dataclass(frozen=True)
