@@ -188,6 +188,8 @@ def demo_command(**kwargs):
 
 _MAX_DIGITS_HELP = ("At most K nonzero canonical signed digits per weight (the adders of each "
                     "product with --arch shiftadd); default: no budget.")
+_DIGIT_BUDGET_HELP = ("At most N nonzero canonical signed digits over all the weights, dropped "
+                      "where the training decisions lose least; default: no budget.")
 
 
 @cli.command("fit")
@@ -215,17 +217,19 @@ _MAX_DIGITS_HELP = ("At most K nonzero canonical signed digits per weight (the a
               help="Bring the weights into B-bit signed range, or 'full' to keep full "
               f"precision (default: at most {DEFAULT_MAX_WEIGHT_BITS} bits).")
 @click.option("--max-digits", type=int, default=None, help=_MAX_DIGITS_HELP)
+@click.option("--digit-budget", type=int, default=None, help=_DIGIT_BUDGET_HELP)
 @click.option("--module", "module_name", default="thresh_unit", show_default=True)
 @click.option("--force", is_flag=True, help="Replace existing output files.")
 def fit_command(data_file, out_path, label, input_bits, signed, formats_file, rule, keep, epochs,
-                all_epochs, no_shuffle, seed, holdout, weight_bits, max_digits, module_name,
-                force):
+                all_epochs, no_shuffle, seed, holdout, weight_bits, max_digits, digit_budget,
+                module_name, force):
     """Train integer threshold units on raw codes in DATA_FILE (CSV with a header)."""
     budget = {"weight_bits": None, "max_weight_bits": None} if weight_bits == "full" else \
         {"weight_bits": weight_bits}
     options = FitOptions(rule=rule, keep=keep or "pocket", epochs=epochs,
                          until_clean=not all_epochs, shuffle=not no_shuffle, seed=seed,
-                         holdout=holdout, max_digits=max_digits, **budget)
+                         holdout=holdout, max_digits=max_digits, digit_budget=digit_budget,
+                         **budget)
     model, log = fit_csv(data_file, out_path, label=label, input_bits=input_bits,
                          signed=signed, formats_file=formats_file, options=options,
                          module=module_name, force=force)
@@ -248,30 +252,42 @@ def fit_command(data_file, out_path, label, input_bits, signed, formats_file, ru
 @click.option("--data", "data_file", type=click.Path(), default=None,
               help="CSV of labelled raw-code rows to choose the scale on and refine with.")
 @click.option("--label", default="label", show_default=True, help="Label column of --data.")
-@click.option("--sweep", is_flag=True, help="Try 2..12 bits and recommend the smallest close enough.")
+@click.option("--sweep", is_flag=True, help="Try 2..12 bits, then budgets of digits in all, and "
+              "recommend the fewest close enough.")
 @click.option("--tolerance", type=float, default=0.01, show_default=True,
               help="How far below the float model a recommended width may be.")
 @click.option("--refine-epochs", type=int, default=20, show_default=True)
 @click.option("--max-digits", type=int, default=None, help=_MAX_DIGITS_HELP)
+@click.option("--digit-budget", type=int, default=None, help=_DIGIT_BUDGET_HELP)
 @click.option("--module", "module_name", default="thresh_unit", show_default=True)
 @click.option("--seed", type=int, default=0, show_default=True)
 @click.option("--force", is_flag=True, help="Replace existing output files.")
 def quantize_command(float_file, out_path, bits, data_file, label, sweep, tolerance,
-                     refine_epochs, max_digits, module_name, seed, force):
+                     refine_epochs, max_digits, digit_budget, module_name, seed, force):
     """Fold a float model (FLOAT_FILE, .npz) onto raw codes as integer weights."""
     result = quantize_npz(float_file, out_path, bits=bits, data_path=data_file, label=label,
                           sweep=sweep, tolerance=tolerance, refine_epochs=refine_epochs,
-                          module=module_name, seed=seed, force=force, max_digits=max_digits)
+                          module=module_name, seed=seed, force=force, max_digits=max_digits,
+                          digit_budget=digit_budget)
     for b, agreement, accuracy, digits in result.sweep:
         extra = f", accuracy {accuracy:.4f}" if accuracy is not None else ""
         click.echo(f"  {b:2d} bits: agreement {agreement:.4f}{extra}, signed digits {digits}")
     if result.recommended_bits is not None:
         click.echo(f"recommended: {result.recommended_bits} bits")
+    for n, agreement, accuracy, digits in result.digit_sweep:
+        extra = f", accuracy {accuracy:.4f}" if accuracy is not None else ""
+        click.echo(f"  at most {n} digits in all: agreement {agreement:.4f}{extra}, signed "
+                   f"digits {digits}")
+    if result.digit_sweep:
+        n = result.recommended_digit_budget
+        click.echo(f"recommended: at most {n} signed digits in all (--digit-budget {n})"
+                   if n is not None else "recommended: no budget in all (none tried was close "
+                   "enough)")
     extra = f", accuracy {result.accuracy:.4f} (float {result.float_accuracy:.4f})" \
         if result.accuracy is not None else ""
     click.echo(f"{result.bits}-bit weights: agreement with the float model "
                f"{result.agreement:.4f} on {result.rows_source}{extra}")
-    click.echo(digits_line(result.digits_per_unit, result.max_digits))
+    click.echo(digits_line(result.digits_per_unit, result.max_digits, result.digit_budget))
     click.echo(f"wrote {out_path}")
 
 

@@ -15,12 +15,15 @@ from ..model import (FeatureFormat, Model, Unit, check_ranges, load_toml, model_
 from ..errors import InputError
 from ..names import check_identifier
 from ..outdir import write_files
-from ..train import (FitOptions, check_max_digits, class_unit_name, decide, fit,
-                     fold_normalisation, load_float_model, to_integer_weights)
+from ..train import (FitOptions, check_digit_budget, check_max_digits, class_unit_name, decide,
+                     fit, fold_normalisation, load_float_model, to_integer_weights)
 
-__all__ = ["fit_csv", "quantize_npz", "input_formats", "QuantizeResult", "SWEEP_BITS"]
+__all__ = ["fit_csv", "quantize_npz", "input_formats", "QuantizeResult", "SWEEP_BITS",
+           "SWEEP_DIGIT_SHARES"]
 
 SWEEP_BITS = tuple(range(2, 13))
+# The budgets in all the sweep tries at the chosen width: these shares of its digits in all.
+SWEEP_DIGIT_SHARES = (1.0, 0.9, 0.8, 0.7, 0.6, 0.5, 0.4, 0.3)
 
 
 def log_path_for(model_path, kind):
@@ -93,6 +96,9 @@ class QuantizeResult:
     rows_source: str
     max_digits: int | None = None   # the budget of nonzero signed digits per weight, if any
     digits_per_unit: tuple = ()     # nonzero signed digits of each unit's weights
+    digit_budget: int | None = None     # the budget of nonzero signed digits in all, if any
+    digit_sweep: tuple = ()         # ((budget, agreement, accuracy, digits), ...) when swept
+    recommended_digit_budget: int | None = None
 
 
 def _formats_for(float_model, names):
@@ -112,11 +118,15 @@ def _formats_for(float_model, names):
 
 def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label", sweep=False,
                  tolerance=0.01, refine_epochs=20, module="thresh_unit", seed=0, force=False,
-                 max_digits=None):
+                 max_digits=None, digit_budget=None):
     """Fold a float model onto raw codes and write it as an integer model file; with
-    ``max_digits`` K, every weight has at most K nonzero canonical signed digits."""
+    ``max_digits`` K, every weight has at most K nonzero canonical signed digits, with
+    ``digit_budget`` N, all the weights together at most N. ``sweep`` tries the widths of
+    :data:`SWEEP_BITS`, then at the width chosen the budgets in all of
+    :data:`SWEEP_DIGIT_SHARES`; either recommendation is taken where its option is not given."""
     _check_quantize(module, bits, sweep, tolerance)
     max_digits = check_max_digits(max_digits)
+    digit_budget = check_digit_budget(digit_budget)
     check_outputs(out_path, "quantize", (npz_path, data_path))
     float_model = load_float_model(npz_path)
     units, count = float_model.coef.shape
@@ -130,13 +140,14 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
     float_accuracy = float(np.mean(float_decisions == labels)) if labels is not None else None
     centre = np.array([(f.min + f.max) // 2 for f in formats])
 
-    def at(b):
+    def at(b, total=None):
         try:
             result = to_integer_weights(weights, bias, b, x, labels=labels,
                                         refine_epochs=refine_epochs if labels is not None else 0,
-                                        seed=seed, centre=centre, max_digits=max_digits)
+                                        seed=seed, centre=centre, max_digits=max_digits,
+                                        digit_budget=total)
         except InputError as error:
-            if error.field == "max_digits":     # the option's, not the file's: named as such
+            if error.field in ("max_digits", "digit_budget"):   # the options', named as such
                 raise
             raise InputError(str(error), source=npz_path) from None
         decided = decide(x.astype(np.float64) @ result.weights.T.astype(np.float64)
@@ -147,21 +158,29 @@ def quantize_npz(npz_path, out_path, *, bits=None, data_path=None, label="label"
 
     table, recommended = _sweep(at, float_accuracy, tolerance) if sweep else ([], None)
     chosen = bits if bits is not None else recommended
-    result, agreement, accuracy = at(chosen)
+    digit_table, recommended_total = _sweep_digits(lambda n: at(chosen, n), float_accuracy,
+                                                   tolerance) if sweep else ([], None)
+    total = digit_budget if digit_budget is not None else recommended_total
+    result, agreement, accuracy = at(chosen, total)
     model = _integer_model(module, formats, classes, result, npz_path)
     outcome = QuantizeResult(model, chosen, agreement, accuracy, float_accuracy, tuple(table),
-                             recommended, len(x), rows_source, max_digits, result.digits)
+                             recommended, len(x), rows_source, max_digits, result.digits, total,
+                             tuple(digit_table), recommended_total)
     record = {"float_model": Path(npz_path).name, "bits": chosen, "rows": rows_source,
               "agreement_with_float": agreement, "accuracy": accuracy,
               "float_accuracy": float_accuracy, "scale": result.scale,
-              "max_digits": max_digits, "digits_per_unit": list(result.digits),
-              "digits_total": sum(result.digits),
+              "max_digits": max_digits, "digit_budget": total,
+              "digits_per_unit": list(result.digits), "digits_total": sum(result.digits),
               "sweep": [{"bits": b, "agreement": a, "accuracy": c, "digits": d}
                         for b, a, c, d in table],
-              "recommended_bits": recommended, "tolerance": tolerance}
+              "recommended_bits": recommended,
+              "digit_sweep": [{"digit_budget": n, "agreement": a, "accuracy": c, "digits": d}
+                              for n, a, c, d in digit_table],
+              "recommended_digit_budget": recommended_total, "tolerance": tolerance}
     comment = (f"Folded and quantized by thresh2hdl quantize from {Path(npz_path).name} at "
                f"{chosen}-bit weights"
                + (f" of at most {max_digits} nonzero signed digits" if max_digits else "")
+               + (f", at most {total} in all" if total else "")
                + f"; agreement with the float model {agreement:.4f} on {rows_source}")
     write_files({Path(out_path): model_to_toml(model, comment=comment),
                  log_path_for(out_path, "quantize"): json.dumps(record, indent=2) + "\n"},
@@ -213,20 +232,43 @@ def _rows_for(float_model, dataset, formats, classes, seed):
     return dataset.x, labels, f"{Path(dataset.source).name} ({len(dataset.x)} rows)"
 
 
+def _close(agreement, accuracy, float_accuracy, tolerance):
+    """Within ``tolerance`` of the float model: its accuracy with labels, else agreement."""
+    return (accuracy >= float_accuracy - tolerance) if float_accuracy is not None \
+        else agreement >= 1 - tolerance
+
+
 def _sweep(at, float_accuracy, tolerance):
     """Every width of SWEEP_BITS with its digits in all, and the fewest bits within
-    ``tolerance`` of the float model (its accuracy with labels, else agreement with it); the
-    widest when none is."""
+    ``tolerance`` of the float model; the widest when none is."""
     table = []
     for b in SWEEP_BITS:
         result, agreement, accuracy = at(b)
         table.append((b, agreement, accuracy, sum(result.digits)))
     for b, agreement, accuracy, _ in table:
-        close = (accuracy >= float_accuracy - tolerance) if float_accuracy is not None \
-            else agreement >= 1 - tolerance
-        if close:
+        if _close(agreement, accuracy, float_accuracy, tolerance):
             return table, b
     return table, SWEEP_BITS[-1]
+
+
+def _sweep_digits(at, float_accuracy, tolerance):
+    """At the chosen width, the budgets in all of SWEEP_DIGIT_SHARES of its digits without
+    one, each with its figures, and the budget giving the fewest digits within ``tolerance``
+    of the float model (None, no budget, when none is)."""
+    whole = sum(at(None)[0].digits)
+    budgets = sorted({max(1, round(share * whole)) for share in SWEEP_DIGIT_SHARES},
+                     reverse=True)
+    table = []
+    for budget in budgets:
+        try:
+            result, agreement, accuracy = at(budget)
+        except InputError as error:
+            if error.field != "digit_budget":
+                raise
+            break               # so few digits keep no decision: the sweep stops
+        table.append((budget, agreement, accuracy, sum(result.digits)))
+    close = [row for row in table if _close(row[1], row[2], float_accuracy, tolerance)]
+    return table, min(close, key=lambda row: (row[3], -row[0]))[0] if close else None
 
 
 def _integer_model(module, formats, classes, result, npz_path):

@@ -3,6 +3,7 @@ bank's alike) and the datapath tree with its levels, register stages and nodes."
 
 from dataclasses import dataclass
 
+from ..train import digits_per_unit
 from .fields import present
 
 __all__ = ["FeatureRow", "UnitSizes", "Sizes", "Stage", "Node", "Comparison", "SplitAdders",
@@ -34,11 +35,18 @@ class UnitSizes:
     name: str | None = None
     class_label: object = None
 
+    @property
+    def signed_digits(self):
+        """Nonzero canonical signed digits of the weights, summed: the adders of the products
+        in ``shiftadd``, computed from the weights (so a report of any version has them)."""
+        return digits_per_unit([self.weights])[0]
+
     def to_json(self):
         return {"name": self.name, "class_label": self.class_label,
                 "weights": list(self.weights), "bias": self.bias,
                 "score_range": list(self.score_range), "score_bits_min": self.score_bits_min,
                 "score_bits": self.score_bits, "headroom_bits": self.headroom_bits,
+                "signed_digits": self.signed_digits,
                 "witness_min": list(self.witness_min), "witness_max": list(self.witness_max)}
 
     @classmethod
@@ -83,13 +91,18 @@ class Sizes:
     def headroom_bits(self):
         return min(u.headroom_bits for u in self.units)
 
+    @property
+    def signed_digits(self):
+        """The weights' nonzero signed digits in all (each unit's: ``units[i].signed_digits``)."""
+        return sum(u.signed_digits for u in self.units)
+
     def to_json(self, tree):
         """The sizing keys of report.json, with the datapath's ``tree`` in its place."""
         first = self.units[0]
         common = {"feature_ranges": [list(r) for r in self.feature_ranges],
                   "score_port": self.score_port, "score_range": list(self.score_range),
                   "score_bits_min": self.score_bits_min, "score_bits": self.score_bits,
-                  "headroom_bits": self.headroom_bits}
+                  "headroom_bits": self.headroom_bits, "signed_digits": self.signed_digits}
         if not self.is_bank:
             return {"weights": list(first.weights), "bias": first.bias, **common,
                     "witness_min": list(first.witness_min),

@@ -6,7 +6,7 @@ from html import escape
 from ..cost import CELL_NAMES
 from .drawings import (histogram_chart, polyline_chart, score_line, tree_picture,
                        unit_histogram_panels)
-from .phrases import entry_text, levels_text, split_text, stages_text
+from .phrases import digits_text, entry_text, levels_text, split_text, stages_text
 from .record import report_record
 
 __all__ = ["report_html", "TREE_PICTURE_MOST"]
@@ -77,6 +77,7 @@ def _sizes_html(report):
         ["score range", f"[{sizes.score_range[0]}, {sizes.score_range[1]}]"],
         ["score bits (fewest that fit)", sizes.score_bits_min],
         ["score port bits", sizes.score_bits], ["headroom bits", sizes.headroom_bits],
+        ["nonzero signed digits of the weights", digits_text(sizes)],
         ["architecture", datapath.arch], ["latency (cycles)", report.latency_cycles],
         ["valid beats per result", 1 if beats is None else beats],
         ["levels", levels_text(datapath) if datapath.level_names is not None else

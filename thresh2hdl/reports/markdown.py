@@ -1,7 +1,8 @@
 """report.md: the report for review threads, read from the report record like report.json and
 report.html."""
 
-from .phrases import cost_text, entry_text, guard_text, levels_text, split_text, stages_text
+from .phrases import (cost_text, digits_text, entry_text, guard_text, levels_text, split_text,
+                      stages_text)
 from .record import report_record
 
 __all__ = ["report_markdown"]
@@ -31,6 +32,7 @@ def report_markdown(report):
              f"| score bits (fewest) | {sizes.score_bits_min} |",
              f"| score port bits | {sizes.score_bits} |",
              f"| headroom bits | {sizes.headroom_bits} |",
+             f"| nonzero signed digits of the weights | {digits_text(sizes)} |",
              f"| architecture | {datapath.arch} |",
              f"| latency (cycles) | {report.latency_cycles} |",
              f"| levels | {levels_text(datapath)} |",

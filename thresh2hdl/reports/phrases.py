@@ -1,16 +1,23 @@
 """The report's phrases that its forms share (terminal, HTML, Markdown): the levels, register
-stages and split adders in words, the input guard's statement, an argmax input, a cost line."""
+stages, split adders and signed digits in words, the input guard's statement, an argmax input, a cost line."""
 
 from ..cost import CELL_NAMES
 from .fields import Table
 from .estimates import CostEstimate
 
-__all__ = ["count", "levels_text", "stages_text", "split_text", "guard_text", "entry_text",
+__all__ = ["count", "digits_text", "levels_text", "stages_text", "split_text", "guard_text", "entry_text",
            "cost_text"]
 
 
 def count(number, noun):
     return f"{number} {noun}{'' if number == 1 else 's'}"
+
+
+def digits_text(sizes):
+    """``572 in all (per unit 57, 60, ...)``: the weights' nonzero signed digits, the adders of
+    the products in ``shiftadd``."""
+    per = ", ".join(str(u.signed_digits) for u in sizes.units)
+    return f"{sizes.signed_digits} in all" + (f" (per unit {per})" if sizes.is_bank else "")
 
 
 def levels_text(datapath):

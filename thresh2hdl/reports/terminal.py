@@ -1,6 +1,6 @@
 """The report's short form, for the terminal after a build."""
 
-from .phrases import levels_text, stages_text
+from .phrases import digits_text, levels_text, stages_text
 from .record import SAFETY_CAUTION, report_record
 
 __all__ = ["summary_lines"]
@@ -16,6 +16,7 @@ def summary_lines(report):
         f"module {report.module}: {len(report.features)} features -> {report.verilog}",
         f"  score range [{lo}, {hi}] needs {sizes.score_bits_min} bits; port "
         f"{sizes.score_bits} bits (headroom {sizes.headroom_bits})",
+        f"  weights: nonzero signed digits {digits_text(sizes)}",
         (f"  serial multiply-accumulate: {report.beats_per_result} beats per result; "
          if datapath.arch == "serial" else
          f"  datapath: {levels_text(datapath)}, {len(datapath.nodes)} nodes; "

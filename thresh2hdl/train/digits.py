@@ -14,7 +14,8 @@ import numpy as np
 
 from ..errors import InputError
 
-__all__ = ["digit_count", "digits_per_unit", "check_max_digits", "DigitBudget"]
+__all__ = ["digit_count", "digits_per_unit", "check_max_digits", "DigitBudget",
+           "one_digit_fewer", "nearest_within"]
 
 
 def digit_count(values):
@@ -104,3 +105,21 @@ class DigitBudget:
         gap_down, gap_up = np.abs(real - down), np.abs(real - up)
         take_up = (gap_up < gap_down) | ((gap_up == gap_down) & (np.abs(up) < np.abs(down)))
         return np.where(take_up, up, down).reshape(real.shape)
+
+
+def one_digit_fewer(value, limit):
+    """The integers of one nonzero digit fewer than ``value`` nearest it below and above,
+    inside ``[-limit, limit]`` (one or two values; none for 0): a digit dropped or shrunk."""
+    value = int(value)
+    fewer = _count(value) - 1
+    if fewer < 0:
+        return ()
+    found = {_below(value, fewer), _above(value, fewer)}
+    return tuple(sorted(v for v in found if v is not None and abs(v) <= limit))
+
+
+def nearest_within(real, k, limit):
+    """``real`` moved to the nearest integer of at most ``k`` nonzero digits (0 for k = 0)."""
+    if k == 0:
+        return np.zeros(np.shape(real), dtype=np.int64)
+    return DigitBudget(k, limit).nearest(real)

@@ -15,6 +15,7 @@ import numpy as np
 from ..model import FeatureFormat, MAX_FEATURES, Model, Unit, check_ranges
 from ..errors import InputError
 from ..names import check_identifier
+from .budget import check_digit_budget
 from .digits import check_max_digits, digits_per_unit
 from .quantize import to_integer_weights
 
@@ -51,7 +52,9 @@ class FitOptions:
     ``max_digits`` K: every weight has at most K nonzero canonical signed digits, the adders of
     its product in ``shiftadd``: the weights are brought into the bit budget (the full-precision
     width when there is none) at the nearest values within K digits, and the refinement keeps
-    them there (see :func:`~thresh2hdl.train.quantize.to_integer_weights`)."""
+    them there (see :func:`~thresh2hdl.train.quantize.to_integer_weights`). ``digit_budget`` N:
+    at most N nonzero signed digits over all the weights, dropped where the training decisions
+    lose least, the refinement capped at N (see :mod:`~thresh2hdl.train.budget`)."""
 
     rule: str = "classic"
     keep: str = "pocket"
@@ -66,6 +69,7 @@ class FitOptions:
     bias_input: int | None = None     # default: half the widest declared span
     refine_epochs: int = 20
     max_digits: int | None = None
+    digit_budget: int | None = None
 
     def __post_init__(self):
         if self.rule not in RULES:
@@ -88,6 +92,7 @@ class FitOptions:
             raise InputError(f"must be a positive integer, not {self.bias_input!r}",
                              field="bias_input")
         check_max_digits(self.max_digits)
+        check_digit_budget(self.digit_budget)
 
 
 @dataclass
@@ -255,7 +260,8 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
 
     log.full_precision_bits = weight_width(weights)
     log.budget_bits = _weight_budget(options, log)
-    bits = log.budget_bits if log.budget_bits is not None or options.max_digits is None \
+    digits_only = options.max_digits is not None or options.digit_budget is not None
+    bits = log.budget_bits if log.budget_bits is not None or not digits_only \
         else log.full_precision_bits      # a digit budget alone: scaled within the same width
     if bits is not None:
         weights, biases = _into_budget(weights, biases, bits, x[train_idx],
@@ -335,7 +341,8 @@ def _into_budget(weights, biases, budget, x, labels, unit_classes, options, cent
                                 np.array(biases, dtype=np.float64), budget, x,
                                 labels=targets.astype(np.int64),
                                 refine_epochs=options.refine_epochs, seed=options.seed,
-                                centre=centre, max_digits=options.max_digits)
+                                centre=centre, max_digits=options.max_digits,
+                                digit_budget=options.digit_budget)
     return list(narrow.weights), [int(v) for v in narrow.biases]
 
 
@@ -368,12 +375,15 @@ def choice_lines(options, log, *, keep_given=False):
                    f"{options.max_weight_bits} bits")
     else:
         weights = f"weights: {width} bits at full precision (--weight-bits full)"
-    return [kept, weights, digits_line(log.digits_per_unit, options.max_digits)]
+    return [kept, weights, digits_line(log.digits_per_unit, options.max_digits,
+                                       options.digit_budget)]
 
 
-def digits_line(per_unit, max_digits):
+def digits_line(per_unit, max_digits, digit_budget=None):
     """The weights' nonzero signed digits for a command's summary: the adders of ``shiftadd``."""
     per = f" (per unit {', '.join(map(str, per_unit))})" if len(per_unit) > 1 else ""
     budget = f"at most {max_digits} per weight (--max-digits {max_digits})" \
         if max_digits is not None else "no budget per weight (--max-digits K sets one)"
-    return f"signed digits: {sum(per_unit)} nonzero in all{per}, {budget}"
+    total = f"; at most {digit_budget} in all (--digit-budget {digit_budget})" \
+        if digit_budget is not None else ""
+    return f"signed digits: {sum(per_unit)} nonzero in all{per}, {budget}{total}"

@@ -18,6 +18,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..model import MAX_BIAS_BITS, MAX_FEATURES, MAX_UNITS
+from .budget import TotalCap, check_digit_budget, check_total_keeps_a_decision, prune_to_total
 from .digits import DigitBudget, check_max_digits, digit_count, digits_per_unit
 
 __all__ = ["FLOAT_ARRAYS", "FloatModel", "load_float_model", "fold_normalisation",
@@ -196,6 +197,7 @@ class IntegerWeights:
     refined: bool
     max_digits: int | None = None   # the budget of nonzero signed digits per weight, if any
     digits: tuple = ()              # nonzero signed digits of each unit's weights, summed
+    digit_budget: int | None = None     # the budget of nonzero signed digits in all, if any
 
 
 def _round_weights(weights, bias, k, limit):
@@ -222,7 +224,7 @@ def _candidates(weights, limit):
 
 
 def to_integer_weights(weights, bias, bits, x, *, labels=None, refine_epochs=0, seed=0,
-                       centre=None, max_digits=None):
+                       centre=None, max_digits=None, digit_budget=None):
     """Integer weights within ``bits`` (signed) and integer biases for real ``weights``/``bias``.
 
     ``x`` are raw-code rows on which decisions are compared: the scale is chosen to agree best
@@ -231,9 +233,11 @@ def to_integer_weights(weights, bias, bits, x, *, labels=None, refine_epochs=0, 
     rows, one step at a time, clipped to ``bits``, keeping the most accurate. ``max_digits`` K:
     each weight becomes the nearest value of at most K nonzero signed digits (at the scale of
     :func:`_within_digits`), and a correction that leaves the budget moves to the nearest value
-    within it.
+    within it. ``digit_budget`` N: at most N nonzero signed digits over all the weights, see
+    :func:`_within_total`.
     """
     max_digits = check_max_digits(max_digits)
+    digit_budget = check_digit_budget(digit_budget)
     weights = np.atleast_2d(np.asarray(weights, dtype=np.float64))
     bias = np.atleast_1d(np.asarray(bias, dtype=np.float64))
     x = np.asarray(x, dtype=np.int64)
@@ -273,9 +277,30 @@ def to_integer_weights(weights, bias, bits, x, *, labels=None, refine_epochs=0, 
                                   lambda: to_integer_weights(weights, bias, bits, x, labels=labels,
                                                              refine_epochs=refine_epochs,
                                                              seed=seed, centre=centre))
+    if digit_budget is not None:
+        w, b = _within_total(w, b, x, wanted, labels if refined else None, digit_budget, limit,
+                             (refine_epochs, seed, centre, budget))
+        agreement = agreement_of(w, b)
     biases = np.array([int(v) for v in b], dtype=object)
     return IntegerWeights(w, biases, float(k), agreement, refined, max_digits,
-                          tuple(digits_per_unit(w)))
+                          tuple(digits_per_unit(w)), digit_budget)
+
+
+def _within_total(w, b, x, wanted, labels, total, limit, refinement):
+    """The weights within ``total`` digits in all: digits dropped one at a time where the
+    training decisions (``labels``, else the real-valued ones) lose least
+    (:func:`.budget.prune_to_total`), then, with labels, the refinement again from there with
+    its corrections capped at ``total`` (:class:`.budget.TotalCap`); its pocket keeps the
+    pruned weights unless a correction does better."""
+    targets = np.asarray(labels) if labels is not None else wanted
+    before = decide(_scores(w, b, x))
+    w = prune_to_total(w, b, x, targets, total, limit)
+    if labels is not None:
+        epochs, seed, centre, budget = refinement
+        w, b = _refine(w, b, x, targets, limit, epochs, seed, centre, budget,
+                       TotalCap(w, total, limit))
+    check_total_keeps_a_decision(before, decide(_scores(w, b, x)), wanted, total)
+    return w, b
 
 
 def _within_digits(weights, chosen, tried, budget, agreement_of):
@@ -312,7 +337,7 @@ def _check_some_decision_kept(w, b, x, wanted, budget, unbudgeted):
                          f"differ; allow more digits per weight", field="max_digits")
 
 
-def _refine(w, b, x, labels, limit, epochs, seed, centre, budget=None):
+def _refine(w, b, x, labels, limit, epochs, seed, centre, budget=None, cap=None):
     """Perceptron-style corrections of one step per weight (the sign of the centred code),
     kept within the digit ``budget`` if there is one: a weight a step takes out of it moves to
     the nearest value within it, often back where it was (4 + 1 goes back to 4 with one digit),
@@ -331,7 +356,8 @@ def _refine(w, b, x, labels, limit, epochs, seed, centre, budget=None):
 
     def within(row, step):
         moved = np.clip(row + step, -limit, limit)
-        return moved if budget is None else budget.nearest(moved)
+        moved = moved if budget is None else budget.nearest(moved)
+        return moved if cap is None else cap.keep(row, moved)
 
     best = (accuracy(w, b), w.copy(), b.copy())
     bias_step = max(1.0, float(np.abs(x - centre).mean()))
