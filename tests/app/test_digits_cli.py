@@ -139,3 +139,97 @@ def test_the_library_names_its_field_and_the_command_its_flag(tmp_path):
         FitOptions(max_digits=0)
     assert caught.value.field == "max_digits"
     assert not (tmp_path / "m.toml").exists()
+
+
+def test_quantize_keeps_the_digits_in_all_within_the_budget(tmp_path):
+    # The float model above at 8 bits: more than 4 digits in all without a budget (measured
+    # 5), at most 4 with --digit-budget 4, counted here apart from the package.
+    npz = float_npz(tmp_path / "f.npz")
+    plain = run("quantize", npz, "--bits", "8", "--out", tmp_path / "n.toml")
+    assert plain.returncode == 0, plain.stderr
+    assert sum(unit_digits(tmp_path / "n.toml")) > 4
+    model = tmp_path / "m.toml"
+    result = run("quantize", npz, "--bits", "8", "--digit-budget", "4", "--out", model)
+    assert result.returncode == 0, result.stderr
+    log = json.loads((tmp_path / "m.quantize.json").read_text())
+    assert log["digit_budget"] == 4 and log["digits_total"] == sum(unit_digits(model)) <= 4
+    assert f"at most 4 in all (--digit-budget 4)" in result.stdout
+
+
+def test_fit_keeps_a_bank_within_a_budget_in_all(tmp_path):
+    # Synthetic: three 4-bit clusters, one unit per class; 6 digits in all over 9 weights.
+    rng = np.random.default_rng(1)
+    centres = [(3, 3, 12), (12, 4, 4), (6, 13, 8)]
+    rows = [[int(np.clip(c + rng.integers(-2, 3), 0, 15)) for c in centres[label]] + [label]
+            for label in rng.integers(0, 3, 150)]
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "c", "label"], rows)
+    model = tmp_path / "m.toml"
+    result = run("fit", data, "--out", model, "--input-bits", "4", "--weight-bits", "8",
+                 "--digit-budget", "6")
+    assert result.returncode == 0, result.stderr
+    log = json.loads((tmp_path / "m.fit.json").read_text())
+    assert log["options"]["digit_budget"] == 6
+    assert log["digits_per_unit"] == unit_digits(model) and sum(unit_digits(model)) <= 6
+    assert "(--digit-budget 6)" in result.stdout
+
+
+def test_the_sweep_recommends_the_fewest_digits_in_all_close_enough(tmp_path):
+    # Synthetic labelled rows of the float model above (its own decisions, so it scores 1.0):
+    # the sweep tries budgets in all at the chosen width and takes the one giving the fewest
+    # digits whose accuracy is within --tolerance of the float model's. Measured at the
+    # recommended 4 bits: budgets 5, 4, 3, 2 give 5, 4, 3, 1 digits and accuracy 0.990,
+    # 0.905, 0.905, 0.798 (float 1.0): 3 is recommended.
+    npz = float_npz(tmp_path / "f.npz")
+    rng = np.random.default_rng(2)
+    x = rng.integers(0, 16, (400, 4))
+    score = ((x - 8) / np.array([4.0, 2.0, 1.0, 3.0])) @ np.array([0.5, -1.0, 0.25, 0.8]) + 0.1
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "c", "d", "label"],
+                     [list(r) + [int(s > 0)] for r, s in zip(x.tolist(), score)])
+    model = tmp_path / "m.toml"
+    result = run("quantize", npz, "--sweep", "--data", data, "--tolerance", "0.1",
+                 "--out", model)
+    assert result.returncode == 0, result.stderr
+    log = json.loads((tmp_path / "m.quantize.json").read_text())
+    rows = log["digit_sweep"]
+    assert len(rows) >= 2 and all(row["digits"] <= row["digit_budget"] for row in rows)
+    close = [row for row in rows if row["accuracy"] >= log["float_accuracy"] - 0.1]
+    fewest = min(close, key=lambda row: row["digits"])
+    assert log["recommended_digit_budget"] == log["digit_budget"] == fewest["digit_budget"]
+    assert log["digits_total"] == sum(unit_digits(model)) == fewest["digits"]
+    # Not the first budget, and not the last: a trade, each side of it tried.
+    assert rows[0]["digits"] > fewest["digits"] > min(row["digits"] for row in rows)
+    n = log["digit_budget"]
+    assert f"recommended: at most {n} signed digits in all (--digit-budget {n})" in result.stdout
+    for row in rows:
+        assert f"at most {row['digit_budget']} digits in all: agreement" in result.stdout
+
+
+@pytest.mark.parametrize("command", ["fit", "quantize"])
+@pytest.mark.parametrize("value, expected", [
+    ("0", "--digit-budget: must be a positive whole number of nonzero signed digits over all "
+          "the weights, not 0"),
+    ("-3", "--digit-budget: must be a positive whole number"),
+    ("2.5", "'--digit-budget': '2.5' is not a valid integer")])
+def test_bad_budgets_in_all_are_one_line_errors_without_files(tmp_path, command, value,
+                                                               expected):
+    if command == "fit":
+        source = write_csv(tmp_path / "d.csv", HEADER, separable_rows(50))
+        extra = ["--input-bits", "12"]
+    else:
+        source = float_npz(tmp_path / "f.npz")
+        extra = ["--bits", "6"]
+    result = run(command, source, "--out", tmp_path / "m.toml", *extra, "--digit-budget", value)
+    assert_one_line_error(result, 2, expected)
+    assert sorted(p.name for p in tmp_path.iterdir()) == [source.name]
+
+
+def test_a_budget_in_all_that_keeps_no_decision_is_refused(tmp_path):
+    # 3a + 3b > 89 (see tests/train/test_budget.py): one digit in all decides every row 0.
+    npz = tmp_path / "f.npz"
+    np.savez(npz, coef=np.array([[3.0, 3.0]]), intercept=np.array([-89.0]),
+             input_lo=np.zeros(2, int), input_hi=np.full(2, 15))
+    result = run("quantize", npz, "--bits", "6", "--digit-budget", "1", "--out",
+                 tmp_path / "m.toml")
+    assert_one_line_error(result, 2, "--digit-budget: with at most 1 nonzero signed digit in "
+                          "all every row gets the same decision")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["f.npz"]

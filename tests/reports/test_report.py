@@ -311,3 +311,35 @@ def test_a_report_json_edited_past_showing_is_one_error_naming_the_field(built, 
                     assert refused.match(str(error)), (path, value, str(error))
                     failures += 1
         assert failures > 100
+
+
+def naf_weight(n):
+    """Nonzero digits of ``n`` in non-adjacent form (OEIS A007302's definition: digits -1, 0,
+    1, no two adjacent nonzero), counted here apart from the package's own count."""
+    n, count = abs(int(n)), 0
+    while n:
+        if n % 2:
+            n -= 2 - n % 4
+            count += 1
+        n //= 2
+    return count
+
+
+def test_every_report_states_the_signed_digits_of_the_weights(built, bank_built):
+    # A lone unit and a bank: report.json, report.md, report.html and the terminal summary
+    # give the weights' nonzero signed digits (per unit for a bank), counted here by definition.
+    from thresh2hdl.reports import summary_lines
+    for out, is_bank in ((built, False), (bank_built[0], True)):
+        report = json.loads((out / "report.json").read_text())
+        rows = report["units"] if is_bank else [report]
+        per_unit = [sum(naf_weight(w) for w in row["weights"]) for row in rows]
+        assert per_unit and report["signed_digits"] == sum(per_unit) > 0
+        text = f"{sum(per_unit)} in all"
+        if is_bank:
+            assert [row["signed_digits"] for row in rows] == per_unit
+            text += f" (per unit {', '.join(map(str, per_unit))})"
+        assert f"| nonzero signed digits of the weights | {text} |" in (
+            out / "report.md").read_text()
+        assert f"nonzero signed digits of the weights</td><td>{text}</td>" in (
+            out / "report.html").read_text()
+        assert f"  weights: nonzero signed digits {text}" in summary_lines(report)
