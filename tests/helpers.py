@@ -197,6 +197,19 @@ class Structure(HTMLParser):
             self.stack.pop()
 
 
+def naf_weight(n):
+    """Nonzero digits of ``n`` in non-adjacent form, by OEIS A007302's definition: base 2 with
+    digits -1, 0, 1 and no two adjacent digits nonzero (the form with fewest nonzero digits),
+    counted here apart from the package's own count."""
+    n, count = abs(int(n)), 0
+    while n:
+        if n % 2:
+            n -= 2 - n % 4       # the odd digit that makes the next digit 0: +1 or -1
+            count += 1
+        n //= 2
+    return count
+
+
 def noisy_codes(seed, rows=2000):
     """Synthetic: six 12-bit codes labelled by a random integer rule plus Gaussian noise, with
     10% of the labels flipped besides: not separable, as sensor data rarely is."""

@@ -8,19 +8,7 @@ import pytest
 
 from thresh2hdl.errors import InputError
 from thresh2hdl.model import load_model
-from helpers import run, assert_one_line_error, HEADER, write_csv, separable_rows
-
-
-def naf_weight(n):
-    """Nonzero digits of ``n`` in non-adjacent form (OEIS A007302's definition: digits -1, 0,
-    1, no two adjacent nonzero), counted here apart from the package's own count."""
-    n, count = abs(int(n)), 0
-    while n:
-        if n % 2:
-            n -= 2 - n % 4
-            count += 1
-        n //= 2
-    return count
+from helpers import run, assert_one_line_error, HEADER, naf_weight, write_csv, separable_rows
 
 
 def unit_digits(model_path):
@@ -69,19 +57,23 @@ def test_quantize_sweep_lists_digits_per_width(tmp_path):
     assert max(rows.values()) <= 2 * 4       # four weights of at most two digits
 
 
-def test_fit_keeps_a_bank_within_the_budget_and_says_so(tmp_path):
-    # Synthetic: three 4-bit clusters, one unit per class.
+def fit_clusters(folder, *flags):
+    """``fit`` at 8 bits on synthetic rows: three 4-bit clusters of 150 rows in all, labelled
+    by cluster (a bank of three units). Returns the run, the model file and its log."""
     rng = np.random.default_rng(1)
     centres = [(3, 3, 12), (12, 4, 4), (6, 13, 8)]
     rows = [[int(np.clip(c + rng.integers(-2, 3), 0, 15)) for c in centres[label]] + [label]
             for label in rng.integers(0, 3, 150)]
-    data = write_csv(tmp_path / "d.csv", ["a", "b", "c", "label"], rows)
-    model = tmp_path / "m.toml"
-    result = run("fit", data, "--out", model, "--input-bits", "4", "--weight-bits", "8",
-                 "--max-digits", "2")
+    data = write_csv(folder / "d.csv", ["a", "b", "c", "label"], rows)
+    model = folder / "m.toml"
+    result = run("fit", data, "--out", model, "--input-bits", "4", "--weight-bits", "8", *flags)
     assert result.returncode == 0, result.stderr
+    return result, model, json.loads((folder / "m.fit.json").read_text())
+
+
+def test_fit_keeps_a_bank_within_the_budget_and_says_so(tmp_path):
+    result, model, log = fit_clusters(tmp_path, "--max-digits", "2")
     assert all(naf_weight(w) <= 2 for unit in load_model(model).units for w in unit.weights)
-    log = json.loads((tmp_path / "m.fit.json").read_text())
     assert log["options"]["max_digits"] == 2
     assert log["digits_per_unit"] == unit_digits(model)
     per_unit = ", ".join(map(str, log["digits_per_unit"]))
@@ -100,19 +92,24 @@ def test_fit_with_a_budget_alone_keeps_full_precision_width(tmp_path):
 
 
 @pytest.mark.parametrize("command", ["fit", "quantize"])
-@pytest.mark.parametrize("value, expected", [
-    ("0", "--max-digits: must be a positive whole number of nonzero digits per weight, not 0"),
-    ("-2", "--max-digits: must be a positive whole number"),
-    ("1.5", "'--max-digits': '1.5' is not a valid integer"),
-    ("two", "'--max-digits': 'two' is not a valid integer")])
-def test_bad_budgets_are_one_line_errors_without_files(tmp_path, command, value, expected):
+@pytest.mark.parametrize("flag, value, expected", [
+    ("--max-digits", "0", "--max-digits: must be a positive whole number of nonzero digits per "
+                          "weight, not 0"),
+    ("--max-digits", "-2", "--max-digits: must be a positive whole number"),
+    ("--max-digits", "1.5", "'--max-digits': '1.5' is not a valid integer"),
+    ("--max-digits", "two", "'--max-digits': 'two' is not a valid integer"),
+    ("--digit-budget", "0", "--digit-budget: must be a positive whole number of nonzero signed "
+                            "digits over all the weights, not 0"),
+    ("--digit-budget", "-3", "--digit-budget: must be a positive whole number"),
+    ("--digit-budget", "2.5", "'--digit-budget': '2.5' is not a valid integer")])
+def test_bad_budgets_are_one_line_errors_without_files(tmp_path, command, flag, value, expected):
     if command == "fit":
         source = write_csv(tmp_path / "d.csv", HEADER, separable_rows(50))
         extra = ["--input-bits", "12"]
     else:
         source = float_npz(tmp_path / "f.npz")
         extra = ["--bits", "6"]
-    result = run(command, source, "--out", tmp_path / "m.toml", *extra, "--max-digits", value)
+    result = run(command, source, "--out", tmp_path / "m.toml", *extra, flag, value)
     assert_one_line_error(result, 2, expected)
     assert sorted(p.name for p in tmp_path.iterdir()) == [source.name]
 
@@ -157,17 +154,8 @@ def test_quantize_keeps_the_digits_in_all_within_the_budget(tmp_path):
 
 
 def test_fit_keeps_a_bank_within_a_budget_in_all(tmp_path):
-    # Synthetic: three 4-bit clusters, one unit per class; 6 digits in all over 9 weights.
-    rng = np.random.default_rng(1)
-    centres = [(3, 3, 12), (12, 4, 4), (6, 13, 8)]
-    rows = [[int(np.clip(c + rng.integers(-2, 3), 0, 15)) for c in centres[label]] + [label]
-            for label in rng.integers(0, 3, 150)]
-    data = write_csv(tmp_path / "d.csv", ["a", "b", "c", "label"], rows)
-    model = tmp_path / "m.toml"
-    result = run("fit", data, "--out", model, "--input-bits", "4", "--weight-bits", "8",
-                 "--digit-budget", "6")
-    assert result.returncode == 0, result.stderr
-    log = json.loads((tmp_path / "m.fit.json").read_text())
+    # 6 digits in all over the 9 weights.
+    result, model, log = fit_clusters(tmp_path, "--digit-budget", "6")
     assert log["options"]["digit_budget"] == 6
     assert log["digits_per_unit"] == unit_digits(model) and sum(unit_digits(model)) <= 6
     assert "(--digit-budget 6)" in result.stdout
@@ -202,25 +190,6 @@ def test_the_sweep_recommends_the_fewest_digits_in_all_close_enough(tmp_path):
     assert f"recommended: at most {n} signed digits in all (--digit-budget {n})" in result.stdout
     for row in rows:
         assert f"at most {row['digit_budget']} digits in all: agreement" in result.stdout
-
-
-@pytest.mark.parametrize("command", ["fit", "quantize"])
-@pytest.mark.parametrize("value, expected", [
-    ("0", "--digit-budget: must be a positive whole number of nonzero signed digits over all "
-          "the weights, not 0"),
-    ("-3", "--digit-budget: must be a positive whole number"),
-    ("2.5", "'--digit-budget': '2.5' is not a valid integer")])
-def test_bad_budgets_in_all_are_one_line_errors_without_files(tmp_path, command, value,
-                                                               expected):
-    if command == "fit":
-        source = write_csv(tmp_path / "d.csv", HEADER, separable_rows(50))
-        extra = ["--input-bits", "12"]
-    else:
-        source = float_npz(tmp_path / "f.npz")
-        extra = ["--bits", "6"]
-    result = run(command, source, "--out", tmp_path / "m.toml", *extra, "--digit-budget", value)
-    assert_one_line_error(result, 2, expected)
-    assert sorted(p.name for p in tmp_path.iterdir()) == [source.name]
 
 
 def test_a_budget_in_all_that_keeps_no_decision_is_refused(tmp_path):

@@ -7,7 +7,7 @@ import xml.etree.ElementTree as ElementTree
 import numpy as np
 import pytest
 
-from helpers import run, bank_model, HEADER, write_csv, separable_rows, Structure
+from helpers import run, bank_model, HEADER, naf_weight, write_csv, separable_rows, Structure
 from thresh2hdl.app import BuildOptions, build
 
 
@@ -311,18 +311,6 @@ def test_a_report_json_edited_past_showing_is_one_error_naming_the_field(built, 
                     assert refused.match(str(error)), (path, value, str(error))
                     failures += 1
         assert failures > 100
-
-
-def naf_weight(n):
-    """Nonzero digits of ``n`` in non-adjacent form (OEIS A007302's definition: digits -1, 0,
-    1, no two adjacent nonzero), counted here apart from the package's own count."""
-    n, count = abs(int(n)), 0
-    while n:
-        if n % 2:
-            n -= 2 - n % 4
-            count += 1
-        n //= 2
-    return count
 
 
 def test_every_report_states_the_signed_digits_of_the_weights(built, bank_built):

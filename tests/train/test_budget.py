@@ -8,32 +8,14 @@ import pytest
 from thresh2hdl.errors import InputError
 from thresh2hdl.model.data import Dataset
 from thresh2hdl.model.records import FeatureFormat
-from thresh2hdl.train import check_digit_budget, prune_to_total
+from thresh2hdl.train import prune_to_total
 from thresh2hdl.train.perceptron import FitOptions, fit
 from thresh2hdl.train.quantize import decide, to_integer_weights
-from helpers import noisy_codes
-
-
-def naf_weight(n):
-    """Nonzero digits of ``n`` in non-adjacent form, by OEIS A007302's definition: base 2 with
-    digits -1, 0, 1 and no two adjacent digits nonzero (the form with fewest nonzero digits)."""
-    n, count = abs(int(n)), 0
-    while n:
-        if n % 2:
-            n -= 2 - n % 4       # the odd digit that makes the next digit 0: +1 or -1
-            count += 1
-        n //= 2
-    return count
+from helpers import naf_weight, noisy_codes
 
 
 def total_digits(weights):
     return sum(naf_weight(w) for w in np.ravel(weights))
-
-
-def test_naf_weight_is_oeis_a007302():
-    # OEIS A007302, a(0..16) (from memory; they follow from the definition above).
-    assert [naf_weight(n) for n in range(17)] == [0, 1, 1, 2, 1, 2, 2, 2, 1, 2, 2, 3, 2, 3, 2,
-                                                  2, 1]
 
 
 def literal_decision(scores):
@@ -135,16 +117,6 @@ def test_the_refinement_stays_within_the_budget_on_noisy_data(seed, bits):
     assert capped <= start
     if (seed, bits) == (3, 8):
         assert free > start      # without the cap the refinement does spend more digits
-
-
-@pytest.mark.parametrize("value", [0, -1, 1.5, True, "2"])
-def test_a_budget_in_all_must_be_a_positive_integer(value):
-    for make in (lambda: check_digit_budget(value), lambda: FitOptions(digit_budget=value),
-                 lambda: to_integer_weights([[1.0, -2.0]], [0.5], 6, [[1, 2], [3, 4]],
-                                            digit_budget=value)):
-        with pytest.raises(InputError) as caught:
-            make()
-        assert caught.value.field == "digit_budget" and "--" not in str(caught.value)
 
 
 def test_a_budget_in_all_that_keeps_no_decision_is_refused():

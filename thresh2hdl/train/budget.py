@@ -13,18 +13,15 @@ the adders of constant multipliers in filters (Lim and Parker, 1983).
 import numpy as np
 
 from ..errors import InputError
-from .digits import digit_count, nearest_within, one_digit_fewer
+from .digits import check_digits_option, digit_count, nearest_within, one_digit_fewer
 
 __all__ = ["check_digit_budget", "prune_to_total", "TotalCap", "check_total_keeps_a_decision"]
 
 
 def check_digit_budget(value):
-    """``None`` (no budget) or a positive integer; anything else is refused by field name."""
-    if value is not None and (isinstance(value, bool) or not isinstance(value, (int, np.integer))
-                              or value < 1):
-        raise InputError(f"must be a positive whole number of nonzero signed digits over all "
-                         f"the weights, not {value!r}", field="digit_budget")
-    return None if value is None else int(value)
+    """The budget in all: ``None`` or a positive integer."""
+    return check_digits_option(value, "digit_budget",
+                               "nonzero signed digits over all the weights")
 
 
 def _beaten(scores, targets):

@@ -14,7 +14,8 @@ import numpy as np
 
 from ..errors import InputError
 
-__all__ = ["digit_count", "digits_per_unit", "check_max_digits", "DigitBudget",
+__all__ = ["digit_count", "digits_per_unit", "check_digits_option", "check_max_digits",
+           "DigitBudget",
            "one_digit_fewer", "nearest_within"]
 
 
@@ -30,13 +31,19 @@ def digits_per_unit(weights):
                                                                             dtype=np.int64))]
 
 
-def check_max_digits(value):
-    """``None`` (no budget) or a positive integer; anything else is refused by field name."""
+def check_digits_option(value, field, what):
+    """``None`` (no budget) or a positive integer; anything else is refused by ``field``'s
+    name, saying it must be a positive whole number of ``what``."""
     if value is not None and (isinstance(value, bool) or not isinstance(value, (int, np.integer))
                               or value < 1):
-        raise InputError(f"must be a positive whole number of nonzero digits per weight, not "
-                         f"{value!r}", field="max_digits")
+        raise InputError(f"must be a positive whole number of {what}, not {value!r}",
+                         field=field)
     return None if value is None else int(value)
+
+
+def check_max_digits(value):
+    """The budget per weight: ``None`` or a positive integer."""
+    return check_digits_option(value, "max_digits", "nonzero digits per weight")
 
 
 def _count(v):
