@@ -75,15 +75,19 @@ banks = st.tuples(st.integers(2, 6), st.integers(1, 5)).flatmap(lambda shape: st
              min_size=shape[0], max_size=shape[0]),
     st.lists(st.integers(-2000, 2000), min_size=shape[0], max_size=shape[0]),
     st.integers(1, 10), st.booleans(), st.booleans(), st.integers(0, 8),
-    st.sampled_from(["tree", "shiftadd"])))
+    st.sampled_from(["tree", "shiftadd"]), st.one_of(st.none(), st.integers(2, 12)),
+    st.integers(1, 3)))
 
 
 def prepared(case, vectors=150):
-    weights, biases, bits, is_signed, with_score, pipeline, arch = case
+    weights, biases, bits, is_signed, with_score, pipeline, arch, split, carry = case
     ports = PortNames() if with_score else PortNames(score="")
     model = bank_model(weights, biases, bits=bits, is_signed=is_signed, ports=ports)
     pipeline = min(pipeline, analyse_bank(model, arch=arch).final_level + 1)
-    dut = make_component(UnitConfig(model, pipeline=pipeline, arch=arch))
+    # Split adders need a register stage; carry registers apply only to split adders.
+    split_options = {} if split is None else {"split_bits": split, "carry_registers": carry}
+    dut = make_component(UnitConfig(model, pipeline=max(pipeline, int(split is not None)),
+                                    arch=arch, **split_options))
     rows = make_vectors(dut.analysis, random_count=vectors,
                         others=dut.unit_analyses[1:]).array
     stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
@@ -132,7 +136,7 @@ def test_report_names_every_node_where_the_verilog_holds_it():
         options = {"arch": rng.choice(["tree", "shiftadd", "serial"])}
         if options["arch"] != "serial":
             options["pipeline"] = rng.choice([0, 1, 2, FULL_PIPELINE])
-            if units == 1 and options["pipeline"] != 0 and rng.random() < 0.3:
+            if options["pipeline"] != 0 and rng.random() < 0.3:
                 options["split_bits"] = rng.randint(3, 6)
         if options["arch"] != "shiftadd" and not options.get("split_bits") and rng.random() < 0.2:
             options.update(loadable_weights=True, pipeline=1)

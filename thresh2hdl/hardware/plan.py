@@ -15,6 +15,7 @@ from amaranth.lib import wiring
 from amaranth.lib.wiring import In, Out
 
 from ..errors import InputError
+from ..names import unit_prefix
 from ..analysis import analyse, analyse_bank
 from .config import FULL_PIPELINE, UnitConfig, sample_shape
 from .weights import write_members
@@ -33,8 +34,10 @@ class DesignPlan:
     bank: object                 # the bank's BankPlan (scores and argmax), None for one unit
     levels: int                  # Analysis.levels / BankPlan.levels: the most register stages
     register_boundaries: tuple   # levels after which a register stage sits (level 0: products)
-    split_parts: Mapping         # part count of every split adder, by node name ({}: none)
-    result_parts: int            # parts of the result the decision reads (1: whole)
+    split_parts: Mapping         # part count of every split adder, by node name as built
+                                 # (a bank's with its unit prefix; {}: none)
+    result_parts: int            # parts of the result the decision reads (1: whole; a bank:
+                                 # the most of any unit's score, which the argmax waits for)
     latency: int                 # cycles from an accepted input to its result (0: combinational)
     beats: int                   # valid beats per result (serial: one per feature)
     decision_bits: int           # width of ``y``: 1, or a bank's class index
@@ -90,9 +93,15 @@ def plan_design(config):
     if config.pipeline == FULL_PIPELINE:
         config = replace(config, pipeline=levels)
     _check_pipeline(config, levels)
-    parts = {} if config.split_bits is None else adder_parts(analyses[0], config.split_bits)
-    result = result_node(analyses[0]) if parts else None
-    result_parts = 1 if result is None else parts.get(result.name, 1)
+    prefixes = [""] if bank is None else [unit_prefix(i) for i in range(len(analyses))]
+    parts, result_parts = {}, 1
+    if config.split_bits is not None:
+        for prefix, unit in zip(prefixes, analyses):
+            own = adder_parts(unit, config.split_bits)
+            parts.update({prefix + name: count for name, count in own.items()})
+            result = result_node(unit)
+            if result is not None:
+                result_parts = max(result_parts, own.get(result.name, 1))
     names = ["score"] if bank is None else [f"score{i}" for i in range(len(analyses))]
     scores = tuple((name, unit.score_bits) for name, unit in zip(names, analyses)) \
         if model.ports.has_score else ()
