@@ -75,15 +75,19 @@ banks = st.tuples(st.integers(2, 6), st.integers(1, 5)).flatmap(lambda shape: st
              min_size=shape[0], max_size=shape[0]),
     st.lists(st.integers(-2000, 2000), min_size=shape[0], max_size=shape[0]),
     st.integers(1, 10), st.booleans(), st.booleans(), st.integers(0, 8),
-    st.sampled_from(["tree", "shiftadd"])))
+    st.sampled_from(["tree", "shiftadd"]), st.one_of(st.none(), st.integers(2, 12)),
+    st.integers(1, 3)))
 
 
 def prepared(case, vectors=150):
-    weights, biases, bits, is_signed, with_score, pipeline, arch = case
+    weights, biases, bits, is_signed, with_score, pipeline, arch, split, carry = case
     ports = PortNames() if with_score else PortNames(score="")
     model = bank_model(weights, biases, bits=bits, is_signed=is_signed, ports=ports)
     pipeline = min(pipeline, analyse_bank(model, arch=arch).final_level + 1)
-    dut = make_component(UnitConfig(model, pipeline=pipeline, arch=arch))
+    # Split adders need a register stage; carry registers apply only to split adders.
+    split_options = {} if split is None else {"split_bits": split, "carry_registers": carry}
+    dut = make_component(UnitConfig(model, pipeline=max(pipeline, int(split is not None)),
+                                    arch=arch, **split_options))
     rows = make_vectors(dut.analysis, random_count=vectors,
                         others=dut.unit_analyses[1:]).array
     stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
@@ -132,7 +136,7 @@ def test_report_names_every_node_where_the_verilog_holds_it():
         options = {"arch": rng.choice(["tree", "shiftadd", "serial"])}
         if options["arch"] != "serial":
             options["pipeline"] = rng.choice([0, 1, 2, FULL_PIPELINE])
-            if units == 1 and options["pipeline"] != 0 and rng.random() < 0.3:
+            if options["pipeline"] != 0 and rng.random() < 0.3:
                 options["split_bits"] = rng.randint(3, 6)
         if options["arch"] != "shiftadd" and not options.get("split_bits") and rng.random() < 0.2:
             options.update(loadable_weights=True, pipeline=1)
@@ -187,3 +191,40 @@ def test_full_pipeline_is_resolved_when_the_design_is_planned():
     assert BuildOptions(pipeline=BuildOptions.FULL_PIPELINE).pipeline == FULL_PIPELINE
     with pytest.raises(InputError, match="non-negative integer or 'full'"):
         UnitConfig(model, pipeline="every")        # the design's fields are UnitConfig's to judge
+
+
+def test_register_stages_weigh_argmax_levels_and_are_the_best_spread():
+    # Exhaustive check (every placement of the stages, enumerated here): the slowest stage is
+    # as light as any placement can make it, counting an argmax level as two adder levels.
+    from thresh2hdl.hardware.plan import ARGMAX_LEVEL_WEIGHT, register_boundaries
+
+    def heaviest(weights, boundaries):
+        start, most = 0, 0
+        for end in boundaries:
+            most, start = max(most, sum(weights[start:end + 1])), end + 1
+        return most
+
+    rng = random.Random(3)
+    for _ in range(200):
+        adders, argmax = rng.randint(1, 7), rng.randint(1, 4)
+        weights = [1] * adders + [ARGMAX_LEVEL_WEIGHT] * argmax
+        last = len(weights) - 1
+        for pipeline in range(1, len(weights) + 1):
+            got = register_boundaries(last, pipeline, weights)
+            assert len(got) == pipeline and got[-1] == last and list(got) == sorted(set(got))
+            best = min(heaviest(weights, list(cut) + [last])
+                       for cut in itertools.combinations(range(last), pipeline - 1))
+            assert heaviest(weights, got) == best, (weights, pipeline, got)
+    # One weight a level: as evenly as the count goes, the spread every unit has.
+    for levels in range(1, 16):
+        for pipeline in range(1, levels + 1):
+            assert register_boundaries(levels - 1, pipeline) == tuple(
+                -(-(j * levels) // pipeline) - 1 for j in range(1, pipeline + 1))
+    # A bank's plan spreads its stages so: with one stage an argmax level, no two share one.
+    model = bank_model([[3, -1, 2, 5], [0, 4, -2, 1], [1, 1, 1, -3], [2, -5, 1, 1]],
+                       [5, 0, -3, 2])
+    plan = analyse_bank(model, arch="shiftadd")
+    design = planned(model, arch="shiftadd", pipeline=plan.argmax_levels + 2)
+    argmax_stages = [design.level_stage(level)
+                     for level in range(plan.score_level + 1, plan.final_level + 1)]
+    assert len(set(argmax_stages)) == len(argmax_stages)

@@ -1,16 +1,18 @@
 """Split adders: every wide adder in parts, each part a stage (or more) after the one below."""
 
 import json
+import re
 
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from helpers import (require_tool, make_model, assert_agrees_in_amaranth, run,
+from helpers import (require_tool, make_model, bank_model, assert_agrees_in_amaranth, run,
                      assert_one_line_error, assert_lint_clean_and_agrees)
+from thresh2hdl.app import BuildOptions, build
 from thresh2hdl.hardware import UnitConfig, make_component
 from thresh2hdl.errors import InputError
 from thresh2hdl.verify.sim_amaranth import AmaranthBackend
-from thresh2hdl.model.records import FeatureFormat, Model, PortNames, Unit
+from thresh2hdl.model.records import PortNames
 from thresh2hdl.analysis import analyse
 from thresh2hdl.verify.reference import ReferenceModel
 from thresh2hdl.reports.markdown import report_markdown
@@ -94,14 +96,31 @@ def test_the_check_can_fail_when_the_extra_stage_is_forgotten():
     assert result.check(wrong).mismatch_count > 0
 
 
+def test_split_bank_waits_for_its_widest_score():
+    # Unit 0's score is far wider than unit 1's: split at 4 bits, the argmax compares whole
+    # scores once the widest has all its parts, counted here from the score ranges.
+    weights, biases = [[1000, -900, 77], [1, 2, -1]], [-5000, 3]
+    model = bank_model(weights, biases, bits=8)
+    dut = make_component(UnitConfig(model, pipeline=3, arch="shiftadd", split_bits=4,
+                                    carry_registers=2))
+    widest = max(analysis.nodes[analysis.score_node].bits for analysis in dut.unit_analyses)
+    assert dut.result_parts == -(-widest // 4) > 1
+    assert dut.latency == 3 + (dut.result_parts - 1) * 2
+    assert set(dut.split_parts) <= {f"u{k}_{node.name}" for k, analysis in
+                                    enumerate(dut.unit_analyses) for node in analysis.nodes}
+    rows = make_vectors(dut.analysis, random_count=300, others=dut.unit_analyses[1:]).array
+    stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
+                             valid_probability=0.8, ready_probability=0.7)
+    assert AmaranthBackend(dut).run(stimulus).check(stimulus).mismatch_count == 0
+    early = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency - 1)
+    assert AmaranthBackend(dut).run(early).check(early).mismatch_count > 0
+
+
 def test_split_is_refused_where_it_does_not_apply():
-    bank = Model(module="b", features=[FeatureFormat("a", 4)],
-                 units=[Unit("p", (1,), 0), Unit("q", (2,), 0)])
     unit = make_model([3, 4], bits=8)
     # The error names the refused UnitConfig field, never a command-line flag (the
     # application maps fields to its options).
     for field, config in (
-            ("split_bits", dict(model=bank, split_bits=8)),
             ("split_bits", dict(model=unit, split_bits=8, pipeline=0)),
             ("split_bits", dict(model=unit, split_bits=8, arch="serial")),
             ("carry_registers", dict(model=unit, split_bits=8, carry_registers=0)),
@@ -161,3 +180,20 @@ def test_a_wider_score_port_is_sign_extended():
     result = AmaranthBackend(dut).run(stimulus)
     assert result.check(stimulus).mismatch_count == 0
     assert stimulus.expect_scores.min() < 0
+
+
+def test_split_bank_builds_verifies_and_reports(tmp_path):
+    model = bank_model([[300, -250, 41], [-7, 120, 99], [64, 64, -128]], [-900, 5, 77], bits=8)
+    out = tmp_path / "bank"
+    build(model, out, BuildOptions(arch="shiftadd", pipeline=2, split_bits=5,
+                                   simulator="amaranth", vectors=400))
+    report = json.loads((out / "report.json").read_text())
+    tree = report["tree"]
+    assert tree["split_bits"] == 5 and tree["split_adders"] >= 3 and tree["result_parts"] > 1
+    assert report["latency_cycles"] == 2 + tree["result_parts"] - 1
+    assert report["mismatches"] == 0
+    verilog = (out / "bank.v").read_text()
+    assert re.search(r"\bu0_\w+_p1_sum\b", verilog)    # unit 0's adders in parts
+    assert (f"| split adders | {tree['split_adders']} adders in parts of 5 bits, 1 register(s) "
+            f"on each carry; the widest score in {tree['result_parts']} part(s), whole before "
+            f"the argmax |") in (out / "report.md").read_text()

@@ -1,13 +1,13 @@
 """A bank of threshold units sharing the inputs, with an argmax over their scores:
 :class:`ThresholdBank`."""
 
-from amaranth.hdl import Const, Module, Mux, Signal, signed
+from amaranth.hdl import Cat, Const, Module, Mux, Signal, signed
 
 from ..names import GUARD_FLAG, SCORE_CONST, argmax_names, unit_prefix
 from .component import PlannedComponent
 from .input_guard import guard_inputs
 from .stages import Stages, handshake
-from .trees import build_tree
+from .trees import Parts, build_split_tree, build_tree
 from .weights import WeightStore
 
 __all__ = ["ThresholdBank"]
@@ -32,6 +32,10 @@ class ThresholdBank(PlannedComponent):
             m.d.comb += self.out_of_range.eq(stages.at(GUARD_FLAG, self.latency))
         scores = []
         store = WeightStore(m, self, self.config) if self.config.loadable_weights else None
+        parts, bits = dict(self.split_parts), self.config.split_bits
+        # Split scores arrive part by part; the argmax compares whole scores, so it runs
+        # this many stages behind the levels it is planned at.
+        wait = (self.result_parts - 1) * self.config.carry_registers
         for index, analysis in enumerate(plan.units):
             prefix = unit_prefix(index)
             if store is not None:
@@ -45,12 +49,19 @@ class ThresholdBank(PlannedComponent):
                 stages.put(value.name, value, 0)
                 scores.append(value.name)
                 continue
-            build_tree(m, stages, analysis, features, prefix)
-            scores.append(prefix + analysis.nodes[analysis.score_node].name)
+            if not parts:
+                build_tree(m, stages, analysis, features, prefix)
+                scores.append(prefix + analysis.nodes[analysis.score_node].name)
+                continue
+            build_split_tree(m, stages, analysis, features, parts, bits,
+                             self.config.carry_registers, prefix)
+            scores.append(_whole_score(m, stages, Parts(m, stages, analysis, parts, bits,
+                                                        prefix),
+                                       analysis, stages.stage_of(plan.score_level) + wait))
         # Argmax: a tree of comparisons; the left (lower index) wins ties.
         def merge(level, name, left_entry, right_entry):
             (_, left, left_index), (_, right, right_index) = left_entry, right_entry
-            stage = stages.stage_of(level)
+            stage = stages.stage_of(level) + wait
             a, b = stages.at(left, stage), stages.at(right, stage)
             width = max(len(a) + (not a.shape().signed), len(b) + (not b.shape().signed))
             score_name, class_name = argmax_names(name)
@@ -74,3 +85,19 @@ class ThresholdBank(PlannedComponent):
         for port, name in zip(self.score_ports, scores):
             m.d.comb += port.eq(stages.at(name, self.latency))
         return m
+
+
+def _whole_score(m, stages, view, analysis, stage):
+    """A split score joined from its parts at ``stage``, when the last has arrived; returns
+    its name (the score node's own when it is whole)."""
+    index = analysis.score_node
+    name, count = view.name(index), view.count(index)
+    if count == 1:
+        return name
+    node = analysis.nodes[index]
+    whole = Cat(*[view.middle(index, j, stage) for j in range(count - 1)],
+                view.top(index, count - 1, stage))
+    score = Signal(signed(node.bits) if node.is_signed else node.bits, name=f"{name}_whole")
+    m.d.comb += score.eq(whole.as_signed() if node.is_signed else whole)
+    stages.put(score.name, score, stage)
+    return score.name

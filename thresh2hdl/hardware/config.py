@@ -108,7 +108,6 @@ class UnitConfig:
                 raise InputError(f"must be an integer from 2 to 64, not {self.split_bits!r}",
                                  field="split_bits")
             refusal = ("a serial design has no adder tree" if self.arch == "serial" else
-                       "a bank is not split (one unit only, for now)" if self.model.is_bank else
                        "loadable weights are not split (constant weights only, for now)"
                        if self.loadable_weights else
                        "the split needs register stages: ask for 1 or more"

@@ -15,6 +15,7 @@ from amaranth.lib import wiring
 from amaranth.lib.wiring import In, Out
 
 from ..errors import InputError
+from ..names import unit_prefix
 from ..analysis import analyse, analyse_bank
 from .config import FULL_PIPELINE, UnitConfig, sample_shape
 from .weights import write_members
@@ -33,8 +34,10 @@ class DesignPlan:
     bank: object                 # the bank's BankPlan (scores and argmax), None for one unit
     levels: int                  # Analysis.levels / BankPlan.levels: the most register stages
     register_boundaries: tuple   # levels after which a register stage sits (level 0: products)
-    split_parts: Mapping         # part count of every split adder, by node name ({}: none)
-    result_parts: int            # parts of the result the decision reads (1: whole)
+    split_parts: Mapping         # part count of every split adder, by node name as built
+                                 # (a bank's with its unit prefix; {}: none)
+    result_parts: int            # parts of the result the decision reads (1: whole; a bank:
+                                 # the most of any unit's score, which the argmax waits for)
     latency: int                 # cycles from an accepted input to its result (0: combinational)
     beats: int                   # valid beats per result (serial: one per feature)
     decision_bits: int           # width of ``y``: 1, or a bank's class index
@@ -90,16 +93,23 @@ def plan_design(config):
     if config.pipeline == FULL_PIPELINE:
         config = replace(config, pipeline=levels)
     _check_pipeline(config, levels)
-    parts = {} if config.split_bits is None else adder_parts(analyses[0], config.split_bits)
-    result = result_node(analyses[0]) if parts else None
-    result_parts = 1 if result is None else parts.get(result.name, 1)
+    prefixes = [""] if bank is None else [unit_prefix(i) for i in range(len(analyses))]
+    parts, result_parts = {}, 1
+    if config.split_bits is not None:
+        for prefix, unit in zip(prefixes, analyses):
+            own = adder_parts(unit, config.split_bits)
+            parts.update({prefix + name: count for name, count in own.items()})
+            result = result_node(unit)
+            if result is not None:
+                result_parts = max(result_parts, own.get(result.name, 1))
     names = ["score"] if bank is None else [f"score{i}" for i in range(len(analyses))]
     scores = tuple((name, unit.score_bits) for name, unit in zip(names, analyses)) \
         if model.ports.has_score else ()
     decision_bits = 1 if bank is None else bank.class_bits
     return DesignPlan(
         kind=design_kind(config), config=config, unit_analyses=analyses, bank=bank,
-        levels=levels, register_boundaries=register_boundaries(levels - 1, config.pipeline),
+        levels=levels, register_boundaries=register_boundaries(levels - 1, config.pipeline,
+                                                    level_weights(levels, bank)),
         split_parts=MappingProxyType(parts), result_parts=result_parts,
         latency=config.pipeline + (result_parts - 1) * config.carry_registers,
         beats=len(model.features) if config.arch == "serial" else 1,
@@ -128,11 +138,62 @@ def _check_pipeline(config, levels):
                          f"{FULL_PIPELINE!r} for one after every level", field="pipeline")
 
 
-def register_boundaries(final_level, pipeline):
-    """Levels after which a register stage sits, as evenly as they go; the last is always the
-    final level."""
+# The delay of an argmax level against an adder level's, as the register stages are spread:
+# a comparison's carry chain, then a multiplexer whose select fans out to the score and index
+# bits. Measured here once (Yosys 0.70, nextpnr 0.11, iCE40 UP5K, a 64-input 5-unit shift-add
+# bank at 4 stages): the three argmax levels left in one stage took 41.8 ns, about 13 ns each,
+# where an adder level takes 6 to 8 ns.
+ARGMAX_LEVEL_WEIGHT = 2
+
+
+def register_boundaries(final_level, pipeline, weights=None):
+    """Levels after which a register stage sits, the last always the final level.
+
+    With one weight a level (None), as evenly as the count goes. With ``weights`` (the
+    levels' delays) that differ, the slowest stage is made as fast as it can be (the least
+    largest sum of a stage's weights) and, within that, the stages as even as they can be
+    (the least sum of squares)."""
     levels = final_level + 1
-    return tuple(-(-(j * levels) // pipeline) - 1 for j in range(1, pipeline + 1))
+    if pipeline == 0 or weights is None or len(set(weights)) == 1:
+        return tuple(-(-(j * levels) // pipeline) - 1 for j in range(1, pipeline + 1))
+    ends = [0]
+    for weight in weights:
+        ends.append(ends[-1] + weight)
+    bound = next(b for b in range(max(weights), ends[-1] + 1)
+                 if _stages_needed(weights, b) <= pipeline)
+    # best[k][i]: (sum of squares, last boundary) of the first i levels in k stages.
+    best = [{0: (0, None)}]
+    for k in range(1, pipeline + 1):
+        row = {}
+        for i in range(k, levels + 1):
+            options = [(cost + (ends[i] - ends[start]) ** 2, start)
+                       for start, (cost, _) in best[k - 1].items()
+                       if start < i and ends[i] - ends[start] <= bound]
+            if options:
+                row[i] = min(options)
+        best.append(row)
+    boundaries, i = [], levels
+    for k in range(pipeline, 0, -1):
+        boundaries.append(i - 1)
+        i = best[k][i][1]
+    return tuple(reversed(boundaries))
+
+
+def _stages_needed(weights, bound):
+    """The fewest stages, none heavier than ``bound``, that the levels fit in."""
+    count, load = 1, 0
+    for weight in weights:
+        if load + weight > bound:
+            count, load = count + 1, 0
+        load += weight
+    return count
+
+
+def level_weights(levels, bank):
+    """The delay weight of each level: an argmax level :data:`ARGMAX_LEVEL_WEIGHT`, any other
+    one."""
+    first_argmax = levels if bank is None or levels == 1 else bank.score_level + 1
+    return [ARGMAX_LEVEL_WEIGHT if level >= first_argmax else 1 for level in range(levels)]
 
 
 def adder_parts(analysis, split_bits):

@@ -37,23 +37,26 @@ class Parts:
     ``j`` of a wider adder. Middle parts are unsigned ``bits`` wide; a top part is the rest of
     the value, as signed as the value (beyond its width, the value's extension)."""
 
-    def __init__(self, m, stages, analysis, parts, bits):
+    def __init__(self, m, stages, analysis, parts, bits, prefix=""):
         self.m, self.stages, self.analysis = m, stages, analysis
-        self.parts, self.bits = parts, bits
+        self.parts, self.bits, self.prefix = parts, bits, prefix
+
+    def name(self, index):
+        """The node's name as built (a bank's unit prefix first)."""
+        return self.prefix + self.analysis.nodes[index].name
 
     def count(self, index):
-        return self.parts.get(self.analysis.nodes[index].name, 1)
+        return self.parts.get(self.name(index), 1)
 
     def _raw(self, index, j, stage):
         """``(value, is_top, beyond)``: part ``j`` as it is held (a split value's own part, a
         whole value's bits from ``j * bits`` up), whether it is the value's top part, and
         whether ``j`` lies beyond the value, where only its extension is left."""
-        node = self.analysis.nodes[index]
-        count = self.count(index)
+        name, count = self.name(index), self.count(index)
         if count > 1:
             own = min(j, count - 1)
-            return self.stages.at(f"{node.name}_p{own}", stage), own == count - 1, own < j
-        value = self.stages.at(node.name, stage)
+            return self.stages.at(f"{name}_p{own}", stage), own == count - 1, own < j
+        value = self.stages.at(name, stage)
         low = j * self.bits
         if low >= len(value):
             return value, True, True
@@ -86,11 +89,11 @@ class Parts:
     def complement(self, index, j, stage, top):
         """``~`` part ``j`` of a subtrahend, made where the part is made: its registers carry
         the complement, so no inverter LUT sits before the subtractor's carry chain."""
-        node = self.analysis.nodes[index]
-        name = f"{node.name}_{'t' if top else 'p'}{j}_not"
+        own = self.name(index)
+        name = f"{own}_{'t' if top else 'p'}{j}_not"
         if name not in self.stages.produced:
             count = self.count(index)
-            source = f"{node.name}_p{min(j, count - 1)}" if count > 1 else node.name
+            source = f"{own}_p{min(j, count - 1)}" if count > 1 else own
             made = self.stages.produced[source][0]
             if top:
                 part = self.top(index, j, made)
@@ -104,28 +107,29 @@ class Parts:
         return self.stages.at(name, stage)
 
 
-def build_split_tree(m, stages, analysis, features, parts, split_bits, skew):
+def build_split_tree(m, stages, analysis, features, parts, split_bits, skew, prefix=""):
     """As :func:`build_tree`, but an adder wider than ``split_bits`` is a row of adders,
     one per ``split_bits``-wide part: part ``j`` adds the operands' parts ``j`` and the carry
     of part ``j - 1``, ``skew`` register stages after it (the carry crosses ``skew``
     registers, so that the placer can keep each piece of its route short). Part ``j`` of the
     whole tree runs ``j * skew`` stages behind part 0, so no carry chain is longer than
     ``split_bits``.
-    ``parts``: the part counts (:func:`~thresh2hdl.hardware.plan.adder_parts`)."""
-    view = Parts(m, stages, analysis, parts, split_bits)
+    ``parts``: the part counts (:func:`~thresh2hdl.hardware.plan.adder_parts`), by name as
+    built (``prefix``, a bank's unit prefix, then the node's name)."""
+    view = Parts(m, stages, analysis, parts, split_bits, prefix)
     for node in analysis.nodes:
         stage = stages.stage_of(node.level)
         if node.kind == "product":
-            value = Signal(node_shape(node), name=node.name)
+            value = Signal(node_shape(node), name=prefix + node.name)
             m.d.comb += value.eq(constant_product(node, features))
-            stages.put(node.name, value, stage, node.register_shift)
+            stages.put(prefix + node.name, value, stage, node.register_shift)
             continue
-        count = parts.get(node.name, 1)
+        count = parts.get(prefix + node.name, 1)
         if count == 1:
             operands = [view.top(c, 0, stage) for c in node.children]
-            value = Signal(node_shape(node), name=node.name)
+            value = Signal(node_shape(node), name=prefix + node.name)
             m.d.comb += value.eq(combine(node, analysis, operands))
-            stages.put(node.name, value, stage)
+            stages.put(prefix + node.name, value, stage)
             continue
         constant = None
         if node.kind in ("offset", "bias"):
@@ -162,13 +166,13 @@ def build_split_tree(m, stages, analysis, features, parts, split_bits, skew):
             if is_top:
                 width = node.bits - shift
                 part = Signal(signed(width) if node.is_signed else unsigned(width),
-                              name=f"{node.name}_p{j}")
+                              name=f"{prefix}{node.name}_p{j}")
                 m.d.comb += part.eq(total)
                 stages.put(part.name, part, at)
                 continue
-            wide = Signal(split_bits + 1, name=f"{node.name}_p{j}_sum")
-            part = Signal(split_bits, name=f"{node.name}_p{j}")
-            carried = Signal(name=f"{node.name}_c{j}")
+            wide = Signal(split_bits + 1, name=f"{prefix}{node.name}_p{j}_sum")
+            part = Signal(split_bits, name=f"{prefix}{node.name}_p{j}")
+            carried = Signal(name=f"{prefix}{node.name}_c{j}")
             m.d.comb += [wide.eq(total), part.eq(wide[:split_bits]),
                          carried.eq(wide[split_bits])]
             stages.put(part.name, part, at)

@@ -71,7 +71,11 @@ def _tree_report(component, model, verilog_text):
     return {"arch": component.analysis.arch, "levels": component.levels,
             "level_names": level_names(component), "stages": stages,
             "register_after_levels": [stage["levels"][1] for stage in stages],
-            "nodes": node_table(component, model, verilog_text)}
+            "nodes": node_table(component, model, verilog_text),
+            "split_bits": component.config.split_bits,
+            "carry_registers": component.config.carry_registers,
+            "result_parts": component.result_parts,
+            "split_adders": len(component.split_parts)}
 
 
 def _units_report(model, analyses, component, verilog_text):
@@ -81,10 +85,6 @@ def _units_report(model, analyses, component, verilog_text):
               "score_port": model.ports.has_score}
     if not model.is_bank:
         tree = _tree_report(component, model, verilog_text)
-        tree["split_bits"] = component.config.split_bits
-        tree["carry_registers"] = component.config.carry_registers
-        tree["result_parts"] = component.result_parts
-        tree["split_adders"] = len(component.split_parts)
         return {"weights": list(first.weights), "bias": first.bias, **common,
                 "score_range": list(first.score_range), "score_bits_min": first.score_bits_min,
                 "score_bits": first.score_bits, "headroom_bits": first.headroom_bits,

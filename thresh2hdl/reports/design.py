@@ -193,8 +193,8 @@ class Comparison:
 
 @dataclass(frozen=True)
 class SplitAdders:
-    """A lone unit's adders split into parts (``split_bits`` None: none split); older reports
-    lack the other keys (None)."""
+    """The adders split into parts (``split_bits`` None: none split); older reports lack the
+    other keys (None), and a bank's older reports all of them."""
     split_bits: int | None
     carry_registers: int | None = None
     result_parts: int | None = None
@@ -208,7 +208,7 @@ class SplitAdders:
 @dataclass(frozen=True)
 class Datapath:
     """The datapath: its levels (the one count, from 0), the register stages after them and
-    every node; a lone unit's split adders, or a bank's argmax."""
+    every node; the split adders and, for a bank, the argmax."""
     arch: str
     levels: int
     nodes: tuple
@@ -240,7 +240,7 @@ class Datapath:
         return cls(table.text("arch"), table.count("levels"),
                    tuple(map(Node.from_json, table.tables("nodes"))),
                    table.texts("level_names", None), stages,
-                   None if bank else SplitAdders(
+                   SplitAdders(
                        table.count("split_bits", None, null=True),
                        table.count("carry_registers", None), table.count("result_parts", None),
                        table.count("split_adders", None)),

@@ -58,8 +58,10 @@ def split_text(datapath):
     adders = "adders" if split.split_adders is None else f"{split.split_adders} adders"
     carry = 1 if split.carry_registers is None else split.carry_registers
     parts = 2 if split.result_parts is None else split.result_parts
+    result = ("the widest score in {} part(s), whole before the argmax"
+              if datapath.argmax is not None else "the result in {} part(s)").format(parts)
     return (f"{adders} in parts of {split.split_bits} bits, {carry} register(s) on each "
-            f"carry; the result in {parts} part(s)")
+            f"carry; {result}")
 
 
 def guard_text(guard):

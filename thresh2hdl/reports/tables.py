@@ -68,7 +68,7 @@ def _wire(node, name, component, model, unit_index, ports, declared):
         # one beat: the sum starts from the bias (a register, named after what it feeds, when
         # loadable)
         return f"{name}_in" if analysis.loadable else f"the constant {analysis.bias}"
-    parts = component.split_parts.get(node.name, 1)
+    parts = component.split_parts.get(name, 1)
     if parts > 1:
         bits = component.config.split_bits
         found = [f"{name}_p{j}" if f"{name}_p{j}" in declared else
