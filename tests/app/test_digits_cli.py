@@ -150,7 +150,7 @@ def test_quantize_keeps_the_digits_in_all_within_the_budget(tmp_path):
     assert result.returncode == 0, result.stderr
     log = json.loads((tmp_path / "m.quantize.json").read_text())
     assert log["digit_budget"] == 4 and log["digits_total"] == sum(unit_digits(model)) <= 4
-    assert f"at most 4 in all (--digit-budget 4)" in result.stdout
+    assert "at most 4 in all (--digit-budget 4)" in result.stdout
 
 
 def test_fit_keeps_a_bank_within_a_budget_in_all(tmp_path):
