@@ -37,7 +37,7 @@ class ThresholdBank(PlannedComponent):
             if store is not None:
                 build_tree(m, stages, analysis, features, prefix,
                            store.weights[index], store.biases[index])
-                scores.append(prefix + analysis.nodes[analysis.score_node].name)
+                scores.append(analysis.nodes[analysis.score_node].wire_name(prefix))
                 continue
             if analysis.score_node is None:
                 value = Signal(signed(analysis.score_bits), name=prefix + SCORE_CONST)
@@ -46,7 +46,7 @@ class ThresholdBank(PlannedComponent):
                 scores.append(value.name)
                 continue
             build_tree(m, stages, analysis, features, prefix)
-            scores.append(prefix + analysis.nodes[analysis.score_node].name)
+            scores.append(analysis.nodes[analysis.score_node].wire_name(prefix))
         # Argmax: a tree of comparisons; the left (lower index) wins ties.
         def merge(level, name, left_entry, right_entry):
             (_, left, left_index), (_, right, right_index) = left_entry, right_entry
