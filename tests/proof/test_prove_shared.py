@@ -4,7 +4,7 @@ import re
 
 import pytest
 
-from helpers import bank_model, require_proof_tools
+from helpers import bank_model, digits_bank, require_proof_tools
 from thresh2hdl.emit.verilog import emit_verilog, port_table
 from thresh2hdl.hardware import FULL_PIPELINE, UnitConfig, make_component, plan_design
 from thresh2hdl.proof.prover import prove_netlist
@@ -41,3 +41,12 @@ def test_a_wrong_shared_term_is_not_proved():
     mutant, count = re.subn(r"(assign share0 = [^;]*?) \+ ", r"\1 - ", text, count=1)
     assert count == 1
     assert outcome_of(model, 1, mutant).status != "proved"
+
+
+def test_the_shared_digits_bank_is_proved():
+    # The 64-input, 10-unit digits bank (helpers.digits_bank: scikit-learn's digits, 6 bits,
+    # at most one digit a weight) with its shared terms, two register stages.
+    require_proof_tools()
+    model, _ = digits_bank(1)
+    outcome = outcome_of(model, 2)
+    assert outcome.status == "proved", outcome.detail
