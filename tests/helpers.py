@@ -219,3 +219,30 @@ def noisy_codes(seed, rows=2000):
     flip = rng.random(rows) < 0.1
     y[flip] = 1 - y[flip]
     return x, y
+
+
+def digits_bank(max_digits):
+    """scikit-learn's bundled 8x8 digits (scikit-learn 1.9.1; raw 0..16 codes, split as in
+    issue 16), a standardised logistic regression folded and quantized to 6 bits, as a
+    64-input bank of 10 units; and the test rows."""
+    from sklearn.datasets import load_digits
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.model_selection import train_test_split
+    from sklearn.preprocessing import StandardScaler
+    from thresh2hdl.model.records import FeatureFormat, Model, Unit
+    from thresh2hdl.train.quantize import FloatModel, fold_normalisation, to_integer_weights
+    x, y = load_digits(return_X_y=True)
+    x_train, x_test, y_train, _ = train_test_split(x.astype(np.int64), y, test_size=0.25,
+                                                   random_state=0)
+    scaler = StandardScaler().fit(x_train)
+    fitted = LogisticRegression(max_iter=5000).fit(scaler.transform(x_train), y_train)
+    weights, bias = fold_normalisation(FloatModel(
+        fitted.coef_, fitted.intercept_, scaler.mean_, scaler.scale_, np.zeros(64, int),
+        np.full(64, 16)))
+    result = to_integer_weights(weights, bias, 6, x_train, labels=y_train, refine_epochs=20,
+                                centre=np.full(64, 8), max_digits=max_digits)
+    model = Model(module="digits", features=[FeatureFormat(f"f{i}", 5, False, 0, 16)
+                                             for i in range(64)],
+                  units=[Unit(f"d{k}", tuple(int(w) for w in row), int(b)) for k, (row, b)
+                         in enumerate(zip(result.weights, result.biases))])
+    return model, x_test

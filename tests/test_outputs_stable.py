@@ -58,6 +58,8 @@ def designs():
             "tree", "shiftadd", "tree")[seed - 1]}
     yield "bank", random_model(4, units=3), {"pipeline": 2}
     yield "bank-serial", random_model(5, units=3), {"arch": "serial"}
+    yield "bank-shared", random_model(6, units=4), {"arch": "shiftadd", "share_terms": True,
+                                                    "pipeline": 2}
 
 
 def digests(folder):

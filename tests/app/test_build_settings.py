@@ -128,3 +128,17 @@ def test_an_edited_record_is_one_line_naming_the_file_and_field(split_folder, tm
         assert f"{folder / RECORD}: " in err and expected in err
         assert "rebuild the folder" in err or "not valid JSON" in err
     assert {p.name: p.read_bytes() for p in folder.iterdir()} == before
+
+
+def test_a_shared_bank_reloads_shared_and_a_record_from_before_sharing_reads_as_unshared(
+        tmp_path):
+    out = tmp_path / "bank"
+    model = bank_model([[3, 5, -7], [3, 5, 6], [-3, 5, 7]], [1, -2, 0], bits=3)
+    build(model, out, BuildOptions(simulator="amaranth", vectors=50, arch="shiftadd",
+                                   share_terms=True))
+    assert load_folder(out).component.config.share_terms is True
+    # A record written before share_terms existed lacks it: its design shared nothing.
+    record = json.loads((out / RECORD).read_text())
+    del record["share_terms"]
+    (out / RECORD).write_text(json.dumps(record))
+    assert load_folder(out).component.config.share_terms is False

@@ -1,13 +1,15 @@
 """The bank plan: several units sharing the inputs, decided by the argmax of their scores.
 
-Each unit is planned on its own (:func:`~.plan.analyse`); the bank adds the argmax's
-comparison levels after the scores and the width of the class index.
+Each unit is planned on its own (:func:`~.plan.analyse`), or, when the bank shares terms,
+from the terms :func:`~.shared.plan_sharing` leaves it; the bank adds the argmax's comparison
+levels after the scores and the width of the class index.
 """
 
 from dataclasses import dataclass
 
 from ..errors import InputError
 from .plan import analyse
+from .shared import plan_sharing
 
 __all__ = ["BankPlan", "analyse_bank"]
 
@@ -19,6 +21,7 @@ class BankPlan:
     units: tuple          # one Analysis per unit
     class_bits: int       # width of the class index
     argmax_levels: int
+    sharing: object = None   # the SharingPlan of a shift-add bank sharing terms, else None
 
     @property
     def tree_levels(self):
@@ -53,12 +56,15 @@ class BankPlan:
         return layer[0]
 
 
-def analyse_bank(model, *, score_bits=None, arch="tree", weight_range=None, bias_range=None):
-    """Analyse every unit of a bank; ``score_bits`` (if given) is the width of every score port."""
+def analyse_bank(model, *, score_bits=None, arch="tree", weight_range=None, bias_range=None,
+                 share_terms=False):
+    """Analyse every unit of a bank; ``score_bits`` (if given) is the width of every score port.
+    ``share_terms`` (shiftadd, constant weights): terms several units need are made once."""
     if score_bits is None:
         score_bits = model.score_bits
     units = []
-    loadable = {"weight_range": weight_range, "bias_range": bias_range}
+    sharing = plan_sharing([unit.weights for unit in model.units]) if share_terms else None
+    loadable = {"weight_range": weight_range, "bias_range": bias_range, "sharing": sharing}
     for index in range(len(model.units)):
         own = analyse(model, arch=arch, unit_index=index, **loadable)
         if score_bits is not None:
@@ -71,4 +77,4 @@ def analyse_bank(model, *, score_bits=None, arch="tree", weight_range=None, bias
         units.append(own)
     count = len(units)
     return BankPlan(units=tuple(units), class_bits=max(1, (count - 1).bit_length()),
-                    argmax_levels=(count - 1).bit_length())
+                    argmax_levels=(count - 1).bit_length(), sharing=sharing)

@@ -17,7 +17,7 @@ __all__ = ["analyse"]
 
 
 def analyse(model, *, score_bits=None, arch="tree", unit_index=None, weight_range=None,
-            bias_range=None):
+            bias_range=None, sharing=None):
     """Plan the adder tree of ``model.unit`` and size every node exactly.
 
     ``score_bits`` (default: the model's, else the minimum) may be wider than needed; the extra
@@ -29,8 +29,12 @@ def analyse(model, *, score_bits=None, arch="tree", unit_index=None, weight_rang
     ``weight_range`` and ``bias_range`` (``(lo, hi)``, both or neither) plan loadable weights:
     every weight and the bias may be any value in its declared range, and every width holds
     every score those allow (the trained values are only where the registers start).
+    ``sharing`` (shiftadd, a bank's unit): the bank's :class:`~.shared.SharingPlan`.
     """
     check_architecture(arch)
+    if sharing is not None and arch != "shiftadd":
+        raise InputError("terms are shared between shift-add sums only; use arch shiftadd",
+                         field="share_terms")
     unit = model.unit if unit_index is None else model.units[unit_index]
     if score_bits is None:
         score_bits = model.score_bits
@@ -42,4 +46,4 @@ def analyse(model, *, score_bits=None, arch="tree", unit_index=None, weight_rang
         return analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range)
     if arch == "serial":
         return analyse_serial(model, unit, score_bits)
-    return analyse_constant(model, unit, score_bits, arch)
+    return analyse_constant(model, unit, score_bits, arch, sharing, unit_index)

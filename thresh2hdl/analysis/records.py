@@ -31,12 +31,15 @@ class Node:
 
     ``lo``/``hi`` bound the value the node computes; the true contribution of the node to the
     score is ``sign`` times that value. ``level`` is the combinational depth: 0 for products,
-    ``k`` for the k-th adder level, one past the tree for the bias node.
+    ``k`` for the k-th adder level, one past the tree for the bias node. A ``shared`` node is
+    a term several units of a bank use (:mod:`.shared`): built once, under its own name in
+    every unit; a ``scaled`` node is its child shifted left (wiring, no adder).
     """
 
     index: int
     name: str
-    kind: str            # "product", "add", "sub", "rsub" (right minus left), "bias", "offset"
+    kind: str            # "product", "add", "sub", "rsub" (right minus left), "bias", "offset",
+                         # "scaled" (the child times ``magnitude``, a power of two)
     children: tuple
     lo: int
     hi: int
@@ -45,6 +48,12 @@ class Node:
     feature: int | None = None
     magnitude: int = 0   # |weight| of a product
     constant: int = 0    # the bias of a "bias" node
+    shared: bool = False  # one node for the whole bank, named without a unit's prefix
+
+    def wire_name(self, prefix):
+        """The node's name in the design: ``prefix`` (a bank unit's) and its own, or its own
+        alone when it is shared."""
+        return self.name if self.shared else prefix + self.name
 
     @property
     def bits(self):

@@ -10,6 +10,7 @@ import heapq
 
 from .intervals import term_range, witnesses
 from .records import Analysis, Node
+from .shared import FEATURE, shared_name
 from .widths import csd_digits, score_widths
 
 __all__ = ["analyse_constant"]
@@ -41,6 +42,14 @@ class _Tree:
             lo, hi = lo + min(a, b), hi + max(a, b)
         return lo, hi
 
+    def scaled(self, child, shift, sign=1, name=None, shared=False):
+        """A ``scaled`` node: ``child << shift`` (wiring), at the child's level."""
+        coeffs = {f: c << shift for f, c in self.coefficients[child.index].items()}
+        lo, hi = self.exact(coeffs)
+        return self.add(coeffs, name=name, kind="scaled", children=(child.index,), lo=lo,
+                        hi=hi, level=child.level, sign=sign, magnitude=1 << shift,
+                        shared=shared)
+
     def combine(self, left, right, kind):
         """The coefficients of ``left + right`` (``add``), ``left - right`` (``sub``) or
         ``right - left`` (``rsub``)."""
@@ -54,11 +63,14 @@ class _Tree:
         return {f: c for f, c in merged.items() if c}
 
 
-def analyse_constant(model, unit, score_bits, arch):
-    """Plan ``unit``'s tree (``arch`` ``tree`` or ``shiftadd``) and size every node exactly."""
+def analyse_constant(model, unit, score_bits, arch, sharing=None, unit_index=None):
+    """Plan ``unit``'s tree (``arch`` ``tree`` or ``shiftadd``) and size every node exactly.
+    ``sharing``: a bank's :class:`~.shared.SharingPlan` (shiftadd), whose terms for unit
+    ``unit_index`` are the leaves."""
     ranges, weights = model.feature_ranges, unit.weights
     tree = _Tree(ranges)
-    layer = _leaves(tree, weights, ranges, arch)
+    layer = _leaves(tree, weights, ranges, arch) if sharing is None else \
+        _shared_leaves(tree, sharing, sharing.unit_terms[unit_index])
     # A bank needs every unit's score for its argmax, whether or not the ports show them.
     has_score = model.ports.has_score or model.is_bank
     folded = False
@@ -111,12 +123,66 @@ def _leaves(tree, weights, ranges, arch):
                                   children=(), lo=lo * magnitude, hi=hi * magnitude, level=0,
                                   sign=sign, feature=index, magnitude=magnitude))
             continue
-        for shift, digit in csd_digits(magnitude):
-            layer.append(tree.add({index: 1 << shift}, name=f"p{index}_{shift}",
-                                  kind="product", children=(), lo=lo << shift, hi=hi << shift,
-                                  level=0, sign=sign * digit, feature=index,
-                                  magnitude=1 << shift))
+        layer += [_product(tree, index, shift, sign * digit)
+                  for shift, digit in csd_digits(magnitude)]
     return layer
+
+
+def _shared_leaves(tree, sharing, terms):
+    """Level 0 and the shared terms: a unit's terms left after sharing, each a shifted input
+    or a shared term scaled by its shift (with the unit's sign)."""
+    made = {}
+    layer = []
+    for source, shift, sign in terms:
+        if source[0] == FEATURE:
+            layer.append(_product(tree, source[1], shift, sign))
+            continue
+        node = _shared_node(tree, sharing, source[1], made)
+        name = f"{node.name}_{shift}"
+        serial = 1
+        while name in made:    # the same term twice at one shift: a name of its own
+            name, serial = f"{node.name}_{shift}_{serial}", serial + 1
+        made[name] = tree.scaled(node, shift, sign, name=name)
+        layer.append(made[name])
+    return layer
+
+
+def _product(tree, feature, shift, sign, shared=False):
+    """A shifted input: ``x[feature] << shift``."""
+    lo, hi = tree.ranges[feature]
+    return tree.add({feature: 1 << shift}, name=f"p{feature}_{shift}", kind="product",
+                    children=(), lo=lo << shift, hi=hi << shift, level=0, sign=sign,
+                    feature=feature, magnitude=1 << shift, shared=shared)
+
+
+def _shared_node(tree, sharing, index, made):
+    """Shared term ``index`` and what it needs, once in this unit's nodes (``made``: name ->
+    node); named as in every other unit, one adder a level above its operands."""
+    name = shared_name(index)
+    if name in made:
+        return made[name]
+    term = sharing.terms[index]
+    operands = []
+    for (kind, source), shift in (term.first, term.second):
+        if kind == FEATURE:
+            key = f"p{source}_{shift}"
+            if key not in made:
+                made[key] = _product(tree, source, shift, 1, shared=True)
+            operands.append(made[key])
+            continue
+        child = _shared_node(tree, sharing, source, made)
+        key = f"{child.name}_s{shift}"
+        if shift and key not in made:
+            made[key] = tree.scaled(child, shift, name=key, shared=True)
+        operands.append(made[key] if shift else child)
+    left, right = operands
+    kind = "add" if term.sign > 0 else "sub"
+    coeffs = tree.combine(left, right, kind)
+    lo, hi = tree.exact(coeffs)
+    made[name] = tree.add(coeffs, name=name, kind=kind, children=(left.index, right.index),
+                          lo=lo, hi=hi, level=max(left.level, right.level) + 1, sign=1,
+                          shared=True)
+    return made[name]
 
 
 def _pair_neighbours(tree, layer, level):

@@ -75,6 +75,10 @@ class BuildOptions:
         1, "--carry-registers", "Registers on each carry from one split part to the next (1 "
         "to 4): 2 shortens the carry's routes for a higher fmax, at one more cycle of latency "
         "per part.", kind="int", show_default=True)
+    share_terms: bool = _option(
+        False, "--share-terms", "A bank's sums of two shifted inputs that several units need "
+        "are made once and shared (common sub-expressions; --arch shiftadd, constant weights): "
+        "fewer adders.", kind="switch")
     loadable_weights: bool = _option(
         False, "--loadable-weights", "Weights and biases in registers, reset to the trained "
         "values, with a write port (strobe, address, data); widths sized for --weight-bits "

@@ -36,6 +36,7 @@ class BuildSettings:
     carry_registers: int
     clamp: bool
     range_flag: bool
+    share_terms: bool
     latency_cycles: int
 
     @classmethod
@@ -71,8 +72,11 @@ _RECORD = {
     "carry_registers": (f"an integer from 0 to {MAX_SETTING}", _integer),
     "clamp": ("true or false", lambda v: isinstance(v, bool)),
     "range_flag": ("true or false", lambda v: isinstance(v, bool)),
+    "share_terms": ("true or false", lambda v: isinstance(v, bool)),
     "latency_cycles": (f"an integer from 0 to {MAX_SETTING}", _integer),
 }
+# Fields a record written before they existed lacks, with the value its design had.
+_ADDED_LATER = {"share_terms": False}
 _DESIGN = tuple(f.name for f in dataclass_fields(BuildSettings) if f.name not in ("module",
                                                                        "latency_cycles"))
 
@@ -87,6 +91,7 @@ def read_settings(path):
     if data.get("settings_format") != SETTINGS_FORMAT:
         _refuse(path, "settings_format", f"{SETTINGS_FORMAT} (this version's layout)",
                 data.get("settings_format"), "rebuild the folder with this version")
+    data = {**_ADDED_LATER, **data}
     unknown = sorted(set(data) - set(_RECORD) - {"settings_format"})
     if unknown:
         raise InputError("is not a build setting; remove it or rebuild the folder", source=path,
@@ -159,7 +164,8 @@ def read_build_settings(path):
                                            tree.get("carry_registers", 1)),
                 "loadable_weights": bool(port),
                 "weight_bits": integer("weight_port.weight_bits", port.get("weight_bits"), True),
-                "bias_bits": integer("weight_port.bias_bits", port.get("bias_bits"), True)}
+                "bias_bits": integer("weight_port.bias_bits", port.get("bias_bits"), True),
+                "share_terms": False}      # older folders: built before terms were shared
     # A folder from before the input guard was built without one.
     for key, option in (("clamp", "clamp"), ("flag", "range_flag")):
         value = guard.get(key, False)

@@ -41,7 +41,7 @@ class ThresholdBank(PlannedComponent):
             if store is not None:
                 build_tree(m, stages, analysis, features, prefix,
                            store.weights[index], store.biases[index])
-                scores.append(prefix + analysis.nodes[analysis.score_node].name)
+                scores.append(analysis.nodes[analysis.score_node].wire_name(prefix))
                 continue
             if analysis.score_node is None:
                 value = Signal(signed(analysis.score_bits), name=prefix + SCORE_CONST)
@@ -51,7 +51,7 @@ class ThresholdBank(PlannedComponent):
                 continue
             if not parts:
                 build_tree(m, stages, analysis, features, prefix)
-                scores.append(prefix + analysis.nodes[analysis.score_node].name)
+                scores.append(analysis.nodes[analysis.score_node].wire_name(prefix))
                 continue
             build_split_tree(m, stages, analysis, features, parts, bits,
                              self.config.carry_registers, prefix)

@@ -44,6 +44,8 @@ class UnitConfig:
     carry_registers: int = 1         # registers on each carry from one part to the next
     clamp: bool | None = None        # the input guard (guard.py): clamp codes outside the
     range_flag: bool | None = None   # declared ranges, and/or flag them; None: the default
+    share_terms: bool = False        # a shift-add bank's terms that several units need are
+                                     # made once (analysis/shared.py)
 
     def __post_init__(self):
         if not isinstance(self.model, Model):
@@ -59,6 +61,7 @@ class UnitConfig:
                              "its weights cannot be loaded; use the tree or serial architecture",
                              field="loadable_weights")
         self._check_split()
+        self._check_sharing()
         self._resolve_guard()
         self._check_serial()
 
@@ -120,6 +123,21 @@ class UnitConfig:
         if self.carry_registers != 1 and self.split_bits is None:
             raise InputError("applies only to split adders; split them or leave it at 1",
                              field="carry_registers")
+
+    def _check_sharing(self):
+        if not isinstance(self.share_terms, bool):
+            raise InputError(f"must be True or False, not {self.share_terms!r}",
+                             field="share_terms")
+        if self.share_terms and not self.model.is_bank:
+            raise InputError("a single unit has no other unit to share terms with; leave it "
+                             "off", field="share_terms")
+        if self.share_terms and self.arch != "shiftadd":
+            raise InputError(f"terms are shared between shift-add sums, and the {self.arch} "
+                             f"architecture has none; use shiftadd or leave it off",
+                             field="share_terms")
+        if self.share_terms and self.split_bits is not None:
+            raise InputError("shared terms are not built with split adders (for now); leave "
+                             "one of the two off", field="share_terms")
 
     def _resolve_guard(self):
         for key in ("clamp", "range_flag"):

@@ -87,7 +87,8 @@ def plan_design(config):
         raise TypeError(f"config must be a UnitConfig, not {type(config).__name__}")
     model = config.model
     options = dict(score_bits=config.score_bits, arch=config.arch, **_loadable(config))
-    bank = analyse_bank(model, **options) if model.is_bank else None
+    bank = analyse_bank(model, share_terms=config.share_terms, **options) \
+        if model.is_bank else None
     analyses = tuple(bank.units) if bank is not None else (analyse(model, **options),)
     levels = bank.levels if bank is not None else analyses[0].levels
     if config.pipeline == FULL_PIPELINE:

@@ -18,6 +18,7 @@ class Stages:
         self.values = {}
         self.produced = {}
         self.registers = {}
+        self.aliases = {}     # name -> (source, shift): wiring, registers of its own none
 
     def stage_of(self, level):
         return sum(1 for boundary in self.boundaries if boundary < level)
@@ -30,7 +31,19 @@ class Stages:
         self.values[(name, stage)] = value
         self.produced[name] = (stage, value.shape(), shift)
 
+    def alias(self, name, source, shift):
+        """``name`` is ``source << shift`` wherever it is read: a shared term scaled for a
+        unit takes the shared term's registers, not registers of its own."""
+        self.aliases[name] = (source, shift)
+
+    def has(self, name):
+        return name in self.produced or name in self.aliases
+
     def at(self, name, stage):
+        if name in self.aliases:
+            source, shift = self.aliases[name]
+            value = self.at(source, stage)
+            return value << shift if shift else value
         first, shape, shift = self.produced[name]
         carried = self.values[(name, first)][shift:] if shift else None
         for k in range(first + 1, stage + 1):

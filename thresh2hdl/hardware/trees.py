@@ -14,22 +14,29 @@ def node_shape(node):
 
 
 def build_tree(m, stages, analysis, features, prefix="", weights=None, bias=None):
-    """Every node of one unit's plan, each in the stage of its level, put into ``stages``.
+    """Every node of one unit's plan, each in the stage of its level, put into ``stages``
+    (a shared node once for the bank; a scaled node as wiring, an alias of its child).
     ``weights`` and ``bias``: the registers of loadable weights (else the plan's constants)."""
     for node in analysis.nodes:
+        name = node.wire_name(prefix)
+        if node.shared and stages.has(name):
+            continue           # a term shared with a unit built before: made once
         stage = stages.stage_of(node.level)
-        value = Signal(node_shape(node), name=prefix + node.name)
+        children = [analysis.nodes[c].wire_name(prefix) for c in node.children]
+        if node.kind == "scaled":
+            stages.alias(name, children[0], node.magnitude.bit_length() - 1)
+            continue
+        value = Signal(node_shape(node), name=name)
         if weights is not None and node.kind == "product":
             expr = features[node.feature] * weights[node.feature]
         elif weights is not None and node.kind == "bias":
-            expr = stages.at(prefix + analysis.nodes[node.children[0]].name, stage) + bias
+            expr = stages.at(children[0], stage) + bias
         elif node.kind == "product":
             expr = constant_product(node, features)
         else:
-            operands = [stages.at(prefix + analysis.nodes[c].name, stage) for c in node.children]
-            expr = combine(node, analysis, operands)
+            expr = combine(node, analysis, [stages.at(child, stage) for child in children])
         m.d.comb += value.eq(expr)
-        stages.put(prefix + node.name, value, stage, node.register_shift)
+        stages.put(name, value, stage, node.register_shift)
 
 
 class Parts:

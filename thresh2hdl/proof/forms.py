@@ -16,7 +16,7 @@ __all__ = ["Value", "Plan", "check_cover"]
 @dataclass
 class Value:
     name: str
-    kind: str          # input, product, add, sub, rsub, bias, const, max, pick, decision
+    kind: str          # input, product, scaled, add, sub, rsub, bias, const, max, pick, decision
     operands: tuple    # names of other values
     stage: int
     lo: int
@@ -75,33 +75,44 @@ class Plan:
                                constant, **extra))
 
     def _unit(self, analysis, prefix, unit):
-        """The unit's values; a value can be a cut point when its subtree holds every leaf of
-        its features (with shift-add digits a feature has several leaves; a cut between two
-        of them would free values that are tied, and fail a true lemma)."""
+        """The unit's values (a shared one once for the bank, under its own name); a value can
+        be a cut point when its subtree holds every leaf of its features (with shift-add
+        digits a feature has several leaves; a cut between two of them would free values that
+        are tied, and fail a true lemma). Leaves are counted through shared terms, as often
+        as the unit reads them; a shared value is never a cut point."""
         nodes = analysis.nodes
-        leaves, total = {}, {}
+        names = [node.wire_name(prefix) for node in nodes]
+        leaves = {}
         for node in nodes:
             if node.kind == "product":
                 leaves[node.index] = {node.feature: 1}
-                total[node.feature] = total.get(node.feature, 0) + 1
             else:
                 merged = {}
                 for c in node.children:
                     for f, k in leaves[c].items():
                         merged[f] = merged.get(f, 0) + k
                 leaves[node.index] = merged
+        total = leaves[analysis.tree_root] if analysis.tree_root is not None else {}
         for node in nodes:
-            if all(total[f] == k for f, k in leaves[node.index].items()):
-                self.closed.add(prefix + node.name)
+            if not node.shared and all(total[f] == k for f, k in leaves[node.index].items()):
+                self.closed.add(names[node.index])
         for node in nodes:
-            name = prefix + node.name
+            name = names[node.index]
+            if name in self.values:
+                continue                 # shared, planned with an earlier unit
             stage = self.stage_of(node.level)
             if node.kind == "product":
                 self.linear(name, "product", (), stage, {node.feature: node.magnitude},
                             feature=node.feature, magnitude=node.magnitude,
                             register_shift=node.register_shift)
                 continue
-            children = [self.values[prefix + nodes[c].name] for c in node.children]
+            children = [self.values[names[c]] for c in node.children]
+            if node.kind == "scaled":     # wiring: the child shifted left
+                child = children[0]
+                self.linear(name, "scaled", (child.name,), stage,
+                            {f: c * node.magnitude for f, c in child.coeffs.items()},
+                            child.constant * node.magnitude, magnitude=node.magnitude)
+                continue
             if node.kind == "offset":     # child + constant, whatever the child's sign
                 child = children[0]
                 self.linear(name, "bias", (child.name,), stage, dict(child.coeffs),
@@ -127,10 +138,10 @@ class Plan:
         elif analysis.score_node is None:
             self.unit_scores.append((None, 1, analysis.bias))
         elif nodes[analysis.score_node].kind == "bias":
-            self.unit_scores.append((prefix + nodes[analysis.score_node].name, 1, 0))
+            self.unit_scores.append((names[analysis.score_node], 1, 0))
         else:
             root = nodes[analysis.tree_root]
-            self.unit_scores.append((prefix + root.name, root.sign,
+            self.unit_scores.append((names[analysis.tree_root], root.sign,
                                      0 if analysis.bias_folded else analysis.bias))
 
     def _argmax(self, plan):

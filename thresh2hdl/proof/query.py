@@ -112,6 +112,10 @@ class Query:
         value = self.plan.values[name]
         if self.pure:
             return self.formula(name, self.width, "s0")
+        if value.kind == "scaled":
+            # Wiring: its child shifted, read where the child is (its wire or registers).
+            child = self.known(value.operands[0], stage, modulus_bits, state, needed)
+            return self._shifted(child, value.magnitude)
         if stage == value.stage:
             if self.smt.has(name) and (self.holds_exactly(name, name)
                                        or self.smt.widths[name] >= modulus_bits):
@@ -161,6 +165,8 @@ class Query:
 
         if value.kind == "product":
             expr = f"(bvmul {self.feature(value.feature, state)} {bv(value.magnitude, w)})"
+        elif value.kind == "scaled":
+            expr = self._shifted(operand(value.operands[0]), value.magnitude)
         elif value.kind == "const":
             expr = bv(value.constant, w)
         elif value.kind == "flag":
@@ -186,6 +192,10 @@ class Query:
         else:
             raise RuntimeError(f"value kind {value.kind} has no formula")
         return self.define(f"formula {name} {bits} {state}", self._sort(), expr)
+
+    def _shifted(self, expr, magnitude):
+        shift = magnitude.bit_length() - 1
+        return f"(bvshl {expr} {bv(shift, self.width)})" if shift else expr
 
     def low(self, expr, bits):
         """The low ``bits`` of a wide expression, shaped like a ``bits``-wide wire."""

@@ -13,10 +13,11 @@ from ..hardware import weight_addresses
 from ..model import model_to_toml
 from ..verify import ReferenceModel, TestbenchFiles
 from .design import Datapath, FeatureRow, Sizes
-from .fields import Table, plain
+from .fields import Table, plain, present
 from .record import GuardSection, Report, Testbench, Verification, WeightPort
 from .sections import DataSummary, Histogram, ProofSection, QuantizationLog, TrainingLog
-from .tables import argmax_report, level_names, node_table, stages_report, unit_histograms
+from .tables import (argmax_report, level_names, node_table, shared_report, stages_report,
+                     unit_histograms)
 
 __all__ = ["build_report", "model_digest", "data_summary", "guard_report"]
 
@@ -106,7 +107,8 @@ def _units_report(model, analyses, component, verilog_text):
             "class_bits": component.bank.class_bits,
             "tree": {**_tree_report(component, model, verilog_text),
                      "argmax_levels": component.bank.argmax_levels,
-                     "argmax": argmax_report(component, model)},
+                     "argmax": argmax_report(component, model),
+                     **present([("shared_terms", shared_report(component, model))])},
             "units": units}
 
 

@@ -7,7 +7,7 @@ from ..train import digits_per_unit
 from .fields import present
 
 __all__ = ["FeatureRow", "UnitSizes", "Sizes", "Stage", "Node", "Comparison", "SplitAdders",
-           "Datapath"]
+           "SharedTerm", "SharedTerms", "Datapath"]
 
 
 @dataclass(frozen=True)
@@ -206,6 +206,44 @@ class SplitAdders:
 
 
 @dataclass(frozen=True)
+class SharedTerm:
+    """A term several units of a shift-add bank share: its definition, width, exact range and
+    the units that read it (directly or inside another shared term)."""
+    name: str
+    definition: str
+    bits: int
+    range: tuple
+    units: tuple
+
+    def to_json(self):
+        return {"name": self.name, "definition": self.definition, "bits": self.bits,
+                "range": list(self.range), "units": list(self.units)}
+
+    @classmethod
+    def from_json(cls, table):
+        return cls(table.text("name"), table.text("definition"),
+                   table.integer("bits", low=1, high=1 << 16), table.pair("range"),
+                   table.texts("units"))
+
+
+@dataclass(frozen=True)
+class SharedTerms:
+    """A bank's shared terms and its adders with and without them (the bias aside)."""
+    adders_with: int
+    adders_without: int
+    terms: tuple
+
+    def to_json(self):
+        return {"adders_with": self.adders_with, "adders_without": self.adders_without,
+                "terms": [t.to_json() for t in self.terms]}
+
+    @classmethod
+    def from_json(cls, table):
+        return cls(table.count("adders_with"), table.count("adders_without"),
+                   tuple(map(SharedTerm.from_json, table.tables("terms"))))
+
+
+@dataclass(frozen=True)
 class Datapath:
     """The datapath: its levels (the one count, from 0), the register stages after them and
     every node; the split adders and, for a bank, the argmax."""
@@ -217,6 +255,7 @@ class Datapath:
     split: SplitAdders | None = None
     argmax_levels: int | None = None
     argmax: tuple | None = None          # a bank's comparisons
+    shared: SharedTerms | None = None    # a bank's shared terms, when it shares them
 
     def to_json(self):
         stages = {} if self.stages is None else {
@@ -229,7 +268,8 @@ class Datapath:
                 **(self.split.to_json() if self.split else {}),
                 **({} if self.argmax is None else {
                     "argmax_levels": self.argmax_levels,
-                    "argmax": [c.to_json() for c in self.argmax]})}
+                    "argmax": [c.to_json() for c in self.argmax]}),
+                **({} if self.shared is None else {"shared_terms": self.shared.to_json()})}
 
     @classmethod
     def from_json(cls, table, bank):
@@ -237,6 +277,7 @@ class Datapath:
         if stages is not None:
             stages = tuple(Stage(s.count("stage"), *s.pair("levels")) for s in stages)
         argmax = table.tables("argmax", None) if bank else None
+        shared = table.table("shared_terms", None) if bank else None
         return cls(table.text("arch"), table.count("levels"),
                    tuple(map(Node.from_json, table.tables("nodes"))),
                    table.texts("level_names", None), stages,
@@ -245,4 +286,5 @@ class Datapath:
                        table.count("carry_registers", None), table.count("result_parts", None),
                        table.count("split_adders", None)),
                    table.count("argmax_levels", None) if bank else None,
-                   None if argmax is None else tuple(map(Comparison.from_json, argmax)))
+                   None if argmax is None else tuple(map(Comparison.from_json, argmax)),
+                   None if shared is None else SharedTerms.from_json(shared))

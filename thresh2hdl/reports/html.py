@@ -6,7 +6,7 @@ from html import escape
 from ..cost import CELL_NAMES
 from .drawings import (histogram_chart, polyline_chart, score_line, tree_picture,
                        unit_histogram_panels)
-from .phrases import digits_text, entry_text, levels_text, split_text, stages_text
+from .phrases import digits_text, entry_text, levels_text, shared_text, split_text, stages_text
 from .record import report_record
 
 __all__ = ["report_html", "TREE_PICTURE_MOST"]
@@ -82,7 +82,8 @@ def _sizes_html(report):
         ["valid beats per result", 1 if beats is None else beats],
         ["levels", levels_text(datapath) if datapath.level_names is not None else
          datapath.levels], ["register stages", stages_text(report)],
-        *([["split adders", split]] if split else [])]),
+        *([["split adders", split]] if split else []),
+        *([["shared terms", shared_text(datapath)]] if datapath.shared else [])]),
         "<h3>Score range</h3>",
         score_line(sizes.score_range, report.data and report.data.score_seen, sizes.is_bank),
         "<h3>Datapath</h3>", _datapath_html(report)]
@@ -94,7 +95,8 @@ def _levels_table(datapath):
     argmax = datapath.argmax or ()
     rows = []
     for level, name in enumerate(datapath.level_names or ()):
-        values = [n for n in datapath.nodes if n.level == level]
+        # (a shared term is listed under each unit that reads it: counted once)
+        values = list({n.name: n for n in datapath.nodes if n.level == level}.values())
         bits = sorted({n.bits for n in values})
         count = len(values) + sum(1 for c in argmax if c.level == level)
         stage = next((s for s in stages if s.first <= level <= s.last), None)
@@ -131,6 +133,11 @@ def _datapath_html(report):
                        f"{escape(str(label))}): {len(nodes)} values</summary>{picture}"
                        f"</details>")
         out.append(picture)
+    if datapath.shared:
+        out += ["<h3>Shared terms</h3>", "<div class=wide>" + _table(
+            ["term", "definition", "bits", "range", "units"],
+            [[t.name, t.definition, t.bits, f"[{t.range[0]}, {t.range[1]}]", ", ".join(t.units)]
+             for t in datapath.shared.terms]) + "</div>"]
     if datapath.argmax:
         out += ["<h3>Argmax</h3>", "<p>Each comparison takes its left input when left &ge; "
                 "right, so a tie goes to the lower class index; the last one gives the "

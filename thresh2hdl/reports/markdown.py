@@ -1,8 +1,8 @@
 """report.md: the report for review threads, read from the report record like report.json and
 report.html."""
 
-from .phrases import (cost_text, digits_text, entry_text, guard_text, levels_text, split_text,
-                      stages_text)
+from .phrases import (cost_text, digits_text, entry_text, guard_text, levels_text, shared_text,
+                      split_text, stages_text)
 from .record import report_record
 
 __all__ = ["report_markdown"]
@@ -41,6 +41,7 @@ def report_markdown(report):
              *([f"| codes outside the declared ranges | {guard_text(report.input_guard)} |"]
                if report.input_guard else []),
              *([f"| split adders | {split} |"] if split else []),
+             *([f"| shared terms | {shared_text(datapath)} |"] if datapath.shared else []),
              f"| vectors checked | {v.vectors_checked} |",
              f"| mismatches | {v.mismatches} |",
              f"| simulator | {v.simulator_version} |"]
@@ -59,6 +60,11 @@ def report_markdown(report):
               "| --- | --- | --- | --- | --- | --- |"]
     lines += [f"| {n.name} | {n.level} | {n.stage or '-'} | {n.bits} | "
               f"[{n.range[0]}, {n.range[1]}] | {n.verilog or ''} |" for n in datapath.nodes]
+    if datapath.shared:
+        lines += ["", "| shared term | definition | bits | range | units |",
+                  "| --- | --- | --- | --- | --- |"]
+        lines += [f"| {t.name} | {_cell(t.definition)} | {t.bits} | [{t.range[0]}, "
+                  f"{t.range[1]}] | {', '.join(t.units)} |" for t in datapath.shared.terms]
     if datapath.argmax:
         lines += ["", "Argmax: each comparison takes the left input when left >= right (a tie "
                   "goes to the lower class index).", "",

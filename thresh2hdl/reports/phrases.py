@@ -5,8 +5,8 @@ from ..cost import CELL_NAMES
 from .fields import Table
 from .estimates import CostEstimate
 
-__all__ = ["count", "digits_text", "levels_text", "stages_text", "split_text", "guard_text", "entry_text",
-           "cost_text"]
+__all__ = ["count", "digits_text", "levels_text", "stages_text", "split_text", "shared_text",
+           "guard_text", "entry_text", "cost_text"]
 
 
 def count(number, noun):
@@ -62,6 +62,15 @@ def split_text(datapath):
               if datapath.argmax is not None else "the result in {} part(s)").format(parts)
     return (f"{adders} in parts of {split.split_bits} bits, {carry} register(s) on each "
             f"carry; {result}")
+
+
+def shared_text(datapath):
+    """A bank's shared terms in a phrase, or None."""
+    shared = datapath.shared
+    if shared is None:
+        return None
+    return (f"{count(len(shared.terms), 'term')} made once for the units that need them: "
+            f"{shared.adders_with} adders ({shared.adders_without} without sharing)")
 
 
 def guard_text(guard):

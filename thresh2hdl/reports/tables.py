@@ -6,11 +6,12 @@ import re
 
 import numpy as np
 
+from ..analysis import shared_name
 from ..emit import port_table
 from .sections import Histogram, UnitHistogram
 
-__all__ = ["level_names", "stages_report", "node_table", "argmax_report", "unit_histograms",
-           "NO_WIRE"]
+__all__ = ["level_names", "stages_report", "node_table", "argmax_report", "shared_report",
+           "unit_histograms", "NO_WIRE"]
 
 
 def level_names(component):
@@ -94,8 +95,9 @@ def _guarded_input(component, port, feature, declared):
 
 def node_table(component, model, verilog_text):
     """Every datapath value of every unit, named as in the Verilog (a bank's units with
-    ``u{index}_``), with its level and register stage in the one count, its children, and
-    where ``verilog_text`` (the emitted module) holds it."""
+    ``u{index}_``, a shared term by its own name, in each unit that reads it), with its
+    level and register stage in the one count, its children, and where ``verilog_text``
+    (the emitted module) holds it."""
     ports = {port.name for port in port_table(component, model)}
     declared = set(_DECLARED.findall(verilog_text))
     plan = component.bank
@@ -103,8 +105,12 @@ def node_table(component, model, verilog_text):
     rows = []
     for index, analysis in enumerate(units):
         prefix = f"u{index}_" if model.is_bank else ""
-        names = {node.index: prefix + node.name for node in analysis.nodes}
+        names = {node.index: node.wire_name(prefix) for node in analysis.nodes}
+        places = {}
         for node in analysis.nodes:
+            places[node.index] = _scaled_place(node, places) if node.kind == "scaled" else \
+                _wire(node, names[node.index], component, model,
+                      index if model.is_bank else None, ports, declared)
             rows.append({
                 "name": names[node.index],
                 **({"unit": model.units[index].name} if model.is_bank else {}),
@@ -112,9 +118,16 @@ def node_table(component, model, verilog_text):
                 "stage": component.level_stage(node.level),
                 "range": [node.lo, node.hi], "bits": node.bits, "signed": node.is_signed,
                 "sign": node.sign, "children": [names[c] for c in node.children],
-                "verilog": _wire(node, names[node.index], component, model,
-                                 index if model.is_bank else None, ports, declared)})
+                "verilog": places[node.index]})
     return rows
+
+
+def _scaled_place(node, places):
+    """A scaled node is wiring: its child's wire, shifted."""
+    child, shift = places[node.children[0]], node.magnitude.bit_length() - 1
+    if not shift or child == NO_WIRE or child.startswith("none"):
+        return child
+    return f"{child} << {shift}" if child.isidentifier() else f"({child}) << {shift}"
 
 
 def argmax_report(component, model):
@@ -149,6 +162,25 @@ def argmax_report(component, model):
     if comparisons:     # the last one's class goes straight to the decision
         comparisons[-1]["verilog"] = f"the decision {model.ports.decision}"
     return comparisons
+
+
+def shared_report(component, model):
+    """A bank's shared terms (None when it shares none): each one's definition, width, exact
+    range and the units that read it; and the adders with and without sharing."""
+    sharing = component.bank.sharing if component.bank is not None else None
+    if sharing is None:
+        return None
+    nodes = {node.name: node for unit in component.bank.units for node in unit.nodes
+             if node.shared}
+    names = [f.name for f in model.features]
+    terms = []
+    for index, definition in enumerate(sharing.definition(names)):
+        node = nodes[shared_name(index)]
+        terms.append({"name": node.name, "definition": definition, "bits": node.bits,
+                      "range": [node.lo, node.hi],
+                      "units": [model.units[u].name for u in sharing.users(index)]})
+    return {"adders_with": sharing.adders_with, "adders_without": sharing.adders_without,
+            "terms": terms}
 
 
 def unit_histograms(model, scores, labels, bins=30):

@@ -1,6 +1,6 @@
 """The report's short form, for the terminal after a build."""
 
-from .phrases import digits_text, levels_text, stages_text
+from .phrases import digits_text, levels_text, shared_text, stages_text
 from .record import SAFETY_CAUTION, report_record
 
 __all__ = ["summary_lines"]
@@ -27,6 +27,8 @@ def summary_lines(report):
         f"  verified in {verification.simulator_version}: {verification.vectors_checked} "
         f"vectors over {verification.cycles} cycles, {verification.mismatches} mismatches",
     ]
+    if datapath.shared:
+        lines.append(f"  shared: {shared_text(datapath)}")
     guard = report.input_guard
     if guard and guard.needed:
         what = " and ".join(word for word, on in (("clamped", guard.clamp),
