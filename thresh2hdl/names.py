@@ -4,10 +4,17 @@ of the signals that the circuit makes and the proof reads (one definition for bo
 import re
 
 __all__ = ["VERILOG_KEYWORDS", "check_identifier", "GUARD_FLAG", "SCORE_CONST", "register_name",
-           "valid_name", "unit_prefix", "argmax_names"]
+           "valid_name", "unit_prefix", "argmax_names", "argmax_compare_name",
+           "flag_part_name"]
 
 GUARD_FLAG = "guard_flag"     # the input guard's out-of-range flag, made at the inputs
 SCORE_CONST = "score_const"   # a bank unit's score when every weight is 0 (after its prefix)
+
+
+def flag_part_name(layer, group, last):
+    """Group ``group`` of layer ``layer`` of the out-of-range flag's OR tree; the flag itself
+    when it is the ``last`` layer's one group."""
+    return GUARD_FLAG if last else f"{GUARD_FLAG}{layer}_{group}"
 
 
 def register_name(value, stage):
@@ -28,6 +35,11 @@ def unit_prefix(index):
 def argmax_names(tag):
     """The winning score and its class of the argmax comparison ``tag``."""
     return f"{tag}_score", f"{tag}_class"
+
+
+def argmax_compare_name(tag):
+    """Whether the left input wins the argmax comparison ``tag`` (a tie included)."""
+    return f"{tag}_left_wins"
 
 # Reserved words of IEEE 1364-2005 (Verilog) plus IEEE 1800-2017 (SystemVerilog), so that a name
 # accepted here is also usable when the file is read by a SystemVerilog front end. From the

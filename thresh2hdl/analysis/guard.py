@@ -39,6 +39,35 @@ class InputGuard:
         return tuple(i for i, (r, c) in enumerate(zip(self.feature_ranges, self.code_ranges))
                      if r != c)
 
+    def tests_of(self, index):
+        """How many comparisons tell whether feature ``index`` is outside its range (0 to 2:
+        below its low bound, above its high one, each only where the port can go there)."""
+        (lo, hi), (code_lo, code_hi) = self.feature_ranges[index], self.code_ranges[index]
+        return int(lo > code_lo) + int(hi < code_hi)
+
+    @property
+    def flag_layers(self):
+        """The out-of-range flag as a tree of ORs of at most four inputs, a LUT4 each (common
+        practice): layer 0 groups the features' comparisons (a tuple of feature indices per
+        group), each later layer groups the layer below (a tuple of its group indices); the
+        last layer has one group, the flag. The circuit makes layer ``j`` with the datapath's
+        level ``j``, so that register stages cut the tree where they cut the adders."""
+        groups, current, tests = [], [], 0
+        for index in self.tight:
+            count = self.tests_of(index)
+            if current and tests + count > 4:
+                groups.append(tuple(current))
+                current, tests = [], 0
+            current.append(index)
+            tests += count
+        if current or not groups:
+            groups.append(tuple(current))      # (with nothing to test, one empty group: 0)
+        layers = [tuple(groups)]
+        while len(layers[-1]) > 1:
+            below = len(layers[-1])
+            layers.append(tuple(tuple(range(k, min(k + 4, below))) for k in range(0, below, 4)))
+        return tuple(layers)
+
     @property
     def every_code_defined(self):
         """Whether the decision and score are specified for every port code."""

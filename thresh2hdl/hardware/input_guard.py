@@ -5,7 +5,7 @@ resolved in :mod:`thresh2hdl.analysis.guard`)."""
 from amaranth.hdl import Cat, Const, Mux, Signal, signed, unsigned
 
 from ..analysis import value_bits
-from ..names import GUARD_FLAG, register_name
+from ..names import GUARD_FLAG, flag_part_name, register_name
 
 __all__ = ["guard_inputs", "guard_sample"]
 
@@ -17,7 +17,7 @@ def guard_inputs(m, stages, features, config):
     guard = config.guard
     if not (guard.clamp or guard.flag):
         return list(features)
-    guarded, outside = [], []
+    guarded, outside = [], {}
     for index, (port, feature) in enumerate(zip(features, config.model.features)):
         (lo, hi), (code_lo, code_hi) = guard.feature_ranges[index], guard.code_ranges[index]
         below = above = None
@@ -27,7 +27,7 @@ def guard_inputs(m, stages, features, config):
         if hi < code_hi:
             above = Signal(name=f"{feature.name}_above")
             m.d.comb += above.eq(port > hi)
-        outside += [test for test in (below, above) if test is not None]
+        outside[index] = [test for test in (below, above) if test is not None]
         if not guard.clamp or (below is None and above is None):
             guarded.append(port)
             continue
@@ -42,10 +42,28 @@ def guard_inputs(m, stages, features, config):
         m.d.comb += value.eq(clamped)
         guarded.append(value)
     if config.range_flag:
-        flag = Signal(name=GUARD_FLAG)
-        m.d.comb += flag.eq(Cat(*outside).any() if outside else 0)
-        stages.put(flag.name, flag, 0)
+        _flag_tree(m, stages, guard, outside)
     return guarded
+
+
+def _flag_tree(m, stages, guard, outside):
+    """The out-of-range flag, an OR tree laid out by ``guard.flag_layers``, layer ``j`` in
+    the stage of level ``j``: a wide OR over many ports is no longer one stage's path."""
+    layers = guard.flag_layers
+    below = []
+    for j, layer in enumerate(layers):
+        made = []
+        for k, group in enumerate(layer):
+            name = flag_part_name(j, k, j == len(layers) - 1)
+            if j == 0:
+                inputs = [test for index in group for test in outside[index]]
+            else:
+                inputs = [stages.at(below[c], stages.stage_of(j)) for c in group]
+            part = Signal(name=name)
+            m.d.comb += part.eq(Cat(*inputs).any() if inputs else 0)
+            stages.put(name, part, 0 if j == 0 else stages.stage_of(j))
+            made.append(name)
+        below = made
 
 
 

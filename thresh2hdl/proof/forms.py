@@ -8,7 +8,7 @@ and bias, term for term.
 
 from dataclasses import dataclass
 
-from ..names import GUARD_FLAG, SCORE_CONST, argmax_names, unit_prefix
+from ..names import SCORE_CONST, argmax_names, flag_part_name, unit_prefix
 
 __all__ = ["Value", "Plan", "check_cover"]
 
@@ -16,7 +16,7 @@ __all__ = ["Value", "Plan", "check_cover"]
 @dataclass
 class Value:
     name: str
-    kind: str          # input, product, scaled, add, sub, rsub, bias, const, max, pick, decision
+    kind: str          # input, product, scaled, add, sub, rsub, bias, const, max, pick, flag
     operands: tuple    # names of other values
     stage: int
     lo: int
@@ -29,6 +29,7 @@ class Value:
     first: int = 0     # argmax values: the unit indices they cover
     last: int = 0
     register_shift: int = 0   # a shifted input's registers carry value >> register_shift
+    features: tuple = ()      # a flag of the inputs: the features whose codes it tests
 
 
 def _form_range(coeffs, constant, ranges):
@@ -57,8 +58,18 @@ class Plan:
             self._unit(analysis, prefix, model.units[index] if model.is_bank else model.unit)
         self.guard = component.config.guard
         if self.guard.flag:
-            # The out-of-range flag: made at the inputs (stage 0), carried with the result.
-            self.add(Value(GUARD_FLAG, "flag", (), 0, 0, 1, False))
+            # The out-of-range flag: an OR tree whose layer j is made with level j (layer 0
+            # from the inputs' comparisons), then carried with the result.
+            layers, below = self.guard.flag_layers, []
+            for j, layer in enumerate(layers):
+                made = []
+                for k, group in enumerate(layer):
+                    name = flag_part_name(j, k, j == len(layers) - 1)
+                    operands = () if j == 0 else tuple(below[c] for c in group)
+                    self.add(Value(name, "flag", operands, 0 if j == 0 else self.stage_of(j),
+                                   0, 1, False, features=group if j == 0 else ()))
+                    made.append(name)
+                below = made
         self.final_stage = self.stage_of(component.final_level)
         if model.is_bank:
             self.class_value = self._argmax(component.bank)

@@ -42,7 +42,7 @@ import time
 from pathlib import Path
 
 from ..analysis import signed_bits
-from ..names import GUARD_FLAG, register_name
+from ..names import register_name
 from ..tools import find_tool, warm_up
 from .forms import Plan
 from .lemmas import lemmas_of
@@ -224,9 +224,11 @@ class _Proof:
         common += [f"(assert {a})" for a in assumptions]
         # With the flag alone (no clamp), results are stated for inputs in range only,
         # but the flag for every code: its lemmas are checked without the input ranges.
-        flag_labels = {GUARD_FLAG, ports["out_of_range"][0]} if "out_of_range" in ports \
-            else set()
-        flag_labels |= {register_name(GUARD_FLAG, k) for k in range(1, plan.latency + 1)}
+        flags = [name for name, value in plan.values.items() if value.kind == "flag"]
+        flag_labels = set(flags) | ({ports["out_of_range"][0]} if "out_of_range" in ports
+                                    else set())
+        flag_labels |= {register_name(name, k) for name in flags
+                        for k in range(1, plan.latency + 1)}
         free = [l for l in lemmas if l[0] in flag_labels]
         groups = [("\n".join(common + [f"(assert {a})" for a in inputs]),
                    [l for l in lemmas if l not in free]), ("\n".join(common), free)]

@@ -67,10 +67,11 @@ class Query:
                            f"(ite (bvslt {code} {bv(lo, w)}) {bv(lo, w)} "
                            f"(ite (bvsgt {code} {bv(hi, w)}) {bv(hi, w)} {code}))")
 
-    def outside(self, state="s0"):
-        """Bool: some feature's code lies outside its declared range."""
+    def outside(self, state="s0", features=None):
+        """Bool: some feature's code (of ``features``, else of all) lies outside its declared
+        range."""
         guard, w, tests = self.plan.guard, self.width, []
-        for index in guard.tight:
+        for index in guard.tight if features is None else features:
             (lo, hi), (code_lo, code_hi) = guard.feature_ranges[index], guard.code_ranges[index]
             x = self.code(index, state)
             if lo > code_lo:
@@ -169,8 +170,11 @@ class Query:
             expr = self._shifted(operand(value.operands[0]), value.magnitude)
         elif value.kind == "const":
             expr = bv(value.constant, w)
+        elif value.kind == "flag" and value.operands:      # an OR of flags below
+            anyone = " ".join(f"(= {operand(o)} {bv(1, w)})" for o in value.operands)
+            expr = f"(ite (or false {anyone}) {bv(1, w)} {bv(0, w)})"
         elif value.kind == "flag":
-            expr = f"(ite {self.outside(state)} {bv(1, w)} {bv(0, w)})"
+            expr = f"(ite {self.outside(state, value.features)} {bv(1, w)} {bv(0, w)})"
         elif value.kind in ("add", "sub", "rsub"):
             a, b = (operand(o) for o in value.operands)
             expr = {"add": f"(bvadd {a} {b})", "sub": f"(bvsub {a} {b})",
