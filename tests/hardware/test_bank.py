@@ -195,8 +195,9 @@ def test_full_pipeline_is_resolved_when_the_design_is_planned():
 
 def test_register_stages_weigh_argmax_levels_and_are_the_best_spread():
     # Exhaustive check (every placement of the stages, enumerated here): the slowest stage is
-    # as light as any placement can make it, counting an argmax level as two adder levels.
-    from thresh2hdl.hardware.plan import ARGMAX_LEVEL_WEIGHT, register_boundaries
+    # as light as any placement can make it, counting an argmax comparison as two adder
+    # levels.
+    from thresh2hdl.hardware.plan import ARGMAX_LEVEL_WEIGHT, level_weights, register_boundaries
 
     def heaviest(weights, boundaries):
         start, most = 0, 0
@@ -206,8 +207,8 @@ def test_register_stages_weigh_argmax_levels_and_are_the_best_spread():
 
     rng = random.Random(3)
     for _ in range(200):
-        adders, argmax = rng.randint(1, 7), rng.randint(1, 4)
-        weights = [1] * adders + [ARGMAX_LEVEL_WEIGHT] * argmax
+        adders, rounds = rng.randint(1, 7), rng.randint(1, 3)
+        weights = [1] * adders + [ARGMAX_LEVEL_WEIGHT, 1] * rounds
         last = len(weights) - 1
         for pipeline in range(1, len(weights) + 1):
             got = register_boundaries(last, pipeline, weights)
@@ -220,11 +221,17 @@ def test_register_stages_weigh_argmax_levels_and_are_the_best_spread():
         for pipeline in range(1, levels + 1):
             assert register_boundaries(levels - 1, pipeline) == tuple(
                 -(-(j * levels) // pipeline) - 1 for j in range(1, pipeline + 1))
-    # A bank's plan spreads its stages so: with one stage an argmax level, no two share one.
+    # A bank's plan: a round of the argmax is a comparison (weighing two) then a selection
+    # (one); with stages enough for no stage to weigh more than two, each comparison has a
+    # stage of its own, apart from its selection.
     model = bank_model([[3, -1, 2, 5], [0, 4, -2, 1], [1, 1, 1, -3], [2, -5, 1, 1]],
                        [5, 0, -3, 2])
     plan = analyse_bank(model, arch="shiftadd")
-    design = planned(model, arch="shiftadd", pipeline=plan.argmax_levels + 2)
-    argmax_stages = [design.level_stage(level)
-                     for level in range(plan.score_level + 1, plan.final_level + 1)]
-    assert len(set(argmax_stages)) == len(argmax_stages)
+    weights = level_weights(plan.levels, plan)
+    assert weights[plan.score_level + 1:] == [ARGMAX_LEVEL_WEIGHT, 1] * (plan.argmax_levels // 2)
+    pipeline = next(p for p in range(1, plan.levels + 1)
+                    if heaviest(weights, register_boundaries(plan.levels - 1, p, weights)) <= 2)
+    design = planned(model, arch="shiftadd", pipeline=pipeline)
+    stages = [design.level_stage(level)
+              for level in range(plan.score_level + 1, plan.final_level + 1)]
+    assert len(set(stages)) == len(stages) == plan.argmax_levels

@@ -136,13 +136,14 @@ def test_bank_report_shows_the_argmax_comparisons(bank_built):
     report = json.loads((out / "report.json").read_text())
     tree = report["tree"]
     comparisons = tree["argmax"]
-    # The tournament as documented: neighbours compared level by level, the lower indices on
-    # the left, an odd last entry carried up; three levels after the scores for five units.
-    first = tree["levels"] - 3
+    # The tournament as documented: neighbours compared round by round, the lower indices on
+    # the left, an odd last entry carried up; three rounds after the scores for five units,
+    # each a level of comparisons and a level of selections.
+    first = tree["levels"] - 6
     gold = [(first, ["0"], ["1"]), (first, ["2"], ["3"]),
-            (first + 1, ["0", "1"], ["2", "3"]), (first + 2, ["0", "1", "2", "3"], ["4"])]
+            (first + 2, ["0", "1"], ["2", "3"]), (first + 4, ["0", "1", "2", "3"], ["4"])]
     assert [(c["level"], c["left_classes"], c["right_classes"]) for c in comparisons] == gold
-    assert tree["level_names"][first:] == ["argmax"] * 3
+    assert tree["level_names"][first:] == ["argmax comparisons", "argmax selections"] * 3
     for c in comparisons:
         stage = next(s for s in tree["stages"] if s["levels"][0] <= c["level"] <= s["levels"][1])
         assert c["stage"] == stage["stage"] and c["ties_to"] == "left"
@@ -188,6 +189,7 @@ def svg_of(text, label):
 
 def test_datapath_is_drawn_as_the_tree(bank_built, built):
     svg = "{http://www.w3.org/2000/svg}"
+    drawn = 0
     for out in (built, bank_built[0]):
         report = json.loads((out / "report.json").read_text())
         text = (out / "report.html").read_text()
@@ -205,7 +207,13 @@ def test_datapath_is_drawn_as_the_tree(bank_built, built):
                     f"[{node['range'][0]}, {node['range'][1]}]" in shown
             edges = picture.findall(f"{svg}path[@class='edge']")
             assert len(edges) == sum(len(n["children"]) for n in nodes) > 0
-            assert len(picture.findall(f"{svg}line[@class='stage']")) >= 1
+            # A dashed line after each level a register stage follows, within the picture.
+            low, high = min(n["level"] for n in nodes), max(n["level"] for n in nodes)
+            after = [s["levels"][1] for s in report["tree"]["stages"]]
+            lines = len(picture.findall(f"{svg}line[@class='stage']"))
+            assert lines == sum(1 for level in after if low <= level <= high)
+            drawn += lines
+    assert drawn >= 1
 
 
 def test_a_tree_too_large_to_draw_is_left_to_the_tables(tmp_path):

@@ -20,7 +20,7 @@ class BankPlan:
 
     units: tuple          # one Analysis per unit
     class_bits: int       # width of the class index
-    argmax_levels: int
+    argmax_levels: int    # two a round of comparisons: the comparisons, then the selections
     sharing: object = None   # the SharingPlan of a shift-add bank sharing terms, else None
 
     @property
@@ -42,13 +42,16 @@ class BankPlan:
         return 1 if self.units[0].arch == "serial" else self.final_level + 1
 
     def tournament(self, scores, merge):
-        """The argmax as planned: neighbours compared level by level, the lower index on the
-        left (it wins ties), an odd last entry carried up unpaired. ``merge(level, tag, left,
-        right)`` makes the winner entry of two; returns the final entry."""
-        layer, level = list(scores), self.score_level
+        """The argmax as planned: neighbours compared round by round, the lower index on the
+        left (it wins ties), an odd last entry carried up unpaired. A round takes two levels:
+        the comparisons, then the selection of each winner, so that a register stage can sit
+        between a comparator's carry chain and the multiplexers its result drives.
+        ``merge(level, tag, left, right)`` makes the winner entry of two, comparing at
+        ``level`` and selecting at ``level + 1``; returns the final entry."""
+        layer, level, round_ = list(scores), self.score_level, 0
         while len(layer) > 1:
-            level += 1
-            merged = [merge(level, f"best{level - self.score_level}_{k // 2}", layer[k],
+            level, round_ = level + 2, round_ + 1
+            merged = [merge(level - 1, f"best{round_}_{k // 2}", layer[k],
                             layer[k + 1]) for k in range(0, len(layer) - 1, 2)]
             if len(layer) % 2:
                 merged.append(layer[-1])
@@ -77,4 +80,4 @@ def analyse_bank(model, *, score_bits=None, arch="tree", weight_range=None, bias
         units.append(own)
     count = len(units)
     return BankPlan(units=tuple(units), class_bits=max(1, (count - 1).bit_length()),
-                    argmax_levels=(count - 1).bit_length(), sharing=sharing)
+                    argmax_levels=2 * (count - 1).bit_length(), sharing=sharing)

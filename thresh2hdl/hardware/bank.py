@@ -3,7 +3,7 @@
 
 from amaranth.hdl import Cat, Const, Module, Mux, Signal, signed
 
-from ..names import GUARD_FLAG, SCORE_CONST, argmax_names, unit_prefix
+from ..names import GUARD_FLAG, SCORE_CONST, argmax_compare_name, argmax_names, unit_prefix
 from .component import PlannedComponent
 from .input_guard import guard_inputs
 from .stages import Stages, handshake
@@ -61,13 +61,18 @@ class ThresholdBank(PlannedComponent):
         # Argmax: a tree of comparisons; the left (lower index) wins ties.
         def merge(level, name, left_entry, right_entry):
             (_, left, left_index), (_, right, right_index) = left_entry, right_entry
-            stage = stages.stage_of(level) + wait
+            compared = stages.stage_of(level) + wait
+            a, b = stages.at(left, compared), stages.at(right, compared)
+            left_wins = Signal(name=argmax_compare_name(name))
+            m.d.comb += left_wins.eq(a >= b)
+            stages.put(left_wins.name, left_wins, compared)
+            stage = stages.stage_of(level + 1) + wait
             a, b = stages.at(left, stage), stages.at(right, stage)
             width = max(len(a) + (not a.shape().signed), len(b) + (not b.shape().signed))
             score_name, class_name = argmax_names(name)
             score = Signal(signed(width), name=score_name)
             index = Signal(plan.class_bits, name=class_name)
-            take_left = a >= b
+            take_left = stages.at(left_wins.name, stage)
             li = left_index if isinstance(left_index, Const) else stages.at(left_index, stage)
             ri = right_index if isinstance(right_index, Const) else stages.at(right_index, stage)
             m.d.comb += [score.eq(Mux(take_left, a, b)), index.eq(Mux(take_left, li, ri))]

@@ -139,11 +139,11 @@ def _check_pipeline(config, levels):
                          f"{FULL_PIPELINE!r} for one after every level", field="pipeline")
 
 
-# The delay of an argmax level against an adder level's, as the register stages are spread:
-# a comparison's carry chain, then a multiplexer whose select fans out to the score and index
-# bits. Measured here once (Yosys 0.70, nextpnr 0.11, iCE40 UP5K, a 64-input 5-unit shift-add
-# bank at 4 stages): the three argmax levels left in one stage took 41.8 ns, about 13 ns each,
-# where an adder level takes 6 to 8 ns.
+# The delay of an argmax comparison against an adder level's, as the register stages are
+# spread: a carry chain across the score's width and the route of its result to every
+# multiplexer of the selection. Measured here (Yosys 0.70, nextpnr 0.11, iCE40 UP5K, 64-input
+# shift-add banks): a comparison and its selection in one stage took 13 to 18.6 ns, an adder
+# level 6 to 8 ns.
 ARGMAX_LEVEL_WEIGHT = 2
 
 
@@ -191,10 +191,11 @@ def _stages_needed(weights, bound):
 
 
 def level_weights(levels, bank):
-    """The delay weight of each level: an argmax level :data:`ARGMAX_LEVEL_WEIGHT`, any other
-    one."""
+    """The delay weight of each level: an argmax comparison :data:`ARGMAX_LEVEL_WEIGHT`, any
+    other level (an adder, an argmax selection) one."""
     first_argmax = levels if bank is None or levels == 1 else bank.score_level + 1
-    return [ARGMAX_LEVEL_WEIGHT if level >= first_argmax else 1 for level in range(levels)]
+    return [ARGMAX_LEVEL_WEIGHT if level >= first_argmax and (level - first_argmax) % 2 == 0
+            else 1 for level in range(levels)]
 
 
 def adder_parts(analysis, split_bits):

@@ -8,7 +8,7 @@ and bias, term for term.
 
 from dataclasses import dataclass
 
-from ..names import SCORE_CONST, argmax_names, flag_part_name, unit_prefix
+from ..names import SCORE_CONST, argmax_compare_name, argmax_names, flag_part_name, unit_prefix
 
 __all__ = ["Value", "Plan", "check_cover"]
 
@@ -16,7 +16,8 @@ __all__ = ["Value", "Plan", "check_cover"]
 @dataclass
 class Value:
     name: str
-    kind: str          # input, product, scaled, add, sub, rsub, bias, const, max, pick, flag
+    kind: str          # input, product, scaled, add, sub, rsub, bias, const, compare, max, pick,
+                       # flag
     operands: tuple    # names of other values
     stage: int
     lo: int
@@ -165,13 +166,16 @@ class Plan:
 
         def merge(level, tag, left, right):
             (a, ia, first, _), (b, ib, _, last) = left, right
-            stage = self.stage_of(level)
+            stage = self.stage_of(level + 1)
             lo = min(self.values[a].lo, self.values[b].lo)
             hi = max(self.values[a].hi, self.values[b].hi)
             score, chosen = argmax_names(tag)
-            self.closed.update((score, chosen))
-            self.add(Value(score, "max", (a, b), stage, lo, hi, True, first=first, last=last))
-            self.add(Value(chosen, "pick", (a, b, ia, ib), stage, first, last, False,
+            compared = argmax_compare_name(tag)
+            self.closed.update((score, chosen, compared))
+            self.add(Value(compared, "compare", (a, b), self.stage_of(level), 0, 1, False))
+            self.add(Value(score, "max", (compared, a, b), stage, lo, hi, True, first=first,
+                           last=last))
+            self.add(Value(chosen, "pick", (compared, a, b, ia, ib), stage, first, last, False,
                            first=first, last=last))
             return score, chosen, first, last
 

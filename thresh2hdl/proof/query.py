@@ -158,7 +158,7 @@ class Query:
         argmax compares, so its operands are known exactly)."""
         value = self.plan.values[name]
         stage, w = value.stage, self.width
-        exact = value.kind in ("max", "pick")
+        exact = value.kind in ("compare", "max", "pick")
         bits = w if exact else modulus_bits
 
         def operand(other):
@@ -185,14 +185,17 @@ class Query:
             bias = value.constant - (child.constant if value.kind == "bias" else -child.constant)
             expr = f"(bvadd {a} {bv(bias, w)})" if value.kind == "bias" \
                 else f"(bvsub {bv(bias, w)} {a})"
-        elif value.kind == "max":
+        elif value.kind == "compare":
             a, b = (operand(o) for o in value.operands)
-            expr = f"(ite (bvsge {a} {b}) {a} {b})"
+            expr = f"(ite (bvsge {a} {b}) {bv(1, w)} {bv(0, w)})"
+        elif value.kind == "max":
+            wins, a, b = (operand(o) for o in value.operands)
+            expr = f"(ite (= {wins} {bv(1, w)}) {a} {b})"
         elif value.kind == "pick":
-            a, b, ia, ib = value.operands
+            wins, a, b, ia, ib = value.operands
             left = operand(ia) if ia is not None else bv(value.first, w)
             right = operand(ib) if ib is not None else bv(value.last, w)
-            expr = f"(ite (bvsge {operand(a)} {operand(b)}) {left} {right})"
+            expr = f"(ite (= {operand(wins)} {bv(1, w)}) {left} {right})"
         else:
             raise RuntimeError(f"value kind {value.kind} has no formula")
         return self.define(f"formula {name} {bits} {state}", self._sort(), expr)

@@ -26,7 +26,7 @@ def level_names(component):
         ("bias and decision" if has_bias else "decision")
     names = ["products"] + ["adders"] * adders + [last]
     if plan is not None:
-        names += ["argmax"] * plan.argmax_levels
+        names += ["argmax comparisons", "argmax selections"] * (plan.argmax_levels // 2)
     return names
 
 
