@@ -110,12 +110,18 @@ def plan_design(config):
     return DesignPlan(
         kind=design_kind(config), config=config, unit_analyses=analyses, bank=bank,
         levels=levels, register_boundaries=register_boundaries(levels - 1, config.pipeline,
-                                                    level_weights(levels, bank)),
+                                                    level_weights(levels, bank, _guarded(config))),
         split_parts=MappingProxyType(parts), result_parts=result_parts,
         latency=config.pipeline + (result_parts - 1) * config.carry_registers,
         beats=len(model.features) if config.arch == "serial" else 1,
         decision_bits=decision_bits, score_outputs=scores,
         signature=_signature(config, decision_bits, scores))
+
+
+def _guarded(config):
+    """Whether the input guard puts logic at level 0 of a parallel datapath."""
+    guard = config.guard
+    return config.arch != "serial" and guard.needed and (guard.clamp or guard.flag)
 
 
 def _declared(bits):
@@ -145,6 +151,10 @@ def _check_pipeline(config, levels):
 # shift-add banks): a comparison and its selection in one stage took 13 to 18.6 ns, an adder
 # level 6 to 8 ns.
 ARGMAX_LEVEL_WEIGHT = 2
+# And of the input guard at level 0 (the comparisons with a feature's bounds, the clamp's
+# multiplexer, the flag's first OR): a clamp and one adder level after it took 20.4 ns in one
+# stage on the same bank, where an adder level takes 6 to 8 ns.
+GUARD_LEVEL_WEIGHT = 2
 
 
 def register_boundaries(final_level, pipeline, weights=None):
@@ -190,12 +200,16 @@ def _stages_needed(weights, bound):
     return count
 
 
-def level_weights(levels, bank):
-    """The delay weight of each level: an argmax comparison :data:`ARGMAX_LEVEL_WEIGHT`, any
-    other level (an adder, an argmax selection) one."""
+def level_weights(levels, bank, guarded=False):
+    """The delay weight of each level: an argmax comparison :data:`ARGMAX_LEVEL_WEIGHT`, and
+    so level 0 when the input guard has logic there (``guarded``); any other level (an adder,
+    an argmax selection) one."""
     first_argmax = levels if bank is None or levels == 1 else bank.score_level + 1
-    return [ARGMAX_LEVEL_WEIGHT if level >= first_argmax and (level - first_argmax) % 2 == 0
-            else 1 for level in range(levels)]
+    weights = [ARGMAX_LEVEL_WEIGHT if level >= first_argmax and (level - first_argmax) % 2 == 0
+               else 1 for level in range(levels)]
+    if guarded and levels > 1:
+        weights[0] = GUARD_LEVEL_WEIGHT
+    return weights
 
 
 def adder_parts(analysis, split_bits):
