@@ -221,10 +221,12 @@ def noisy_codes(seed, rows=2000):
     return x, y
 
 
-def digits_bank(max_digits):
+def digits_bank(max_digits, digit_budget=None, *, score=True):
     """scikit-learn's bundled 8x8 digits (scikit-learn 1.9.1; raw 0..16 codes, split as in
-    issue 16), a standardised logistic regression folded and quantized to 6 bits, as a
-    64-input bank of 10 units; and the test rows."""
+    issue 16), a standardised logistic regression folded and quantized to 6 bits (at most
+    ``max_digits`` digits a weight, ``digit_budget`` in all), as a 64-input bank of 10 units
+    (``score=False``: without score ports, as ``benchmarks/bank_cost.py`` builds it); and the
+    test rows."""
     from sklearn.datasets import load_digits
     from sklearn.linear_model import LogisticRegression
     from sklearn.model_selection import train_test_split
@@ -240,9 +242,11 @@ def digits_bank(max_digits):
         fitted.coef_, fitted.intercept_, scaler.mean_, scaler.scale_, np.zeros(64, int),
         np.full(64, 16)))
     result = to_integer_weights(weights, bias, 6, x_train, labels=y_train, refine_epochs=20,
-                                centre=np.full(64, 8), max_digits=max_digits)
+                                centre=np.full(64, 8), max_digits=max_digits,
+                                digit_budget=digit_budget)
     model = Model(module="digits", features=[FeatureFormat(f"f{i}", 5, False, 0, 16)
                                              for i in range(64)],
                   units=[Unit(f"d{k}", tuple(int(w) for w in row), int(b)) for k, (row, b)
-                         in enumerate(zip(result.weights, result.biases))])
+                         in enumerate(zip(result.weights, result.biases))],
+                  ports=PortNames() if score else PortNames(score=""))
     return model, x_test

@@ -71,7 +71,7 @@ def test_a_wrong_shared_term_is_caught():
 
 @pytest.mark.icarus
 @pytest.mark.verilator
-@pytest.mark.parametrize("pipeline", [0, 2])
+@pytest.mark.parametrize("pipeline", [0, 2, FULL_PIPELINE])
 def test_small_shared_banks_agree_in_icarus_and_verilator(tmp_path, pipeline):
     require_tool("verilator", "g++", "iverilog", "vvp")
     model = bank_model(WEIGHTS + [[-5, 6, 3]], BIASES + [-4], bits=3)
@@ -176,3 +176,16 @@ def test_a_build_records_its_shared_terms_and_repeats_byte_for_byte(tmp_path):
         assert term["range"] == [min(values), max(values)], term
         assert term["units"] and set(term["units"]) <= {u.name for u in model.units}
     assert "shared:" in result.stdout + result.stderr
+
+
+@pytest.mark.slow
+@pytest.mark.verilator
+@pytest.mark.icarus
+def test_the_benchmarks_pipelined_digits_bank_agrees_in_icarus_and_verilator(tmp_path):
+    # The design benchmarks/bank_cost.py places at 14 stages (240 digits in all, shared
+    # terms, no score ports), on the scikit-learn digits test rows and random codes.
+    require_tool("verilator", "g++", "iverilog", "vvp")
+    model, x_test = digits_bank(1, 240, score=False)
+    rows = np.concatenate([x_test[:200], np.random.default_rng(1).integers(0, 17, (200, 64))])
+    dut, stimulus = shared_design(model, 14, rows)
+    assert_lint_clean_and_agrees(tmp_path, model, dut, stimulus)

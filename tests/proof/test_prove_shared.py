@@ -50,3 +50,13 @@ def test_the_shared_digits_bank_is_proved():
     model, _ = digits_bank(1)
     outcome = outcome_of(model, 2)
     assert outcome.status == "proved", outcome.detail
+
+
+@pytest.mark.slow
+def test_the_benchmarks_pipelined_digits_bank_is_proved():
+    # The design benchmarks/bank_cost.py places at 14 stages: 240 signed digits in all, at
+    # most one a weight, shared terms, no score ports, the guard's clamp and flag on.
+    require_proof_tools()
+    model, _ = digits_bank(1, 240, score=False)
+    outcome = outcome_of(model, 14)
+    assert outcome.status == "proved", outcome.detail

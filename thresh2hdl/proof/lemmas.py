@@ -50,7 +50,9 @@ def _outputs(plan, query, model, needed):
     if model.is_bank:
         decided = query.known(plan.class_value, final, w, needed=needed) \
             if plan.class_value else bv(0, w)
-        scores = [query.score(u, final, needed=needed) for u in range(len(model.units))]
+        # (A bank without score ports carries no score to the last stage: none is asked.)
+        scores = [query.score(u, final, needed=needed) for u in range(len(model.units))] \
+            if model.ports.has_score else []
     else:
         score = query.score(0, final, needed=needed)
         decided = f"(ite (bvsgt {score} {bv(0, w)}) {bv(1, w)} {bv(0, w)})"
@@ -120,7 +122,8 @@ class _Pipeline:
             after = smt.bits(reg, "s1")
             self.register(reg, stage - 1, f"(= {after} {query.low(source, bits)})",
                           f"(= {after} {smt.bits(reg, 's0')})")
-            if query.holds_exactly(name, reg, shift):
+            if query.holds_exactly(name, reg, shift) or \
+                    query.constant_prefix(name, reg) is not None:
                 # Only a register holding a valid item is known to be in range (by induction:
                 # it was loaded from one); the contents of an empty stage stay unconstrained.
                 now = query.known(name, stage, w)

@@ -102,6 +102,21 @@ class Query:
             return bits >= signed_bits(lo, hi)
         return bits >= max(1, hi.bit_length())
 
+    def constant_prefix(self, name, register):
+        """For a register too narrow for a non-negative value (an argmax class between two
+        indices), the high bits every value shares, which synthesis keeps as constants rather
+        than flip-flops: the register holds the low bits, all those where the values differ.
+        None when that does not explain its width. (Were it wrong, the register's own lemma
+        would fail: the proof does not rest on it.)"""
+        value = self.plan.values[name]
+        if value.signed or value.lo < 0 or value.register_shift or \
+                self.holds_exactly(name, register):
+            return None
+        kept = self.smt.widths[register]
+        if kept < (value.lo ^ value.hi).bit_length():
+            return None
+        return value.lo >> kept << kept
+
     def known(self, name, stage, modulus_bits, state="s0", needed=None):
         """An expression equal to ``name``'s true value modulo ``2**modulus_bits``, as seen by
         ``stage`` (``modulus_bits == width``: the true value itself).
@@ -130,12 +145,15 @@ class Query:
             raise Undecided(f"the netlist has no register {register!r}; the per-stage method "
                              f"needs the pipeline registers under the names thresh2hdl gives")
         shift = value.register_shift
-        if not (self.holds_exactly(name, register, shift)
-                or self.smt.widths[register] + shift >= modulus_bits):
+        prefix = self.constant_prefix(name, register)
+        if prefix is None and not (self.holds_exactly(name, register, shift)
+                                   or self.smt.widths[register] + shift >= modulus_bits):
             raise Undecided(f"register {register!r} is narrower than its consumer")
         if needed is not None:
             needed.add((name, stage))
         expr = self.wide(register, state, value.signed)
+        if prefix:
+            expr = f"(bvor {expr} {bv(prefix, self.width)})"
         if shift:
             expr = f"(bvshl {expr} {bv(shift, self.width)})"
         return self.define(f"{register} {state}", self._sort(), expr)
