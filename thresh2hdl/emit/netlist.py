@@ -1,9 +1,11 @@
 """From the Amaranth component to a flat Yosys netlist (JSON), with Amaranth's own Yosys.
 
 The netlist is what :mod:`thresh2hdl.emit.verilog` writes out. ``proc`` turns processes into flops
-and multiplexers, ``opt_dff`` folds enables and synchronous resets into the flops, and
-``wreduce`` trims arithmetic to the bits that are used, so that no wire carries an unused bit.
-None of these passes changes the function of the design.
+and multiplexers, ``opt_dff -nosdff`` folds enables into the flops (not synchronous resets: a
+clamp's multiplexer in front of a pipeline register would become the flop's reset, split it
+by constant bits and lose the register's name, which the proof reads), and ``wreduce`` trims
+arithmetic to the bits that are used, so that no wire carries an unused bit. None of these
+passes changes the function of the design.
 """
 
 import json
@@ -14,7 +16,7 @@ from ..errors import ToolError
 
 __all__ = ["NETLIST_PASSES", "rtlil_text", "netlist_of"]
 
-NETLIST_PASSES = ("proc", "opt_clean", "opt_dff", "opt_clean", "wreduce", "opt_clean")
+NETLIST_PASSES = ("proc", "opt_clean", "opt_dff -nosdff", "opt_clean", "wreduce", "opt_clean")
 
 
 def _yosys():
