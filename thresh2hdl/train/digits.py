@@ -56,33 +56,28 @@ def _count(v):
 # question for v - 2^M with one digit fewer. Two branches a level, at most k levels.
 
 @lru_cache(maxsize=1 << 16)
+def _nearest(v, k, up):
+    """The smallest integer of at most ``k`` nonzero digits that is ``>= v`` (``up``), else the
+    largest that is ``<= v`` (None: none is). A negative ``v`` is the mirror question."""
+    if _count(v) <= k:
+        return v
+    if k == 0:
+        return 0 if (v <= 0 if up else v >= 0) else None
+    if v < 0:
+        found = _nearest(-v, k, not up)
+        return None if found is None else -found
+    p = 1 << (v.bit_length() - 1)
+    found = [top + rest for top in (p, 2 * p)
+             if (rest := _nearest(v - top, k - 1, up)) is not None]
+    return min(found) if up else max(found)
+
+
 def _below(v, k):
-    """The largest integer of at most ``k`` nonzero digits that is ``<= v`` (None: none is)."""
-    if _count(v) <= k:
-        return v
-    if k == 0:
-        return 0 if v >= 0 else None
-    if v < 0:
-        return -_above(-v, k)
-    p = 1 << (v.bit_length() - 1)
-    found = [top + rest for top in (p, 2 * p)
-             if (rest := _below(v - top, k - 1)) is not None]
-    return max(found)
+    return _nearest(v, k, False)
 
 
-@lru_cache(maxsize=1 << 16)
 def _above(v, k):
-    """The smallest integer of at most ``k`` nonzero digits that is ``>= v`` (None: none is)."""
-    if _count(v) <= k:
-        return v
-    if k == 0:
-        return 0 if v <= 0 else None
-    if v < 0:
-        return -_below(-v, k)
-    p = 1 << (v.bit_length() - 1)
-    found = [top + rest for top in (p, 2 * p)
-             if (rest := _above(v - top, k - 1)) is not None]
-    return min(found)
+    return _nearest(v, k, True)
 
 
 class DigitBudget:
