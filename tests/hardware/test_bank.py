@@ -108,6 +108,8 @@ def test_random_banks_agree_with_reference_in_amaranth(case):
 @settings(max_examples=6, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(case=banks)
 def test_random_banks_lint_clean_and_agree_in_icarus_and_verilator(tmp_path_factory, case):
+    # Independent simulators: Icarus Verilog 11 and Verilator 5.006 run the emitted file,
+    # split adders among the options drawn.
     require_tool("verilator", "g++", "iverilog", "vvp")
     model, dut, stimulus = prepared(case)
     assert_lint_clean_and_agrees(tmp_path_factory.mktemp("bank"), model, dut, stimulus)
@@ -194,9 +196,9 @@ def test_full_pipeline_is_resolved_when_the_design_is_planned():
 
 
 def test_register_stages_weigh_argmax_levels_and_are_the_best_spread():
-    # Exhaustive check (every placement of the stages, enumerated here): the slowest stage is
-    # as light as any placement can make it, counting an argmax comparison as two adder
-    # levels.
+    # Exhaustive check (every placement of the stages, enumerated here, a reference written
+    # apart from the package's search): the slowest stage is as light as any placement can
+    # make it, counting an argmax comparison as two adder levels.
     from thresh2hdl.hardware.plan import ARGMAX_LEVEL_WEIGHT, level_weights, register_boundaries
 
     def heaviest(weights, boundaries):

@@ -405,6 +405,8 @@ def test_a_wide_flag_tree_is_proved_and_a_lost_group_is_not():
 @pytest.mark.verilator
 @pytest.mark.icarus
 def test_a_wide_flag_tree_agrees_in_icarus_and_verilator(tmp_path):
+    # Independent simulators: Icarus Verilog 11 and Verilator 5.006 run the emitted file,
+    # codes outside the declared ranges included.
     require_tool("verilator", "g++", "iverilog", "vvp")
     model = wide_model()
     dut = make_component(UnitConfig(model, pipeline="full", arch="shiftadd"))

