@@ -11,7 +11,7 @@ os.environ.setdefault("THRESH2HDL_CACHE", tempfile.mkdtemp(prefix="thresh2hdl-te
 
 # Tests that need an outside tool, or that build many designs, are slow: `pytest -m "not slow"`
 # is the quick loop (see DEVELOPERS.md), the whole suite the one CI runs.
-_SLOW_MARKERS = ("icarus", "verilator", "synth", "prove", "browser")
+_SLOW_MARKERS = ("icarus", "verilator", "ghdl", "synth", "prove", "browser")
 
 
 def pytest_collection_modifyitems(config, items):

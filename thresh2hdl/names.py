@@ -1,9 +1,9 @@
-"""Verilog identifier rules for module and port names taken from a model file, and the names
-of the signals that the circuit makes and the proof reads (one definition for both sides)."""
+"""Verilog and VHDL identifier rules for module and port names taken from a model file, and the
+names of the signals that the circuit makes and the proof reads (one definition for both sides)."""
 
 import re
 
-__all__ = ["VERILOG_KEYWORDS", "check_identifier", "GUARD_FLAG", "SCORE_CONST", "register_name",
+__all__ = ["VERILOG_KEYWORDS", "VHDL_RESERVED", "check_identifier", "vhdl_name_problem", "GUARD_FLAG", "SCORE_CONST", "register_name",
            "valid_name", "unit_prefix", "argmax_names", "argmax_compare_name",
            "flag_part_name"]
 
@@ -89,3 +89,29 @@ def check_identifier(name, what):
         raise ValueError(f"{what} must not start with '_' (reserved for generated names), "
                          f"not {name!r}")
     return name
+
+
+# Reserved words of IEEE 1076-2008 (VHDL) (from memory of the standard's list of reserved
+# words), and the library, type and function names the VHDL writer uses, which a port of the
+# same name would hide. VHDL does not tell upper from lower case.
+VHDL_RESERVED = frozenset("""
+abs access after alias all and architecture array assert assume assume_guarantee attribute begin
+block body buffer bus case component configuration constant context cover default disconnect
+downto else elsif end entity exit fairness file for force function generate generic group guarded
+if impure in inertial inout is label library linkage literal loop map mod nand new next nor not
+null of on open or others out package parameter port postponed procedure process property
+protected pure range record register reject release rem report restrict restrict_guarantee return
+rol ror select sequence severity shared signal sla sll sra srl strong subtype then to transport
+type unaffected units until use variable vmode vprop vunit wait when while with xnor xor
+ieee std work std_logic std_ulogic std_logic_vector std_ulogic_vector std_logic_1164 numeric_std
+signed unsigned resize rising_edge natural integer boolean textio line
+""".split())
+
+
+def vhdl_name_problem(name):
+    """Why a (Verilog-legal) name cannot name a VHDL port or entity, or None if it can."""
+    if name.lower() in VHDL_RESERVED:
+        return f"{name!r} is reserved in VHDL (or names a type or function the VHDL uses)"
+    if "__" in name or name.endswith("_"):
+        return f"{name!r} has two '_' in a row or ends in '_', which VHDL does not allow"
+    return None

@@ -53,6 +53,8 @@ TOOLS = {
     "c++": Tool("a C++ compiler", ("c++", "g++"),
                 "Verilator needs one: install g++ (Debian: apt-get install g++) or choose "
                 "--simulator icarus/amaranth"),
+    "ghdl": Tool("GHDL", ("ghdl",), "VHDL is simulated and read back with GHDL: install it "
+                 "(Debian: apt-get install ghdl) or build with --hdl verilog"),
     "iverilog": Tool("iverilog (Icarus Verilog)", ("iverilog",), _ICARUS, "-V"),
     "vvp": Tool("vvp (Icarus Verilog)", ("vvp",), _ICARUS, "-V"),
 }

@@ -10,6 +10,7 @@ from ..outdir import write_files
 from ..readers import read_text
 from ..reports import store_estimate
 from .folder import load_folder, report_files
+from .languages import verilog_of
 from .progress import progress_of
 
 __all__ = ["estimate_folder"]
@@ -25,7 +26,8 @@ def estimate_folder(out_dir, *, target=None, device=None, dsp=None, progress=Non
     progress = progress_of(progress)
     folder = load_folder(out_dir)
     model, component, report = folder.model, folder.component, folder.report
-    text = read_text(folder.verilog, "Verilog file")
+    text = read_text(folder.verilog, "Verilog file") if folder.verilog else \
+        verilog_of(folder.vhdl, model, port_table(component, model))   # GHDL's reading
     target = part.family
     try:
         figures, failure = estimate_cost(text, model.module, port_table(component, model),

@@ -25,7 +25,14 @@ class BuildFolder:
     report: dict
     settings: BuildSettings
     component: object          # the design rebuilt from ``settings``
-    verilog: Path              # the folder's own Verilog file
+    verilog: Path | None       # the folder's own Verilog file (None: a VHDL-only build)
+    vhdl: Path | None = None   # the folder's own VHDL file (``--hdl vhdl`` or ``both``)
+
+    @property
+    def design(self):
+        """The folder's own design file that check, prove and estimate take: the Verilog, or
+        the VHDL of a VHDL-only build."""
+        return self.verilog or self.vhdl
 
 
 def load_folder(out_dir):
@@ -62,7 +69,13 @@ def load_folder(out_dir):
         raise InputError(f"latency_cycles is {settings.latency_cycles}, but this version builds "
                          f"these settings with a latency of {component.latency}; rebuild the "
                          f"folder", source=source)
-    return BuildFolder(out_dir, model, report, settings, component, out_dir / verilog)
+    hdl = report.get("hdl", "verilog")
+    if hdl not in ("verilog", "vhdl", "both"):
+        raise InputError(f"must be verilog, vhdl or both, not {shorten(str(hdl))!r}; rebuild "
+                         f"the folder", source=out_dir / "report.json", field="hdl")
+    return BuildFolder(out_dir, model, report, settings, component,
+                       None if hdl == "vhdl" else out_dir / verilog,
+                       None if hdl == "verilog" else out_dir / f"{model.module}.vhd")
 
 
 def report_files(out_dir, report):

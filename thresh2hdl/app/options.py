@@ -15,11 +15,12 @@ from ..errors import InputError
 from ..hardware import FULL_PIPELINE, UnitConfig
 from ..proof import DEFAULT_TIMEOUT_S
 
-__all__ = ["BuildOptions", "Flag", "SIMULATORS", "DEFAULT_VECTORS", "MAX_VECTORS",
+__all__ = ["BuildOptions", "Flag", "HDLS", "SIMULATORS", "DEFAULT_VECTORS", "MAX_VECTORS",
            "build_flags", "check_timeout"]
 
 SIMULATORS = ("auto", "amaranth", "verilator", "icarus")
-DEFAULT_VECTORS = {"amaranth": 10_000, "icarus": 10_000, "verilator": 1_000_000}
+DEFAULT_VECTORS = {"amaranth": 10_000, "icarus": 10_000, "verilator": 1_000_000, "ghdl": 10_000}
+HDLS = ("verilog", "vhdl", "both")
 MAX_VECTORS = 100_000_000
 
 
@@ -101,6 +102,10 @@ class BuildOptions:
         None, "--vectors", "Random vectors to verify, on top of the corner cases (default: "
         f"{DEFAULT_VECTORS['verilator']} with Verilator, {DEFAULT_VECTORS['icarus']} "
         "otherwise).", kind="int")
+    hdl: str = _option(
+        "verilog", "--hdl", "The language of the design file: verilog (Verilog-2001), vhdl "
+        "(VHDL-2008, simulated and read back with GHDL) or both, each with its own "
+        "self-checking testbench on the same vectors.", choices=HDLS, show_default=True)
     simulator: str = _option(
         "auto", "--simulator", "auto: Verilator if present, else Icarus, else Amaranth's "
         "simulator (which runs the Amaranth design, not the file).", choices=SIMULATORS,
@@ -132,6 +137,8 @@ class BuildOptions:
             if self.vectors > MAX_VECTORS:
                 raise InputError(f"at most {MAX_VECTORS} vectors, not {self.vectors}",
                                  field="vectors")
+        if self.hdl not in HDLS:
+            raise InputError(f"must be one of {', '.join(HDLS)}, not {self.hdl!r}", field="hdl")
         if self.simulator not in SIMULATORS:
             raise InputError(f"must be one of {', '.join(SIMULATORS)}, not {self.simulator!r}",
                              field="simulator")

@@ -9,11 +9,12 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError, MismatchError, UndecidedError
-from ..emit import port_table, read_netlist
+from ..emit import port_table
 from ..outdir import write_files
 from ..proof import DEFAULT_TIMEOUT_S, prove_netlist
 from ..verify import ReferenceModel, choose_simulator, make_backend, make_stimulus
 from .folder import load_folder, report_files
+from .languages import verilog_of
 from .options import check_timeout
 from .progress import progress_of
 
@@ -183,9 +184,9 @@ def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto
         raise InputError("netlist_proofs must map file names to proofs; remove the key or "
                          "rebuild the folder", source=out_dir / "report.json")
     ports = port_table(component, model)
-    own = folder.verilog
+    own = folder.design
     path = Path(netlist) if netlist is not None else own
-    text = read_netlist(path, model, ports)
+    text = verilog_of(path, model, ports)     # a VHDL file: GHDL's reading of it
     is_own = path.resolve() == own.resolve()
     try:
         result = prove_text(text, path.name, component, model, ports, timeout_s=timeout_s,

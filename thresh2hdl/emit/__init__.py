@@ -1,7 +1,10 @@
-"""Emitters: ports, the netlist, and the Verilog writer."""
+"""Emitters: ports, the netlist, and the Verilog and VHDL writers."""
 
-from .ports import Port, read_netlist, verilog_ports
+from .ports import Port, check_ports, read_netlist, verilog_ports
+from .netlist import netlist_of
 from .verilog import bit_range, emit_verilog, instance_template, port_table, range_comments
+from .vhdl import check_vhdl_names, component_package, emit_vhdl, vhdl_comments
 
-__all__ = ["Port", "read_netlist", "verilog_ports", "bit_range", "emit_verilog",
-           "instance_template", "port_table", "range_comments"]
+__all__ = ["Port", "check_ports", "read_netlist", "verilog_ports", "bit_range", "emit_verilog",
+           "instance_template", "port_table", "range_comments", "netlist_of", "emit_vhdl",
+           "check_vhdl_names", "component_package", "vhdl_comments"]

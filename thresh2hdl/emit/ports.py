@@ -6,7 +6,7 @@ from typing import NamedTuple
 
 from ..errors import InputError
 
-__all__ = ["Port", "verilog_ports", "read_netlist"]
+__all__ = ["Port", "verilog_ports", "read_netlist", "check_ports"]
 
 
 class Port(NamedTuple):
@@ -48,6 +48,12 @@ def read_netlist(path, model, ports):
         text = path.read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError) as error:
         raise InputError(f"cannot read the Verilog file ({error})", source=path) from None
+    return check_ports(text, model, ports, path)
+
+
+def check_ports(text, model, ports, path):
+    """``text`` if its module ``model.module`` has exactly ``ports`` (``path`` names it in
+    errors); else one InputError."""
     declared = verilog_ports(text, model.module)
     if declared is None:
         raise InputError(f"has no module {model.module!r}", source=path)

@@ -15,6 +15,10 @@ __all__ = ["SmtExport", "export_smt2", "wire_widths"]
 _WIRE_LINE = re.compile(r"^; yosys-smt2-(wire|input|output|register) (\S+) (\d+)$", re.M)
 _ALIAS = re.compile(r"^\(define-fun \|[^|]+_n (?P<name>[^|]+)\| \(\(state \|[^|]+\|\)\) "
                     r"\(_ BitVec (?P<bits>\d+)\) \(\|(?P<id>[^|]+#\d+)\| state\)\)$")
+# Any wire whose value is one state element (a vector, or a one-bit wire's Bool of it).
+_ALIASES = re.compile(r"^\(define-fun \|[^|]+_n (?P<name>[^|]+)\| \(\(state \|[^|]+\|\)\) "
+                      r"(?:\(_ BitVec \d+\) \(|Bool \(= \(\(_ extract 0 0\) \()"
+                      r"\|(?P<id>[^|]+#\d+)\| state\)(?:\) #b1\))?\)$", re.M)
 _REFERENCE = re.compile(r"\(\|([^|]+#\d+)\| state\)")
 
 
@@ -33,6 +37,13 @@ class SmtExport:
             self.widths[name] = int(width)
             if kind == "register":
                 self.registers.add(name)
+        # A wire that only renames a register is that register under the design's name: a
+        # netlist may name the flop itself otherwise (GHDL's synthesis calls it ``n313_q`` and
+        # assigns it to the VHDL signal).
+        aliases = {found["name"]: found["id"] for found in _ALIASES.finditer(text)}
+        held = {aliases[name] for name in self.registers if name in aliases}
+        self.registers |= {name for name, ident in aliases.items()
+                           if ident in held and name in self.widths}
 
     def has(self, name):
         return name in self.widths

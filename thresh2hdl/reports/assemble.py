@@ -15,7 +15,8 @@ from ..verify import ReferenceModel, TestbenchFiles
 from .design import Datapath, FeatureRow, Sizes
 from .fields import Table, plain, present
 from .record import GuardSection, Report, Testbench, Verification, WeightPort
-from .sections import DataSummary, Histogram, ProofSection, QuantizationLog, TrainingLog
+from .sections import (DataSummary, Histogram, ProofSection, QuantizationLog, TrainingLog,
+                       VhdlSection)
 from .tables import (argmax_report, level_names, node_table, shared_report, stages_report,
                      unit_histograms)
 
@@ -150,10 +151,13 @@ def _history(history):
 
 
 def build_report(model, component, verilog_text, verilog_name, verified, *, seed, chosen_guard,
-                 dataset, history, proof, timing):
+                 dataset, history, proof, timing, hdl="verilog", vhdl=None, testbench=None,
+                 netlist_proofs=None):
     """The record of one build: sizes, ports, verification, data, proof section and timing.
     ``history``: the report's ``training``/``quantization`` tables; ``proof``: the proof's
-    table, or None."""
+    table, or None. ``verilog_name`` is None for a VHDL-only build, whose ``vhdl`` section
+    (a :class:`~thresh2hdl.reports.sections.VhdlSection` table) and ``testbench`` (file,
+    command) say what was written instead."""
     reference = ReferenceModel.from_model(model)
     features = tuple(FeatureRow(f.name, f.bits, f.signed) for f in model.features)
     # The sizing keys and the tree as report.json holds them, read into the record the way
@@ -171,9 +175,12 @@ def build_report(model, component, verilog_text, verilog_name, verified, *, seed
             verified.simulator_version, verified.cycles,
             tuple(tuple(g) for g in verified.vector_groups), tuple(verified.first_mismatches),
             seed),
-        testbench=Testbench(f"{model.module}_tb.v",
-                            TestbenchFiles(model.module).run_command(verilog_name)),
-        instance_template=f"{model.module}_instance.vh",
+        testbench=Testbench(*testbench) if testbench else Testbench(
+            f"{model.module}_tb.v", TestbenchFiles(model.module).run_command(verilog_name)),
+        instance_template=f"{model.module}_instance.vh" if verilog_name else None,
+        hdl=hdl, vhdl=None if vhdl is None else VhdlSection.from_json(Table(plain(vhdl), "vhdl")),
+        netlist_proofs={name: ProofSection.from_json(Table(plain(section), "netlist_proofs"))
+                        for name, section in (netlist_proofs or {}).items()},
         register_stages=component.config.pipeline, beats_per_result=component.beats,
         weight_port=_weight_port_report(component, model),
         input_guard=guard_report(component, model, chosen=chosen_guard),

@@ -161,8 +161,20 @@ def _verification_html(report):
     if v.first_mismatches:
         out.append("<ul>" + "".join(f"<li>{escape(m)}</li>" for m in v.first_mismatches)
                    + "</ul>")
-    out.append(f"<p>Testbench for any Verilog-2001 simulator: <code>"
-               f"{escape(report.testbench.command)}</code></p>")
+    if report.verilog:
+        out.append(f"<p>Testbench for any Verilog-2001 simulator: <code>"
+                   f"{escape(report.testbench.command)}</code></p>")
+    vhdl = report.vhdl
+    if vhdl and vhdl.simulator_version:
+        out.append(f"<p class={'ok' if vhdl.mismatches == 0 else 'bad'}>{escape(vhdl.file)}: "
+                   f"{vhdl.vectors_checked} vectors in {escape(vhdl.simulator_version)}: "
+                   f"{vhdl.mismatches} mismatches</p>")
+        out += ["<ul>" + "".join(f"<li>{escape(m)}</li>" for m in vhdl.first_mismatches)
+                + "</ul>"] if vhdl.first_mismatches else []
+    if vhdl:
+        out += [f"<p>{escape(vhdl.file)} (VHDL-2008), lint: {escape(vhdl.lint)}. Component "
+                f"package {escape(vhdl.package)}. Testbench for GHDL (any VHDL-2008 simulator "
+                f"reads it): <code>{escape(vhdl.command)}</code></p>"]
     return out
 
 

@@ -19,6 +19,15 @@ def _proof_cell(proof):
             + (f"; counterexample in {example.file}" if example else ""))
 
 
+def vhdl_rows(vhdl):
+    """The VHDL file's own rows: its lint and, when it was simulated apart, its simulation."""
+    rows = [f"| {vhdl.file} lint | {vhdl.lint} |"]
+    if vhdl.simulator_version:
+        rows += [f"| {vhdl.file} vectors checked | {vhdl.vectors_checked} in "
+                 f"{vhdl.simulator_version} |", f"| {vhdl.file} mismatches | {vhdl.mismatches} |"]
+    return rows + [f"| {vhdl.file} testbench | `{vhdl.command}` |"]
+
+
 def report_markdown(report):
     """The report (the record, or report.json's data) for review threads."""
     report = report_record(report)
@@ -45,6 +54,9 @@ def report_markdown(report):
              f"| vectors checked | {v.vectors_checked} |",
              f"| mismatches | {v.mismatches} |",
              f"| simulator | {v.simulator_version} |"]
+    if report.vhdl:
+        lines += [f"| design files | {', '.join(report.design_files)} |",
+                  *vhdl_rows(report.vhdl)]
     if report.data:
         lines.append(f"| accuracy on {report.data.file} | {report.data.accuracy:.4f} |")
     for key, estimate in report.estimates.items():

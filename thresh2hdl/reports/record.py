@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 from .design import Datapath, FeatureRow, Sizes
 from .fields import Table, plain, present
 from .estimates import read_estimates
-from .sections import DataSummary, ProofSection, QuantizationLog, TrainingLog
+from .sections import DataSummary, ProofSection, QuantizationLog, TrainingLog, VhdlSection
 
 __all__ = ["REPORT_FORMAT", "SAFETY_CAUTION", "Report", "WeightPort", "GuardSection",
            "Verification", "Testbench", "report_json", "report_record"]
@@ -135,7 +135,7 @@ class Report:
     """One build's report: the module and its files, features, sizes, datapath, ports, input
     guard, verification, data, history, proofs, cost estimates and timing."""
     module: str
-    verilog: str
+    verilog: str | None              # None: a VHDL-only build (``vhdl``)
     model_sha256: str
     tool_versions: dict
     features: tuple                  # FeatureRow
@@ -158,13 +158,23 @@ class Report:
     estimates: dict = field(default_factory=dict)        # target -> CostEstimate
     timing: dict = field(default_factory=dict)
     report_format: int = REPORT_FORMAT
+    hdl: str = "verilog"                     # verilog, vhdl or both
+    vhdl: VhdlSection | None = None
+
+    @property
+    def design_files(self):
+        """The design's files in the folder, Verilog first."""
+        return [name for name in (self.verilog, self.vhdl and self.vhdl.file) if name]
 
     def to_json(self):
         """report.json's data, keys in the order written since the first version."""
         optional = lambda key, value: present([(key, value and value.to_json())])
         return {
             "report_format": self.report_format, "module": self.module,
-            "verilog": self.verilog, **present([("instance_template", self.instance_template)]),
+            **present([("verilog", self.verilog)]),
+            **({"hdl": self.hdl} if self.hdl != "verilog" else {}),
+            **optional("vhdl", self.vhdl),
+            **present([("instance_template", self.instance_template)]),
             "model_sha256": self.model_sha256, "tool_versions": dict(self.tool_versions),
             "features": [f.to_json() for f in self.features],
             **self.sizes.to_json(self.datapath.to_json()),
@@ -197,7 +207,8 @@ class Report:
             top.refuse("tool_versions", "a table naming the thresh2hdl version")
         testbench = top.table("testbench")
         return cls(
-            module=top.text("module"), verilog=top.text("verilog"),
+            module=top.text("module"), verilog=top.text("verilog", None),
+            hdl=top.text("hdl", "verilog"), vhdl=_section(top, "vhdl", VhdlSection),
             model_sha256=top.text("model_sha256"), tool_versions=versions, features=features,
             sizes=sizes, datapath=Datapath.from_json(top.table("tree"), sizes.is_bank),
             latency_cycles=top.count("latency_cycles"),

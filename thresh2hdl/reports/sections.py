@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from .fields import present
 
 __all__ = ["Histogram", "UnitHistogram", "DataSummary", "TrainingLog", "SweepRow",
-           "QuantizationLog", "Counterexample", "ProofSection"]
+           "QuantizationLog", "Counterexample", "ProofSection", "VhdlSection"]
 
 
 @dataclass(frozen=True)
@@ -214,3 +214,34 @@ class ProofSection:
                    table.number("timeout_s"), table.text("detail"),
                    table.text("netlist_sha256", None), table.texts("failing_lemmas", None),
                    example and Counterexample.from_json(example))
+
+
+@dataclass(frozen=True)
+class VhdlSection:
+    """The VHDL file of a build (``--hdl vhdl`` or ``both``): its files, GHDL's lint, and its
+    own simulation when the Verilog was the one verified first (``both``)."""
+    file: str
+    package: str
+    testbench: str
+    command: str
+    lint: str
+    simulator_version: str | None = None
+    vectors_checked: int | None = None
+    mismatches: int | None = None
+    first_mismatches: tuple = ()
+
+    def to_json(self):
+        return {"file": self.file, "package": self.package, "testbench": self.testbench,
+                "command": self.command, "lint": self.lint,
+                **present([("simulator_version", self.simulator_version),
+                           ("vectors_checked", self.vectors_checked),
+                           ("mismatches", self.mismatches)]),
+                **({"first_mismatches": list(self.first_mismatches)}
+                   if self.simulator_version else {})}
+
+    @classmethod
+    def from_json(cls, table):
+        return cls(table.text("file"), table.text("package"), table.text("testbench"),
+                   table.text("command"), table.text("lint"),
+                   table.text("simulator_version", None), table.natural("vectors_checked", None),
+                   table.natural("mismatches", None), tuple(table.texts("first_mismatches", ())))

@@ -13,7 +13,8 @@ def summary_lines(report):
     lo, hi = sizes.score_range
     split = datapath.split
     lines = [
-        f"module {report.module}: {len(report.features)} features -> {report.verilog}",
+        f"module {report.module}: {len(report.features)} features -> "
+        f"{' and '.join(report.design_files)}",
         f"  score range [{lo}, {hi}] needs {sizes.score_bits_min} bits; port "
         f"{sizes.score_bits} bits (headroom {sizes.headroom_bits})",
         f"  weights: nonzero signed digits {digits_text(sizes)}",
@@ -27,6 +28,12 @@ def summary_lines(report):
         f"  verified in {verification.simulator_version}: {verification.vectors_checked} "
         f"vectors over {verification.cycles} cycles, {verification.mismatches} mismatches",
     ]
+    vhdl = report.vhdl
+    if vhdl and vhdl.simulator_version:
+        lines.append(f"  {vhdl.file} verified in {vhdl.simulator_version}: "
+                     f"{vhdl.vectors_checked} vectors, {vhdl.mismatches} mismatches")
+    if vhdl:
+        lines.append(f"  {vhdl.file} lint: {vhdl.lint}")
     if datapath.shared:
         lines.append(f"  shared: {shared_text(datapath)}")
     guard = report.input_guard
@@ -47,6 +54,9 @@ def summary_lines(report):
                      f"lemmas, {proof.solver})")
         if proof.status != "proved":
             lines.append(f"  PROOF {proof.detail}")
+    for name, other in report.netlist_proofs.items():
+        lines.append(f"  proof of {name}" + (" (GHDL's reading)" if vhdl and name == vhdl.file
+                                             else "") + f": {other.status}")
     for text in verification.first_mismatches[:3]:
         lines.append(f"  MISMATCH {text}")
     lines.append(f"  caution: {SAFETY_CAUTION}")

@@ -6,6 +6,8 @@ from .reference import ReferenceModel, cycle_model
 from .runner import (CHUNK_VECTORS, Verification, choose_simulator, chunk_vectors,
                      first_stimulus, make_backend, verify)
 from .sim_amaranth import AmaranthBackend, simulate_amaranth
+from .sim_ghdl import (GhdlBackend, ghdl_lint, ghdl_reading, ghdl_version,
+                       write_vhdl_testbench)
 from .sim_icarus import (IcarusBackend, TestbenchFiles, icarus_version, simulate_icarus,
                          write_testbench)
 from .sim_verilator import (VerilatorBackend, find_verilator, simulate_verilator,
@@ -19,4 +21,5 @@ __all__ = ["SimulationResult", "SimulatorBackend", "CompareResult", "Mismatch", 
            "AmaranthBackend", "simulate_amaranth", "IcarusBackend", "TestbenchFiles",
            "icarus_version", "simulate_icarus", "write_testbench", "VerilatorBackend",
            "find_verilator", "simulate_verilator", "verilator_version", "make_reload_stimulus",
-           "make_stimulus", "RANDOM_GROUP", "make_vectors", "random_vectors", "reload_sets"]
+           "make_stimulus", "RANDOM_GROUP", "make_vectors", "random_vectors", "reload_sets",
+           "GhdlBackend", "ghdl_lint", "ghdl_reading", "ghdl_version", "write_vhdl_testbench"]

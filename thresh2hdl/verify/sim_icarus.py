@@ -20,7 +20,8 @@ from .stimulus import write_columns
 from .templates import template_text
 
 __all__ = ["IcarusBackend", "TestbenchFiles", "testbench_text", "write_testbench",
-           "simulate_icarus", "icarus_version"]
+           "simulate_icarus", "icarus_version", "stimulus_layout",
+           "expected_layout", "read_responses"]
 
 STIMULUS_FILE = "stimulus.hex"
 EXPECTED_FILE = "expected.hex"
@@ -61,16 +62,36 @@ def _pad(expression, width):
     return expression if width == 128 else f"{{{128 - width}'d0, {expression}}}"
 
 
+def stimulus_layout(ports):
+    """The stimulus word's fields, low bits first: ``(port, width)`` for each feature, in_valid,
+    out_ready, then the weight write port's strobe, address and data (loadable weights)."""
+    by_role = {port.internal: port for port in ports}
+    fields = [(port, port.width) for port in ports if port.internal.startswith("x")]
+    fields += [(by_role["in_valid"], 1), (by_role["out_ready"], 1)]
+    return fields + [(by_role[key], by_role[key].width) for key in
+                     ("weight_write", "weight_address", "weight_data") if key in by_role]
+
+
+def expected_layout(ports, flag_checked):
+    """The expected word's fields, low bits first: ``(label, port, width)`` for in_ready,
+    out_valid, the decision, the out-of-range flag (``flag_checked``), then each score. The
+    fields from the decision on count only while out_valid is expected high."""
+    by_role = {port.internal: port for port in ports}
+    scores = [port for port in ports if port.internal.startswith("score")]
+    fields = [("in_ready", by_role["in_ready"], 1), ("out_valid", by_role["out_valid"], 1),
+              ("decision", by_role["y"], by_role["y"].width)]
+    if flag_checked:
+        fields.append(("range flag", by_role["out_of_range"], 1))
+    return fields + [(f"score {port.name}" if len(scores) > 1 else "score", port, port.width)
+                     for port in scores]
+
+
 def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=False,
                    flag_masks_results=False):
     """Testbench source for a module with ``ports`` (from :func:`thresh2hdl.emit.verilog.port_table`).
     ``flag_checked``: the expectations hold the out-of-range flag; ``flag_masks_results``: the
     decision and scores of a flagged result are not specified (a flag without a clamp), so
     they are compared only where the flag is low."""
-    by_role = {port.internal: (port.name, port.width, port.signed) for port in ports}
-    features = [(port.name, port.width) for port in ports if port.internal.startswith("x")]
-    scores = _score_ports(ports)
-    tb = lambda role: f"tb_{by_role[role][0]}"
     input_regs = [f"  reg {_range(port.width)}tb_{port.name};" for port in ports
                   if port.direction == "input" and port.internal not in ("clk", "rst")]
     output_wires = [f"  wire {_range(port.width)}tb_{port.name};" for port in ports
@@ -79,20 +100,12 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     for port in ports:
         signal = {"clk": "clk", "rst": "rst"}.get(port.internal, f"tb_{port.name}")
         connections.append(f"    .{port.name}({signal})")
-    writes = _write_ports(ports)
-    stim_concat = ", ".join([f"tb_{n}" for n, _ in reversed(writes)]
-                            + [tb("out_ready"), tb("in_valid")]
-                            + [f"tb_{n}" for n, _ in reversed(features)])
-    stim_bits = 2 + sum(w for _, w in features) + sum(w for _, w in writes)
-    decision_bits = by_role["y"][1]
-    # Expected word, low bits first: in_ready, out_valid, decision, the out-of-range flag
-    # (when the design has one), then each score.
-    flag = [("range flag", tb("out_of_range"), 1)] if flag_checked else []
-    fields = [("in_ready", tb("in_ready"), 1), ("out_valid", tb("out_valid"), 1),
-              ("decision", tb("y"), decision_bits)] + flag + \
-        [(f"score {name}" if len(scores) > 1 else "score", f"tb_{name}", width)
-         for name, width in scores]
-    flag_bit = 2 + decision_bits
+    stimulus = stimulus_layout(ports)
+    stim_concat = ", ".join(f"tb_{port.name}" for port, _ in reversed(stimulus))
+    stim_bits = sum(width for _, width in stimulus)
+    layout = expected_layout(ports, flag_checked)
+    fields = [(label, f"tb_{port.name}", width) for label, port, width in layout]
+    flag_bit = 2 + layout[2][2]
     checks, offset = [], 0
     for position, (label, signal, width) in enumerate(fields):
         want = f"want[{offset + width - 1}:{offset}]" if width > 1 else f"want[{offset}]"
@@ -105,7 +118,8 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
             test = f"if ({when}) " + test.replace("\n", "\n  ")
         checks += ["      " + line for line in test.splitlines()]
         offset += width
-    response_format = " ".join(["%b", "%b", "%h"] + ["%b"] * len(flag) + ["%h"] * len(scores))
+    response_format = " ".join(["%b", "%b", "%h"] + ["%b"] * flag_checked
+                               + ["%h"] * (len(fields) - 3 - flag_checked))
     response_fields = ", ".join(signal for _, signal, _ in fields)
     values = {
         "MODULE": module, "TB_MODULE": f"{module}_tb", "CYCLES": str(cycles),
@@ -233,8 +247,14 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
             raise ToolError(f"{Path(command[0]).name} failed: "
                             f"{message[0] if message else result.returncode}")
         outputs.append(result.stdout)
+    result = read_responses(workdir / files.responses, ports, stimulus, "icarus")
+    return result, outputs[-1]
+
+
+def read_responses(path, ports, stimulus, simulator):
+    """The outputs a testbench wrote, one line per cycle, as a :class:`SimulationResult`."""
     scores_ports = _score_ports(ports)
-    rows = (workdir / files.responses).read_text().split("\n")
+    rows = Path(path).read_text().split("\n")
     rows = [row.split() for row in rows if row]
     in_ready = np.array([row[0] == "1" for row in rows])
     out_valid = np.array([row[1] == "1" for row in rows])
@@ -252,8 +272,7 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
         if len(scores_ports) == 1 and not any(port.internal.startswith("score0")
                                               for port in ports):
             scores = scores[:, 0]
-    result = SimulationResult("icarus", in_ready, out_valid, decisions, scores, flags=flags)
-    return result, outputs[-1]
+    return SimulationResult(simulator, in_ready, out_valid, decisions, scores, flags=flags)
 
 
 class IcarusBackend(VerilogBackend):
