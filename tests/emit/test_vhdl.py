@@ -98,16 +98,21 @@ def test_decisions_equal_a_plain_python_sum(tmp_path):
         assert result.decisions[cycle] == int(total > 0)
 
 
-def test_a_wrong_vhdl_file_is_caught_in_ghdl():
-    # A mutant: one adder turned into a subtractor. GHDL must see the difference.
-    require_tool("ghdl")
+def demo_mutant(pipeline):
+    """The demo's design and a mutant of its VHDL: one adder turned into a subtractor."""
     model = demo_model()
-    component = make_component(UnitConfig(model, pipeline=1))
-    ports = port_table(component, model)
+    component = make_component(UnitConfig(model, pipeline=pipeline))
     text = emit_vhdl(component, model)
     line = next(line for line in text.splitlines() if line.startswith("  s2_0 <="))
     mutant = text.replace(line, line.replace(") + unsigned(", ") - unsigned("))
     assert mutant != text
+    return model, component, port_table(component, model), mutant
+
+
+def test_a_wrong_vhdl_file_is_caught_in_ghdl():
+    # A mutant: one adder turned into a subtractor. GHDL must see the difference.
+    require_tool("ghdl")
+    model, component, ports, mutant = demo_mutant(pipeline=1)
     stimulus = stimulus_of(component, model, 0, count=200)
     assert GhdlBackend(mutant, ports, model.module).run(stimulus).check(
         stimulus).mismatch_count > 0
@@ -134,12 +139,7 @@ def test_a_wrong_vhdl_file_gives_a_counterexample(tmp_path):
     require_tool("ghdl")
     require_proof_tools()
     from thresh2hdl.app.proving import prove_text
-    model = demo_model()
-    component = make_component(UnitConfig(model, pipeline=2))
-    ports = port_table(component, model)
-    text = emit_vhdl(component, model)
-    line = next(line for line in text.splitlines() if line.startswith("  s2_0 <="))
-    mutant = text.replace(line, line.replace(") + unsigned(", ") - unsigned("))
+    model, component, ports, mutant = demo_mutant(pipeline=2)
     result = prove_text(ghdl_reading(mutant, model.module), "pump_fault.vhd", component, model,
                         ports, timeout_s=60, simulator="auto", progress=progress_of(None))
     assert result.status == "counterexample"
