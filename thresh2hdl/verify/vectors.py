@@ -6,6 +6,7 @@ from dataclasses import replace
 import numpy as np
 
 from ..model import Unit
+from .ties import argmax_vectors
 
 __all__ = ["VectorSet", "make_vectors", "outside_vectors", "random_vectors", "reload_sets",
            "RANDOM_GROUP"]
@@ -124,7 +125,8 @@ def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=
                  others=(), guard=None):
     """Corner vectors (witnesses, all-min, all-max, per-feature extremes), boundary vectors,
     random vectors within the declared ranges, then optional dataset rows. ``others`` are the
-    analyses of a bank's other units, whose witnesses join the corners. ``guard``: with an
+    analyses of a bank's other units, whose witnesses join the corners, with the argmax's
+    ties and winners (:func:`~thresh2hdl.verify.ties.argmax_vectors`). ``guard``: with an
     input guard that defines codes outside the declared ranges, such codes join too."""
     ranges = analysis.feature_ranges
     n = len(ranges)
@@ -134,6 +136,8 @@ def make_vectors(analysis, *, random_count=DEFAULT_RANDOM_VECTORS, seed=0, data=
     if others:
         vectors.add("witnesses of the other units",
                     [w for other in others for w in (other.witness_max, other.witness_min)])
+        for name, rows in argmax_vectors([analysis, *others], seed):
+            vectors.add(name, rows)
     los = [lo for lo, _ in ranges]
     his = [hi for _, hi in ranges]
     vectors.add("all features at their minimum", [los])
