@@ -20,6 +20,7 @@ from ..reports import (build_report, model_digest, report_html, report_json, rep
 from ..verify import (choose_simulator, first_stimulus, make_backend, make_vectors, verify,
                       write_testbench)
 from .options import DEFAULT_VECTORS, BuildOptions
+from .packaging import write_packaging
 from .progress import progress_of
 from .proving import prove_text
 from .settings import SETTINGS_FILE, BuildSettings, read_history
@@ -145,8 +146,9 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         write_text(staging / "report.json", report_json(record))
         write_text(staging / "report.html", report_html(record))
         write_text(staging / "report.md", report_markdown(record))
-        write_testbench(staging, ports, model.module, _exported(verified, component, model,
-                                                                 options.seed), verilog_name)
+        exported = _exported(verified, component, model, options.seed)
+        testbench = write_testbench(staging, ports, model.module, exported, verilog_name)
+        write_packaging(staging, ports, model.module, exported, testbench, verilog_name)
         if proof is not None and proof.counterexample_csv is not None:
             write_text(staging / proof.counterexample_file, proof.counterexample_csv)
     built = BuildResult(out_dir=out_dir, report=report, verilog_path=out_dir / verilog_name)
