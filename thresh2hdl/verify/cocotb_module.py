@@ -49,7 +49,6 @@ def cocotb_test_text(ports, module, cycles, files, verilog_name, *, flag_checked
     replaying ``cycles`` cycles of the vector files named by ``files``
     (:class:`~thresh2hdl.verify.sim_icarus.TestbenchFiles`)."""
     by_role = {port.internal: port.name for port in ports}
-    clock_reset = (by_role["clk"], by_role["rst"]) if "clk" in by_role else (None, None)
     expected = expected_fields(ports, flag_checked=flag_checked,
                                flag_masks_results=flag_masks_results)
     flag_bit = 2 + expected[2][1] if flag_checked else None
@@ -57,7 +56,7 @@ def cocotb_test_text(ports, module, cycles, files, verilog_name, *, flag_checked
         "MODULE": module, "VERILOG": verilog_name, "CYCLES": str(cycles),
         "CYCLES_VARIABLE": CYCLES_VARIABLE, "FILE_NAME": cocotb_file_name(module),
         "STIMULUS": files.stimulus, "EXPECTED": files.expected, "TESTBENCH": files.testbench,
-        "CLOCK_RESET": repr(clock_reset), "FLAG_BIT": repr(flag_bit),
+        "CLOCK": repr(by_role.get("clk")), "RESET": repr(by_role.get("rst")), "FLAG_BIT": repr(flag_bit),
         "STIMULUS_FIELDS": _rows(stimulus_fields(ports)), "EXPECTED_FIELDS": _rows(expected),
     }
     text = template_text("thresh_cocotb.py.in")
