@@ -1,6 +1,7 @@
 """The FuseSoC core description each build folder carries: read by FuseSoC itself, and its
 ``sim`` target run by ``fusesoc`` with Icarus Verilog."""
 
+import json
 import os
 import shutil
 import subprocess
@@ -13,6 +14,7 @@ from helpers import require_package, require_tool
 from thresh2hdl import __version__
 from thresh2hdl.app import BuildOptions, build, demo_model
 from thresh2hdl.emit import VERILOG_2001, VHDL_2008, HdlFile, core_file_text, core_name
+from thresh2hdl.reports.record import report_record
 
 
 @pytest.fixture(scope="module")
@@ -98,6 +100,18 @@ def test_the_build_folder_core_lists_the_folder_files(small_folder):
     assert named == ["pump_fault.v", "pump_fault_tb.v", "stimulus.hex", "expected.hex"]
     assert all((small_folder / name).is_file() for name in named)
     assert "/" not in (small_folder / "pump_fault.core").read_text().replace("file_type", "")
+
+
+def test_the_report_names_the_core_and_the_cocotb_module_and_reads_them_back(small_folder):
+    report = json.loads((small_folder / "report.json").read_text())
+    assert report["packaging"] == {"core_file": "pump_fault.core",
+                                   "core_name": core_name("pump_fault", __version__),
+                                   "cocotb_test": "test_pump_fault.py"}
+    assert all((small_folder / name).is_file() for name in
+               (report["packaging"]["core_file"], report["packaging"]["cocotb_test"]))
+    assert report_record(report).to_json() == report
+    del report["packaging"]                                    # a folder of an older version
+    assert report_record(report).packaging is None
 
 
 def fusesoc_command():

@@ -163,6 +163,10 @@ def _verification_html(report):
                    + "</ul>")
     out.append(f"<p>Testbench for any Verilog-2001 simulator: <code>"
                f"{escape(report.testbench.command)}</code></p>")
+    if report.packaging:
+        out.append(f"<p>FuseSoC core <code>{escape(report.packaging.core_name)}</code> "
+                   f"({escape(report.packaging.core_file)}, target <code>sim</code>); cocotb "
+                   f"test <code>python {escape(report.packaging.cocotb_test)}</code></p>")
     return out
 
 
