@@ -74,6 +74,17 @@ def test_fusesoc_reads_the_core_with_both_languages_in_order(tmp_path):
                                 ("expected.hex", "user", "expected.hex")]
 
 
+def test_a_module_named_as_a_yaml_word_stays_a_name(tmp_path):
+    # Outside reference: FuseSoC 2.4.7's parser (YAML 1.1: a plain `on` is true, `null` None).
+    for module in ("on", "null", "yes"):
+        text = core_file_text(module, version="1", design=[HdlFile(f"{module}.v", VERILOG_2001)],
+                              testbench=[HdlFile(f"{module}_tb.v", VERILOG_2001)], data=[])
+        (tmp_path / f"{module}.core").write_text(text)
+        core = read_core(tmp_path / f"{module}.core")
+        assert target(core, "default")["toplevel"] == module
+        assert target(core, "sim")["toplevel"] == f"{module}_tb"
+
+
 def test_a_core_without_files_or_with_an_unknown_simulator_is_refused():
     design = [HdlFile("unit.v", VERILOG_2001)]
     with pytest.raises(ValueError, match="design file"):

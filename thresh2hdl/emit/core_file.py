@@ -46,7 +46,8 @@ def core_name(module, version):
 
 
 def _quoted(text):
-    # A JSON string is a YAML double-quoted scalar: no character can end it early.
+    # A JSON string is a YAML double-quoted scalar: no character can end it early, and a name
+    # such as `on` or `null` stays a string (plain, YAML 1.1 reads them as true and None).
     return json.dumps(str(text))
 
 
@@ -83,11 +84,11 @@ def core_file_text(module, *, version, design, testbench, data, testbench_top=No
     lines += ["", "targets:",
               "  default:",
               "    filesets: [rtl]",
-              f"    toplevel: {module}",
+              f"    toplevel: {_quoted(module)}",
               "  sim:",
               "    description: \"The self-checking testbench: prints PASS or FAIL\"",
               f"    filesets: [{', '.join(sim_sets)}]",
-              f"    toplevel: {top}",
+              f"    toplevel: {_quoted(top)}",
               "    flow: sim",
               "    flow_options:",
               f"      tool: {simulator}"]
