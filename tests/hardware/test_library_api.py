@@ -14,7 +14,7 @@ from amaranth.lib.wiring import In, Out
 from amaranth.sim import Simulator
 
 from thresh2hdl import FeatureFormat, Model, Unit, UnitConfig
-from thresh2hdl.hardware import make_component
+from thresh2hdl.hardware import make_component, plan_design
 
 README = (Path(__file__).parents[2] / "README.md").read_text(encoding="utf-8")
 
@@ -74,43 +74,57 @@ def run_user_design(model, design_model=None, *, vectors=150, seed=0, **options)
     rng = random.Random(seed)
     feature = model.features[0]
     codes = [[rng.randint(*feature.code_range) for _ in range(3)] for _ in range(vectors)]
-    seen = []
+    seen, first_done = [], []
 
     async def testbench(ctx):
-        for row in codes + [None] * 8:
+        for tick, row in enumerate(codes + [None] * 8, start=1):
             ctx.set(dut.strobe, row is not None)
             for port, code in zip((dut.a, dut.b, dut.c), row or (0, 0, 0)):
                 ctx.set(port, code)
             await ctx.tick()
             if ctx.get(dut.done):
                 seen.append((ctx.get(dut.decision), ctx.get(dut.score)))
+                first_done.append(tick)
 
     sim = Simulator(dut)
     sim.add_clock(1e-8)
     sim.add_testbench(testbench)
     sim.run()
-    return codes, seen
+    return codes, seen, first_done[0]
 
 
 def test_a_unit_inside_a_user_design_decides_as_the_plain_sum():
     model = unit_model()
     for pipeline in (0, 2):
-        codes, seen = run_user_design(model, pipeline=pipeline)
+        codes, seen, first_done = run_user_design(model, pipeline=pipeline)
+        # The first result: `latency` edges after its sample, then one for the user's register.
+        assert first_done == plan_design(UnitConfig(model, pipeline=pipeline)).latency + 1
         assert [s for s, _ in seen] == [plain_decision(model, c) for c in codes]
         assert [s for _, s in seen] == [plain_scores(model, c)[0] for c in codes]
 
 
 def test_a_bank_inside_a_user_design_picks_the_plain_argmax():
     model = bank_model()
-    codes, seen = run_user_design(model, pipeline=3)
+    codes, seen, _ = run_user_design(model, pipeline=3)
     assert [s for s, _ in seen] == [plain_decision(model, c) for c in codes]
     assert [s for _, s in seen] == [plain_scores(model, c)[-1] for c in codes]
+
+
+def test_the_ports_are_the_ones_the_readme_names():
+    # The plan answers for the component without building one (none is left unused).
+    unit = plan_design(UnitConfig(unit_model(), pipeline=2))
+    assert list(unit.signature.members) == ["in_valid", "in_ready", "x0", "x1", "x2",
+                                            "out_valid", "out_ready", "y", "score"]
+    assert unit.latency == 2
+    bank = plan_design(UnitConfig(bank_model(), pipeline=3))
+    assert [name for name in bank.signature.members if name.startswith("score")] == \
+        ["score0", "score1", "score2"]
 
 
 def test_the_check_fails_for_a_design_of_another_model():
     # The comparison can fail: the design of a model whose bias differs by one.
     model = unit_model()
-    codes, seen = run_user_design(model, unit_model(bias=-39), vectors=300, pipeline=1)
+    codes, seen, _ = run_user_design(model, unit_model(bias=-39), vectors=300, pipeline=1)
     assert [s for _, s in seen] != [plain_scores(model, c)[0] for c in codes]
 
 
