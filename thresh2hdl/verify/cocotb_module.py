@@ -6,6 +6,8 @@ unpacks are laid out here exactly as that function packs them, and a Python user
 cycles with the same expectations as the Verilog testbench.
 """
 
+import json
+
 from .sim_icarus import _score_ports, _write_ports
 from .templates import template_text
 
@@ -39,8 +41,16 @@ def expected_fields(ports, *, flag_checked, flag_masks_results):
     return fields + [(name, width, results) for name, width in _score_ports(ports)]
 
 
+def _python(value):
+    """A Python literal of a name, a number, None or a tuple of them (names in double quotes,
+    as JSON writes them: our names are plain identifiers)."""
+    if isinstance(value, tuple):
+        return f"({', '.join(_python(item) for item in value)})"
+    return "None" if value is None else json.dumps(value)
+
+
 def _rows(rows):
-    return "\n".join(f"    {row!r}," for row in rows)
+    return "\n".join(f"    {_python(tuple(row))}," for row in rows)
 
 
 def cocotb_test_text(ports, module, cycles, files, verilog_name, *, flag_checked=False,
@@ -56,7 +66,8 @@ def cocotb_test_text(ports, module, cycles, files, verilog_name, *, flag_checked
         "MODULE": module, "VERILOG": verilog_name, "CYCLES": str(cycles),
         "CYCLES_VARIABLE": CYCLES_VARIABLE, "FILE_NAME": cocotb_file_name(module),
         "STIMULUS": files.stimulus, "EXPECTED": files.expected, "TESTBENCH": files.testbench,
-        "CLOCK": repr(by_role.get("clk")), "RESET": repr(by_role.get("rst")), "FLAG_BIT": repr(flag_bit),
+        "CLOCK": _python(by_role.get("clk")), "RESET": _python(by_role.get("rst")),
+        "FLAG_BIT": _python(flag_bit),
         "STIMULUS_FIELDS": _rows(stimulus_fields(ports)), "EXPECTED_FIELDS": _rows(expected),
     }
     text = template_text("thresh_cocotb.py.in")
