@@ -36,6 +36,16 @@ def require_tool(*names):
         pytest.skip(message)
 
 
+def require_package(name):
+    """Skip locally when a Python package of the test extra is missing; fail in CI."""
+    import importlib.util
+    if importlib.util.find_spec(name) is None:
+        message = f"the Python package {name} is not installed (pip install -e '.[test]')"
+        if IN_CI:
+            pytest.fail(f"{message}; CI must have it")
+        pytest.skip(message)
+
+
 def require_proof_tools():
     """Skip locally without Yosys and Boolector (the prove extra); fail in CI."""
     from thresh2hdl.errors import ToolError

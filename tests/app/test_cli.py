@@ -41,7 +41,7 @@ def test_demo_end_to_end(tmp_path):
     assert sorted(p.name for p in out.iterdir()) == sorted(
         ["pump_fault.v", "pump_fault_instance.vh", "model.toml", "report.json",
          "pump_fault_tb.v", "stimulus.hex", "expected.hex", "report.html", "report.md",
-         "build_settings.json"])
+         "build_settings.json", "pump_fault.core", "test_pump_fault.py"])
 
 
 def test_build_example_twice_from_two_folders_is_byte_identical(tmp_path):

@@ -21,6 +21,7 @@ from ..verify import (GhdlBackend, choose_simulator, first_stimulus, make_backen
                       verify, write_testbench, write_vhdl_testbench)
 from .languages import check_vhdl, check_vhdl_request, design_texts, prove_vhdl_reading
 from .options import DEFAULT_VECTORS, BuildOptions
+from .packaging import write_packaging
 from .progress import progress_of
 from .proving import prove_text
 from .settings import SETTINGS_FILE, BuildSettings, read_history
@@ -168,6 +169,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
             (staging / files.testbench).unlink()
         if texts.vhdl is not None:
             write_vhdl_testbench(staging, ports, module, exported, vhdl_section["file"])
+        write_packaging(staging, ports, module, exported, files, verilog_name, vhdl_section)
         for result in [proof, *proofs.values()]:
             if result is not None and result.counterexample_csv is not None:
                 write_text(staging / result.counterexample_file, result.counterexample_csv)

@@ -11,10 +11,11 @@ from .. import __version__
 from ..analysis import guard_words
 from ..hardware import weight_addresses
 from ..model import model_to_toml
-from ..verify import ReferenceModel, TestbenchFiles
+from ..emit import core_file_name, core_name
+from ..verify import ReferenceModel, TestbenchFiles, cocotb_file_name
 from .design import Datapath, FeatureRow, Sizes
 from .fields import Table, plain, present
-from .record import GuardSection, Report, Testbench, Verification, WeightPort
+from .record import GuardSection, Packaging, Report, Testbench, Verification, WeightPort
 from .sections import (DataSummary, Histogram, ProofSection, QuantizationLog, TrainingLog,
                        VhdlSection)
 from .tables import (argmax_report, level_names, node_table, shared_report, stages_report,
@@ -177,6 +178,8 @@ def build_report(model, component, verilog_text, verilog_name, verified, *, seed
             seed),
         testbench=Testbench(*testbench) if testbench else Testbench(
             f"{model.module}_tb.v", TestbenchFiles(model.module).run_command(verilog_name)),
+        packaging=Packaging(core_file_name(model.module), core_name(model.module, __version__),
+                            cocotb_file_name(model.module) if verilog_name else None),
         instance_template=f"{model.module}_instance.vh" if verilog_name else None,
         hdl=hdl, vhdl=None if vhdl is None else VhdlSection.from_json(Table(plain(vhdl), "vhdl")),
         netlist_proofs={name: ProofSection.from_json(Table(plain(section), "netlist_proofs"))

@@ -175,6 +175,11 @@ def _verification_html(report):
         out += [f"<p>{escape(vhdl.file)} (VHDL-2008), lint: {escape(vhdl.lint)}. Component "
                 f"package {escape(vhdl.package)}. Testbench for GHDL (any VHDL-2008 simulator "
                 f"reads it): <code>{escape(vhdl.command)}</code></p>"]
+    if report.packaging:
+        out.append(f"<p>FuseSoC core <code>{escape(report.packaging.core_name)}</code> "
+                   f"({escape(report.packaging.core_file)}, target <code>sim</code>)"
+                   + (f"; cocotb test <code>python {escape(report.packaging.cocotb_test)}"
+                      f"</code>" if report.packaging.cocotb_test else "") + "</p>")
     return out
 
 

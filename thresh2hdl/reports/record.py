@@ -99,6 +99,24 @@ class Testbench:
 
 
 @dataclass(frozen=True)
+class Packaging:
+    """The folder's files for a user's own flow: the FuseSoC core description (its file and
+    VLNV) and the cocotb test module."""
+    core_file: str
+    core_name: str
+    cocotb_test: str | None          # None: a VHDL-only folder (the module drives Verilog)
+
+    def to_json(self):
+        return {"core_file": self.core_file, "core_name": self.core_name,
+                "cocotb_test": self.cocotb_test}
+
+    @classmethod
+    def from_json(cls, table):
+        return cls(table.text("core_file"), table.text("core_name"),
+                   table.text("cocotb_test", null=True))
+
+
+@dataclass(frozen=True)
 class Verification:
     """What the simulator found: vectors, cycles, mismatches and the first few of them."""
     vectors_checked: int
@@ -145,6 +163,7 @@ class Report:
     verification: Verification
     testbench: Testbench
     caution: str = SAFETY_CAUTION
+    packaging: Packaging | None = None       # older reports: no core file, no cocotb module
     instance_template: str | None = None
     register_stages: int | None = None       # older reports: the latency
     beats_per_result: int | None = None      # older reports: one
@@ -185,7 +204,8 @@ class Report:
             **optional("input_guard", self.input_guard),
             "vectors_checked": self.verification.vectors_checked,
             "mismatches": self.verification.mismatches,
-            "testbench": self.testbench.to_json(), "verification": self.verification.to_json(),
+            "testbench": self.testbench.to_json(), **optional("packaging", self.packaging),
+            "verification": self.verification.to_json(),
             "data": self.data and self.data.to_json(),
             **optional("training", self.training), **optional("quantization", self.quantization),
             **optional("proof", self.proof),
@@ -214,6 +234,7 @@ class Report:
             latency_cycles=top.count("latency_cycles"),
             verification=Verification.from_json(top, top.table("verification")),
             testbench=Testbench(testbench.text("file"), testbench.text("command")),
+            packaging=_section(top, "packaging", Packaging),
             caution=top.text("caution"), instance_template=top.text("instance_template", None),
             register_stages=top.count("register_stages", None),
             beats_per_result=top.count("beats_per_result", None),
