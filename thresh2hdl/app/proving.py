@@ -17,6 +17,7 @@ from .folder import load_folder, report_files
 from .languages import verilog_of
 from .options import check_timeout
 from .progress import progress_of
+from .sim_search import SEARCH_VECTORS, search_by_simulation
 
 __all__ = ["ProofResult", "counterexample_file", "prove", "prove_text"]
 
@@ -126,8 +127,19 @@ def prove_text(text, name, component, model, ports, *, timeout_s, simulator, pro
     """Prove ``text`` (file ``name``; ``own``: the folder's own Verilog) and confirm a
     counterexample in a simulator. ``progress``: a :class:`~.progress.Progress`."""
     clock = time.perf_counter()
+    simulator = choose_simulator(simulator)
+    searched = {}
+
+    def quick_search():
+        # Tried once, where a lemma fails or the method cannot follow the netlist: the whole
+        # design in a simulator (a second or two) before the solver's own search.
+        if "result" not in searched:
+            searched["result"] = None if simulator == "amaranth" else \
+                search_by_simulation(simulator, component, text, ports, model)
+        return searched["result"]
+
     outcome = prove_netlist(text, component, model, ports, timeout_s=timeout_s,
-                            progress=progress.note)
+                            progress=progress.note, quick_search=quick_search)
     section = {"status": outcome.status, "netlist": name,
                "netlist_sha256": hashlib.sha256(text.encode("utf-8")).hexdigest(),
                "statement": _statement(component, model),
@@ -138,29 +150,52 @@ def prove_text(text, name, component, model, ports, *, timeout_s, simulator, pro
                "detail": outcome.detail, "failing_lemmas": list(outcome.failing[:20]),
                "counterexample": None}
     csv_text = None
-    if outcome.status == "counterexample":     # the solver's, not yet confirmed
+    names = [f.name for f in model.features]
+    if outcome.status == "counterexample" and outcome.candidate is not None:
+        # The solver's candidate, confirmed in a simulator or not at all.
         section["status"] = "undecided"
-        if outcome.candidate is None:
-            section["detail"] += "; no input found whose outputs differ from the model's " \
-                                 "with the sink always ready"
+        mismatch, version_text = _confirm(simulator, component, text, ports, model,
+                                          outcome.candidate)
+        if mismatch is None:
+            section["detail"] += (
+                f"; candidate input {list(outcome.candidate)} not confirmed "
+                + ("(install Icarus Verilog or Verilator to run the Verilog)"
+                   if version_text is None else f"in {version_text}"))
         else:
-            mismatch, version_text = _confirm(choose_simulator(simulator), component, text,
-                                              ports, model, outcome.candidate)
-            names = [f.name for f in model.features]
-            if mismatch is None:
-                section["detail"] += (
-                    f"; candidate input {list(outcome.candidate)} not confirmed "
-                    + ("(install Icarus Verilog or Verilator to run the Verilog)"
-                       if version_text is None else f"in {version_text}"))
-            else:
-                section["status"] = "counterexample"
-                section["counterexample"] = {
-                    "vector": dict(zip(names, outcome.candidate)),
-                    "file": counterexample_file(name, own),
-                    "confirmed_in": version_text, "mismatch": mismatch}
-                csv_text = ",".join(names) + "\n" + ",".join(map(str, outcome.candidate)) + "\n"
+            section["status"] = "counterexample"
+            section["counterexample"] = {
+                "vector": dict(zip(names, outcome.candidate)),
+                "file": counterexample_file(name, own),
+                "confirmed_in": version_text, "mismatch": mismatch}
+            csv_text = ",".join(names) + "\n" + ",".join(map(str, outcome.candidate)) + "\n"
+    elif outcome.status in ("counterexample", "undecided"):
+        section["status"] = "undecided"
+        if simulator == "amaranth":
+            section["detail"] += "; no Verilog simulator to search for a counterexample"
+        else:
+            if "result" not in searched:
+                progress.note(f"undecided by the method; searching for a counterexample in "
+                              f"{simulator}")
+            csv_text = _found(section, quick_search(), simulator, names, name, own)
     seconds = time.perf_counter() - clock - outcome.warmup_seconds
     return ProofResult(section, outcome, csv_text, seconds)
+
+
+def _found(section, found, simulator, names, name, own):
+    """The section after the simulation's search: its mismatch as the confirmed counterexample
+    (the CSV text returned), or a note that it found none."""
+    if found is None:
+        section["detail"] += (f"; a simulation of the whole design in {simulator} (corners, "
+                              f"ties, threshold and {SEARCH_VECTORS} random vectors, with "
+                              f"handshake gaps and stalls) found no mismatch")
+        return None
+    vector, mismatch, version_text = found
+    section["status"] = "counterexample"
+    section["detail"] += "; a simulation of the whole design found a mismatch"
+    section["counterexample"] = {"vector": dict(zip(names, vector)) if vector else {},
+                                 "file": counterexample_file(name, own),
+                                 "confirmed_in": version_text, "mismatch": mismatch}
+    return ",".join(names) + "\n" + (",".join(map(str, vector)) + "\n" if vector else "")
 
 
 def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto",

@@ -65,11 +65,14 @@ def proof_tools():
 
 
 def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAULT_TIMEOUT_S,
-                  progress=None):
+                  progress=None, quick_search=None):
     """Prove that ``verilog_text`` computes ``model`` exactly, or find where it does not.
 
     ``component`` gives the plan (values, stages) the lemmas follow; ``port_rows`` is
-    :func:`thresh2hdl.emit.verilog.port_table` of it. Returns a :class:`ProofOutcome`.
+    :func:`thresh2hdl.emit.verilog.port_table` of it. ``quick_search``: a call tried when a
+    lemma fails, before the solver's search; when it returns something (a mismatch a
+    simulation found), the solver's search is skipped and the outcome has no candidate.
+    Returns a :class:`ProofOutcome`.
     """
     yosys, boolector = proof_tools()
     versions, tools = _warm_up(yosys, boolector, progress)
@@ -87,6 +90,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
         smt2, structure = export_smt2(yosys, verilog_text, model.module, folder)
         proof = _Proof(plan, model, smt2, port_rows, boolector, folder, started=started,
                        timeout_s=timeout_s, versions=versions, tools=tools, progress=progress)
+        proof.quick_search = quick_search
         try:
             check_structure(structure, port_rows)
         except Undecided as why:
@@ -133,6 +137,7 @@ class _Proof:
         self.boolector, self.folder, self.progress = boolector, folder, progress
         self.started, self.timeout_s = started, timeout_s
         self.versions, self.tools = versions, tools
+        self.quick_search = None
         widest = max([signed_bits(v.lo, v.hi) for v in plan.values.values()]
                      + wire_widths(smt2) + [1])
         self.width = max(MIN_WIDTH, widest + 2)
@@ -166,6 +171,9 @@ class _Proof:
             # their operands instead and try again; the wires that hold stay cut points.
             ignored |= inner
             self._say(f"{len(inner)} inner wire(s) do not follow the plan; trying without")
+        if self.quick_search is not None and self.quick_search() is not None:
+            return self.outcome("counterexample", "lemma(s) fail: " + ", ".join(failing[:5])
+                                + skipped, len(lemmas), failing)
         left = self.started + self.timeout_s - time.perf_counter()
         candidate = find_counterexample(self.plan, SmtExport(self.smt2, self.model.module),
                                         self.width, self.ports, self.model, self.folder,
