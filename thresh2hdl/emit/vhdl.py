@@ -152,6 +152,12 @@ class _VhdlWriter(NetlistWalk):
         high = f"{width - 1} downto 1 => '0', " if width > 1 else ""
         return f"{wire} <= ({high}0 => ({bit}));"
 
+    def constant(self, cell, key, is_scalar):
+        value = cell["parameters"][key]
+        bits = list(reversed(value)) if isinstance(value, str) else \
+            [str((int(value) >> i) & 1) for i in range(cell_param(cell, "WIDTH"))]
+        return self.scalar(bits) if is_scalar else _bits_literal(bits)
+
     def flop(self, cell, q):
         c = cell["connections"]
         if not cell_param(cell, "CLK_POLARITY"):
@@ -159,15 +165,25 @@ class _VhdlWriter(NetlistWalk):
         kind = cell["type"]
         is_scalar = q in self.scalars
         data = self.scalar(c["D"]) if is_scalar else self.vector(c["D"])
+        clock = self.scalar(c["CLK"])
+        if kind in ("$adff", "$adffe"):
+            # An asynchronous reset: in the sensitivity list, tested before the clock edge.
+            reset = self.scalar(c["ARST"])
+            load = [f"{q} <= {data};"]
+            if kind == "$adffe":
+                enable = f"{self.scalar(c['EN'])} = '{cell_param(cell, 'EN_POLARITY')}'"
+                load = [f"if {enable} then", f"  {q} <= {data};", "end if;"]
+            return ([f"process ({clock}, {reset})", "begin",
+                     f"  if {reset} = '{cell_param(cell, 'ARST_POLARITY')}' then",
+                     f"    {q} <= {self.constant(cell, 'ARST_VALUE', is_scalar)};",
+                     f"  elsif rising_edge({clock}) then"]
+                    + [f"    {line}" for line in load] + ["  end if;", "end process;"])
         body = [f"{q} <= {data};"]
         if kind in ("$dffe", "$sdffe", "$sdffce"):
             enable = f"{self.scalar(c['EN'])} = '{cell_param(cell, 'EN_POLARITY')}'"
         if kind in ("$sdff", "$sdffe", "$sdffce"):
             reset = f"{self.scalar(c['SRST'])} = '{cell_param(cell, 'SRST_POLARITY')}'"
-            value = cell["parameters"]["SRST_VALUE"]
-            bits = list(reversed(value)) if isinstance(value, str) else \
-                [str((int(value) >> i) & 1) for i in range(cell_param(cell, "WIDTH"))]
-            value = self.scalar(bits) if is_scalar else _bits_literal(bits)
+            value = self.constant(cell, "SRST_VALUE", is_scalar)
         if kind == "$dffe":
             body = [f"if {enable} then", f"  {q} <= {data};", "end if;"]
         elif kind == "$sdff":
@@ -179,7 +195,6 @@ class _VhdlWriter(NetlistWalk):
         elif kind == "$sdffce":
             body = [f"if {enable} then", f"  if {reset} then", f"    {q} <= {value};",
                     "  else", f"    {q} <= {data};", "  end if;", "end if;"]
-        clock = self.scalar(c["CLK"])
         return ([f"process ({clock})", "begin", f"  if rising_edge({clock}) then"]
                 + [f"    {line}" for line in body] + ["  end if;", "end process;"])
 
