@@ -18,10 +18,13 @@ from amaranth.hdl import Shape
 from amaranth.lib.wiring import In
 
 from ..errors import ToolError
-from .netlist import netlist_of
+from ..hardware import reset_is_low, reset_port
+from .flops import FLOPS as _FLOPS, flop_lines, literal as _literal, param as _param
+from .netlist import LOW_RESET_PORT, RESET_PORT, netlist_of
 from .ports import Port
 
-__all__ = ["bit_range", "write_verilog", "emit_verilog", "instance_template", "port_table", "range_comments"]
+__all__ = ["bit_range", "write_verilog", "emit_verilog", "instance_template", "port_table",
+           "range_comments"]
 
 _BINARY = {"$add": "+", "$sub": "-", "$mul": "*", "$and": "&", "$or": "|", "$xor": "^",
            "$xnor": "~^"}
@@ -29,21 +32,6 @@ _UNARY = {"$neg": "-", "$not": "~", "$pos": ""}
 _REDUCE = {"$reduce_and": "&", "$reduce_or": "|", "$reduce_bool": "|", "$reduce_xor": "^",
            "$reduce_xnor": "~^"}
 _COMPARE = {"$eq": "==", "$ne": "!=", "$lt": "<", "$le": "<=", "$gt": ">", "$ge": ">="}
-_FLOPS = {"$dff", "$dffe", "$sdff", "$sdffe", "$sdffce"}
-
-
-def _param(cell, key):
-    value = cell["parameters"][key]
-    return int(value, 2) if isinstance(value, str) else int(value)
-
-
-def _literal(bits):
-    """A sized literal for constant bits (LSB first)."""
-    width = len(bits)
-    if any(b not in ("0", "1") for b in bits):
-        return f"{width}'b" + "".join(reversed(bits))
-    value = sum(1 << i for i, b in enumerate(bits) if b == "1")
-    return f"{width}'d{value}" if width <= 64 else f"{width}'h{value:x}"
 
 
 class _Writer:
@@ -161,35 +149,6 @@ class _Writer:
         raise ToolError(f"internal: the Verilog writer has no rule for cell {kind}; "
                         f"please report this with the model file")
 
-    def flop(self, cell, q):
-        c = cell["connections"]
-        if not _param(cell, "CLK_POLARITY"):
-            raise ToolError("internal: negative-edge flop in the netlist")
-        clock = self.ref(c["CLK"])
-        data = self.ref(c["D"])
-        kind = cell["type"]
-        body = [f"{q} <= {data};"]
-        if kind in ("$dffe", "$sdffe", "$sdffce"):
-            enable = self.ref(c["EN"])
-            enable = enable if _param(cell, "EN_POLARITY") else f"!{enable}"
-        if kind in ("$sdff", "$sdffe", "$sdffce"):
-            reset = self.ref(c["SRST"])
-            reset = reset if _param(cell, "SRST_POLARITY") else f"!{reset}"
-            value = cell["parameters"]["SRST_VALUE"]
-            value = _literal(list(reversed(value))) if isinstance(value, str) else \
-                _literal([str((int(value) >> i) & 1) for i in range(_param(cell, "WIDTH"))])
-        if kind == "$dffe":
-            body = [f"if ({enable})", f"  {q} <= {data};"]
-        elif kind == "$sdff":
-            body = [f"if ({reset})", f"  {q} <= {value};", "else", f"  {q} <= {data};"]
-        elif kind == "$sdffe":
-            body = [f"if ({reset})", f"  {q} <= {value};", f"else if ({enable})",
-                    f"  {q} <= {data};"]
-        elif kind == "$sdffce":
-            body = [f"if ({enable}) begin", f"  if ({reset})", f"    {q} <= {value};",
-                    "  else", f"    {q} <= {data};", "end"]
-        return [f"always @(posedge {clock}) begin"] + [f"  {line}" for line in body] + ["end"]
-
     # --- module -----------------------------------------------------------------------------
     def write(self, header):
         ports = self.ports
@@ -280,7 +239,7 @@ class _Writer:
                 declarations.append(f"  {keep}{'reg ' if is_flop else 'wire'} "
                                     f"{bit_range(self.widths[wire])}{wire};")
             if is_flop:
-                body += ["  " + line for line in self.flop(cell, wire)]
+                body += ["  " + line for line in flop_lines(cell, wire, self.ref)]
             else:
                 body.append(f"  assign {wire} = {self.expression(cell)};")
         for name in self.port_order:
@@ -327,7 +286,7 @@ def port_table(component, model):
              "out_ready": ports.out_ready, "y": ports.decision, "score": ports.score,
              "x": ports.sample, "weight_write": ports.weight_write,
              "weight_address": ports.weight_address, "weight_data": ports.weight_data,
-             "out_of_range": ports.out_of_range}
+             "out_of_range": ports.out_of_range, "ce": ports.clock_enable}
     for index, feature in enumerate(model.features):
         names[f"x{index}"] = feature.name
     if model.is_bank:
@@ -335,8 +294,12 @@ def port_table(component, model):
             names[f"score{index}"] = f"{ports.score}_{unit.name}"
     table = []
     if component.latency > 0:
+        # An active-low reset is its own row (internal ``rst_n``), so that every harness
+        # knows the level that asserts it from the table alone.
+        kind = component.config.reset
         table += [Port("clk", names["clk"], "input", 1, False),
-                  Port("rst", names["rst"], "input", 1, False)]
+                  Port(LOW_RESET_PORT if reset_is_low(kind) else RESET_PORT,
+                       reset_port(kind, names["rst"]), "input", 1, False)]
     for member_name, member in component.signature.members.items():
         shape = Shape.cast(member.shape)
         direction = "input" if member.flow == In else "output"

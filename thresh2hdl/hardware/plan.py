@@ -237,7 +237,8 @@ def _signature(config, decision_bits, scores):
     per feature at its format (serial: the one sample bus), the decision, the out-of-range
     flag when the guard has one, the scores."""
     model = config.model
-    members = {"in_valid": In(1), "in_ready": Out(1), **write_members(config)}
+    members = {"ce": In(1)} if config.clock_enable else {}
+    members.update({"in_valid": In(1), "in_ready": Out(1), **write_members(config)})
     if config.arch == "serial":
         members["x"] = In(sample_shape(model))
     else:

@@ -44,6 +44,7 @@ from pathlib import Path
 from ..analysis import signed_bits
 from ..names import register_name
 from ..tools import find_tool, warm_up
+from .clocking import enable_high, held_cycle
 from .forms import Plan
 from .lemmas import lemmas_of
 from .outcome import DEFAULT_TIMEOUT_S, ProofOutcome, Undecided
@@ -220,8 +221,9 @@ class _Proof:
         the text each is checked under."""
         plan, ports = self.plan, self.ports
         states = ["s0", "s1"] if plan.latency else ["s0"]
-        common = [smt.text, *smt.steps(states), *query.lines]
-        common += [f"(assert {a})" for a in assumptions]
+        base = [smt.text, *smt.steps(states), *query.lines]
+        base += [f"(assert {a})" for a in assumptions]
+        common = base + enable_high(plan, smt, ports, states)
         # With the flag alone (no clamp), results are stated for inputs in range only,
         # but the flag for every code: its lemmas are checked without the input ranges.
         flags = [name for name, value in plan.values.items() if value.kind == "flag"]
@@ -232,5 +234,11 @@ class _Proof:
         free = [l for l in lemmas if l[0] in flag_labels]
         groups = [("\n".join(common + [f"(assert {a})" for a in inputs]),
                    [l for l in lemmas if l not in free]), ("\n".join(common), free)]
+        held = held_cycle(plan, smt, ports)
+        if held is not None:
+            # The held cycle: the enable low instead of high, any input.
+            held_assumptions, lemma = held
+            lemmas.append(lemma)
+            groups.append(("\n".join(base + held_assumptions), [lemma]))
         common += [f"(assert {a})" for a in inputs]
         return common, groups

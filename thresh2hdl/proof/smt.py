@@ -96,6 +96,9 @@ def export_smt2(yosys, verilog_text, module, folder):
         f"hierarchy -check -top {module}\n"
         "proc\nflatten\nsetundef -anyseq\nopt_clean\n"
         "write_json design.json\n"
+        # An asynchronous reset's flops as synchronous ones whose output reads the reset
+        # value while it is asserted (the export has one global clock); none otherwise.
+        "async2sync\ndffunmap\n"
         "write_smt2 -wires -stbv design.smt2\n", encoding="utf-8")
     run([yosys, "-q", "prove.ys"], folder, failure="Yosys could not read the netlist")
     document = json.loads((folder / "design.json").read_text(encoding="utf-8"))

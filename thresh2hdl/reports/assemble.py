@@ -9,12 +9,12 @@ import numpy as np
 
 from .. import __version__
 from ..analysis import guard_words
-from ..hardware import weight_addresses
+from ..hardware import DEFAULT_RESET, reset_port, weight_addresses
 from ..model import model_to_toml
 from ..verify import ReferenceModel, TestbenchFiles
 from .design import Datapath, FeatureRow, Sizes
 from .fields import Table, plain, present
-from .record import GuardSection, Report, Testbench, Verification, WeightPort
+from .record import ClockingSection, GuardSection, Report, Testbench, Verification, WeightPort
 from .sections import DataSummary, Histogram, ProofSection, QuantizationLog, TrainingLog
 from .tables import (argmax_report, level_names, node_table, shared_report, stages_report,
                      unit_histograms)
@@ -126,6 +126,16 @@ def guard_report(component, model, chosen=(None, None)):
                         tuple(explicit), guard_words(guard))
 
 
+def _clocking_report(component, model):
+    """The reset and clock enable; None for the default (synchronous, active high, no
+    enable), so that a default build's report is as it was before they could be chosen."""
+    config = component.config
+    if config.reset == DEFAULT_RESET and not config.clock_enable:
+        return None
+    return ClockingSection(config.reset, reset_port(config.reset, model.ports.reset),
+                           model.ports.clock_enable if config.clock_enable else None)
+
+
 def _weight_port_report(component, model):
     config = component.config
     if not config.loadable_weights:
@@ -177,6 +187,7 @@ def build_report(model, component, verilog_text, verilog_name, verified, *, seed
         register_stages=component.config.pipeline, beats_per_result=component.beats,
         weight_port=_weight_port_report(component, model),
         input_guard=guard_report(component, model, chosen=chosen_guard),
+        clocking=_clocking_report(component, model),
         data=None if dataset is None else data_summary(model, reference, dataset),
         **_history(history),
         proof=None if proof is None else ProofSection.from_json(Table(plain(proof),

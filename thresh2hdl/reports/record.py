@@ -21,7 +21,7 @@ from .estimates import read_estimates
 from .sections import DataSummary, ProofSection, QuantizationLog, TrainingLog
 
 __all__ = ["REPORT_FORMAT", "SAFETY_CAUTION", "Report", "WeightPort", "GuardSection",
-           "Verification", "Testbench", "report_json", "report_record"]
+           "ClockingSection", "Verification", "Testbench", "report_json", "report_record"]
 
 REPORT_FORMAT = 1
 
@@ -55,6 +55,24 @@ class WeightPort:
                    table.pair("weight_range"), table.pair("bias_range"),
                    table.count("data_bits"), table.natural("addresses"),
                    table.text("map"), table.texts("ports"))
+
+
+@dataclass(frozen=True)
+class ClockingSection:
+    """The reset and clock enable, when not the default (a synchronous, active-high reset
+    and no enable: older reports and default builds have no section)."""
+    reset: str                       # one of hardware.RESET_KINDS
+    reset_port: str
+    clock_enable_port: str | None
+
+    def to_json(self):
+        return {"reset": self.reset, "reset_port": self.reset_port,
+                "clock_enable_port": self.clock_enable_port}
+
+    @classmethod
+    def from_json(cls, table):
+        return cls(table.text("reset"), table.text("reset_port"),
+                   table.text("clock_enable_port", null=True))
 
 
 @dataclass(frozen=True)
@@ -150,6 +168,7 @@ class Report:
     beats_per_result: int | None = None      # older reports: one
     weight_port: WeightPort | None = None
     input_guard: GuardSection | None = None  # older reports were built without one
+    clocking: ClockingSection | None = None  # None: synchronous active-high reset, no enable
     data: DataSummary | None = None
     training: TrainingLog | None = None
     quantization: QuantizationLog | None = None
@@ -173,6 +192,7 @@ class Report:
                        ("beats_per_result", self.beats_per_result)]),
             "weight_port": self.weight_port and self.weight_port.to_json(),
             **optional("input_guard", self.input_guard),
+            **optional("clocking", self.clocking),
             "vectors_checked": self.verification.vectors_checked,
             "mismatches": self.verification.mismatches,
             "testbench": self.testbench.to_json(), "verification": self.verification.to_json(),
@@ -208,6 +228,7 @@ class Report:
             beats_per_result=top.count("beats_per_result", None),
             weight_port=_section(top, "weight_port", WeightPort),
             input_guard=_section(top, "input_guard", GuardSection),
+            clocking=_section(top, "clocking", ClockingSection),
             data=_section(top, "data", DataSummary),
             training=_section(top, "training", TrainingLog),
             quantization=_section(top, "quantization", QuantizationLog),

@@ -1,6 +1,6 @@
 """The report's short form, for the terminal after a build."""
 
-from .phrases import digits_text, levels_text, shared_text, stages_text
+from .phrases import clocking_text, digits_text, levels_text, shared_text, stages_text
 from .record import SAFETY_CAUTION, report_record
 
 __all__ = ["summary_lines"]
@@ -29,6 +29,8 @@ def summary_lines(report):
     ]
     if datapath.shared:
         lines.append(f"  shared: {shared_text(datapath)}")
+    if report.clocking:
+        lines.append(f"  {clocking_text(report.clocking)}")
     guard = report.input_guard
     if guard and guard.needed:
         what = " and ".join(word for word, on in (("clamped", guard.clamp),

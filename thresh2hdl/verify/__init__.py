@@ -10,7 +10,7 @@ from .sim_icarus import (IcarusBackend, TestbenchFiles, icarus_version, simulate
                          write_testbench)
 from .sim_verilator import (VerilatorBackend, find_verilator, simulate_verilator,
                             verilator_version)
-from .stimulus import make_reload_stimulus, make_stimulus
+from .stimulus import make_reload_stimulus, make_stimulus, with_held_cycles
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
 
 __all__ = ["SimulationResult", "SimulatorBackend", "CompareResult", "Mismatch", "compare",
@@ -19,4 +19,4 @@ __all__ = ["SimulationResult", "SimulatorBackend", "CompareResult", "Mismatch", 
            "AmaranthBackend", "simulate_amaranth", "IcarusBackend", "TestbenchFiles",
            "icarus_version", "simulate_icarus", "write_testbench", "VerilatorBackend",
            "find_verilator", "simulate_verilator", "verilator_version", "make_reload_stimulus",
-           "make_stimulus", "RANDOM_GROUP", "make_vectors", "random_vectors", "reload_sets"]
+           "make_stimulus", "with_held_cycles", "RANDOM_GROUP", "make_vectors", "random_vectors", "reload_sets"]

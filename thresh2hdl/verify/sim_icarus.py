@@ -16,7 +16,7 @@ from ..errors import ToolError
 from ..outdir import write_text
 from ..tools import find_tool, run, tool_version
 from .backend import SimulationResult, VerilogBackend
-from .stimulus import write_columns
+from .stimulus import enable_column, write_columns
 from .templates import template_text
 
 __all__ = ["IcarusBackend", "TestbenchFiles", "testbench_text", "write_testbench",
@@ -57,6 +57,11 @@ def _write_ports(ports):
     return [rows[key] for key in order if key in rows]
 
 
+# The testbench's own clock and reset (``rst`` high asserts it; an active-low port is driven
+# by its complement), by the port's internal name.
+_CLOCKING = {"clk": "clk", "rst": "rst", "rst_n": "~rst"}
+
+
 def _pad(expression, width):
     return expression if width == 128 else f"{{{128 - width}'d0, {expression}}}"
 
@@ -72,18 +77,20 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     scores = _score_ports(ports)
     tb = lambda role: f"tb_{by_role[role][0]}"
     input_regs = [f"  reg {_range(port.width)}tb_{port.name};" for port in ports
-                  if port.direction == "input" and port.internal not in ("clk", "rst")]
+                  if port.direction == "input" and port.internal not in _CLOCKING]
     output_wires = [f"  wire {_range(port.width)}tb_{port.name};" for port in ports
                     if port.direction == "output"]
     connections = []
     for port in ports:
-        signal = {"clk": "clk", "rst": "rst"}.get(port.internal, f"tb_{port.name}")
+        signal = _CLOCKING.get(port.internal, f"tb_{port.name}")
         connections.append(f"    .{port.name}({signal})")
     writes = _write_ports(ports)
-    stim_concat = ", ".join([f"tb_{n}" for n, _ in reversed(writes)]
+    enable = [(by_role["ce"][0], 1)] if "ce" in by_role else []
+    stim_concat = ", ".join([f"tb_{n}" for n, _ in enable]
+                            + [f"tb_{n}" for n, _ in reversed(writes)]
                             + [tb("out_ready"), tb("in_valid")]
                             + [f"tb_{n}" for n, _ in reversed(features)])
-    stim_bits = 2 + sum(w for _, w in features) + sum(w for _, w in writes)
+    stim_bits = 2 + sum(w for _, w in features) + sum(w for _, w in writes) + len(enable)
     decision_bits = by_role["y"][1]
     # Expected word, low bits first: in_ready, out_valid, decision, the out-of-range flag
     # (when the design has one), then each score.
@@ -174,8 +181,11 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     writes = _write_ports(ports)
     if writes:
         columns += list(write_columns(stimulus))
+    enable = [1] if any(port.internal == "ce" for port in ports) else []
+    if enable:
+        columns.append(enable_column(stimulus).astype(np.int64))
     write_text(folder / files.stimulus,
-               _hex_lines(columns, features + [1, 1] + [w for _, w in writes]))
+               _hex_lines(columns, features + [1, 1] + [w for _, w in writes] + enable))
     scores = _score_ports(ports)
     decision_bits = next(port.width for port in ports if port.internal == "y")
     index = np.maximum(stimulus.expect_out_index, 0)

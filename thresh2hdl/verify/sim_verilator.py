@@ -21,7 +21,7 @@ import numpy as np
 from ..errors import ToolError
 from ..tools import find_tool, run, tool_version, which_tool
 from .backend import SimulationResult, VerilogBackend
-from .stimulus import write_columns
+from .stimulus import enable_column, write_columns
 from .templates import template_text
 
 __all__ = ["VerilatorBackend", "find_verilator", "verilator_version", "simulate_verilator",
@@ -113,9 +113,12 @@ def harness_text(ports, module):
         lines.append(f"        top.{name} = static_cast<uint32_t>(f[{index}]) & {mask};")
     reset = ""
     if "clk" in by_role:
-        rst = by_role["rst"][0]
-        reset = (f"    top.{rst} = 1;\n    top.{by_role['in_valid'][0]} = 0;\n    edge();\n"
-                 f"    top.{rst} = 0;")
+        # The reset port asserted at its level (an active-low one is ``rst_n``).
+        low = "rst_n" in by_role
+        rst = by_role["rst_n" if low else "rst"][0]
+        reset = (f"    top.{rst} = {int(not low)};\n    top.{by_role['in_valid'][0]} = 0;\n"
+                 f"    edge();\n    top.{rst} = {int(low)};")
+    enable = f"        top.{by_role['ce'][0]} = (c[0] >> 1) & 1;" if "ce" in by_role else ""
     scores = [port.name for port in ports if port.internal.startswith("score")]
     writes = []
     if "weight_write" in by_role:
@@ -135,7 +138,7 @@ def harness_text(ports, module):
               "FLAG": (f" | ((top.{by_role['out_of_range'][0]} & 1) << 15)"
                        if "out_of_range" in by_role else ""),
               "SCORE_READS": reads, "SCORE_PORTS": str(len(scores)),
-              "SET_WRITES": "\n".join(writes), "CONTROL_WORDS": str(control_words(ports))}
+              "SET_WRITES": "\n".join(writes), "SET_ENABLE": enable, "CONTROL_WORDS": str(control_words(ports))}
     text = template_text("verilator_harness.cpp.in")
     for key, value in values.items():
         text = text.replace(f"@{key}@", value)
@@ -204,7 +207,7 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
     else:
         vectors = codes.astype(np.int64)      # the harness masks to the port's width
     control = np.empty((stimulus.cycles, control_words(ports)), dtype="<i4")
-    control[:, 0] = stimulus.in_valid
+    control[:, 0] = stimulus.in_valid | (enable_column(stimulus).astype(np.int32) << 1)
     control[:, 1] = stimulus.out_ready
     control[:, 2] = stimulus.in_index
     if control.shape[1] > 3:
