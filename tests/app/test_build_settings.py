@@ -80,6 +80,19 @@ def test_the_record_holds_the_resolved_choices_and_the_reload_reads_it(which, re
     assert config_of(load_folder(folder).component) == config_of(built.component)
 
 
+def test_a_record_with_clocking_rebuilds_it(split_folder, tmp_path):
+    # A record written with a reset and an enable reloads them (a record without the keys,
+    # as every default build writes it, is the default: the test above).
+    folder = copied(split_folder, tmp_path)
+    record = json.loads((folder / RECORD).read_text())
+    record.update(reset="async-low", clock_enable=True)
+    (folder / RECORD).write_text(json.dumps(record))
+    config = load_folder(folder).component.config
+    assert (config.reset, config.clock_enable) == ("async-low", True)
+    assert '"reset": "async-low"' in BuildSettings.of(load_folder(folder).component,
+                                                      record["module"]).to_json()
+
+
 @pytest.mark.parametrize("which", ["split_folder", "bank_folder"])
 def test_an_older_folder_without_the_record_reloads_from_its_report(which, request, tmp_path):
     original = request.getfixturevalue(which)
@@ -120,6 +133,11 @@ def exits_2(capsys, argv):
     (lambda r: json.dumps({**r, "split_bits": 1}), "recorded build settings are refused"),
     (lambda r: json.dumps({**r, "arch": "serial"}), "recorded build settings are refused"),
     (lambda r: json.dumps({**r, "latency_cycles": 99}), "latency_cycles is 99"),
+    (lambda r: json.dumps({**r, "reset": "async"}), "reset: must be one of sync-high, "
+     "sync-low, async-high, async-low"),
+    (lambda r: json.dumps({**r, "clock_enable": 1}), "clock_enable: must be true or false"),
+    (lambda r: json.dumps({**r, "pipeline": 0, "latency_cycles": 0, "clock_enable": True}),
+     "recorded build settings are refused"),
 ])
 def test_an_edited_record_is_one_line_naming_the_file_and_field(split_folder, tmp_path, capsys,
                                                                 edit, expected):
