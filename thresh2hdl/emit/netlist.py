@@ -15,7 +15,8 @@ from amaranth.back import rtlil
 from ..errors import ToolError
 from ..hardware import DEFAULT_RESET, reset_domain, reset_is_low
 
-__all__ = ["NETLIST_PASSES", "rtlil_text", "netlist_of", "invert_reset"]
+__all__ = ["NETLIST_PASSES", "rtlil_text", "netlist_of", "invert_reset", "pack_stream",
+           "STREAM_IN", "STREAM_OUT"]
 
 NETLIST_PASSES = ("proc", "opt_clean", "opt_dff -nosdff", "opt_clean", "wreduce", "opt_clean")
 
@@ -45,13 +46,43 @@ def rtlil_text(component, name):
 RESET_PORT, LOW_RESET_PORT = "rst", "rst_n"
 
 
+# The AXI4-Stream form's packed ports, as the netlist and the port table name them.
+STREAM_IN, STREAM_OUT = "s_axis_tdata", "m_axis_tdata"
+
+
+def _fresh_bit(module):
+    return 1 + max(b for net in module["netnames"].values() for b in net["bits"]
+                   if isinstance(b, int))
+
+
+def pack_stream(module, layout):
+    """The AXI4-Stream form: the feature ports become lanes of one input ``s_axis_tdata``
+    (the bits above each code fresh inputs nothing reads), the results lanes of one output
+    ``m_axis_tdata`` (above each result zeros, or its sign for a signed one), as
+    ``layout`` (:class:`~thresh2hdl.hardware.StreamLayout`) places them. The ports' old
+    names stay the names of the bits inside. ``module`` is changed in place."""
+    ports, fresh = module["ports"], _fresh_bit(module)
+    packed = []
+    for lane in layout.inputs:
+        pad = lane.lane_bits - lane.width
+        packed += ports.pop(lane.member)["bits"] + list(range(fresh, fresh + pad))
+        fresh += pad
+    ports[STREAM_IN] = {"direction": "input", "bits": packed}
+    module["netnames"][STREAM_IN] = {"hide_name": 0, "bits": packed, "attributes": {}}
+    packed = []
+    for lane in layout.outputs:
+        bits = ports.pop(lane.member)["bits"]
+        packed += bits + [bits[-1] if lane.signed else "0"] * (lane.lane_bits - lane.width)
+    ports[STREAM_OUT] = {"direction": "output", "bits": packed}
+    return module
+
+
 def invert_reset(module):
     """An active-low reset: the port ``rst`` becomes ``rst_n`` through an inverter, whose
     output keeps the name ``rst`` inside (one ``assign rst = ~rst_n;`` in the Verilog).
     ``module`` is the parsed ``write_json`` record; changed in place."""
     port = module["ports"].pop(RESET_PORT)
-    bits = module["netnames"].values()
-    fresh = 1 + max(b for net in bits for b in net["bits"] if isinstance(b, int))
+    fresh = _fresh_bit(module)
     module["ports"][LOW_RESET_PORT] = {"direction": "input", "bits": [fresh]}
     module["netnames"][LOW_RESET_PORT] = {"hide_name": 0, "bits": [fresh], "attributes": {}}
     one = format(1, "032b")
@@ -78,4 +109,6 @@ def netlist_of(component, name):
     module = document["modules"][name]
     if reset_is_low(component.config.reset) and RESET_PORT in module["ports"]:
         invert_reset(module)
+    if component.stream is not None:
+        pack_stream(module, component.stream)
     return module

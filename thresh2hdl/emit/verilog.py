@@ -20,8 +20,8 @@ from amaranth.lib.wiring import In
 from ..errors import ToolError
 from ..hardware import reset_is_low, reset_port
 from .flops import FLOPS as _FLOPS, flop_lines, literal as _literal, param as _param
-from .netlist import LOW_RESET_PORT, RESET_PORT, netlist_of
-from .ports import Port
+from .netlist import LOW_RESET_PORT, RESET_PORT, STREAM_IN, STREAM_OUT, netlist_of
+from .ports import Port, PortTable
 
 __all__ = ["bit_range", "write_verilog", "emit_verilog", "instance_template", "port_table",
            "range_comments"]
@@ -293,18 +293,44 @@ def port_table(component, model):
         for index, unit in enumerate(model.units):
             names[f"score{index}"] = f"{ports.score}_{unit.name}"
     table = []
+    if component.stream is not None:
+        names.update(_STREAM_NAMES)
     if component.latency > 0:
         # An active-low reset is its own row (internal ``rst_n``), so that every harness
         # knows the level that asserts it from the table alone.
         kind = component.config.reset
         table += [Port("clk", names["clk"], "input", 1, False),
                   Port(LOW_RESET_PORT if reset_is_low(kind) else RESET_PORT,
-                       reset_port(kind, names["rst"]), "input", 1, False)]
+                       names["rst"] if component.stream else reset_port(kind, names["rst"]),
+                       "input", 1, False)]
     for member_name, member in component.signature.members.items():
         shape = Shape.cast(member.shape)
         direction = "input" if member.flow == In else "output"
         table.append(Port(member_name, names[member_name], direction, shape.width, shape.signed))
-    return table
+    if component.stream is None:
+        return PortTable(table)
+    return _stream_table(table, component.stream)
+
+
+# The AXI4-Stream form's names (the specification's signals, prefixed by the interface).
+_STREAM_NAMES = {"clk": "aclk", "rst": "aresetn", "in_valid": "s_axis_tvalid",
+                 "in_ready": "s_axis_tready", "out_valid": "m_axis_tvalid",
+                 "out_ready": "m_axis_tready"}
+
+
+def _stream_table(logical, layout):
+    """The AXI4-Stream form's ports: each packed port where its first member was."""
+    lanes = {lane.member: (STREAM_IN, lane) for lane in layout.inputs}
+    lanes.update({lane.member: (STREAM_OUT, lane) for lane in layout.outputs})
+    widths = {STREAM_IN: layout.in_bits, STREAM_OUT: layout.out_bits}
+    rows = []
+    for port in logical:
+        if port.internal not in lanes:
+            rows.append(port)
+        elif not any(row.internal == lanes[port.internal][0] for row in rows):
+            name = lanes[port.internal][0]
+            rows.append(Port(name, name, port.direction, widths[name], False))
+    return PortTable(rows, logical, lanes)
 
 
 def emit_verilog(component, model, *, header=()):
@@ -337,6 +363,22 @@ def range_comments(component, model):
             f"a code outside it is {outside}"
         lines.append(f"//   {feature.name}: [{lo}, {hi}] of a {feature.bits}-bit {kind} code; "
                      f"{note}")
+    return lines + lane_comments(port_table(component, model))
+
+
+def lane_comments(table):
+    """Where each logical port sits in a packed one (none with the plain interface)."""
+    if not table.lanes:
+        return []
+    lines = ["// AXI4-Stream byte lanes (the bits above a feature are ignored; above a result "
+             "zeros, or its sign):"]
+    for port in table.logical:
+        if port.internal in table.lanes:
+            packed, lane = table.lanes[port.internal]
+            top = lane.offset + lane.lane_bits - 1
+            lines.append(f"//   {packed}[{top}:{lane.offset}]: {port.name} "
+                         f"({'signed ' if port.signed else ''}{port.width} bit"
+                         f"{'s' if port.width > 1 else ''})")
     return lines
 
 

@@ -3,6 +3,7 @@ Amaranth components built from it: a unit, a bank with an argmax, a serial unit.
 
 from .clocking import (DEFAULT_RESET, RESET_KINDS, reset_domain, reset_is_async, reset_is_low,
                        reset_port)
+from .stream import INTERFACES, MAX_TDATA_BITS, Lane, StreamLayout
 from .config import FULL_PIPELINE, MAX_SERIAL_FEATURES, UnitConfig, sample_shape
 from .plan import DesignPlan, plan_design
 from .weights import weight_addresses
@@ -12,6 +13,7 @@ from .serial import SerialThreshold
 from .make import make_component
 
 __all__ = ["DEFAULT_RESET", "RESET_KINDS", "reset_domain", "reset_is_async", "reset_is_low",
-           "reset_port", "FULL_PIPELINE", "MAX_SERIAL_FEATURES", "UnitConfig", "sample_shape", "DesignPlan",
+           "reset_port", "INTERFACES", "MAX_TDATA_BITS", "Lane", "StreamLayout",
+           "FULL_PIPELINE", "MAX_SERIAL_FEATURES", "UnitConfig", "sample_shape", "DesignPlan",
            "plan_design", "weight_addresses", "ThresholdUnit", "ThresholdBank",
            "SerialThreshold", "make_component"]

@@ -137,7 +137,19 @@ class _Proof:
         widest = max([signed_bits(v.lo, v.hi) for v in plan.values.values()]
                      + wire_widths(smt2) + [1])
         self.width = max(MIN_WIDTH, widest + 2)
-        self.ports = port_names(port_rows)
+        # The query reads the logical ports; a member of a packed port (AXI4-Stream TDATA)
+        # is a slice of it.
+        self.ports = port_names(getattr(port_rows, "logical", port_rows))
+        self.slices = [(next(p.name for p in port_rows.logical if p.internal == member),
+                        port, lane.offset, lane.width)
+                       for member, (port, lane) in getattr(port_rows, "lanes", {}).items()]
+
+    def export(self, ignored=frozenset()):
+        """The netlist's export, its packed ports' members readable by name."""
+        smt = SmtExport(self.smt2, self.model.module, ignored)
+        for name, port, offset, width in self.slices:
+            smt.add_slice(name, port, offset, width)
+        return smt
 
     def outcome(self, status, detail, lemmas=0, failing=(), candidate=None):
         return ProofOutcome(status, detail, lemmas, tuple(failing), candidate,
@@ -168,7 +180,7 @@ class _Proof:
             ignored |= inner
             self._say(f"{len(inner)} inner wire(s) do not follow the plan; trying without")
         left = self.started + self.timeout_s - time.perf_counter()
-        candidate = find_counterexample(self.plan, SmtExport(self.smt2, self.model.module),
+        candidate = find_counterexample(self.plan, self.export(),
                                         self.width, self.ports, self.model, self.folder,
                                         self.boolector, max(5, left))
         return self.outcome("counterexample", "lemma(s) fail: " + ", ".join(failing[:5])
@@ -178,7 +190,7 @@ class _Proof:
         """One round with the ``ignored`` wires computed from their operands: a final
         outcome, or what failed (the export, the lemmas, the failing labels, a note)."""
         plan, timeout_s = self.plan, self.timeout_s
-        smt = SmtExport(self.smt2, self.model.module, frozenset(ignored))
+        smt = self.export(frozenset(ignored))
         query = Query(plan, smt, self.width, self.ports)
         # A cut wire must hold its whole range, so that its free value can be assumed in it.
         smt.cut({name for name in plan.closed

@@ -27,6 +27,7 @@ class SmtExport:
         self.widths = {}
         self.registers = set()
         self.cut_ids = {}
+        self.slices = {}       # name -> (packed port, first bit): a member of a packed port
         for kind, name, width in _WIRE_LINE.findall(text):
             if name in ignored and kind == "wire":
                 continue        # computed from its operands instead (see Query.known)
@@ -60,6 +61,12 @@ class SmtExport:
                                      f"(_ BitVec {bits}))" for i, bits in sorted(ids.items())]
         self.text = "\n".join(lines)
 
+    def add_slice(self, name, port, offset, width):
+        """``name`` read as ``width`` bits of the packed port ``port`` from bit ``offset``
+        (the AXI4-Stream form's TDATA lanes), so that the query reads it by name."""
+        self.slices[name] = (port, offset)
+        self.widths[name] = width
+
     def steps(self, states):
         """Declarations of ``states``, each the transition of the one before."""
         m = self.module
@@ -71,6 +78,11 @@ class SmtExport:
         return f"(|{self.cut_ids[name]} cut| {state})"
 
     def raw(self, name, state):
+        if name in self.slices:
+            port, offset = self.slices[name]
+            width = self.widths[name]
+            bits = f"((_ extract {offset + width - 1} {offset}) {self.raw(port, state)})"
+            return f"(= {bits} #b1)" if width == 1 else bits    # one bit: a Bool, as a wire
         return f"(|{self.module}_n {name}| {state})"
 
     def bits(self, name, state):

@@ -9,12 +9,14 @@ import numpy as np
 
 from .. import __version__
 from ..analysis import guard_words
-from ..hardware import DEFAULT_RESET, reset_port, weight_addresses
+from ..hardware import DEFAULT_RESET, weight_addresses
+from ..emit import port_table
 from ..model import model_to_toml
 from ..verify import ReferenceModel, TestbenchFiles
 from .design import Datapath, FeatureRow, Sizes
 from .fields import Table, plain, present
-from .record import ClockingSection, GuardSection, Report, Testbench, Verification, WeightPort
+from .record import (ClockingSection, GuardSection, Report, StreamSection, Testbench,
+                     Verification, WeightPort)
 from .sections import DataSummary, Histogram, ProofSection, QuantizationLog, TrainingLog
 from .tables import (argmax_report, level_names, node_table, shared_report, stages_report,
                      unit_histograms)
@@ -132,8 +134,20 @@ def _clocking_report(component, model):
     config = component.config
     if config.reset == DEFAULT_RESET and not config.clock_enable:
         return None
-    return ClockingSection(config.reset, reset_port(config.reset, model.ports.reset),
-                           model.ports.clock_enable if config.clock_enable else None)
+    table = port_table(component, model)
+    return ClockingSection(config.reset, next(p.name for p in table if p.internal.startswith(
+        "rst")), next((p.name for p in table if p.internal == "ce"), None))
+
+
+def _stream_report(component, model):
+    """The AXI4-Stream form's lanes; None for the plain interface."""
+    table = port_table(component, model)
+    if not table.lanes:
+        return None
+    return StreamSection(component.config.interface, tuple(
+        (table.lanes[p.internal][0], p.name, table.lanes[p.internal][1].offset,
+         table.lanes[p.internal][1].offset + table.lanes[p.internal][1].lane_bits - 1)
+        for p in table.logical if p.internal in table.lanes))
 
 
 def _weight_port_report(component, model):
@@ -188,6 +202,7 @@ def build_report(model, component, verilog_text, verilog_name, verified, *, seed
         weight_port=_weight_port_report(component, model),
         input_guard=guard_report(component, model, chosen=chosen_guard),
         clocking=_clocking_report(component, model),
+        stream=_stream_report(component, model),
         data=None if dataset is None else data_summary(model, reference, dataset),
         **_history(history),
         proof=None if proof is None else ProofSection.from_json(Table(plain(proof),

@@ -5,7 +5,7 @@ from ..cost import CELL_NAMES
 from .fields import Table
 from .estimates import CostEstimate
 
-__all__ = ["clocking_text", "count", "digits_text", "levels_text", "stages_text", "split_text", "shared_text",
+__all__ = ["clocking_text", "stream_text", "count", "digits_text", "levels_text", "stages_text", "split_text", "shared_text",
            "guard_text", "entry_text", "cost_text"]
 
 
@@ -82,6 +82,15 @@ def clocking_text(clocking):
         text += (f"; clock enable {clocking.clock_enable_port}: while it is low every register "
                  f"holds and in_ready and out_valid read 0")
     return text
+
+
+def stream_text(stream):
+    """The AXI4-Stream form's lanes, port by port."""
+    ports = {}
+    for port, name, lo, hi in stream.lanes:
+        ports.setdefault(port, []).append(f"{name} [{hi}:{lo}]")
+    return "AXI4-Stream; " + "; ".join(f"{port}: {', '.join(lanes)}"
+                                       for port, lanes in ports.items())
 
 
 def guard_text(guard):

@@ -62,6 +62,45 @@ def _write_ports(ports):
 _CLOCKING = {"clk": "clk", "rst": "rst", "rst_n": "~rst"}
 
 
+def _logical(ports):
+    """The ports a harness drives and reads: the logical ones behind a packed interface
+    (:class:`~thresh2hdl.emit.PortTable`), or the rows themselves."""
+    return getattr(ports, "logical", ports)
+
+
+def _members_of(declared, ports, packed):
+    """The logical ports packed into the port ``packed``, with their lanes, lowest first."""
+    lanes = getattr(declared, "lanes", {})
+    return [(port, lanes[port.internal][1]) for port in ports
+            if lanes.get(port.internal, (None,))[0] == packed]
+
+
+def _packed_inputs(declared, ports, port):
+    """A packed input port driven from the testbench's registers (the bits above each code
+    ones, which the design must ignore); None for a port of its own."""
+    members = _members_of(declared, ports, port.name)
+    if port.direction != "input" or not members:
+        return None
+    parts = []
+    for member, lane in reversed(members):
+        pad = lane.lane_bits - lane.width
+        parts += ([f"{{{pad}{{1'b1}}}}"] if pad else []) + [f"tb_{member.name}"]
+    return "{" + ", ".join(parts) + "}"
+
+
+def _unpacked_outputs(declared, ports):
+    """A wire for each packed output port and the logical outputs read from its lanes."""
+    lines = []
+    for port in declared:
+        members = _members_of(declared, ports, port.name)
+        if port.direction == "output" and members:
+            lines.append(f"  wire {_range(port.width)}tb_{port.name};")
+            lines += [f"  assign tb_{member.name} = tb_{port.name}"
+                      f"[{lane.offset + lane.width - 1}:{lane.offset}];"
+                      for member, lane in members]
+    return lines
+
+
 def _pad(expression, width):
     return expression if width == 128 else f"{{{128 - width}'d0, {expression}}}"
 
@@ -72,6 +111,7 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     ``flag_checked``: the expectations hold the out-of-range flag; ``flag_masks_results``: the
     decision and scores of a flagged result are not specified (a flag without a clamp), so
     they are compared only where the flag is low."""
+    declared, ports = ports, _logical(ports)
     by_role = {port.internal: (port.name, port.width, port.signed) for port in ports}
     features = [(port.name, port.width) for port in ports if port.internal.startswith("x")]
     scores = _score_ports(ports)
@@ -80,10 +120,11 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
                   if port.direction == "input" and port.internal not in _CLOCKING]
     output_wires = [f"  wire {_range(port.width)}tb_{port.name};" for port in ports
                     if port.direction == "output"]
+    output_wires += _unpacked_outputs(declared, ports)
     connections = []
-    for port in ports:
+    for port in declared:
         signal = _CLOCKING.get(port.internal, f"tb_{port.name}")
-        connections.append(f"    .{port.name}({signal})")
+        connections.append(f"    .{port.name}({_packed_inputs(declared, ports, port) or signal})")
     writes = _write_ports(ports)
     enable = [(by_role["ce"][0], 1)] if "ce" in by_role else []
     stim_concat = ", ".join([f"tb_{n}" for n, _ in enable]
@@ -174,6 +215,7 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     """Write the testbench and its two vector files into ``folder``; returns the file names."""
     folder = Path(folder)
     files = TestbenchFiles(module)
+    declared, ports = ports, _logical(ports)
     features = [port.width for port in ports if port.internal.startswith("x")]
     inputs = stimulus.inputs
     columns = [inputs[:, i] for i in range(inputs.shape[1])]
@@ -202,7 +244,7 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
         widths.append(width)
     write_text(folder / files.expected, _hex_lines(columns, widths))
     write_text(folder / files.testbench,
-               testbench_text(ports, module, stimulus.cycles, files, verilog_name,
+               testbench_text(declared, module, stimulus.cycles, files, verilog_name,
                               flag_checked=stimulus.expect_flags is not None,
                               flag_masks_results=stimulus.flag_masks_results))
     return files
@@ -243,6 +285,7 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
             raise ToolError(f"{Path(command[0]).name} failed: "
                             f"{message[0] if message else result.returncode}")
         outputs.append(result.stdout)
+    ports = _logical(ports)
     scores_ports = _score_ports(ports)
     rows = (workdir / files.responses).read_text().split("\n")
     rows = [row.split() for row in rows if row]
