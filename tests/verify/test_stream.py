@@ -218,7 +218,7 @@ def test_the_demo_stream_folder_records_checks_and_its_testbench_passes(tmp_path
     _, run_testbench = exported_testbench(out, tmp_path)
     assert "PASS" in run_testbench().stdout
     for simulator in ("icarus", "verilator"):
-        result = run("check", out, "--simulator", simulator)
+        result = run("check", out, "--simulator", simulator, "--vectors", "3000")
         assert result.returncode == 0, result.stderr
 
 
@@ -236,7 +236,7 @@ def test_the_stream_form_is_proved_and_a_swapped_lane_is_not(tmp_path, stream_fo
     assert swapped != assign
     (tmp_path / "swapped.v").write_text(text.replace(assign, swapped))
     result = run("check", stream_folder, "--netlist", tmp_path / "swapped.v", "--simulator",
-                 "icarus")
+                 "icarus", "--vectors", "2000")
     assert result.returncode == 1, result.stderr
     copy, _ = exported_testbench(stream_folder, tmp_path)
     result = run("prove", copy, "--netlist", tmp_path / "swapped.v")
