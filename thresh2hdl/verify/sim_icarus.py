@@ -168,6 +168,9 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     text = _template()
     for key, value in values.items():
         text = text.replace(f"@{key}@", value)
+    if enable:
+        # The clock enable is the stimulus word's top bit (a design without one: as it was).
+        text = text.replace("stimulus per cycle : {", "stimulus per cycle : {clock enable, ", 1)
     return text
 
 
