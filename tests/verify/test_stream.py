@@ -24,6 +24,7 @@ from thresh2hdl.model.records import FeatureFormat, Model, Unit
 from thresh2hdl.hardware import MAX_TDATA_BITS, UnitConfig, make_component, plan_design
 from thresh2hdl.proof.prover import prove_netlist
 from thresh2hdl.verify.runner import first_stimulus
+from thresh2hdl.verify.sim_amaranth import simulate_amaranth
 from thresh2hdl.verify.vectors import make_vectors
 
 
@@ -91,6 +92,8 @@ def test_every_kind_of_design_is_lint_clean_and_agrees_in_every_simulator(tmp_pa
     design = plan_design(config)
     rows = make_vectors(design.analysis, random_count=400, seed=seed).array
     stimulus, _ = first_stimulus(design, config.model, rows, seed=seed, reload_count=100)
+    checked = simulate_amaranth(make_component(config), stimulus).check(stimulus)
+    assert checked.mismatch_count == 0 and checked.vectors_checked > 0
     assert_lint_clean_and_agrees(tmp_path, config.model, make_component(config), stimulus)
 
 
