@@ -218,6 +218,8 @@ def test_the_demo_stream_folder_records_checks_and_its_testbench_passes(tmp_path
     assert (settings["interface"], settings["reset"]) == ("axi-stream", "sync-low")
     assert "s_axis_tdata: rms_axial [15:0]" in (out / "report.md").read_text()
     assert "m_axis_tdata[39:16]: score" in (out / "pump_fault.v").read_text()
+    assert "s_axis_tdata[15:0]: rms_axial" in (out / "pump_fault_instance.vh").read_text()
+    assert "AXI4-Stream; s_axis_tdata: rms_axial [15:0]" in (out / "report.html").read_text()
     _, run_testbench = exported_testbench(out, tmp_path)
     assert "PASS" in run_testbench().stdout
     for simulator in ("icarus", "verilator"):
