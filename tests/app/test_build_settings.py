@@ -55,8 +55,12 @@ def test_the_record_holds_the_resolved_choices_and_the_reload_reads_it(which, re
     record = json.loads(text)
     built = load_folder(folder)
     assert record["settings_format"] == 1 and text.endswith("}\n")
-    assert set(record) == {"settings_format"} | {f.name for f in fields(BuildSettings)}
-    assert {key: record[key] for key in config_of(built.component)} == \
+    # The clocking keys are written only when not the default, so that a default build's
+    # record is byte for byte what it was before they could be chosen.
+    unwritten = {"reset": "sync-high", "clock_enable": False, "interface": "plain"}
+    assert set(record) == {"settings_format"} | {f.name for f in fields(BuildSettings)} - \
+        set(unwritten)
+    assert {key: record.get(key, unwritten.get(key)) for key in config_of(built.component)} == \
         config_of(built.component)
     assert record["latency_cycles"] == built.component.latency
     assert record["module"] == built.model.module and built.verilog.name == \
@@ -74,6 +78,19 @@ def test_the_record_holds_the_resolved_choices_and_the_reload_reads_it(which, re
     report["tree"]["split_bits"] = 1
     (folder / "report.json").write_text(json.dumps(report))
     assert config_of(load_folder(folder).component) == config_of(built.component)
+
+
+def test_a_record_with_clocking_rebuilds_it(split_folder, tmp_path):
+    # A record written with a reset and an enable reloads them (a record without the keys,
+    # as every default build writes it, is the default: the test above).
+    folder = copied(split_folder, tmp_path)
+    record = json.loads((folder / RECORD).read_text())
+    record.update(reset="async-low", clock_enable=True)
+    (folder / RECORD).write_text(json.dumps(record))
+    config = load_folder(folder).component.config
+    assert (config.reset, config.clock_enable) == ("async-low", True)
+    assert '"reset": "async-low"' in BuildSettings.of(load_folder(folder).component,
+                                                      record["module"]).to_json()
 
 
 @pytest.mark.parametrize("which", ["split_folder", "bank_folder"])
@@ -116,6 +133,11 @@ def exits_2(capsys, argv):
     (lambda r: json.dumps({**r, "split_bits": 1}), "recorded build settings are refused"),
     (lambda r: json.dumps({**r, "arch": "serial"}), "recorded build settings are refused"),
     (lambda r: json.dumps({**r, "latency_cycles": 99}), "latency_cycles is 99"),
+    (lambda r: json.dumps({**r, "reset": "async"}), "reset: must be one of sync-high, "
+     "sync-low, async-high, async-low"),
+    (lambda r: json.dumps({**r, "clock_enable": 1}), "clock_enable: must be true or false"),
+    (lambda r: json.dumps({**r, "pipeline": 0, "latency_cycles": 0, "clock_enable": True}),
+     "recorded build settings are refused"),
 ])
 def test_an_edited_record_is_one_line_naming_the_file_and_field(split_folder, tmp_path, capsys,
                                                                 edit, expected):

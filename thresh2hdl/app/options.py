@@ -12,7 +12,7 @@ from typing import ClassVar
 
 from ..analysis import ARCHITECTURES
 from ..errors import InputError
-from ..hardware import FULL_PIPELINE, UnitConfig
+from ..hardware import DEFAULT_RESET, FULL_PIPELINE, INTERFACES, RESET_KINDS, UnitConfig
 from ..proof import DEFAULT_TIMEOUT_S
 
 __all__ = ["BuildOptions", "Flag", "HDLS", "SIMULATORS", "DEFAULT_VECTORS", "MAX_VECTORS",
@@ -98,6 +98,17 @@ class BuildOptions:
         None, "--range-flag/--no-range-flag", "An output bit, high with each result whose "
         "input had a feature outside its declared range (default: on when some declared range "
         "is tighter than its port).", kind="switch")
+    reset: str | None = _option(
+        None, "--reset", f"The reset: synchronous or asynchronous, active high or active low "
+        f"(the port then named <reset>_n, e.g. rst_n); default {DEFAULT_RESET}, and sync-low "
+        f"for the axi-stream interface.", choices=RESET_KINDS)
+    clock_enable: bool = _option(
+        False, "--clock-enable", "A clock enable port (ce): while it is low every register "
+        "holds and in_ready and out_valid read 0.", kind="switch")
+    interface: str = _option(
+        "plain", "--interface", "plain: the handshake and one port per feature and result; "
+        "axi-stream: the features in an AXI4-Stream slave's TDATA, the results in a master's "
+        "(byte lanes), aclk and aresetn.", choices=INTERFACES, show_default=True)
     vectors: int | None = _option(      # None: sized to the simulator (DEFAULT_VECTORS)
         None, "--vectors", "Random vectors to verify, on top of the corner cases (default: "
         f"{DEFAULT_VECTORS['verilator']} with Verilator, {DEFAULT_VECTORS['icarus']} "

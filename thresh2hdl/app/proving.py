@@ -119,6 +119,9 @@ def _statement(component, model):
                      "ranges")
     if guard.flag:
         statement += "; the out-of-range output is high exactly when a code was outside its range"
+    if component.config.clock_enable:
+        statement += ("; shown with the clock enable high, and a cycle with it low (the reset "
+                      "released) changes no register and reads in_ready and out_valid 0")
     return statement
 
 

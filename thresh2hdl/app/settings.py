@@ -7,6 +7,7 @@ from dataclasses import asdict, dataclass, fields as dataclass_fields
 from pathlib import Path
 
 from ..errors import InputError
+from ..hardware import DEFAULT_RESET, INTERFACES, RESET_KINDS
 from ..readers import load_json, shorten
 
 __all__ = ["BuildSettings", "SETTINGS_FILE", "SETTINGS_FORMAT", "read_build_settings",
@@ -37,6 +38,9 @@ class BuildSettings:
     clamp: bool
     range_flag: bool
     share_terms: bool
+    reset: str = DEFAULT_RESET       # written only when not the default, so that a default
+    clock_enable: bool = False       # build's record is what it was before these existed
+    interface: str = "plain"
     latency_cycles: int
 
     @classmethod
@@ -52,7 +56,9 @@ class BuildSettings:
 
     def to_json(self):
         """The record's file text: the fields in order, no paths, no times."""
-        return json.dumps({"settings_format": SETTINGS_FORMAT, **asdict(self)}, indent=2) + "\n"
+        record = {key: value for key, value in asdict(self).items()
+                  if key not in _ADDED_LATER or value != _ADDED_LATER[key] or key == "share_terms"}
+        return json.dumps({"settings_format": SETTINGS_FORMAT, **record}, indent=2) + "\n"
 
 
 def _integer(value, optional=False):
@@ -73,10 +79,14 @@ _RECORD = {
     "clamp": ("true or false", lambda v: isinstance(v, bool)),
     "range_flag": ("true or false", lambda v: isinstance(v, bool)),
     "share_terms": ("true or false", lambda v: isinstance(v, bool)),
+    "reset": (f"one of {', '.join(RESET_KINDS)}", lambda v: v in RESET_KINDS),
+    "clock_enable": ("true or false", lambda v: isinstance(v, bool)),
+    "interface": (f"one of {', '.join(INTERFACES)}", lambda v: v in INTERFACES),
     "latency_cycles": (f"an integer from 0 to {MAX_SETTING}", _integer),
 }
 # Fields a record written before they existed lacks, with the value its design had.
-_ADDED_LATER = {"share_terms": False}
+_ADDED_LATER = {"share_terms": False, "reset": DEFAULT_RESET, "clock_enable": False,
+                "interface": "plain"}
 _DESIGN = tuple(f.name for f in dataclass_fields(BuildSettings) if f.name not in ("module",
                                                                        "latency_cycles"))
 
@@ -165,7 +175,9 @@ def read_build_settings(path):
                 "loadable_weights": bool(port),
                 "weight_bits": integer("weight_port.weight_bits", port.get("weight_bits"), True),
                 "bias_bits": integer("weight_port.bias_bits", port.get("bias_bits"), True),
-                "share_terms": False}      # older folders: built before terms were shared
+                "share_terms": False,      # older folders: built before terms were shared,
+                "reset": DEFAULT_RESET, "clock_enable": False,    # or resets were chosen,
+                "interface": "plain"}                             # or streams made
     # A folder from before the input guard was built without one.
     for key, option in (("clamp", "clamp"), ("flag", "range_flag")):
         value = guard.get(key, False)

@@ -8,16 +8,9 @@ same order and differ only in the language: what one file computes, the other do
 import re
 
 from ..errors import ToolError
+from .flops import FLOPS, param as cell_param
 
 __all__ = ["FLOPS", "NetlistWalk", "cell_param", "natural_key"]
-
-FLOPS = {"$dff", "$dffe", "$sdff", "$sdffe", "$sdffce"}
-
-
-def cell_param(cell, key):
-    """A cell parameter as an integer (Yosys writes them as bit strings or numbers)."""
-    value = cell["parameters"][key]
-    return int(value, 2) if isinstance(value, str) else int(value)
 
 
 def natural_key(text):

@@ -13,8 +13,10 @@ import json
 from amaranth.back import rtlil
 
 from ..errors import ToolError
+from ..hardware import DEFAULT_RESET, reset_domain, reset_is_low
 
-__all__ = ["NETLIST_PASSES", "rtlil_text", "netlist_of"]
+__all__ = ["NETLIST_PASSES", "rtlil_text", "netlist_of", "invert_reset", "pack_stream",
+           "STREAM_IN", "STREAM_OUT"]
 
 NETLIST_PASSES = ("proc", "opt_clean", "opt_dff -nosdff", "opt_clean", "wreduce", "opt_clean")
 
@@ -31,8 +33,65 @@ def _yosys():
 
 
 def rtlil_text(component, name):
-    """RTLIL of the component, with no source locations (so no machine paths)."""
-    return rtlil.convert(component, name=name, emit_src=False)
+    """RTLIL of the component, with no source locations (so no machine paths); its clock
+    domain's reset synchronous or asynchronous as the configuration asks."""
+    kind = component.config.reset
+    if kind == DEFAULT_RESET:
+        return rtlil.convert(component, name=name, emit_src=False)
+    return rtlil.convert(component, name=name, emit_src=False,
+                         missing_domain=lambda domain: reset_domain(kind, domain))
+
+
+# The netlist's active-high reset port, and the active-low port that replaces it.
+RESET_PORT, LOW_RESET_PORT = "rst", "rst_n"
+
+
+# The AXI4-Stream form's packed ports, as the netlist and the port table name them.
+STREAM_IN, STREAM_OUT = "s_axis_tdata", "m_axis_tdata"
+
+
+def _fresh_bit(module):
+    return 1 + max(b for net in module["netnames"].values() for b in net["bits"]
+                   if isinstance(b, int))
+
+
+def pack_stream(module, layout):
+    """The AXI4-Stream form: the feature ports become lanes of one input ``s_axis_tdata``
+    (the bits above each code fresh inputs nothing reads), the results lanes of one output
+    ``m_axis_tdata`` (above each result zeros, or its sign for a signed one), as
+    ``layout`` (:class:`~thresh2hdl.hardware.StreamLayout`) places them. The ports' old
+    names stay the names of the bits inside. ``module`` is changed in place."""
+    ports, fresh = module["ports"], _fresh_bit(module)
+    packed = []
+    for lane in layout.inputs:
+        pad = lane.lane_bits - lane.width
+        packed += ports.pop(lane.member)["bits"] + list(range(fresh, fresh + pad))
+        fresh += pad
+    ports[STREAM_IN] = {"direction": "input", "bits": packed}
+    module["netnames"][STREAM_IN] = {"hide_name": 0, "bits": packed, "attributes": {}}
+    packed = []
+    for lane in layout.outputs:
+        bits = ports.pop(lane.member)["bits"]
+        packed += bits + [bits[-1] if lane.signed else "0"] * (lane.lane_bits - lane.width)
+    ports[STREAM_OUT] = {"direction": "output", "bits": packed}
+    return module
+
+
+def invert_reset(module):
+    """An active-low reset: the port ``rst`` becomes ``rst_n`` through an inverter, whose
+    output keeps the name ``rst`` inside (one ``assign rst = ~rst_n;`` in the Verilog).
+    ``module`` is the parsed ``write_json`` record; changed in place."""
+    port = module["ports"].pop(RESET_PORT)
+    fresh = _fresh_bit(module)
+    module["ports"][LOW_RESET_PORT] = {"direction": "input", "bits": [fresh]}
+    module["netnames"][LOW_RESET_PORT] = {"hide_name": 0, "bits": [fresh], "attributes": {}}
+    one = format(1, "032b")
+    module["cells"]["$reset_inverter"] = {
+        "hide_name": 1, "type": "$not",
+        "parameters": {"A_SIGNED": format(0, "032b"), "A_WIDTH": one, "Y_WIDTH": one},
+        "attributes": {}, "port_directions": {"A": "input", "Y": "output"},
+        "connections": {"A": [fresh], "Y": list(port["bits"])}}
+    return module
 
 
 def netlist_of(component, name):
@@ -47,4 +106,9 @@ def netlist_of(component, name):
         raise ToolError(f"Yosys failed on the design: {str(error).splitlines()[0]}") from None
     start = output.find("{")
     document = json.loads(output[start:])
-    return document["modules"][name]
+    module = document["modules"][name]
+    if reset_is_low(component.config.reset) and RESET_PORT in module["ports"]:
+        invert_reset(module)
+    if component.stream is not None:
+        pack_stream(module, component.stream)
+    return module

@@ -6,7 +6,7 @@ from typing import NamedTuple
 
 from ..errors import InputError
 
-__all__ = ["Port", "verilog_ports", "read_netlist", "check_ports"]
+__all__ = ["Port", "PortTable", "verilog_ports", "read_netlist", "check_ports"]
 
 
 class Port(NamedTuple):
@@ -18,6 +18,22 @@ class Port(NamedTuple):
     direction: str       # "input" or "output"
     width: int
     signed: bool
+
+
+class PortTable(tuple):
+    """The ports a module declares, in order (:class:`Port` rows), and the logical ports
+    behind them: ``logical``, the rows of the component's members (each feature, the decision,
+    the scores... as the plain interface declares them) and ``lanes``, for a member packed
+    into a wider port (the AXI4-Stream form's TDATA), ``(that port's Verilog name,
+    hardware.Lane)``. With the plain interface the two sets of rows are the same and no
+    member is packed. Every harness drives and reads the logical ports; the file declares
+    these rows."""
+
+    def __new__(cls, rows, logical=None, lanes=None):
+        table = super().__new__(cls, rows)
+        table.logical = table if logical is None else tuple(logical)
+        table.lanes = dict(lanes or {})
+        return table
 
 
 _PORT_DECLARATION = re.compile(

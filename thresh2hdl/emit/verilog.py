@@ -16,11 +16,14 @@ from amaranth.hdl import Shape
 from amaranth.lib.wiring import In
 
 from ..errors import ToolError
-from .cells import FLOPS, NetlistWalk, cell_param
-from .netlist import netlist_of
-from .ports import Port
+from ..hardware import reset_is_low, reset_port
+from .cells import NetlistWalk, cell_param
+from .flops import FLOPS, flop_lines, literal as _literal
+from .netlist import LOW_RESET_PORT, RESET_PORT, STREAM_IN, STREAM_OUT, netlist_of
+from .ports import Port, PortTable
 
-__all__ = ["bit_range", "write_verilog", "emit_verilog", "instance_template", "port_table", "range_comments"]
+__all__ = ["bit_range", "write_verilog", "emit_verilog", "instance_template", "port_table",
+           "range_comments"]
 
 _BINARY = {"$add": "+", "$sub": "-", "$mul": "*", "$and": "&", "$or": "|", "$xor": "^",
            "$xnor": "~^"}
@@ -30,13 +33,6 @@ _REDUCE = {"$reduce_and": "&", "$reduce_or": "|", "$reduce_bool": "|", "$reduce_
 _COMPARE = {"$eq": "==", "$ne": "!=", "$lt": "<", "$le": "<=", "$gt": ">", "$ge": ">="}
 
 
-def _literal(bits):
-    """A sized literal for constant bits (LSB first)."""
-    width = len(bits)
-    if any(b not in ("0", "1") for b in bits):
-        return f"{width}'b" + "".join(reversed(bits))
-    value = sum(1 << i for i, b in enumerate(bits) if b == "1")
-    return f"{width}'d{value}" if width <= 64 else f"{width}'h{value:x}"
 
 
 class _Writer(NetlistWalk):
@@ -98,35 +94,6 @@ class _Writer(NetlistWalk):
         raise ToolError(f"internal: the Verilog writer has no rule for cell {kind}; "
                         f"please report this with the model file")
 
-    def flop(self, cell, q):
-        c = cell["connections"]
-        if not cell_param(cell, "CLK_POLARITY"):
-            raise ToolError("internal: negative-edge flop in the netlist")
-        clock = self.ref(c["CLK"])
-        data = self.ref(c["D"])
-        kind = cell["type"]
-        body = [f"{q} <= {data};"]
-        if kind in ("$dffe", "$sdffe", "$sdffce"):
-            enable = self.ref(c["EN"])
-            enable = enable if cell_param(cell, "EN_POLARITY") else f"!{enable}"
-        if kind in ("$sdff", "$sdffe", "$sdffce"):
-            reset = self.ref(c["SRST"])
-            reset = reset if cell_param(cell, "SRST_POLARITY") else f"!{reset}"
-            value = cell["parameters"]["SRST_VALUE"]
-            value = _literal(list(reversed(value))) if isinstance(value, str) else \
-                _literal([str((int(value) >> i) & 1) for i in range(cell_param(cell, "WIDTH"))])
-        if kind == "$dffe":
-            body = [f"if ({enable})", f"  {q} <= {data};"]
-        elif kind == "$sdff":
-            body = [f"if ({reset})", f"  {q} <= {value};", "else", f"  {q} <= {data};"]
-        elif kind == "$sdffe":
-            body = [f"if ({reset})", f"  {q} <= {value};", f"else if ({enable})",
-                    f"  {q} <= {data};"]
-        elif kind == "$sdffce":
-            body = [f"if ({enable}) begin", f"  if ({reset})", f"    {q} <= {value};",
-                    "  else", f"    {q} <= {data};", "end"]
-        return [f"always @(posedge {clock}) begin"] + [f"  {line}" for line in body] + ["end"]
-
     # --- module -----------------------------------------------------------------------------
     def write(self, header):
         ports = self.ports
@@ -165,7 +132,7 @@ class _Writer(NetlistWalk):
                 declarations.append(f"  {keep}{'reg ' if is_flop else 'wire'} "
                                     f"{bit_range(self.widths[wire])}{wire};")
             if is_flop:
-                body += ["  " + line for line in self.flop(cell, wire)]
+                body += ["  " + line for line in flop_lines(cell, wire, self.ref)]
             else:
                 body.append(f"  assign {wire} = {self.expression(cell)};")
         for name in self.port_order:
@@ -198,21 +165,51 @@ def port_table(component, model):
              "out_ready": ports.out_ready, "y": ports.decision, "score": ports.score,
              "x": ports.sample, "weight_write": ports.weight_write,
              "weight_address": ports.weight_address, "weight_data": ports.weight_data,
-             "out_of_range": ports.out_of_range}
+             "out_of_range": ports.out_of_range, "ce": ports.clock_enable}
     for index, feature in enumerate(model.features):
         names[f"x{index}"] = feature.name
     if model.is_bank:
         for index, unit in enumerate(model.units):
             names[f"score{index}"] = f"{ports.score}_{unit.name}"
     table = []
+    if component.stream is not None:
+        names.update(_STREAM_NAMES)
     if component.latency > 0:
+        # An active-low reset is its own row (internal ``rst_n``), so that every harness
+        # knows the level that asserts it from the table alone.
+        kind = component.config.reset
         table += [Port("clk", names["clk"], "input", 1, False),
-                  Port("rst", names["rst"], "input", 1, False)]
+                  Port(LOW_RESET_PORT if reset_is_low(kind) else RESET_PORT,
+                       names["rst"] if component.stream else reset_port(kind, names["rst"]),
+                       "input", 1, False)]
     for member_name, member in component.signature.members.items():
         shape = Shape.cast(member.shape)
         direction = "input" if member.flow == In else "output"
         table.append(Port(member_name, names[member_name], direction, shape.width, shape.signed))
-    return table
+    if component.stream is None:
+        return PortTable(table)
+    return _stream_table(table, component.stream)
+
+
+# The AXI4-Stream form's names (the specification's signals, prefixed by the interface).
+_STREAM_NAMES = {"clk": "aclk", "rst": "aresetn", "in_valid": "s_axis_tvalid",
+                 "in_ready": "s_axis_tready", "out_valid": "m_axis_tvalid",
+                 "out_ready": "m_axis_tready"}
+
+
+def _stream_table(logical, layout):
+    """The AXI4-Stream form's ports: each packed port where its first member was."""
+    lanes = {lane.member: (STREAM_IN, lane) for lane in layout.inputs}
+    lanes.update({lane.member: (STREAM_OUT, lane) for lane in layout.outputs})
+    widths = {STREAM_IN: layout.in_bits, STREAM_OUT: layout.out_bits}
+    rows = []
+    for port in logical:
+        if port.internal not in lanes:
+            rows.append(port)
+        elif not any(row.internal == lanes[port.internal][0] for row in rows):
+            name = lanes[port.internal][0]
+            rows.append(Port(name, name, port.direction, widths[name], False))
+    return PortTable(rows, logical, lanes)
 
 
 def emit_verilog(component, model, *, header=(), netlist=None):
@@ -247,6 +244,22 @@ def range_comments(component, model):
             f"a code outside it is {outside}"
         lines.append(f"//   {feature.name}: [{lo}, {hi}] of a {feature.bits}-bit {kind} code; "
                      f"{note}")
+    return lines + lane_comments(port_table(component, model))
+
+
+def lane_comments(table):
+    """Where each logical port sits in a packed one (none with the plain interface)."""
+    if not table.lanes:
+        return []
+    lines = ["// AXI4-Stream byte lanes (the bits above a feature are ignored; above a result "
+             "zeros, or its sign):"]
+    for port in table.logical:
+        if port.internal in table.lanes:
+            packed, lane = table.lanes[port.internal]
+            top = lane.offset + lane.lane_bits - 1
+            lines.append(f"//   {packed}[{top}:{lane.offset}]: {port.name} "
+                         f"({'signed ' if port.signed else ''}{port.width} bit"
+                         f"{'s' if port.width > 1 else ''})")
     return lines
 
 

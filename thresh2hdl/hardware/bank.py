@@ -4,6 +4,7 @@
 from amaranth.hdl import Cat, Const, Module, Mux, Signal, signed
 
 from ..names import GUARD_FLAG, SCORE_CONST, argmax_compare_name, argmax_names, unit_prefix
+from .clocking import enabled
 from .component import PlannedComponent
 from .input_guard import guard_inputs
 from .stages import Stages, handshake
@@ -89,7 +90,7 @@ class ThresholdBank(PlannedComponent):
             m.d.comb += self.y.eq(stages.at(best, self.latency))
         for port, name in zip(self.score_ports, scores):
             m.d.comb += port.eq(stages.at(name, self.latency))
-        return m
+        return enabled(self, m)
 
 
 def _whole_score(m, stages, view, analysis, stage):

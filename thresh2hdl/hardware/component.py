@@ -13,7 +13,7 @@ __all__ = ["PlannedComponent", "PLAN_FACTS"]
 # The DesignPlan attributes a component reads through (every one the same for each kind).
 PLAN_FACTS = ("config", "unit_analyses", "analysis", "bank", "levels", "final_level",
               "register_boundaries", "level_stage", "stage_levels", "split_parts",
-              "result_parts", "latency", "beats", "feature_count")
+              "result_parts", "latency", "beats", "feature_count", "stream")
 
 
 class PlannedComponent(wiring.Component):

@@ -12,6 +12,8 @@ from amaranth.hdl import signed, unsigned
 from ..errors import InputError
 from ..model import Model
 from ..analysis import check_architecture, resolve_guard, signed_bits
+from .clocking import DEFAULT_RESET, RESET_KINDS, reset_is_low, reset_port
+from .stream import INTERFACES
 
 __all__ = ["UnitConfig", "FULL_PIPELINE", "MAX_SERIAL_FEATURES", "sample_shape"]
 
@@ -46,6 +48,10 @@ class UnitConfig:
     range_flag: bool | None = None   # declared ranges, and/or flag them; None: the default
     share_terms: bool = False        # a shift-add bank's terms that several units need are
                                      # made once (analysis/shared.py)
+    reset: str | None = None         # sync/async, active high/low (clocking.py); None: the
+                                     # interface's default (sync-high; axi-stream sync-low)
+    clock_enable: bool = False       # a clock enable port: every register holds while it is low
+    interface: str = "plain"         # or axi-stream: the same design's ports in two streams
 
     def __post_init__(self):
         if not isinstance(self.model, Model):
@@ -62,6 +68,7 @@ class UnitConfig:
                              field="loadable_weights")
         self._check_split()
         self._check_sharing()
+        self._check_clocking()
         self._resolve_guard()
         self._check_serial()
 
@@ -139,6 +146,49 @@ class UnitConfig:
             raise InputError("shared terms are not built with split adders (for now); leave "
                              "one of the two off", field="share_terms")
 
+    def _check_clocking(self):
+        if self.interface not in INTERFACES:
+            raise InputError(f"must be one of {', '.join(INTERFACES)}, not "
+                             f"{self.interface!r}", field="interface")
+        stream = self.interface == "axi-stream"
+        if self.reset is None:
+            object.__setattr__(self, "reset", "sync-low" if stream else DEFAULT_RESET)
+        if self.reset not in RESET_KINDS:
+            raise InputError(f"must be one of {', '.join(RESET_KINDS)}, not {self.reset!r}",
+                             field="reset")
+        if not isinstance(self.clock_enable, bool):
+            raise InputError(f"must be True or False, not {self.clock_enable!r}",
+                             field="clock_enable")
+        if stream and not reset_is_low(self.reset):
+            raise InputError("AXI4-Stream's reset ARESETn is active low: use sync-low or "
+                             "async-low", field="reset")
+        if stream and self.clock_enable:
+            raise InputError("the AXI4-Stream form has no clock enable: TVALID dropping in a "
+                             "held cycle would break its rule that TVALID stays high until "
+                             "taken; use the plain interface or no clock enable",
+                             field="clock_enable")
+        if stream and self.pipeline == 0:
+            raise InputError("the AXI4-Stream form is clocked (ACLK, ARESETn): use 1 or more "
+                             "register stages", field="interface")
+        if self.pipeline == 0:
+            if self.clock_enable:
+                raise InputError("a combinational design (0 register stages) has no register "
+                                 "to hold; use 1 or more register stages, or no clock enable",
+                                 field="clock_enable")
+            if self.reset != DEFAULT_RESET:
+                raise InputError(f"a combinational design (0 register stages) has no reset; "
+                                 f"use 1 or more register stages, or leave it {DEFAULT_RESET}",
+                                 field="reset")
+        if reset_is_low(self.reset) and not stream:
+            model = self.model
+            name = reset_port(self.reset, model.ports.reset)
+            taken = {value for key, value in model.ports.__dict__.items() if value}
+            taken |= {f.name for f in model.features} | {model.module}
+            if name in taken:
+                raise InputError(f"the active-low reset port {name!r} clashes with a port, "
+                                 f"a feature or the module; rename the reset in "
+                                 f"[module.ports]", field="module.ports.reset")
+
     def _resolve_guard(self):
         for key in ("clamp", "range_flag"):
             if getattr(self, key) is not None and not isinstance(getattr(self, key), bool):
@@ -150,6 +200,7 @@ class UnitConfig:
         self.model.check_optional_ports(
             (["out_of_range"] if self.range_flag else [])
             + (["sample"] if self.arch == "serial" else [])
+            + (["clock_enable"] if self.clock_enable else [])
             + (["weight_write", "weight_address", "weight_data"] if self.loadable_weights
                else []))
 

@@ -18,6 +18,7 @@ from ..errors import InputError
 from ..names import unit_prefix
 from ..analysis import analyse, analyse_bank
 from .config import FULL_PIPELINE, UnitConfig, sample_shape
+from .stream import stream_layout
 from .weights import write_members
 
 __all__ = ["DesignPlan", "plan_design", "design_kind", "register_boundaries", "adder_parts",
@@ -43,6 +44,7 @@ class DesignPlan:
     decision_bits: int           # width of ``y``: 1, or a bank's class index
     score_outputs: tuple         # (signature member, bits) of every score output
     signature: wiring.Signature  # the ports, as the component has them
+    stream: object = None        # the AXI4-Stream form's StreamLayout (None: plain ports)
 
     @property
     def analysis(self):
@@ -107,6 +109,7 @@ def plan_design(config):
     scores = tuple((name, unit.score_bits) for name, unit in zip(names, analyses)) \
         if model.ports.has_score else ()
     decision_bits = 1 if bank is None else bank.class_bits
+    signature = _signature(config, decision_bits, scores)
     return DesignPlan(
         kind=design_kind(config), config=config, unit_analyses=analyses, bank=bank,
         levels=levels, register_boundaries=register_boundaries(levels - 1, config.pipeline,
@@ -114,8 +117,8 @@ def plan_design(config):
         split_parts=MappingProxyType(parts), result_parts=result_parts,
         latency=config.pipeline + (result_parts - 1) * config.carry_registers,
         beats=len(model.features) if config.arch == "serial" else 1,
-        decision_bits=decision_bits, score_outputs=scores,
-        signature=_signature(config, decision_bits, scores))
+        decision_bits=decision_bits, score_outputs=scores, signature=signature,
+        stream=stream_layout(signature) if config.interface == "axi-stream" else None)
 
 
 def _guarded(config):
@@ -237,7 +240,8 @@ def _signature(config, decision_bits, scores):
     per feature at its format (serial: the one sample bus), the decision, the out-of-range
     flag when the guard has one, the scores."""
     model = config.model
-    members = {"in_valid": In(1), "in_ready": Out(1), **write_members(config)}
+    members = {"ce": In(1)} if config.clock_enable else {}
+    members.update({"in_valid": In(1), "in_ready": Out(1), **write_members(config)})
     if config.arch == "serial":
         members["x"] = In(sample_shape(model))
     else:

@@ -4,6 +4,7 @@
 from amaranth.hdl import Cat, Const, Module, Mux, Signal, signed
 
 from ..names import argmax_names, unit_prefix, valid_name
+from .clocking import enabled, gated
 from .component import PlannedComponent
 from .input_guard import guard_sample
 from .trees import node_shape
@@ -47,8 +48,9 @@ class SerialThreshold(PlannedComponent):
         else:
             beat, first, last = None, Const(1), Const(1)
         m.d.comb += [advance.eq(self.out_ready | ~out_valid),
-                     self.in_ready.eq(advance | ~last), transfer.eq(self.in_valid & self.in_ready),
-                     self.out_valid.eq(out_valid)]
+                     self.in_ready.eq(gated(self, advance | ~last)),
+                     transfer.eq(self.in_valid & self.in_ready),
+                     self.out_valid.eq(gated(self, out_valid))]
         finish = Signal(name="finish")
         m.d.comb += finish.eq(transfer & last)
         with m.If(advance):
@@ -154,4 +156,4 @@ class SerialThreshold(PlannedComponent):
             m.d.comb += port.eq(score)
         if self.bank is not None:
             m.d.comb += self.y.eq(self._argmax(m, scores))
-        return m
+        return enabled(self, m)

@@ -4,6 +4,7 @@ stages, and the valid/ready handshake that moves the whole pipeline together."""
 from amaranth.hdl import Shape, Signal
 
 from ..names import register_name, valid_name
+from .clocking import gated
 
 __all__ = ["Stages", "handshake"]
 
@@ -62,15 +63,17 @@ class Stages:
 
 def handshake(m, component, latency):
     """The valid bits of ``latency`` stages; returns ``advance``, high when every stage moves
-    (the last is empty or its result is taken)."""
+    (the last is empty or its result is taken). With a clock enable, ``in_ready`` and
+    ``out_valid`` read 0 while it is low (the registers hold: :func:`.clocking.enabled`)."""
     advance = Signal()
     if latency == 0:
         m.d.comb += [component.in_ready.eq(component.out_ready),
                      component.out_valid.eq(component.in_valid)]
         return advance
     valid = [Signal(name=valid_name(k + 1)) for k in range(latency)]
-    m.d.comb += [advance.eq(component.out_ready | ~valid[-1]), component.in_ready.eq(advance),
-                 component.out_valid.eq(valid[-1])]
+    m.d.comb += [advance.eq(component.out_ready | ~valid[-1]),
+                 component.in_ready.eq(gated(component, advance)),
+                 component.out_valid.eq(gated(component, valid[-1]))]
     with m.If(advance):
         m.d.sync += valid[0].eq(component.in_valid)
         m.d.sync += [valid[k].eq(valid[k - 1]) for k in range(1, latency)]

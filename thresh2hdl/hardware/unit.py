@@ -4,6 +4,7 @@ taken from the result's parts as they arrive when the adders are split."""
 from amaranth.hdl import Cat, Const, Module, Signal, signed
 
 from ..names import GUARD_FLAG
+from .clocking import enabled
 from .component import PlannedComponent
 from .input_guard import guard_inputs
 from .plan import result_node
@@ -50,7 +51,7 @@ class ThresholdUnit(PlannedComponent):
             m.d.comb += self.y.eq(analysis.bias > 0)
             if analysis.has_score:
                 m.d.comb += self.score.eq(analysis.bias)
-            return m
+            return enabled(self, m)
         parts = dict(self.split_parts)
         bits, skew = config.split_bits or 0, config.carry_registers   # 0: nothing split
         if parts:
@@ -71,7 +72,7 @@ class ThresholdUnit(PlannedComponent):
             score = Signal(signed(analysis.score_bits), name="score_split")
             m.d.comb += score.eq(whole.as_signed() if node.is_signed else whole)
             m.d.comb += self.score.eq(score)
-        return m
+        return enabled(self, m)
 
     def _decision(self, m, stages, view, node):
         """The decision from the result's parts as they arrive, each compared (or tested for

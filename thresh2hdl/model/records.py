@@ -120,6 +120,7 @@ class PortNames:
     weight_address: str = "weight_address"    # address,
     weight_data: str = "weight_data"          # and data
     out_of_range: str = "out_of_range"        # the input guard's flag (see guard.py)
+    clock_enable: str = "ce"                  # the clock enable, when the design has one
 
     def __post_init__(self):
         for key, value in self.__dict__.items():
@@ -135,7 +136,7 @@ class PortNames:
 # Ports only some architectures have: their names are checked when a design uses them.
 OPTIONAL_PORTS = {"sample": "serial", "weight_write": "loadable weights",
                   "weight_address": "loadable weights", "weight_data": "loadable weights",
-                  "out_of_range": "the out-of-range flag"}
+                  "out_of_range": "the out-of-range flag", "clock_enable": "the clock enable"}
 
 
 @dataclass(frozen=True)

@@ -47,6 +47,8 @@ class Plan:
     def __init__(self, component, model):
         self.model = model
         self.latency = component.latency
+        self.reset = component.config.reset               # its kind (hardware.RESET_KINDS)
+        self.clock_enable = component.config.clock_enable
         boundaries = component.register_boundaries
         self.stage_of = lambda level: sum(1 for b in boundaries if b < level)
         self.ranges = model.feature_ranges

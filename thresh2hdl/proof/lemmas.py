@@ -3,6 +3,7 @@ over the netlist's own wires with its operands as the netlist computes them (see
 :mod:`thresh2hdl.proof.prover` for why that proves the whole)."""
 
 from ..names import GUARD_FLAG, register_name, valid_name
+from .clocking import reset_asserted, reset_clears
 from .query import bool_signal, bv
 
 __all__ = ["lemmas_of"]
@@ -76,7 +77,8 @@ class _Pipeline:
         self.plan, self.query, self.needed = plan, query, needed
         self.assumptions = []
         in_valid, self.in_ready, out_ready, out_valid = handshake
-        self.rst = bool_signal(smt, query.ports["rst"][0], "s0")
+        self.rst = reset_asserted(smt, query.ports, "s0")
+        clears = reset_clears(plan, smt, query.ports)
         self.lemmas = [("in_ready", f"(= {self.in_ready} (or {out_ready} (not {out_valid})))")]
         self.valid = [in_valid]
         for k in range(1, latency + 1):
@@ -85,7 +87,7 @@ class _Pipeline:
         for k in range(1, latency + 1):
             name, now, after = self.valid[k]
             before = self.valid[k - 1] if k == 1 else self.valid[k - 1][1]
-            self.lemmas.append((name, f"(= {after} (ite {self.rst} false "
+            self.lemmas.append((name, f"(= {after} (ite {clears} false "
                                       f"(ite {self.in_ready} {before} {now})))"))
 
     def valid_now(self, stage):

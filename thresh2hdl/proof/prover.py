@@ -44,6 +44,7 @@ from pathlib import Path
 from ..analysis import signed_bits
 from ..names import register_name
 from ..tools import find_tool, warm_up
+from .clocking import enable_high, held_cycle
 from .forms import Plan
 from .lemmas import lemmas_of
 from .outcome import DEFAULT_TIMEOUT_S, ProofOutcome, Undecided
@@ -141,7 +142,19 @@ class _Proof:
         widest = max([signed_bits(v.lo, v.hi) for v in plan.values.values()]
                      + wire_widths(smt2) + [1])
         self.width = max(MIN_WIDTH, widest + 2)
-        self.ports = port_names(port_rows)
+        # The query reads the logical ports; a member of a packed port (AXI4-Stream TDATA)
+        # is a slice of it.
+        self.ports = port_names(getattr(port_rows, "logical", port_rows))
+        self.slices = [(next(p.name for p in port_rows.logical if p.internal == member),
+                        port, lane.offset, lane.width)
+                       for member, (port, lane) in getattr(port_rows, "lanes", {}).items()]
+
+    def export(self, ignored=frozenset()):
+        """The netlist's export, its packed ports' members readable by name."""
+        smt = SmtExport(self.smt2, self.model.module, ignored)
+        for name, port, offset, width in self.slices:
+            smt.add_slice(name, port, offset, width)
+        return smt
 
     def outcome(self, status, detail, lemmas=0, failing=(), candidate=None):
         return ProofOutcome(status, detail, lemmas, tuple(failing), candidate,
@@ -175,7 +188,7 @@ class _Proof:
             return self.outcome("counterexample", "lemma(s) fail: " + ", ".join(failing[:5])
                                 + skipped, len(lemmas), failing)
         left = self.started + self.timeout_s - time.perf_counter()
-        candidate = find_counterexample(self.plan, SmtExport(self.smt2, self.model.module),
+        candidate = find_counterexample(self.plan, self.export(),
                                         self.width, self.ports, self.model, self.folder,
                                         self.boolector, max(5, left))
         return self.outcome("counterexample", "lemma(s) fail: " + ", ".join(failing[:5])
@@ -185,7 +198,7 @@ class _Proof:
         """One round with the ``ignored`` wires computed from their operands: a final
         outcome, or what failed (the export, the lemmas, the failing labels, a note)."""
         plan, timeout_s = self.plan, self.timeout_s
-        smt = SmtExport(self.smt2, self.model.module, frozenset(ignored))
+        smt = self.export(frozenset(ignored))
         query = Query(plan, smt, self.width, self.ports)
         # A cut wire must hold its whole range, so that its free value can be assumed in it.
         smt.cut({name for name in plan.closed
@@ -228,8 +241,9 @@ class _Proof:
         the text each is checked under."""
         plan, ports = self.plan, self.ports
         states = ["s0", "s1"] if plan.latency else ["s0"]
-        common = [smt.text, *smt.steps(states), *query.lines]
-        common += [f"(assert {a})" for a in assumptions]
+        base = [smt.text, *smt.steps(states), *query.lines]
+        base += [f"(assert {a})" for a in assumptions]
+        common = base + enable_high(plan, smt, ports, states)
         # With the flag alone (no clamp), results are stated for inputs in range only,
         # but the flag for every code: its lemmas are checked without the input ranges.
         flags = [name for name, value in plan.values.items() if value.kind == "flag"]
@@ -240,5 +254,11 @@ class _Proof:
         free = [l for l in lemmas if l[0] in flag_labels]
         groups = [("\n".join(common + [f"(assert {a})" for a in inputs]),
                    [l for l in lemmas if l not in free]), ("\n".join(common), free)]
+        held = held_cycle(plan, smt, ports)
+        if held is not None:
+            # The held cycle: the enable low instead of high, any input.
+            held_assumptions, lemma = held
+            lemmas.append(lemma)
+            groups.append(("\n".join(base + held_assumptions), [lemma]))
         common += [f"(assert {a})" for a in inputs]
         return common, groups

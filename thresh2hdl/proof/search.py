@@ -3,6 +3,7 @@ pipeline latency with the sink ready, differ from the model's. A lemma that fail
 one (the lemmas are stronger than the claim); the caller re-runs what this finds in a
 simulator before calling it one."""
 
+from .clocking import enable_high, reset_asserted
 from .outcome import Undecided
 from .query import Query, bool_signal, bv
 from .solve import solve
@@ -37,7 +38,8 @@ def find_counterexample(plan, smt, width, ports, model, folder, boolector, timeo
         for s in states:
             lines.append(f"(assert {bool_signal(smt, ports['out_ready'][0], s)})")
             if latency:
-                lines.append(f"(assert (not {bool_signal(smt, ports['rst'][0], s)}))")
+                lines.append(f"(assert (not {reset_asserted(smt, ports, s)}))")
+        lines += enable_high(plan, smt, ports, states)
         last = states[-1]
         # The reference bracketed like the plan: equal to w . x + b (see
         # forms.check_cover), and far easier for the solver to match against the netlist

@@ -31,6 +31,7 @@ class SmtExport:
         self.widths = {}
         self.registers = set()
         self.cut_ids = {}
+        self.slices = {}       # name -> (packed port, first bit): a member of a packed port
         for kind, name, width in _WIRE_LINE.findall(text):
             if name in ignored and kind == "wire":
                 continue        # computed from its operands instead (see Query.known)
@@ -71,6 +72,12 @@ class SmtExport:
                                      f"(_ BitVec {bits}))" for i, bits in sorted(ids.items())]
         self.text = "\n".join(lines)
 
+    def add_slice(self, name, port, offset, width):
+        """``name`` read as ``width`` bits of the packed port ``port`` from bit ``offset``
+        (the AXI4-Stream form's TDATA lanes), so that the query reads it by name."""
+        self.slices[name] = (port, offset)
+        self.widths[name] = width
+
     def steps(self, states):
         """Declarations of ``states``, each the transition of the one before."""
         m = self.module
@@ -82,6 +89,11 @@ class SmtExport:
         return f"(|{self.cut_ids[name]} cut| {state})"
 
     def raw(self, name, state):
+        if name in self.slices:
+            port, offset = self.slices[name]
+            width = self.widths[name]
+            bits = f"((_ extract {offset + width - 1} {offset}) {self.raw(port, state)})"
+            return f"(= {bits} #b1)" if width == 1 else bits    # one bit: a Bool, as a wire
         return f"(|{self.module}_n {name}| {state})"
 
     def bits(self, name, state):
@@ -107,6 +119,9 @@ def export_smt2(yosys, verilog_text, module, folder):
         f"hierarchy -check -top {module}\n"
         "proc\nflatten\nsetundef -anyseq\nopt_clean\n"
         "write_json design.json\n"
+        # An asynchronous reset's flops as synchronous ones whose output reads the reset
+        # value while it is asserted (the export has one global clock); none otherwise.
+        "async2sync\ndffunmap\n"
         "write_smt2 -wires -stbv design.smt2\n", encoding="utf-8")
     run([yosys, "-q", "prove.ys"], folder, failure="Yosys could not read the netlist")
     document = json.loads((folder / "design.json").read_text(encoding="utf-8"))

@@ -8,7 +8,9 @@ from .outcome import Undecided
 
 __all__ = ["check_structure"]
 
-_SYNC_FLOPS = {"$dff", "$dffe", "$sdff", "$sdffe", "$sdffce"}
+# Flops with a clock polarity parameter: plain, enabled, synchronous or asynchronous reset
+# (the export reads the asynchronous ones through async2sync, see smt.export_smt2).
+_SYNC_FLOPS = {"$dff", "$dffe", "$sdff", "$sdffe", "$sdffce", "$adff", "$adffe"}
 _FINE_SYNC_FLOPS = {"$_DFF_P_", "$_DFFE_PP_", "$_DFFE_PN_"}
 _FINE_SYNC_RESET_FLOP = re.compile(r"^\$_SDFFC?E?_P")
 

@@ -9,13 +9,15 @@ import numpy as np
 
 from .. import __version__
 from ..analysis import guard_words
-from ..hardware import weight_addresses
+from ..hardware import DEFAULT_RESET, weight_addresses
+from ..emit import port_table
 from ..model import model_to_toml
 from ..emit import core_file_name, core_name
 from ..verify import ReferenceModel, TestbenchFiles, cocotb_file_name
 from .design import Datapath, FeatureRow, Sizes
 from .fields import Table, plain, present
-from .record import GuardSection, Packaging, Report, Testbench, Verification, WeightPort
+from .record import (ClockingSection, GuardSection, Packaging, Report, StreamSection,
+                     Testbench, Verification, WeightPort)
 from .sections import (DataSummary, Histogram, ProofSection, QuantizationLog, TrainingLog,
                        VhdlSection)
 from .tables import (argmax_report, level_names, node_table, shared_report, stages_report,
@@ -128,6 +130,28 @@ def guard_report(component, model, chosen=(None, None)):
                         tuple(explicit), guard_words(guard))
 
 
+def _clocking_report(component, model):
+    """The reset and clock enable; None for the default (synchronous, active high, no
+    enable), so that a default build's report is as it was before they could be chosen."""
+    config = component.config
+    if config.reset == DEFAULT_RESET and not config.clock_enable:
+        return None
+    table = port_table(component, model)
+    return ClockingSection(config.reset, next(p.name for p in table if p.internal.startswith(
+        "rst")), next((p.name for p in table if p.internal == "ce"), None))
+
+
+def _stream_report(component, model):
+    """The AXI4-Stream form's lanes; None for the plain interface."""
+    table = port_table(component, model)
+    if not table.lanes:
+        return None
+    return StreamSection(component.config.interface, tuple(
+        (table.lanes[p.internal][0], p.name, table.lanes[p.internal][1].offset,
+         table.lanes[p.internal][1].offset + table.lanes[p.internal][1].lane_bits - 1)
+        for p in table.logical if p.internal in table.lanes))
+
+
 def _weight_port_report(component, model):
     config = component.config
     if not config.loadable_weights:
@@ -187,6 +211,8 @@ def build_report(model, component, verilog_text, verilog_name, verified, *, seed
         register_stages=component.config.pipeline, beats_per_result=component.beats,
         weight_port=_weight_port_report(component, model),
         input_guard=guard_report(component, model, chosen=chosen_guard),
+        clocking=_clocking_report(component, model),
+        stream=_stream_report(component, model),
         data=None if dataset is None else data_summary(model, reference, dataset),
         **_history(history),
         proof=None if proof is None else ProofSection.from_json(Table(plain(proof),

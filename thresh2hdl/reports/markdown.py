@@ -1,8 +1,8 @@
 """report.md: the report for review threads, read from the report record like report.json and
 report.html."""
 
-from .phrases import (cost_text, digits_text, entry_text, guard_text, levels_text, shared_text,
-                      split_text, stages_text)
+from .phrases import (clocking_text, stream_text, cost_text, digits_text, entry_text, guard_text,
+                      levels_text, shared_text, split_text, stages_text)
 from .record import report_record
 
 __all__ = ["report_markdown"]
@@ -49,6 +49,8 @@ def report_markdown(report):
              f"| valid beats per result | {1 if beats is None else beats} |",
              *([f"| codes outside the declared ranges | {guard_text(report.input_guard)} |"]
                if report.input_guard else []),
+             *([f"| clocking | {clocking_text(report.clocking)} |"] if report.clocking else []),
+             *([f"| interface | {stream_text(report.stream)} |"] if report.stream else []),
              *([f"| split adders | {split} |"] if split else []),
              *([f"| shared terms | {shared_text(datapath)} |"] if datapath.shared else []),
              f"| vectors checked | {v.vectors_checked} |",

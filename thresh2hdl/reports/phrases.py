@@ -5,7 +5,7 @@ from ..cost import CELL_NAMES
 from .fields import Table
 from .estimates import CostEstimate
 
-__all__ = ["count", "digits_text", "levels_text", "stages_text", "split_text", "shared_text",
+__all__ = ["clocking_text", "stream_text", "count", "digits_text", "levels_text", "stages_text", "split_text", "shared_text",
            "guard_text", "entry_text", "cost_text"]
 
 
@@ -71,6 +71,26 @@ def shared_text(datapath):
         return None
     return (f"{count(len(shared.terms), 'term')} made once for the units that need them: "
             f"{shared.adders_with} adders ({shared.adders_without} without sharing)")
+
+
+def clocking_text(clocking):
+    """The reset's kind and port, and the clock enable's port and what it does."""
+    timing, level = clocking.reset.split("-")
+    text = (f"reset {'asynchronous' if timing == 'async' else 'synchronous'}, active {level} "
+            f"({clocking.reset_port})")
+    if clocking.clock_enable_port:
+        text += (f"; clock enable {clocking.clock_enable_port}: while it is low every register "
+                 f"holds and in_ready and out_valid read 0")
+    return text
+
+
+def stream_text(stream):
+    """The AXI4-Stream form's lanes, port by port."""
+    ports = {}
+    for port, name, lo, hi in stream.lanes:
+        ports.setdefault(port, []).append(f"{name} [{hi}:{lo}]")
+    return "AXI4-Stream; " + "; ".join(f"{port}: {', '.join(lanes)}"
+                                       for port, lanes in ports.items())
 
 
 def guard_text(guard):

@@ -21,7 +21,7 @@ from .estimates import read_estimates
 from .sections import DataSummary, ProofSection, QuantizationLog, TrainingLog, VhdlSection
 
 __all__ = ["REPORT_FORMAT", "SAFETY_CAUTION", "Report", "WeightPort", "GuardSection",
-           "Verification", "Testbench", "report_json", "report_record"]
+           "ClockingSection", "StreamSection", "Verification", "Testbench", "report_json", "report_record"]
 
 REPORT_FORMAT = 1
 
@@ -55,6 +55,43 @@ class WeightPort:
                    table.pair("weight_range"), table.pair("bias_range"),
                    table.count("data_bits"), table.natural("addresses"),
                    table.text("map"), table.texts("ports"))
+
+
+@dataclass(frozen=True)
+class ClockingSection:
+    """The reset and clock enable, when not the default (a synchronous, active-high reset
+    and no enable: older reports and default builds have no section)."""
+    reset: str                       # one of hardware.RESET_KINDS
+    reset_port: str
+    clock_enable_port: str | None
+
+    def to_json(self):
+        return {"reset": self.reset, "reset_port": self.reset_port,
+                "clock_enable_port": self.clock_enable_port}
+
+    @classmethod
+    def from_json(cls, table):
+        return cls(table.text("reset"), table.text("reset_port"),
+                   table.text("clock_enable_port", null=True))
+
+
+@dataclass(frozen=True)
+class StreamSection:
+    """The AXI4-Stream form: where each feature and result sits in the packed TDATA ports,
+    ``(port, name, low bit, high bit of its bytes)`` (no section: the plain interface)."""
+    interface: str
+    lanes: tuple
+
+    def to_json(self):
+        return {"interface": self.interface,
+                "lanes": [{"port": port, "name": name, "bits": [lo, hi]}
+                          for port, name, lo, hi in self.lanes]}
+
+    @classmethod
+    def from_json(cls, table):
+        return cls(table.text("interface"),
+                   tuple((lane.text("port"), lane.text("name"), *lane.pair("bits"))
+                         for lane in table.tables("lanes")))
 
 
 @dataclass(frozen=True)
@@ -169,6 +206,8 @@ class Report:
     beats_per_result: int | None = None      # older reports: one
     weight_port: WeightPort | None = None
     input_guard: GuardSection | None = None  # older reports were built without one
+    clocking: ClockingSection | None = None  # None: synchronous active-high reset, no enable
+    stream: StreamSection | None = None      # None: the plain interface
     data: DataSummary | None = None
     training: TrainingLog | None = None
     quantization: QuantizationLog | None = None
@@ -202,6 +241,7 @@ class Report:
                        ("beats_per_result", self.beats_per_result)]),
             "weight_port": self.weight_port and self.weight_port.to_json(),
             **optional("input_guard", self.input_guard),
+            **optional("clocking", self.clocking), **optional("stream", self.stream),
             "vectors_checked": self.verification.vectors_checked,
             "mismatches": self.verification.mismatches,
             "testbench": self.testbench.to_json(), **optional("packaging", self.packaging),
@@ -240,6 +280,8 @@ class Report:
             beats_per_result=top.count("beats_per_result", None),
             weight_port=_section(top, "weight_port", WeightPort),
             input_guard=_section(top, "input_guard", GuardSection),
+            clocking=_section(top, "clocking", ClockingSection),
+            stream=_section(top, "stream", StreamSection),
             data=_section(top, "data", DataSummary),
             training=_section(top, "training", TrainingLog),
             quantization=_section(top, "quantization", QuantizationLog),

@@ -1,6 +1,6 @@
 """The report's short form, for the terminal after a build."""
 
-from .phrases import digits_text, levels_text, shared_text, stages_text
+from .phrases import clocking_text, stream_text, digits_text, levels_text, shared_text, stages_text
 from .record import SAFETY_CAUTION, report_record
 
 __all__ = ["summary_lines"]
@@ -36,6 +36,10 @@ def summary_lines(report):
         lines.append(f"  {vhdl.file} lint: {vhdl.lint}")
     if datapath.shared:
         lines.append(f"  shared: {shared_text(datapath)}")
+    if report.clocking:
+        lines.append(f"  {clocking_text(report.clocking)}")
+    if report.stream:
+        lines.append(f"  interface: {stream_text(report.stream)}")
     guard = report.input_guard
     if guard and guard.needed:
         what = " and ".join(word for word, on in (("clamped", guard.clamp),

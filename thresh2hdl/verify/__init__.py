@@ -13,7 +13,7 @@ from .sim_icarus import (IcarusBackend, TestbenchFiles, icarus_version, simulate
                          write_testbench)
 from .sim_verilator import (VerilatorBackend, find_verilator, simulate_verilator,
                             verilator_version)
-from .stimulus import make_reload_stimulus, make_stimulus
+from .stimulus import make_reload_stimulus, make_stimulus, with_held_cycles
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
 
 __all__ = ["SimulationResult", "SimulatorBackend", "cocotb_file_name",
@@ -23,5 +23,6 @@ __all__ = ["SimulationResult", "SimulatorBackend", "cocotb_file_name",
            "AmaranthBackend", "simulate_amaranth", "IcarusBackend", "TestbenchFiles",
            "icarus_version", "simulate_icarus", "write_testbench", "VerilatorBackend",
            "find_verilator", "simulate_verilator", "verilator_version", "make_reload_stimulus",
-           "make_stimulus", "RANDOM_GROUP", "make_vectors", "random_vectors", "reload_sets",
-           "GhdlBackend", "ghdl_lint", "ghdl_reading", "ghdl_version", "write_vhdl_testbench"]
+           "make_stimulus", "with_held_cycles", "RANDOM_GROUP", "make_vectors",
+           "random_vectors", "reload_sets", "GhdlBackend", "ghdl_lint", "ghdl_reading",
+           "ghdl_version", "write_vhdl_testbench"]

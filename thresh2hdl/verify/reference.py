@@ -130,6 +130,10 @@ def cycle_model(latency, count, *, offer, accept, beats=1):
     ``out_ready``, ``in_index`` (which beat is presented: ``input * beats + beat``; the input
     itself when ``beats == 1``) and ``out_index`` (which input is on the output, -1 where
     ``out_valid`` is low).
+
+    A clock enable's held cycles are not modelled here: a held cycle changes no state, so
+    :func:`~thresh2hdl.verify.stimulus.with_held_cycles` inserts them into a run afterwards,
+    each with ``in_ready`` and ``out_valid`` 0.
     """
     if beats > 1 and latency == 0:
         raise ValueError("a serial (beats > 1) pipeline needs at least one register stage")

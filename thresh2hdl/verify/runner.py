@@ -14,7 +14,7 @@ from .reference import ReferenceModel
 from .sim_amaranth import AmaranthBackend
 from .sim_icarus import IcarusBackend, icarus_version
 from .sim_verilator import VerilatorBackend, find_verilator, verilator_version
-from .stimulus import make_reload_stimulus, make_stimulus
+from .stimulus import make_reload_stimulus, make_stimulus, with_held_cycles
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
 
 __all__ = ["choose_simulator", "make_backend", "chunk_vectors", "Verification", "verify",
@@ -171,8 +171,14 @@ def _random_chunk(reference, component, size, seed, chunk):
     """The stimulus of a later chunk: ``size`` random vectors, with gaps only."""
     rows = random_vectors(np.random.default_rng([seed, chunk]),
                           component.analysis.feature_ranges, size)
-    return make_stimulus(reference, rows, latency=component.latency, beats=component.beats,
-                         seed=[seed, chunk], stall_vectors=0, guard=component.config.guard)
+    stimulus = make_stimulus(reference, rows, latency=component.latency, beats=component.beats,
+                             seed=[seed, chunk], stall_vectors=0, guard=component.config.guard)
+    return _held(component, stimulus, [seed, chunk])
+
+
+def _held(component, stimulus, seed):
+    """With a clock enable, the stimulus with held cycles (enable low) among its cycles."""
+    return with_held_cycles(stimulus, seed) if component.config.clock_enable else stimulus
 
 
 def _first_origin(vectors, reloaded, index):
@@ -206,11 +212,12 @@ def first_stimulus(component, model, rows, *, seed=0, reload_count=2000, **optio
     stimulus = make_stimulus(reference, rows, latency=component.latency, beats=component.beats,
                              seed=seed, **options)
     if not component.config.loadable_weights:
-        return stimulus, ()
+        return _held(component, stimulus, seed), ()
     analysis = component.analysis
     sets = reload_sets(model, analysis.weight_range, analysis.bias_range,
                        random_count=reload_count, seed=seed, guard=component.config.guard)
     groups = [(f"loaded set {k + 1}: {name}", size) for k, (_, vectors) in enumerate(sets)
               for name, size in vectors.groups]
-    return make_reload_stimulus(stimulus, sets, latency=component.latency,
-                                beats=component.beats, seed=seed, **options), tuple(groups)
+    reloaded = make_reload_stimulus(stimulus, sets, latency=component.latency,
+                                    beats=component.beats, seed=seed, **options)
+    return _held(component, reloaded, seed), tuple(groups)

@@ -9,11 +9,12 @@ cycle are set with one ``ctx.set`` on their concatenation and all outputs read w
 from importlib.metadata import version
 
 import numpy as np
-from amaranth.hdl import Cat, ClockDomain, Module
+from amaranth.hdl import Cat, Module
 from amaranth.sim import Simulator
 
+from ..hardware import reset_domain
 from .backend import SimulationResult, SimulatorBackend
-from .stimulus import write_columns
+from .stimulus import enable_column, write_columns
 
 __all__ = ["AmaranthBackend", "simulate_amaranth"]
 
@@ -48,7 +49,11 @@ def _pack_columns(columns, widths):
 
 
 def simulate_amaranth(component, stimulus, *, progress=None):
-    """Run ``stimulus`` through ``component`` in Amaranth's simulator (one reset cycle first)."""
+    """Run ``stimulus`` through ``component`` in Amaranth's simulator (one reset cycle first).
+
+    The component's clock domain has the configuration's reset, synchronous or asynchronous;
+    its level is the domain's own (active high): an active-low port is an inverter the
+    netlist adds in front of it, which the Verilog simulators drive."""
     features = component.feature_ports
     inputs = [component.in_valid, component.out_ready, *features]
     columns = [stimulus.in_valid.astype(np.int64), stimulus.out_ready.astype(np.int64),
@@ -56,6 +61,9 @@ def simulate_amaranth(component, stimulus, *, progress=None):
     if "weight_write" in component.signature.members:
         inputs += [component.weight_write, component.weight_address, component.weight_data]
         columns += list(write_columns(stimulus))
+    if component.config.clock_enable:
+        inputs.append(component.ce)
+        columns.append(enable_column(stimulus).astype(np.int64))
     widths = [len(signal) for signal in inputs]
     packed = _pack_columns(columns, widths)
     score_ports = component.score_ports
@@ -84,7 +92,7 @@ def simulate_amaranth(component, stimulus, *, progress=None):
 
     top = Module()
     top.submodules.dut = component
-    domain = ClockDomain("sync")
+    domain = reset_domain(component.config.reset)
     if component.latency:
         top.domains.sync = domain
     simulator = Simulator(top)

@@ -16,7 +16,7 @@ from ..errors import ToolError
 from ..outdir import write_text
 from ..tools import find_tool, run, tool_version
 from .backend import SimulationResult, VerilogBackend
-from .stimulus import write_columns
+from .stimulus import enable_column, write_columns
 from .templates import template_text
 
 __all__ = ["IcarusBackend", "TestbenchFiles", "testbench_text", "write_testbench",
@@ -58,24 +58,70 @@ def _write_ports(ports):
     return [rows[key] for key in order if key in rows]
 
 
+# The testbench's own clock and reset (``rst`` high asserts it; an active-low port is driven
+# by its complement), by the port's internal name.
+_CLOCKING = {"clk": "clk", "rst": "rst", "rst_n": "~rst"}
+
+
+def _logical(ports):
+    """The ports a harness drives and reads: the logical ones behind a packed interface
+    (:class:`~thresh2hdl.emit.PortTable`), or the rows themselves."""
+    return getattr(ports, "logical", ports)
+
+
+def _members_of(declared, ports, packed):
+    """The logical ports packed into the port ``packed``, with their lanes, lowest first."""
+    lanes = getattr(declared, "lanes", {})
+    return [(port, lanes[port.internal][1]) for port in ports
+            if lanes.get(port.internal, (None,))[0] == packed]
+
+
+def _packed_inputs(declared, ports, port):
+    """A packed input port driven from the testbench's registers (the bits above each code
+    ones, which the design must ignore); None for a port of its own."""
+    members = _members_of(declared, ports, port.name)
+    if port.direction != "input" or not members:
+        return None
+    parts = []
+    for member, lane in reversed(members):
+        pad = lane.lane_bits - lane.width
+        parts += ([f"{{{pad}{{1'b1}}}}"] if pad else []) + [f"tb_{member.name}"]
+    return "{" + ", ".join(parts) + "}"
+
+
+def _unpacked_outputs(declared, ports):
+    """A wire for each packed output port and the logical outputs read from its lanes."""
+    lines = []
+    for port in declared:
+        members = _members_of(declared, ports, port.name)
+        if port.direction == "output" and members:
+            lines.append(f"  wire {_range(port.width)}tb_{port.name};")
+            lines += [f"  assign tb_{member.name} = tb_{port.name}"
+                      f"[{lane.offset + lane.width - 1}:{lane.offset}];"
+                      for member, lane in members]
+    return lines
+
+
 def _pad(expression, width):
     return expression if width == 128 else f"{{{128 - width}'d0, {expression}}}"
 
 
 def stimulus_layout(ports):
     """The stimulus word's fields, low bits first: ``(port, width)`` for each feature, in_valid,
-    out_ready, then the weight write port's strobe, address and data (loadable weights)."""
-    by_role = {port.internal: port for port in ports}
-    fields = [(port, port.width) for port in ports if port.internal.startswith("x")]
+    out_ready, then the weight write port's strobe, address and data (loadable weights), then
+    the clock enable (when the design has one). ``ports``: the logical ports."""
+    by_role = {port.internal: port for port in _logical(ports)}
+    fields = [(port, port.width) for port in _logical(ports) if port.internal.startswith("x")]
     fields += [(by_role["in_valid"], 1), (by_role["out_ready"], 1)]
     return fields + [(by_role[key], by_role[key].width) for key in
-                     ("weight_write", "weight_address", "weight_data") if key in by_role]
+                     ("weight_write", "weight_address", "weight_data", "ce") if key in by_role]
 
 
 def expected_layout(ports, flag_checked):
     """The expected word's fields, low bits first: ``(label, port, width)`` for in_ready,
     out_valid, the decision, the out-of-range flag (``flag_checked``), then each score. The
     fields from the decision on count only while out_valid is expected high."""
+    ports = _logical(ports)
     by_role = {port.internal: port for port in ports}
     scores = [port for port in ports if port.internal.startswith("score")]
     fields = [("in_ready", by_role["in_ready"], 1), ("out_valid", by_role["out_valid"], 1),
@@ -92,14 +138,16 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     ``flag_checked``: the expectations hold the out-of-range flag; ``flag_masks_results``: the
     decision and scores of a flagged result are not specified (a flag without a clamp), so
     they are compared only where the flag is low."""
+    declared, ports = ports, _logical(ports)
     input_regs = [f"  reg {_range(port.width)}tb_{port.name};" for port in ports
-                  if port.direction == "input" and port.internal not in ("clk", "rst")]
+                  if port.direction == "input" and port.internal not in _CLOCKING]
     output_wires = [f"  wire {_range(port.width)}tb_{port.name};" for port in ports
                     if port.direction == "output"]
+    output_wires += _unpacked_outputs(declared, ports)
     connections = []
-    for port in ports:
-        signal = {"clk": "clk", "rst": "rst"}.get(port.internal, f"tb_{port.name}")
-        connections.append(f"    .{port.name}({signal})")
+    for port in declared:
+        signal = _CLOCKING.get(port.internal, f"tb_{port.name}")
+        connections.append(f"    .{port.name}({_packed_inputs(declared, ports, port) or signal})")
     stimulus = stimulus_layout(ports)
     stim_concat = ", ".join(f"tb_{port.name}" for port, _ in reversed(stimulus))
     stim_bits = sum(width for _, width in stimulus)
@@ -134,6 +182,9 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     text = _template()
     for key, value in values.items():
         text = text.replace(f"@{key}@", value)
+    if any(port.internal == "ce" for port in ports):
+        # The clock enable is the stimulus word's top bit (a design without one: as it was).
+        text = text.replace("stimulus per cycle : {", "stimulus per cycle : {clock enable, ", 1)
     return text
 
 
@@ -181,6 +232,7 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     """Write the testbench and its two vector files into ``folder``; returns the file names."""
     folder = Path(folder)
     files = TestbenchFiles(module)
+    declared, ports = ports, _logical(ports)
     features = [port.width for port in ports if port.internal.startswith("x")]
     inputs = stimulus.inputs
     columns = [inputs[:, i] for i in range(inputs.shape[1])]
@@ -188,8 +240,11 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     writes = _write_ports(ports)
     if writes:
         columns += list(write_columns(stimulus))
+    enable = [1] if any(port.internal == "ce" for port in ports) else []
+    if enable:
+        columns.append(enable_column(stimulus).astype(np.int64))
     write_text(folder / files.stimulus,
-               _hex_lines(columns, features + [1, 1] + [w for _, w in writes]))
+               _hex_lines(columns, features + [1, 1] + [w for _, w in writes] + enable))
     scores = _score_ports(ports)
     decision_bits = next(port.width for port in ports if port.internal == "y")
     index = np.maximum(stimulus.expect_out_index, 0)
@@ -206,7 +261,7 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
         widths.append(width)
     write_text(folder / files.expected, _hex_lines(columns, widths))
     write_text(folder / files.testbench,
-               testbench_text(ports, module, stimulus.cycles, files, verilog_name,
+               testbench_text(declared, module, stimulus.cycles, files, verilog_name,
                               flag_checked=stimulus.expect_flags is not None,
                               flag_masks_results=stimulus.flag_masks_results))
     return files
@@ -253,6 +308,7 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
 
 def read_responses(path, ports, stimulus, simulator):
     """The outputs a testbench wrote, one line per cycle, as a :class:`SimulationResult`."""
+    ports = _logical(ports)
     scores_ports = _score_ports(ports)
     rows = Path(path).read_text().split("\n")
     rows = [row.split() for row in rows if row]

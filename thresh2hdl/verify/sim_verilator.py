@@ -21,7 +21,7 @@ import numpy as np
 from ..errors import ToolError
 from ..tools import find_tool, run, tool_version, which_tool
 from .backend import SimulationResult, VerilogBackend
-from .stimulus import write_columns
+from .stimulus import enable_column, write_columns
 from .templates import template_text
 
 __all__ = ["VerilatorBackend", "find_verilator", "verilator_version", "simulate_verilator",
@@ -65,31 +65,53 @@ def wrapper_name(module):
 def code_type(ports):
     """The C++ type of one code in the vector file: the narrowest of 16, 32 and 64 bits that
     holds every input port (a serial ``sample`` can be 33 bits)."""
+    ports = getattr(ports, "logical", ports)
     widest = max(port.width for port in ports if port.internal.startswith("x"))
     return "int16_t" if widest <= 16 else "int32_t" if widest <= 32 else "int64_t"
 
 
 def wrapper_text(ports, module):
     """Verilog of the harness's top: ``module`` behind one register per input (see the
-    harness template for why)."""
+    harness template for why). The top has the logical ports; a packed port of the module
+    (the AXI4-Stream form's TDATA) is made from, or read into, them by its lanes."""
     top = wrapper_name(module)
+    logical = getattr(ports, "logical", ports)
+    lanes = getattr(ports, "lanes", {})
     lines = [f"module {top} (", f"  input wire {WRAPPER_CLOCK},"]
     inner, registers = [], []
     declared = []
-    for port in ports:
+    for port in logical:
         name = port.name
         bits = f"[{port.width - 1}:0] " if port.width > 1 else ""
         if port.internal == "clk":
-            inner.append(f"    .{name}({WRAPPER_CLOCK})")
             continue
         if port.direction == "input":
             declared.append(f"  input wire {bits}{name}")
             registers += [f"  reg {bits}t2h_q_{name};",
                           f"  always @(posedge {WRAPPER_CLOCK}) t2h_q_{name} <= {name};"]
-            inner.append(f"    .{name}(t2h_q_{name})")
         else:
             declared.append(f"  output wire {bits}{name}")
-            inner.append(f"    .{name}({name})")
+    for port in ports:
+        members = [(member, lanes[member.internal][1]) for member in logical
+                   if lanes.get(member.internal, (None,))[0] == port.name]
+        if port.internal == "clk":
+            inner.append(f"    .{port.name}({WRAPPER_CLOCK})")
+        elif members and port.direction == "input":
+            parts = []
+            for member, lane in reversed(members):
+                pad = lane.lane_bits - lane.width
+                parts += ([f"{pad}'d0"] if pad else []) + [f"t2h_q_{member.name}"]
+            inner.append(f"    .{port.name}({{{', '.join(parts)}}})")
+        elif members:
+            registers.append(f"  wire [{port.width - 1}:0] t2h_{port.name};")
+            registers += [f"  assign {member.name} = t2h_{port.name}"
+                          f"[{lane.offset + lane.width - 1}:{lane.offset}];"
+                          for member, lane in members]
+            inner.append(f"    .{port.name}(t2h_{port.name})")
+        elif port.direction == "input":
+            inner.append(f"    .{port.name}(t2h_q_{port.name})")
+        else:
+            inner.append(f"    .{port.name}({port.name})")
     lines += [",\n".join(declared), ");", *registers, f"  {module} dut (",
               ",\n".join(inner), "  );", "endmodule", ""]
     return "\n".join(lines)
@@ -97,10 +119,12 @@ def wrapper_text(ports, module):
 
 def control_words(ports):
     """int32 words per cycle in the control file: 3, or 7 with a weight write port."""
+    ports = getattr(ports, "logical", ports)
     return 7 if any(port.internal == "weight_write" for port in ports) else 3
 
 
 def harness_text(ports, module):
+    ports = getattr(ports, "logical", ports)
     by_role = {port.internal: (port.name, port.width) for port in ports}
     features = [(port.name, port.width) for port in ports if port.internal.startswith("x")]
     lines = []
@@ -113,9 +137,12 @@ def harness_text(ports, module):
         lines.append(f"        top.{name} = static_cast<uint32_t>(f[{index}]) & {mask};")
     reset = ""
     if "clk" in by_role:
-        rst = by_role["rst"][0]
-        reset = (f"    top.{rst} = 1;\n    top.{by_role['in_valid'][0]} = 0;\n    edge();\n"
-                 f"    top.{rst} = 0;")
+        # The reset port asserted at its level (an active-low one is ``rst_n``).
+        low = "rst_n" in by_role
+        rst = by_role["rst_n" if low else "rst"][0]
+        reset = (f"    top.{rst} = {int(not low)};\n    top.{by_role['in_valid'][0]} = 0;\n"
+                 f"    edge();\n    top.{rst} = {int(low)};")
+    enable = f"        top.{by_role['ce'][0]} = (c[0] >> 1) & 1;" if "ce" in by_role else ""
     scores = [port.name for port in ports if port.internal.startswith("score")]
     writes = []
     if "weight_write" in by_role:
@@ -135,7 +162,7 @@ def harness_text(ports, module):
               "FLAG": (f" | ((top.{by_role['out_of_range'][0]} & 1) << 15)"
                        if "out_of_range" in by_role else ""),
               "SCORE_READS": reads, "SCORE_PORTS": str(len(scores)),
-              "SET_WRITES": "\n".join(writes), "CONTROL_WORDS": str(control_words(ports))}
+              "SET_WRITES": "\n".join(writes), "SET_ENABLE": enable, "CONTROL_WORDS": str(control_words(ports))}
     text = template_text("verilator_harness.cpp.in")
     for key, value in values.items():
         text = text.replace(f"@{key}@", value)
@@ -189,11 +216,12 @@ def compiled_harness(verilog_text, ports, module, *, progress=None):
 
 def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
     """Run ``stimulus`` through the emitted Verilog in Verilator; record every cycle."""
+    declared, ports = ports, getattr(ports, "logical", ports)
     score_widths = [port.width for port in ports if port.internal.startswith("score")]
     if score_widths and max(score_widths) > 64:
         raise ToolError(f"the Verilator harness reads scores of up to 64 bits, this one has "
                         f"{max(score_widths)}; use --simulator icarus")
-    binary = compiled_harness(verilog_text, ports, module, progress=progress)
+    binary = compiled_harness(verilog_text, declared, module, progress=progress)
     # Codes keep their bit pattern (the harness masks to the port width).
     codes = stimulus.beat_codes
     kind = code_type(ports)
@@ -204,7 +232,7 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
     else:
         vectors = codes.astype(np.int64)      # the harness masks to the port's width
     control = np.empty((stimulus.cycles, control_words(ports)), dtype="<i4")
-    control[:, 0] = stimulus.in_valid
+    control[:, 0] = stimulus.in_valid | (enable_column(stimulus).astype(np.int32) << 1)
     control[:, 1] = stimulus.out_ready
     control[:, 2] = stimulus.in_index
     if control.shape[1] > 3:

@@ -12,7 +12,8 @@ import numpy as np
 
 from .reference import ReferenceModel, cycle_model
 
-__all__ = ["Stimulus", "make_stimulus", "make_reload_stimulus", "write_columns"]
+__all__ = ["Stimulus", "make_stimulus", "make_reload_stimulus", "write_columns",
+           "with_held_cycles", "enable_column", "HOLD_PROBABILITY"]
 
 
 @dataclass(frozen=True)
@@ -33,6 +34,7 @@ class Stimulus:
     writes: tuple | None = None  # loadable weights: per-cycle (strobe, address, data) arrays
     expect_flags: np.ndarray | None = None  # per vector: the out-of-range flag (None: no flag)
     flag_masks_results: bool = False  # flag without clamp: a flagged result is not specified
+    enable: np.ndarray | None = None  # the clock enable per cycle (None: no enable, or high)
 
     @property
     def cycles(self):
@@ -135,6 +137,51 @@ def _arithmetic_codes(vectors, guard):
 
 def _masks(guard):
     return guard is not None and guard.flag and not guard.clamp and guard.needed
+
+
+HOLD_PROBABILITY = 0.1   # the chance of one more held cycle before each cycle
+
+
+def with_held_cycles(stimulus, seed, probability=HOLD_PROBABILITY):
+    """``stimulus`` with cycles of the clock enable low inserted at random, as runs of one or
+    more before a cycle. A held cycle changes no register, so each cycle of the original
+    still sees the state it saw; in a held cycle the inputs are those of the cycle after it
+    (a write strobe included, which must be ignored) with random ``in_valid`` and
+    ``out_ready``, and ``in_ready`` and ``out_valid`` are expected 0."""
+    rng = np.random.default_rng([7, *np.atleast_1d(seed).tolist()])
+    cycles = stimulus.cycles
+    held_before = rng.geometric(1 - probability, cycles) - 1
+    order = np.repeat(np.arange(cycles), held_before + 1)
+    # The last row of each cycle's repeats is the cycle itself; those before it are held.
+    ends = np.cumsum(held_before + 1) - 1
+    enable = np.zeros(len(order), dtype=bool)
+    enable[ends] = True
+    held = ~enable
+
+    def spread(column, when_held):
+        out = np.asarray(column)[order]
+        if when_held is not None:
+            out = out.copy()
+            out[held] = when_held
+        return out
+
+    noise = rng.random((2, len(order))) < 0.5
+    writes = None if stimulus.writes is None else \
+        tuple(spread(column, None) for column in stimulus.writes)
+    return replace(stimulus, in_valid=np.where(held, noise[0], stimulus.in_valid[order]),
+                   out_ready=np.where(held, noise[1], stimulus.out_ready[order]),
+                   in_index=spread(stimulus.in_index, None),
+                   expect_in_ready=spread(stimulus.expect_in_ready, False),
+                   expect_out_valid=spread(stimulus.expect_out_valid, False),
+                   expect_out_index=spread(stimulus.expect_out_index, -1),
+                   writes=writes, enable=enable)
+
+
+def enable_column(stimulus):
+    """The clock enable per cycle (high throughout when the stimulus holds no cycle)."""
+    if stimulus.enable is not None:
+        return stimulus.enable
+    return np.ones(stimulus.cycles, dtype=bool)
 
 
 def write_columns(stimulus):
