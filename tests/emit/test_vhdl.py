@@ -47,6 +47,11 @@ FORMS = {
     "bank-2": (3, {"pipeline": 2}),
     "bank-shared": (3, {"arch": "shiftadd", "share_terms": True, "pipeline": 3}),
     "bank-serial": (3, {"arch": "serial"}),
+    "async-low-enable": (1, {"pipeline": 2, "reset": "async-low", "clock_enable": True}),
+    "sync-low": (1, {"arch": "shiftadd", "pipeline": 3, "reset": "sync-low"}),
+    "async-high-bank": (3, {"pipeline": 2, "reset": "async-high", "clock_enable": True}),
+    "stream": (1, {"pipeline": 2, "interface": "axi-stream"}),
+    "stream-bank": (3, {"pipeline": 1, "interface": "axi-stream", "reset": "async-low"}),
 }
 
 
@@ -120,7 +125,8 @@ def test_a_wrong_vhdl_file_is_caught_in_ghdl():
 
 @pytest.mark.prove
 @pytest.mark.parametrize("name", ["tree-comb", "tree-2", "shiftadd-full", "flag-only",
-                                  "bank-2", "bank-shared"])
+                                  "bank-2", "bank-shared", "async-low-enable", "sync-low",
+                                  "async-high-bank", "stream", "stream-bank"])
 def test_ghdl_reading_proves(name):
     # GHDL's synthesis reads the VHDL (ghdl --synth --out=verilog); that reading is proved
     # equal to the model, so an independent tool's reading of our VHDL computes the model.
@@ -144,19 +150,20 @@ def test_a_wrong_vhdl_file_gives_a_counterexample(tmp_path):
                         ports, timeout_s=60, simulator="auto", progress=progress_of(None))
     assert result.status == "counterexample"
     assert result.section["counterexample"]["confirmed_in"]
-    # The counterexample, replayed in GHDL on the mutant VHDL itself, gives a decision that a
-    # plain Python sum (w.x + b > 0 on the clamped codes) disagrees with.
+    # The counterexample, replayed in GHDL on the mutant VHDL itself, gives a decision or a
+    # score that a plain Python sum (w.x + b, > 0, on the clamped codes) disagrees with.
     vector = result.section["counterexample"]["vector"]
     codes = [vector[f.name] for f in model.features]
     clamped = [min(max(c, lo), hi) for c, (lo, hi) in
                zip(codes, component.config.guard.feature_ranges)]
-    wanted = int(sum(w * c for w, c in zip(model.units[0].weights, clamped))
-                 + model.units[0].bias > 0)
+    score = sum(w * c for w, c in zip(model.units[0].weights, clamped)) + model.units[0].bias
     stimulus, _ = first_stimulus(component, model, np.array([codes] * 4), seed=0,
                                  reload_count=0)
     got = GhdlBackend(mutant, ports, model.module).run(stimulus)
-    seen = got.decisions[got.out_valid & stimulus.out_ready]
-    assert len(seen) and any(int(d) != wanted for d in seen)
+    done = got.out_valid & stimulus.out_ready
+    assert np.count_nonzero(done)
+    assert any(int(d) != int(score > 0) for d in got.decisions[done]) or \
+        any(int(v) != score for v in got.scores[done])
 
 
 def test_emitted_vhdl_is_deterministic():

@@ -19,6 +19,8 @@ FORMS = {   # name: (model, build options): each branch of the layout and the ti
     "serial": (demo_model, {"arch": "serial"}),
     "bank": (lambda: bank_model([[3, -2, 5], [-4, 1, 2], [1, 1, -6]], [2, -3, 0], bits=6,
                                 is_signed=True), {"pipeline": 2}),
+    "async-low-enable": (demo_model, {"pipeline": 2, "reset": "async-low",
+                                      "clock_enable": True}),
 }
 
 
@@ -101,7 +103,8 @@ def test_the_demo_folder_passes_in_cocotb_and_a_corrupted_word_fails(tmp_path):
 
 
 @pytest.mark.icarus
-@pytest.mark.parametrize("form", ["loadable", "flag-only-combinational", "serial", "bank"])
+@pytest.mark.parametrize("form", ["loadable", "flag-only-combinational", "serial", "bank",
+                                  "async-low-enable"])
 def test_every_design_form_passes_in_cocotb(tmp_path, form):
     # Outside reference: cocotb 2.1 and Icarus Verilog 11, as above; these forms add the
     # weight write port, a design without clock or reset, beats, and several scores.

@@ -8,7 +8,7 @@ cycles with the same expectations as the Verilog testbench.
 
 import json
 
-from .sim_icarus import _score_ports, _write_ports
+from .sim_icarus import _score_ports, logical_ports, stimulus_layout
 from .templates import template_text
 
 __all__ = ["CYCLES_VARIABLE", "cocotb_file_name", "cocotb_test_text", "stimulus_fields",
@@ -23,15 +23,15 @@ def cocotb_file_name(module):
 
 def stimulus_fields(ports):
     """(port, width) of each stimulus word, low bits first: the features in model order,
-    in_valid, out_ready, then the weight write port (strobe, address, data) when present."""
-    names = {port.internal: port.name for port in ports}
-    features = [(port.name, port.width) for port in ports if port.internal.startswith("x")]
-    return features + [(names["in_valid"], 1), (names["out_ready"], 1)] + _write_ports(ports)
+    in_valid, out_ready, then the weight write port (strobe, address, data) and the clock
+    enable when present (:func:`~thresh2hdl.verify.sim_icarus.stimulus_layout`)."""
+    return [(port.name, width) for port, width in stimulus_layout(ports)]
 
 
 def expected_fields(ports, *, flag_checked, flag_masks_results):
     """(port, width, when compared) of each expected word, low bits first: in_ready,
     out_valid, the decision, the out-of-range flag (when checked), each score."""
+    ports = logical_ports(ports)
     by_role = {port.internal: port for port in ports}
     results = "valid unflagged" if flag_masks_results else "valid"
     fields = [(by_role["in_ready"].name, 1, "always"), (by_role["out_valid"].name, 1, "always"),
@@ -58,6 +58,8 @@ def cocotb_test_text(ports, module, cycles, files, verilog_name, *, flag_checked
     """The module's text, for a design with ``ports`` (:func:`~thresh2hdl.emit.port_table`)
     replaying ``cycles`` cycles of the vector files named by ``files``
     (:class:`~thresh2hdl.verify.sim_icarus.TestbenchFiles`)."""
+    if getattr(ports, "lanes", None):
+        raise ValueError("the cocotb module drives a design's own ports, not packed streams")
     by_role = {port.internal: port.name for port in ports}
     expected = expected_fields(ports, flag_checked=flag_checked,
                                flag_masks_results=flag_masks_results)
@@ -66,7 +68,9 @@ def cocotb_test_text(ports, module, cycles, files, verilog_name, *, flag_checked
         "MODULE": module, "VERILOG": verilog_name, "CYCLES": str(cycles),
         "CYCLES_VARIABLE": CYCLES_VARIABLE, "FILE_NAME": cocotb_file_name(module),
         "STIMULUS": files.stimulus, "EXPECTED": files.expected, "TESTBENCH": files.testbench,
-        "CLOCK": _python(by_role.get("clk")), "RESET": _python(by_role.get("rst")),
+        "CLOCK": _python(by_role.get("clk")),
+        "RESET": _python(by_role.get("rst", by_role.get("rst_n"))),
+        "RESET_ACTIVE": "0" if "rst_n" in by_role else "1",
         "FLAG_BIT": _python(flag_bit),
         "STIMULUS_FIELDS": _rows(stimulus_fields(ports)), "EXPECTED_FIELDS": _rows(expected),
     }

@@ -13,7 +13,8 @@ from ..outdir import write_text
 from ..tools import find_tool, run, tool_version
 from .backend import SimulatorBackend
 from .sim_icarus import (EXPECTED_FILE, RESPONSES_FILE, STIMULUS_FILE, expected_layout,
-                         read_responses, stimulus_layout, write_testbench)
+                         logical_ports, packed_members, read_responses, stimulus_layout,
+                         write_testbench)
 from .templates import template_text
 
 __all__ = ["GhdlBackend", "VHDL_STANDARD", "LINT_WARNINGS", "vhdl_run_command", "ghdl_version", "ghdl_lint", "vhdl_testbench_name",
@@ -48,15 +49,49 @@ def _as_vector(port):
     return f"std_logic_vector'(0 => tb_{port.name})" if port.width == 1 else f"tb_{port.name}"
 
 
+# The testbench's own clock and reset (``rst`` high asserts it); an active-low reset port is
+# driven by a signal of the complement.
+_CLOCKING = {"clk": "clk", "rst": "rst", "rst_n": "tb_rst_n"}
+
+
+def _packing(declared, ports):
+    """Concurrent statements that fill each packed input port from the logical inputs (the
+    bits above each code ones, which the design must ignore) and read the logical outputs
+    from each packed output port's lanes."""
+    lines = []
+    for port in declared:
+        members = packed_members(declared, ports, port.name)
+        if not members:
+            continue
+        if port.direction == "input":
+            parts = []
+            for member, lane in reversed(members):
+                pad = lane.lane_bits - lane.width
+                parts += ([f"std_logic_vector'({pad - 1} downto 0 => '1')"] if pad else []) \
+                    + [_as_vector(member)]
+            lines.append(f"  tb_{port.name} <= {' & '.join(parts)};")
+        else:
+            for member, lane in members:
+                select = f"{lane.offset}" if member.width == 1 else \
+                    f"{lane.offset + lane.width - 1} downto {lane.offset}"
+                lines.append(f"  tb_{member.name} <= tb_{port.name}({select});")
+    return lines
+
+
 def vhdl_testbench_text(ports, module, cycles, vhdl_name, *, flag_checked=False,
                         flag_masks_results=False):
     """Testbench source for the entity ``module`` with ``ports`` (from
     :func:`~thresh2hdl.emit.verilog.port_table`); the flags as for
     :func:`~thresh2hdl.verify.sim_icarus.testbench_text`."""
-    signals = [_signal(port) for port in ports if port.internal not in ("clk", "rst")]
-    connections = [f"      {port.name} => "
-                   f"{ {'clk': 'clk', 'rst': 'rst'}.get(port.internal, 'tb_' + port.name)}"
-                   for port in ports]
+    declared, ports = ports, logical_ports(ports)
+    logical = {port.name for port in ports}
+    signals = [_signal(port) for port in ports if port.internal not in _CLOCKING]
+    signals += [_signal(port) for port in declared
+                if port.name not in logical and port.internal not in _CLOCKING]
+    if any(port.internal == "rst_n" for port in declared):
+        signals.append("  signal tb_rst_n : std_logic;")
+    connections = [f"      {port.name} => {_CLOCKING.get(port.internal, 'tb_' + port.name)}"
+                   for port in declared]
     unpack, offset = [], 0
     for port, width in stimulus_layout(ports):
         select = f"{offset}" if width == 1 else f"{offset + width - 1} downto {offset}"
@@ -84,7 +119,10 @@ def vhdl_testbench_text(ports, module, cycles, vhdl_name, *, flag_checked=False,
         "MODULE": module, "TB_MODULE": f"{module}_tb", "CYCLES": str(cycles),
         "STIM_TOP": str(4 * -(-stim_bits // 4) - 1), "EXPECT_TOP": str(4 * -(-offset // 4) - 1),
         "SIGNALS": "\n".join(signals), "CONNECTIONS": ",\n".join(connections),
-        "UNPACK": "\n".join(unpack), "CHECKS": "\n".join(checks),
+        "UNPACK": "\n".join(unpack + _packing(declared, ports)
+                             + (["  tb_rst_n <= not rst;"] if "tb_rst_n" in
+                                "".join(connections) else [])),
+        "CHECKS": "\n".join(checks),
         "RESPONSE_FIELDS": ' & " " & '.join(responses),
         "STIMULUS": STIMULUS_FILE, "EXPECTED": EXPECTED_FILE, "RESPONSES": RESPONSES_FILE,
         "RUN_COMMAND": vhdl_run_command(module, vhdl_name),

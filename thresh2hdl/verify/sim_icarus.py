@@ -63,13 +63,13 @@ def _write_ports(ports):
 _CLOCKING = {"clk": "clk", "rst": "rst", "rst_n": "~rst"}
 
 
-def _logical(ports):
+def logical_ports(ports):
     """The ports a harness drives and reads: the logical ones behind a packed interface
     (:class:`~thresh2hdl.emit.PortTable`), or the rows themselves."""
     return getattr(ports, "logical", ports)
 
 
-def _members_of(declared, ports, packed):
+def packed_members(declared, ports, packed):
     """The logical ports packed into the port ``packed``, with their lanes, lowest first."""
     lanes = getattr(declared, "lanes", {})
     return [(port, lanes[port.internal][1]) for port in ports
@@ -79,7 +79,7 @@ def _members_of(declared, ports, packed):
 def _packed_inputs(declared, ports, port):
     """A packed input port driven from the testbench's registers (the bits above each code
     ones, which the design must ignore); None for a port of its own."""
-    members = _members_of(declared, ports, port.name)
+    members = packed_members(declared, ports, port.name)
     if port.direction != "input" or not members:
         return None
     parts = []
@@ -93,7 +93,7 @@ def _unpacked_outputs(declared, ports):
     """A wire for each packed output port and the logical outputs read from its lanes."""
     lines = []
     for port in declared:
-        members = _members_of(declared, ports, port.name)
+        members = packed_members(declared, ports, port.name)
         if port.direction == "output" and members:
             lines.append(f"  wire {_range(port.width)}tb_{port.name};")
             lines += [f"  assign tb_{member.name} = tb_{port.name}"
@@ -110,8 +110,8 @@ def stimulus_layout(ports):
     """The stimulus word's fields, low bits first: ``(port, width)`` for each feature, in_valid,
     out_ready, then the weight write port's strobe, address and data (loadable weights), then
     the clock enable (when the design has one). ``ports``: the logical ports."""
-    by_role = {port.internal: port for port in _logical(ports)}
-    fields = [(port, port.width) for port in _logical(ports) if port.internal.startswith("x")]
+    by_role = {port.internal: port for port in logical_ports(ports)}
+    fields = [(port, port.width) for port in logical_ports(ports) if port.internal.startswith("x")]
     fields += [(by_role["in_valid"], 1), (by_role["out_ready"], 1)]
     return fields + [(by_role[key], by_role[key].width) for key in
                      ("weight_write", "weight_address", "weight_data", "ce") if key in by_role]
@@ -121,7 +121,7 @@ def expected_layout(ports, flag_checked):
     """The expected word's fields, low bits first: ``(label, port, width)`` for in_ready,
     out_valid, the decision, the out-of-range flag (``flag_checked``), then each score. The
     fields from the decision on count only while out_valid is expected high."""
-    ports = _logical(ports)
+    ports = logical_ports(ports)
     by_role = {port.internal: port for port in ports}
     scores = [port for port in ports if port.internal.startswith("score")]
     fields = [("in_ready", by_role["in_ready"], 1), ("out_valid", by_role["out_valid"], 1),
@@ -138,7 +138,7 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     ``flag_checked``: the expectations hold the out-of-range flag; ``flag_masks_results``: the
     decision and scores of a flagged result are not specified (a flag without a clamp), so
     they are compared only where the flag is low."""
-    declared, ports = ports, _logical(ports)
+    declared, ports = ports, logical_ports(ports)
     input_regs = [f"  reg {_range(port.width)}tb_{port.name};" for port in ports
                   if port.direction == "input" and port.internal not in _CLOCKING]
     output_wires = [f"  wire {_range(port.width)}tb_{port.name};" for port in ports
@@ -232,7 +232,7 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     """Write the testbench and its two vector files into ``folder``; returns the file names."""
     folder = Path(folder)
     files = TestbenchFiles(module)
-    declared, ports = ports, _logical(ports)
+    declared, ports = ports, logical_ports(ports)
     features = [port.width for port in ports if port.internal.startswith("x")]
     inputs = stimulus.inputs
     columns = [inputs[:, i] for i in range(inputs.shape[1])]
@@ -308,7 +308,7 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
 
 def read_responses(path, ports, stimulus, simulator):
     """The outputs a testbench wrote, one line per cycle, as a :class:`SimulationResult`."""
-    ports = _logical(ports)
+    ports = logical_ports(ports)
     scores_ports = _score_ports(ports)
     rows = Path(path).read_text().split("\n")
     rows = [row.split() for row in rows if row]
