@@ -243,7 +243,8 @@ def test_loadable_demo_reports_its_port_and_is_not_proved(tmp_path):
             raise
         return
     result = run("prove", out)
-    assert_one_line_error(result, code=3, contains="loadable weights are not covered")
+    assert_one_line_error(result, code=3, contains="loadable weights are not covered",
+                          after_progress=True)
 
 
 def test_a_design_that_ignores_writes_is_caught_and_named(monkeypatch):

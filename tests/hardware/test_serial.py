@@ -276,7 +276,8 @@ def test_prove_answers_undecided_for_serial(tmp_path):
     assert run("demo", "--out", out, "--arch", "serial", "--simulator", "amaranth",
                "--vectors", "200").returncode == 0
     result = run("prove", out)
-    assert_one_line_error(result, code=3, contains="serial architecture is not covered")
+    assert_one_line_error(result, code=3, contains="serial architecture is not covered",
+                          after_progress=True)
     report = json.loads((out / "report.json").read_text())
     assert report["proof"]["status"] == "undecided"
 
