@@ -12,6 +12,7 @@ from ..errors import InputError, MismatchError, UndecidedError
 from ..emit import port_table
 from ..outdir import write_files
 from ..proof import DEFAULT_TIMEOUT_S, prove_netlist
+from ..tools import which_tool
 from ..verify import ReferenceModel, choose_simulator, make_backend, make_stimulus
 from .folder import load_folder, report_files
 from .languages import verilog_of
@@ -130,7 +131,11 @@ def prove_text(text, name, component, model, ports, *, timeout_s, simulator, pro
     """Prove ``text`` (file ``name``; ``own``: the folder's own Verilog) and confirm a
     counterexample in a simulator. ``progress``: a :class:`~.progress.Progress`."""
     clock = time.perf_counter()
+    auto = simulator == "auto"
     simulator = choose_simulator(simulator)
+    if auto and simulator == "verilator" and which_tool("iverilog") and which_tool("vvp"):
+        # The search's 2,000 vectors: Icarus runs them before Verilator has compiled.
+        simulator = "icarus"
     searched = {}
 
     def quick_search():
