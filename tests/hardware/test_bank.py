@@ -105,7 +105,7 @@ def test_random_banks_agree_with_reference_in_amaranth(case):
 
 @pytest.mark.verilator
 @pytest.mark.icarus
-@settings(max_examples=6, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=4, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(case=banks)
 def test_random_banks_lint_clean_and_agree_in_icarus_and_verilator(tmp_path_factory, case):
     # Independent simulators: Icarus Verilog 11 and Verilator 5.006 run the emitted file,

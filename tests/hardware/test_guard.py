@@ -192,7 +192,7 @@ guard_cases = st.integers(1, 6).flatmap(lambda n: st.tuples(
 
 @pytest.mark.verilator
 @pytest.mark.icarus
-@settings(max_examples=4, deadline=None,
+@settings(max_examples=3, deadline=None,
           suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(case=guard_cases)
 def test_random_guarded_models_lint_clean_and_agree_in_icarus_and_verilator(

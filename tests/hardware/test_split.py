@@ -57,7 +57,7 @@ def test_random_split_units_agree_with_reference_in_amaranth(case):
 
 @pytest.mark.verilator
 @pytest.mark.icarus
-@settings(max_examples=6, deadline=None,
+@settings(max_examples=4, deadline=None,
           suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(case=cases)
 def test_random_split_units_lint_clean_and_agree_in_icarus_and_verilator(tmp_path_factory,

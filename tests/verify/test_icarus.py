@@ -52,7 +52,7 @@ cases = st.integers(1, 8).flatmap(lambda n: st.tuples(
 
 
 @pytest.mark.verilator
-@settings(max_examples=9, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=6, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(case=cases)
 def test_random_models_lint_clean_and_match_reference_in_icarus_and_verilator(
         tmp_path_factory, case):
