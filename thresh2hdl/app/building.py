@@ -164,9 +164,7 @@ def build(model, out_dir, options=BuildOptions(), *, progress=None):
         write_text(staging / "report.json", report_json(report))
         write_text(staging / "report.html", report_html(record))
         write_text(staging / "report.md", report_markdown(record))
-        files = write_testbench(staging, ports, module, exported, f"{module}.v")
-        if verilog_name is None:
-            (staging / files.testbench).unlink()
+        files = write_testbench(staging, ports, module, exported, verilog_name)
         if texts.vhdl is not None:
             write_vhdl_testbench(staging, ports, module, exported, vhdl_section["file"])
         write_packaging(staging, ports, module, exported, files, verilog_name, vhdl_section)

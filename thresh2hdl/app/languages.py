@@ -17,7 +17,7 @@ from ..emit import (check_ports, check_vhdl_names, read_netlist, component_packa
 from ..errors import InputError
 from ..reports import model_digest
 from ..tools import find_tool
-from ..verify import GhdlBackend, ghdl_lint, ghdl_reading, verify
+from ..verify import GhdlBackend, ghdl_lint, ghdl_reading, ghdl_version, verify
 from ..verify.sim_ghdl import (LINT_WARNINGS, VHDL_STANDARD, vhdl_run_command,
                                vhdl_testbench_name)
 
@@ -110,7 +110,7 @@ def _lint(texts, module, folder):
         path = folder / name
         path.write_text(text, encoding="utf-8")
         ghdl_lint(path)
-    version = GhdlBackend(texts.vhdl, (), module).version()
+    version = ghdl_version()
     return (f"{version}: analysed with -a {VHDL_STANDARD} {' '.join(LINT_WARNINGS)}; "
             f"no warning")
 

@@ -188,7 +188,7 @@ def simulate_ghdl(vhdl_path, ports, module, stimulus, workdir):
     workdir = Path(workdir)
     workdir.mkdir(parents=True, exist_ok=True)
     vhdl_path = Path(vhdl_path)
-    write_testbench(workdir, ports, module, stimulus, f"{module}.v")   # the vector files
+    write_testbench(workdir, ports, module, stimulus, None)     # the vector files alone
     bench = write_vhdl_testbench(workdir, ports, module, stimulus, vhdl_path.name)
     (workdir / vhdl_path.name).write_text(vhdl_path.read_text(encoding="utf-8"),
                                           encoding="utf-8")

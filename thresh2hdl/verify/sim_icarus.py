@@ -229,7 +229,8 @@ def _hex_lines_wide(arrays, widths, digits):
 
 
 def write_testbench(folder, ports, module, stimulus, verilog_name):
-    """Write the testbench and its two vector files into ``folder``; returns the file names."""
+    """Write the testbench and its two vector files into ``folder``; returns the file names.
+    ``verilog_name`` None: the vector files alone (a VHDL-only folder's testbench reads them)."""
     folder = Path(folder)
     files = TestbenchFiles(module)
     declared, ports = ports, logical_ports(ports)
@@ -260,10 +261,11 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
         columns.append(np.where(valid, expect[index, unit], 0))
         widths.append(width)
     write_text(folder / files.expected, _hex_lines(columns, widths))
-    write_text(folder / files.testbench,
-               testbench_text(declared, module, stimulus.cycles, files, verilog_name,
-                              flag_checked=stimulus.expect_flags is not None,
-                              flag_masks_results=stimulus.flag_masks_results))
+    if verilog_name is not None:
+        write_text(folder / files.testbench,
+                   testbench_text(declared, module, stimulus.cycles, files, verilog_name,
+                                  flag_checked=stimulus.expect_flags is not None,
+                                  flag_masks_results=stimulus.flag_masks_results))
     return files
 
 
