@@ -1,5 +1,9 @@
 """``--hdl verilog|vhdl|both`` from the command line: the folder's files, the report, check and
-prove on VHDL folders, and names VHDL cannot take refused in one line."""
+prove on VHDL folders, and names VHDL cannot take refused in one line.
+
+Outside references: GHDL 2.0 (Debian 2.0.0, an IEEE 1076-2008 implementation) analyses,
+simulates and synthesises the VHDL; Icarus Verilog 11 runs the Verilog; the reserved words are
+IEEE 1076-2008's list (from memory)."""
 
 import json
 import subprocess
