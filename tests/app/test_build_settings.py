@@ -57,7 +57,8 @@ def test_the_record_holds_the_resolved_choices_and_the_reload_reads_it(which, re
     assert record["settings_format"] == 1 and text.endswith("}\n")
     # The clocking keys are written only when not the default, so that a default build's
     # record is byte for byte what it was before they could be chosen.
-    unwritten = {"reset": "sync-high", "clock_enable": False, "interface": "plain"}
+    unwritten = {"reset": "sync-high", "clock_enable": False, "interface": "plain",
+                 "weight_port": "plain"}
     assert set(record) == {"settings_format"} | {f.name for f in fields(BuildSettings)} - \
         set(unwritten)
     assert {key: record.get(key, unwritten.get(key)) for key in config_of(built.component)} == \

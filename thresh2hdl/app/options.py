@@ -12,7 +12,8 @@ from typing import ClassVar
 
 from ..analysis import ARCHITECTURES
 from ..errors import InputError
-from ..hardware import DEFAULT_RESET, FULL_PIPELINE, INTERFACES, RESET_KINDS, UnitConfig
+from ..hardware import (DEFAULT_RESET, FULL_PIPELINE, INTERFACES, RESET_KINDS, WEIGHT_PORTS,
+                        UnitConfig)
 from ..proof import DEFAULT_TIMEOUT_S
 
 __all__ = ["BuildOptions", "Flag", "HDLS", "SIMULATORS", "DEFAULT_VECTORS", "MAX_VECTORS",
@@ -90,6 +91,10 @@ class BuildOptions:
     bias_bits: int | None = _option(
         None, "--bias-bits", "Declared signed width of every loadable bias (default: the "
         "fewest that hold the trained biases).", kind="int")
+    weight_port: str = _option(
+        "plain", "--weight-port", "The loadable weights' port: plain (strobe, address, data) "
+        "or axi4-lite (an AXI4-Lite slave, 32-bit words, with read-back).",
+        choices=WEIGHT_PORTS, show_default=True)
     clamp: bool | None = _option(       # the input guard (thresh2hdl.analysis.guard)
         None, "--clamp/--no-clamp", "Clamp each feature to its declared range before the "
         "arithmetic (default: on when some declared range is tighter than its port).",

@@ -7,7 +7,7 @@ from dataclasses import asdict, dataclass, fields as dataclass_fields
 from pathlib import Path
 
 from ..errors import InputError
-from ..hardware import DEFAULT_RESET, INTERFACES, RESET_KINDS
+from ..hardware import DEFAULT_RESET, INTERFACES, RESET_KINDS, WEIGHT_PORTS
 from ..readers import load_json, shorten
 
 __all__ = ["BuildSettings", "SETTINGS_FILE", "SETTINGS_FORMAT", "read_build_settings",
@@ -41,6 +41,7 @@ class BuildSettings:
     reset: str = DEFAULT_RESET       # written only when not the default, so that a default
     clock_enable: bool = False       # build's record is what it was before these existed
     interface: str = "plain"
+    weight_port: str = "plain"
     latency_cycles: int
 
     @classmethod
@@ -82,11 +83,12 @@ _RECORD = {
     "reset": (f"one of {', '.join(RESET_KINDS)}", lambda v: v in RESET_KINDS),
     "clock_enable": ("true or false", lambda v: isinstance(v, bool)),
     "interface": (f"one of {', '.join(INTERFACES)}", lambda v: v in INTERFACES),
+    "weight_port": (f"one of {', '.join(WEIGHT_PORTS)}", lambda v: v in WEIGHT_PORTS),
     "latency_cycles": (f"an integer from 0 to {MAX_SETTING}", _integer),
 }
 # Fields a record written before they existed lacks, with the value its design had.
 _ADDED_LATER = {"share_terms": False, "reset": DEFAULT_RESET, "clock_enable": False,
-                "interface": "plain"}
+                "interface": "plain", "weight_port": "plain"}
 _DESIGN = tuple(f.name for f in dataclass_fields(BuildSettings) if f.name not in ("module",
                                                                        "latency_cycles"))
 
@@ -177,7 +179,7 @@ def read_build_settings(path):
                 "bias_bits": integer("weight_port.bias_bits", port.get("bias_bits"), True),
                 "share_terms": False,      # older folders: built before terms were shared,
                 "reset": DEFAULT_RESET, "clock_enable": False,    # or resets were chosen,
-                "interface": "plain"}                             # or streams made
+                "interface": "plain", "weight_port": "plain"}     # or streams made
     # A folder from before the input guard was built without one.
     for key, option in (("clamp", "clamp"), ("flag", "range_flag")):
         value = guard.get(key, False)

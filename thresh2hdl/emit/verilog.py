@@ -185,7 +185,9 @@ def port_table(component, model):
     for member_name, member in component.signature.members.items():
         shape = Shape.cast(member.shape)
         direction = "input" if member.flow == In else "output"
-        table.append(Port(member_name, names[member_name], direction, shape.width, shape.signed))
+        # The AXI4-Lite slave's signals keep the specification's names (s_axi_awvalid...).
+        table.append(Port(member_name, names.get(member_name, member_name), direction,
+                          shape.width, shape.signed))
     if component.stream is None:
         return PortTable(table)
     return _stream_table(table, component.stream)

@@ -6,7 +6,8 @@ from .clocking import (DEFAULT_RESET, RESET_KINDS, reset_domain, reset_is_async,
 from .stream import INTERFACES, MAX_TDATA_BITS, Lane, StreamLayout
 from .config import FULL_PIPELINE, MAX_SERIAL_FEATURES, UnitConfig, sample_shape
 from .plan import DesignPlan, plan_design
-from .weights import weight_addresses
+from .register_bus import WEIGHT_PORTS
+from .weights import register_file, weight_addresses
 from .unit import ThresholdUnit
 from .bank import ThresholdBank
 from .serial import SerialThreshold
@@ -15,5 +16,5 @@ from .make import make_component
 __all__ = ["DEFAULT_RESET", "RESET_KINDS", "reset_domain", "reset_is_async", "reset_is_low",
            "reset_port", "INTERFACES", "MAX_TDATA_BITS", "Lane", "StreamLayout",
            "FULL_PIPELINE", "MAX_SERIAL_FEATURES", "UnitConfig", "sample_shape", "DesignPlan",
-           "plan_design", "weight_addresses", "ThresholdUnit", "ThresholdBank",
+           "plan_design", "WEIGHT_PORTS", "register_file", "weight_addresses", "ThresholdUnit", "ThresholdBank",
            "SerialThreshold", "make_component"]

@@ -13,6 +13,7 @@ from ..errors import InputError
 from ..model import Model
 from ..analysis import check_architecture, resolve_guard, signed_bits
 from .clocking import DEFAULT_RESET, RESET_KINDS, reset_is_low, reset_port
+from .register_bus import AXI_LITE_DATA_BITS, WEIGHT_PORTS
 from .stream import INTERFACES
 
 __all__ = ["UnitConfig", "FULL_PIPELINE", "MAX_SERIAL_FEATURES", "sample_shape"]
@@ -52,6 +53,7 @@ class UnitConfig:
                                      # interface's default (sync-high; axi-stream sync-low)
     clock_enable: bool = False       # a clock enable port: every register holds while it is low
     interface: str = "plain"         # or axi-stream: the same design's ports in two streams
+    weight_port: str = "plain"       # loadable weights' port: plain, or axi4-lite (read-back)
 
     def __post_init__(self):
         if not isinstance(self.model, Model):
@@ -69,6 +71,7 @@ class UnitConfig:
         self._check_split()
         self._check_sharing()
         self._check_clocking()
+        self._check_weight_port()
         self._resolve_guard()
         self._check_serial()
 
@@ -189,6 +192,28 @@ class UnitConfig:
                                  f"a feature or the module; rename the reset in "
                                  f"[module.ports]", field="module.ports.reset")
 
+    def _check_weight_port(self):
+        if self.weight_port not in WEIGHT_PORTS:
+            raise InputError(f"must be one of {', '.join(WEIGHT_PORTS)}, not "
+                             f"{self.weight_port!r}", field="weight_port")
+        if self.weight_port == "plain":
+            return
+        if not self.loadable_weights:
+            raise InputError(f"the {self.weight_port} port writes loadable weights, and these "
+                             f"weights are constants; turn on loadable weights or use plain",
+                             field="weight_port")
+        if self.clock_enable:
+            raise InputError("the AXI4-Lite port has no clock enable: a response's VALID "
+                             "dropping in a held cycle would break its rule that VALID stays "
+                             "high until taken; use the plain port or no clock enable",
+                             field="clock_enable")
+        widest = max(self.weight_bits, self.bias_bits)
+        if widest > AXI_LITE_DATA_BITS:
+            raise InputError(f"the AXI4-Lite port's words are {AXI_LITE_DATA_BITS} bits and "
+                             f"a register here has {widest}; declare at most "
+                             f"{AXI_LITE_DATA_BITS} bits or use the plain port",
+                             field="bias_bits" if self.bias_bits == widest else "weight_bits")
+
     def _resolve_guard(self):
         for key in ("clamp", "range_flag"):
             if getattr(self, key) is not None and not isinstance(getattr(self, key), bool):
@@ -201,8 +226,8 @@ class UnitConfig:
             (["out_of_range"] if self.range_flag else [])
             + (["sample"] if self.arch == "serial" else [])
             + (["clock_enable"] if self.clock_enable else [])
-            + (["weight_write", "weight_address", "weight_data"] if self.loadable_weights
-               else []))
+            + (["weight_write", "weight_address", "weight_data"]
+               if self.loadable_weights and self.weight_port == "plain" else []))
 
     def _check_serial(self):
         if self.arch == "serial" and len(self.model.features) > MAX_SERIAL_FEATURES:

@@ -1,12 +1,14 @@
-"""Loadable weights: the registers that hold every unit's weights and bias, and their write
-port (``weight_write`` / ``weight_address`` / ``weight_data``)."""
+"""Loadable weights: the registers that hold every unit's weights and bias, and the port that
+writes them: the plain write port (``weight_write`` / ``weight_address`` / ``weight_data``) or
+an AXI4-Lite slave with read-back (:mod:`.register_bus`), both with one address map."""
 
 from amaranth.hdl import Signal, signed
 from amaranth.lib.wiring import In
 
 from ..names import unit_prefix
+from .register_bus import axi_lite_members, build_axi_lite
 
-__all__ = ["WeightStore", "weight_addresses", "write_members"]
+__all__ = ["WeightStore", "weight_addresses", "register_file", "write_members"]
 
 
 def weight_addresses(model):
@@ -14,10 +16,21 @@ def weight_addresses(model):
     return len(model.units) * (len(model.features) + 1)
 
 
+def register_file(config):
+    """The registers in address order: their widths and the values they reset to."""
+    widths, values = [], []
+    for unit in config.model.units:
+        widths += [config.weight_bits] * len(unit.weights) + [config.bias_bits]
+        values += list(unit.weights) + [unit.bias]
+    return tuple(widths), tuple(values)
+
+
 def write_members(config):
     """The write port's signature members (none unless the weights are loadable)."""
     if not config.loadable_weights:
         return {}
+    if config.weight_port == "axi4-lite":
+        return axi_lite_members(weight_addresses(config.model))
     return {"weight_write": In(1),
             "weight_address": In(range(weight_addresses(config.model))),
             "weight_data": In(signed(max(config.weight_bits, config.bias_bits)))}
@@ -27,24 +40,28 @@ class WeightStore:
     """Weight and bias registers of every unit, reset to the trained values, written through
     ``weight_write``/``weight_address``/``weight_data``: unit ``u``'s weight ``i`` at address
     ``u * (features + 1) + i``, its bias at ``u * (features + 1) + features``. A write takes
-    effect from the next clock; the data's low bits are kept."""
+    effect from the next clock; the data's low bits are kept. With ``weight_port``
+    ``axi4-lite`` the same registers are the slave's words."""
 
     def __init__(self, m, component, config):
         self.weights, self.biases = [], []
+        registers = []
         model = config.model
-        features = len(model.features)
         for u, unit in enumerate(model.units):
             prefix = unit_prefix(u) if model.is_bank else ""
             row = []
             for i, value in enumerate(unit.weights):
-                register = Signal(signed(config.weight_bits), name=f"{prefix}weight{i}",
-                                  init=value)
-                self._write(m, component, register, u * (features + 1) + i)
-                row.append(register)
+                row.append(Signal(signed(config.weight_bits), name=f"{prefix}weight{i}",
+                                  init=value))
             bias = Signal(signed(config.bias_bits), name=f"{prefix}bias", init=unit.bias)
-            self._write(m, component, bias, u * (features + 1) + features)
+            registers += row + [bias]
             self.weights.append(row)
             self.biases.append(bias)
+        if config.weight_port == "axi4-lite":
+            build_axi_lite(m, component, registers)
+            return
+        for address, register in enumerate(registers):
+            self._write(m, component, register, address)
 
     @staticmethod
     def _write(m, component, register, address):

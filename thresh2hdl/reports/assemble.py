@@ -10,6 +10,7 @@ import numpy as np
 from .. import __version__
 from ..analysis import guard_words
 from ..hardware import DEFAULT_RESET, weight_addresses
+from ..hardware.register_bus import AXI_LITE_DATA_BITS, AXI_PREFIX
 from ..emit import port_table
 from ..model import model_to_toml
 from ..emit import core_file_name, core_name
@@ -157,12 +158,22 @@ def _weight_port_report(component, model):
     if not config.loadable_weights:
         return None
     features = len(model.features)
-    return WeightPort(config.weight_bits, config.bias_bits,
-                      tuple(component.analysis.weight_range),
-                      tuple(component.analysis.bias_range),
-                      max(config.weight_bits, config.bias_bits), weight_addresses(model),
-                      f"unit u weight i at u * {features + 1} + i, its bias at u * "
-                      f"{features + 1} + {features}; a write takes effect from the next clock; "
+    registers = (f"unit u weight i at u * {features + 1} + i, its bias at u * "
+                 f"{features + 1} + {features}")
+    common = (config.weight_bits, config.bias_bits, tuple(component.analysis.weight_range),
+              tuple(component.analysis.bias_range))
+    if config.weight_port == "axi4-lite":
+        return WeightPort(*common, AXI_LITE_DATA_BITS, weight_addresses(model),
+                          f"register k at byte address 4 * k ({registers}); read "
+                          f"sign-extended to 32 bits; a write keeps the bytes WSTRB selects "
+                          f"and takes effect from the clock after both its address and data "
+                          f"are taken; an address past the last register answers SLVERR; "
+                          f"write while no result is in flight",
+                          tuple(port.name for port in port_table(component, model)
+                                if port.internal.startswith(AXI_PREFIX)), "axi4-lite")
+    return WeightPort(*common, max(config.weight_bits, config.bias_bits),
+                      weight_addresses(model),
+                      f"{registers}; a write takes effect from the next clock; "
                       f"write while no result is in flight",
                       (model.ports.weight_write, model.ports.weight_address,
                        model.ports.weight_data))

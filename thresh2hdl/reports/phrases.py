@@ -5,7 +5,7 @@ from ..cost import CELL_NAMES
 from .fields import Table
 from .estimates import CostEstimate
 
-__all__ = ["clocking_text", "stream_text", "count", "digits_text", "levels_text", "stages_text", "split_text", "shared_text",
+__all__ = ["clocking_text", "stream_text", "weight_port_text", "count", "digits_text", "levels_text", "stages_text", "split_text", "shared_text",
            "guard_text", "entry_text", "cost_text"]
 
 
@@ -91,6 +91,13 @@ def stream_text(stream):
         ports.setdefault(port, []).append(f"{name} [{hi}:{lo}]")
     return "AXI4-Stream; " + "; ".join(f"{port}: {', '.join(lanes)}"
                                        for port, lanes in ports.items())
+
+
+def weight_port_text(port):
+    """The loadable weights' port: its form, registers and widths."""
+    form = "AXI4-Lite slave with read-back" if port.form == "axi4-lite" else "write port"
+    return (f"{form}, {port.addresses} registers (weights {port.weight_bits} bits, biases "
+            f"{port.bias_bits} bits); {port.map}")
 
 
 def guard_text(guard):

@@ -42,19 +42,22 @@ class WeightPort:
     addresses: int
     map: str
     ports: tuple
+    form: str = "plain"      # or axi4-lite (hardware.WEIGHT_PORTS); older reports: plain
 
     def to_json(self):
-        return {"weight_bits": self.weight_bits, "bias_bits": self.bias_bits,
-                "weight_range": list(self.weight_range), "bias_range": list(self.bias_range),
-                "data_bits": self.data_bits, "addresses": self.addresses, "map": self.map,
-                "ports": list(self.ports)}
+        record = {"weight_bits": self.weight_bits, "bias_bits": self.bias_bits,
+                  "weight_range": list(self.weight_range),
+                  "bias_range": list(self.bias_range), "data_bits": self.data_bits,
+                  "addresses": self.addresses, "map": self.map, "ports": list(self.ports)}
+        # Written only when not plain, so that a plain port's record is what it was.
+        return record if self.form == "plain" else {"form": self.form, **record}
 
     @classmethod
     def from_json(cls, table):
         return cls(table.count("weight_bits"), table.count("bias_bits"),
                    table.pair("weight_range"), table.pair("bias_range"),
                    table.count("data_bits"), table.natural("addresses"),
-                   table.text("map"), table.texts("ports"))
+                   table.text("map"), table.texts("ports"), table.text("form", "plain"))
 
 
 @dataclass(frozen=True)

@@ -26,10 +26,11 @@ class SimulationResult:
     scores: np.ndarray | None
     run_seconds: float | None = None     # the simulator's own run, without data marshalling
     flags: np.ndarray | None = None      # the out-of-range output per cycle, if the design has it
+    bus: dict | None = None              # the AXI4-Lite weight port's outputs per cycle, by name
 
     def check(self, stimulus, *, limit=10):
         return compare(stimulus, self.in_ready, self.out_valid, self.decisions, self.scores,
-                       flags=self.flags, limit=limit)
+                       flags=self.flags, bus=self.bus, limit=limit)
 
 
 class SimulatorBackend(ABC):

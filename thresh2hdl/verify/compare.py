@@ -34,12 +34,14 @@ class CompareResult:
     vectors_checked: int    # vectors that came out and were compared
 
 
-def compare(stimulus, in_ready, out_valid, decisions, scores, *, flags=None, limit=10):
+def compare(stimulus, in_ready, out_valid, decisions, scores, *, flags=None, bus=None,
+            limit=10):
     """Every cycle's handshake outputs, and the results of every valid output cycle.
 
     ``scores`` may be None when the design has no score port; ``flags`` (the out-of-range
     output per cycle) is compared when the stimulus expects one. The mismatches kept are the
-    earliest ``limit`` over every output, in cycle order.
+    earliest ``limit`` over every output, in cycle order. ``bus``: the AXI4-Lite weight
+    port's outputs by name (``awready``...), judged where the stimulus's ``bus`` checks them.
     """
     mismatches = []
     total = 0
@@ -85,6 +87,15 @@ def compare(stimulus, in_ready, out_valid, decisions, scores, *, flags=None, lim
                 got_s, expected_s = got_s.astype(object), expected_s.astype(object)
             bad = shown[got_s[shown] != expected_s[shown]]
             note(bad, signal, expected_s, got_s, index)
+    if stimulus.bus is not None:
+        nowhere = np.full(stimulus.cycles, -1)
+        for name, expected in stimulus.bus.expected.items():
+            got = np.asarray(bus[name])
+            if got.dtype == object:      # an unknown (x) value is None: never a match
+                got = np.array([-1 if g is None else g for g in got], dtype=np.int64)
+            wrong = got != expected
+            note(np.flatnonzero(wrong & stimulus.bus.checked(name)), f"s_axi_{name}",
+                 expected, got, nowhere)
     mismatches.sort(key=lambda m: m.cycle)
     transfers = int(np.count_nonzero(stimulus.expect_out_valid & stimulus.out_ready))
     return CompareResult(mismatches=tuple(mismatches[:limit]), mismatch_count=total,

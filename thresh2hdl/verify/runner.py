@@ -9,11 +9,13 @@ from functools import partial
 
 import numpy as np
 
+from ..hardware import register_file
 from ..tools import which_tool
 from .reference import ReferenceModel
 from .sim_amaranth import AmaranthBackend
 from .sim_icarus import IcarusBackend, icarus_version
 from .sim_verilator import VerilatorBackend, find_verilator, verilator_version
+from .register_bus import with_axi_lite
 from .stimulus import make_reload_stimulus, make_stimulus, with_held_cycles
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
 
@@ -177,8 +179,12 @@ def _random_chunk(reference, component, size, seed, chunk):
 
 
 def _held(component, stimulus, seed):
-    """With a clock enable, the stimulus with held cycles (enable low) among its cycles."""
-    return with_held_cycles(stimulus, seed) if component.config.clock_enable else stimulus
+    """With a clock enable, the stimulus with held cycles (enable low) among its cycles; with
+    the AXI4-Lite weight port, its writes and reads through the bus."""
+    config = component.config
+    if config.loadable_weights and config.weight_port == "axi4-lite":
+        return with_axi_lite(stimulus, *register_file(config), seed)
+    return with_held_cycles(stimulus, seed) if config.clock_enable else stimulus
 
 
 def _first_origin(vectors, reloaded, index):

@@ -5,6 +5,7 @@ testbench (:func:`~thresh2hdl.verify.sim_icarus.write_testbench` writes them) an
 same response lines, so a VHDL file is judged cycle by cycle exactly as the Verilog is.
 """
 
+import itertools
 import tempfile
 from pathlib import Path
 
@@ -13,8 +14,8 @@ from ..outdir import write_text
 from ..tools import find_tool, run, tool_version
 from .backend import SimulatorBackend
 from .sim_icarus import (EXPECTED_FILE, RESPONSES_FILE, STIMULUS_FILE, expected_layout,
-                         logical_ports, packed_members, read_responses, stimulus_layout,
-                         write_testbench)
+                         field_conditions, logical_ports, packed_members, read_responses,
+                         stimulus_layout, write_testbench)
 from .templates import template_text
 
 __all__ = ["GhdlBackend", "VHDL_STANDARD", "LINT_WARNINGS", "vhdl_run_command", "ghdl_version", "ghdl_lint", "vhdl_testbench_name",
@@ -99,17 +100,18 @@ def vhdl_testbench_text(ports, module, cycles, vhdl_name, *, flag_checked=False,
         offset += width
     stim_bits = offset
     layout = expected_layout(ports, flag_checked)
-    flag_bit = 2 + layout[2][2]
+    offsets = dict(zip((label for label, _, _ in layout),
+                       itertools.accumulate((width for _, _, width in layout), initial=0)))
     checks, responses, offset = [], [], 0
-    for position, (label, port, width) in enumerate(layout):
+    conditions = field_conditions(layout, flag_masks_results)
+    for position, ((label, port, width), when) in enumerate(zip(layout, conditions)):
         want = f"want({offset + width - 1} downto {offset})" if width > 1 else \
             f"want({offset} downto {offset})"
         test = f'check("{label}", {_as_vector(port)}, {want});'
-        if position >= 2:            # results count only while out_valid is expected high
-            when = "want(1) = '1'"
-            if flag_masks_results and offset != flag_bit:
-                when += f" and want({flag_bit}) = '0'"
-            test = f"if {when} then\n  {test}\nend if;"
+        if when:
+            bits = [f"want({offsets[w[1:]]}) = '0'" if w.startswith("!")
+                    else f"want({offsets[w]}) = '1'" for w in when]
+            test = f"if {' and '.join(bits)} then\n  {test}\nend if;"
         checks += ["      " + line for line in test.splitlines()]
         binary = position < 2 or label == "range flag"
         responses.append(f"to_string(tb_{port.name})" if binary and width == 1

@@ -16,6 +16,8 @@ from ..errors import ToolError
 from ..outdir import write_text
 from ..tools import find_tool, run, tool_version
 from .backend import SimulationResult, VerilogBackend
+from ..hardware.register_bus import AXI_PREFIX
+from .register_bus import BUS_INPUTS, BUS_OUTPUTS, CHECKED_WHILE, bus_ports
 from .stimulus import enable_column, write_columns
 from .templates import template_text
 
@@ -108,19 +110,24 @@ def _pad(expression, width):
 
 def stimulus_layout(ports):
     """The stimulus word's fields, low bits first: ``(port, width)`` for each feature, in_valid,
-    out_ready, then the weight write port's strobe, address and data (loadable weights), then
-    the clock enable (when the design has one). ``ports``: the logical ports."""
+    out_ready, then the weight write port's strobe, address and data (loadable weights) or the
+    AXI4-Lite port's inputs (:data:`~.register_bus.BUS_INPUTS`), then the clock enable (when
+    the design has one). ``ports``: the logical ports."""
     by_role = {port.internal: port for port in logical_ports(ports)}
     fields = [(port, port.width) for port in logical_ports(ports) if port.internal.startswith("x")]
     fields += [(by_role["in_valid"], 1), (by_role["out_ready"], 1)]
-    return fields + [(by_role[key], by_role[key].width) for key in
-                     ("weight_write", "weight_address", "weight_data", "ce") if key in by_role]
+    fields += [(by_role[key], by_role[key].width) for key in
+               ("weight_write", "weight_address", "weight_data") if key in by_role]
+    bus = bus_ports(logical_ports(ports))
+    fields += [(bus[name], bus[name].width) for name in BUS_INPUTS if bus]
+    return fields + ([(by_role["ce"], 1)] if "ce" in by_role else [])
 
 
 def expected_layout(ports, flag_checked):
     """The expected word's fields, low bits first: ``(label, port, width)`` for in_ready,
-    out_valid, the decision, the out-of-range flag (``flag_checked``), then each score. The
-    fields from the decision on count only while out_valid is expected high."""
+    out_valid, the decision, the out-of-range flag (``flag_checked``), each score, then the
+    AXI4-Lite port's outputs (:data:`~.register_bus.BUS_OUTPUTS`). When each counts:
+    :func:`field_conditions`."""
     ports = logical_ports(ports)
     by_role = {port.internal: port for port in ports}
     scores = [port for port in ports if port.internal.startswith("score")]
@@ -128,8 +135,29 @@ def expected_layout(ports, flag_checked):
               ("decision", by_role["y"], by_role["y"].width)]
     if flag_checked:
         fields.append(("range flag", by_role["out_of_range"], 1))
-    return fields + [(f"score {port.name}" if len(scores) > 1 else "score", port, port.width)
-                     for port in scores]
+    fields += [(f"score {port.name}" if len(scores) > 1 else "score", port, port.width)
+               for port in scores]
+    bus = bus_ports(ports)
+    return fields + [(f"axi {name}", bus[name], bus[name].width) for name in BUS_OUTPUTS
+                     if bus]
+
+
+def field_conditions(layout, flag_masks_results):
+    """For each expected field, the label of the field whose expected 1 it counts under
+    (None: every cycle): the results under out_valid (and, when a flag masks them, under the
+    flag expected low: ``"!range flag"``), an AXI4-Lite response's payload under its VALID."""
+    conditions = []
+    for position, (label, port, _) in enumerate(layout):
+        if port.internal.startswith(AXI_PREFIX):
+            when = CHECKED_WHILE.get(port.internal[len(AXI_PREFIX):])
+            conditions.append(None if when is None else (f"axi {when}",))
+        elif position < 2:
+            conditions.append(None)
+        elif flag_masks_results and label not in ("range flag",):
+            conditions.append(("out_valid", "!range flag"))
+        else:
+            conditions.append(("out_valid",))
+    return conditions
 
 
 def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=False,
@@ -153,17 +181,18 @@ def testbench_text(ports, module, cycles, files, verilog_name, *, flag_checked=F
     stim_bits = sum(width for _, width in stimulus)
     layout = expected_layout(ports, flag_checked)
     fields = [(label, f"tb_{port.name}", width) for label, port, width in layout]
-    flag_bit = 2 + layout[2][2]
+    offsets = dict(zip((label for label, _, _ in layout),
+                       np.cumsum([0] + [width for _, _, width in layout]).tolist()))
     checks, offset = [], 0
-    for position, (label, signal, width) in enumerate(fields):
+    for (label, signal, width), when in zip(fields, field_conditions(layout,
+                                                                     flag_masks_results)):
         want = f"want[{offset + width - 1}:{offset}]" if width > 1 else f"want[{offset}]"
         test = (f"if ({signal} !== {want})\n"
                 f"  report_mismatch(\"{label[:10]}\", {_pad(signal, width)}, {_pad(want, width)});")
-        if position >= 2:            # results count only while out_valid is expected high
-            when = "want[1]"
-            if flag_masks_results and offset != flag_bit:
-                when = f"want[1] && !want[{flag_bit}]"
-            test = f"if ({when}) " + test.replace("\n", "\n  ")
+        if when:
+            bits = [f"!want[{offsets[w[1:]]}]" if w.startswith("!") else f"want[{offsets[w]}]"
+                    for w in when]
+            test = f"if ({' && '.join(bits)}) " + test.replace("\n", "\n  ")
         checks += ["      " + line for line in test.splitlines()]
         offset += width
     response_format = " ".join(["%b", "%b", "%h"] + ["%b"] * flag_checked
@@ -241,11 +270,15 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     writes = _write_ports(ports)
     if writes:
         columns += list(write_columns(stimulus))
+    bus = bus_ports(ports)
+    if bus:
+        columns += _bus_rows(stimulus, BUS_INPUTS)
     enable = [1] if any(port.internal == "ce" for port in ports) else []
     if enable:
         columns.append(enable_column(stimulus).astype(np.int64))
     write_text(folder / files.stimulus,
-               _hex_lines(columns, features + [1, 1] + [w for _, w in writes] + enable))
+               _hex_lines(columns, features + [1, 1] + [w for _, w in writes]
+                          + [bus[name].width for name in BUS_INPUTS if bus] + enable))
     scores = _score_ports(ports)
     decision_bits = next(port.width for port in ports if port.internal == "y")
     index = np.maximum(stimulus.expect_out_index, 0)
@@ -260,6 +293,9 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     for unit, (_, width) in enumerate(scores):
         columns.append(np.where(valid, expect[index, unit], 0))
         widths.append(width)
+    if bus:
+        columns += _bus_rows(stimulus, BUS_OUTPUTS)
+        widths += [bus[name].width for name in BUS_OUTPUTS]
     write_text(folder / files.expected, _hex_lines(columns, widths))
     if verilog_name is not None:
         write_text(folder / files.testbench,
@@ -267,6 +303,15 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
                                   flag_checked=stimulus.expect_flags is not None,
                                   flag_masks_results=stimulus.flag_masks_results))
     return files
+
+
+def _bus_rows(stimulus, order):
+    """The AXI4-Lite port's columns (inputs, or outputs expected); the outputs only where
+    they count, zero elsewhere, so that a file's rows show what is checked."""
+    run = stimulus.bus
+    if order is BUS_INPUTS:
+        return run.rows(BUS_INPUTS)
+    return [np.where(run.checked(name), run.expected[name], 0) for name in BUS_OUTPUTS]
 
 
 def _tool(name):
@@ -330,7 +375,18 @@ def read_responses(path, ports, stimulus, simulator):
         if len(scores_ports) == 1 and not any(port.internal.startswith("score0")
                                               for port in ports):
             scores = scores[:, 0]
-    return SimulationResult(simulator, in_ready, out_valid, decisions, scores, flags=flags)
+    bus = bus_ports(ports)
+    if bus:
+        first = first_score + len(scores_ports)
+        # An unknown bit makes the value None (never a match).
+        bus = {name: np.array([_decode_unsigned(row[first + k]) for row in rows],
+                              dtype=object) for k, name in enumerate(BUS_OUTPUTS)}
+    return SimulationResult(simulator, in_ready, out_valid, decisions, scores, flags=flags,
+                            bus=bus or None)
+
+
+def _decode_unsigned(text):
+    return None if any(c in text for c in "xXzZ") else int(text, 16)
 
 
 class IcarusBackend(VerilogBackend):

@@ -21,6 +21,7 @@ import numpy as np
 from ..errors import ToolError
 from ..tools import find_tool, run, tool_version, which_tool
 from .backend import SimulationResult, VerilogBackend
+from .register_bus import BUS_INPUTS, BUS_OUTPUTS, bus_ports
 from .stimulus import enable_column, write_columns
 from .templates import template_text
 
@@ -118,8 +119,11 @@ def wrapper_text(ports, module):
 
 
 def control_words(ports):
-    """int32 words per cycle in the control file: 3, or 7 with a weight write port."""
+    """int32 words per cycle in the control file: 3, then 4 more with a weight write port or
+    one per input of the AXI4-Lite weight port."""
     ports = getattr(ports, "logical", ports)
+    if bus_ports(ports):
+        return 3 + len(BUS_INPUTS)
     return 7 if any(port.internal == "weight_write" for port in ports) else 3
 
 
@@ -152,6 +156,11 @@ def harness_text(ports, module):
                   f"        top.{by_role['weight_address'][0]} = static_cast<uint32_t>(c[4]);",
                   f"        top.{data_name} = ((static_cast<uint64_t>(static_cast<uint32_t>(c[6]))"
                   f" << 32) | static_cast<uint32_t>(c[5])) & 0x{mask:x}ull;"]
+    bus = bus_ports(ports)
+    set_bus = [f"        top.{bus[name].name} = static_cast<uint32_t>(c[{3 + k}]);"
+               for k, name in enumerate(BUS_INPUTS) if bus]
+    bus_reads = [f"        bus[t * kBus + {k}] = static_cast<uint32_t>(top.{bus[name].name});"
+                 for k, name in enumerate(BUS_OUTPUTS) if bus]
     reads = "\n".join(f"        scores[t * kScores + {k}] = static_cast<int64_t>(top.{name});"
                       for k, name in enumerate(scores))
     values = {"MODULE": wrapper_name(module), "WRAPPER": wrapper_name(module),
@@ -162,7 +171,9 @@ def harness_text(ports, module):
               "FLAG": (f" | ((top.{by_role['out_of_range'][0]} & 1) << 15)"
                        if "out_of_range" in by_role else ""),
               "SCORE_READS": reads, "SCORE_PORTS": str(len(scores)),
-              "SET_WRITES": "\n".join(writes), "SET_ENABLE": enable, "CONTROL_WORDS": str(control_words(ports))}
+              "SET_WRITES": "\n".join(writes), "SET_ENABLE": enable,
+              "SET_BUS": "\n".join(set_bus), "BUS_READS": "\n".join(bus_reads),
+              "BUS_INPUTS": str(len(BUS_INPUTS)), "BUS_OUTPUTS": str(len(bus_reads)), "CONTROL_WORDS": str(control_words(ports))}
     text = template_text("verilator_harness.cpp.in")
     for key, value in values.items():
         text = text.replace(f"@{key}@", value)
@@ -235,7 +246,11 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
     control[:, 0] = stimulus.in_valid | (enable_column(stimulus).astype(np.int32) << 1)
     control[:, 1] = stimulus.out_ready
     control[:, 2] = stimulus.in_index
-    if control.shape[1] > 3:
+    bus = bus_ports(ports)
+    if bus:
+        for k, column in enumerate(stimulus.bus.rows(BUS_INPUTS)):
+            control[:, 3 + k] = np.asarray(column, dtype=np.int64).astype(np.uint32).view(np.int32)
+    elif control.shape[1] > 3:
         data_width = next(port.width for port in ports if port.internal == "weight_data")
         if data_width > 64:
             raise ToolError(f"the Verilator harness writes weights of up to 64 bits, this "
@@ -254,12 +269,14 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
         control.tofile(folder / "control.bin")
         started = time.perf_counter()
         result = run([binary] + [folder / name for name in
-                                 ("vectors.bin", "control.bin", "flags.bin", "scores.bin")])
+                                 ("vectors.bin", "control.bin", "flags.bin", "scores.bin",
+                                  "bus.bin")])
         run_seconds = time.perf_counter() - started
         if result.returncode != 0:
             raise ToolError(f"the Verilator harness failed: {result.stderr.strip()[:200]}")
         flags = np.fromfile(folder / "flags.bin", dtype="<u2")
         raw = np.fromfile(folder / "scores.bin", dtype="<i8")
+        bus_words = np.fromfile(folder / "bus.bin", dtype="<u4").astype(np.int64)
     if len(flags) != stimulus.cycles or len(raw) != stimulus.cycles * len(score_widths):
         raise ToolError(f"the Verilator harness returned {len(flags)} cycles, not "
                         f"{stimulus.cycles}")
@@ -272,9 +289,13 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
         if not any(port.internal == "score0" for port in ports):
             scores = scores[:, 0]
     has_flag = any(port.internal == "out_of_range" for port in ports)
+    if bus:
+        bus_words = bus_words.reshape(stimulus.cycles, len(BUS_OUTPUTS))
+        bus = {name: bus_words[:, k] for k, name in enumerate(BUS_OUTPUTS)}
     return SimulationResult("verilator", (flags & 1).astype(bool), (flags & 2).astype(bool),
                             ((flags >> 2) & 0x1FFF).astype(np.int64), scores, run_seconds,
-                            flags=(flags >> 15).astype(bool) if has_flag else None)
+                            flags=(flags >> 15).astype(bool) if has_flag else None,
+                            bus=bus or None)
 
 
 class VerilatorBackend(VerilogBackend):

@@ -35,6 +35,7 @@ class Stimulus:
     expect_flags: np.ndarray | None = None  # per vector: the out-of-range flag (None: no flag)
     flag_masks_results: bool = False  # flag without clamp: a flagged result is not specified
     enable: np.ndarray | None = None  # the clock enable per cycle (None: no enable, or high)
+    bus: object | None = None  # AXI4-Lite weight port: a register_bus.BusRun (None: no bus)
 
     @property
     def cycles(self):
