@@ -4,6 +4,7 @@ in GHDL for the VHDL, it passes, or fails on a wrong word."""
 
 import ast
 import importlib.util
+import json
 import os
 import re
 import subprocess
@@ -102,6 +103,8 @@ def test_the_stream_module_packs_and_unpacks_the_lanes_as_the_verilog_testbench(
     # bits above each code ones, and the same result lanes.
     folder, module = built("stream", tmp_path / "out")
     generated = load_module(folder / f"test_{module}.py")
+    report = json.loads((folder / "report.json").read_text())
+    assert report["packaging"]["cocotb_test"] == f"test_{module}.py"
     verilog = (folder / f"{module}_tb.v").read_text()
     layout = stimulus_layout(verilog)
     widths = dict(layout)
@@ -213,6 +216,8 @@ def test_the_vhdl_runs_in_ghdl_through_cocotb(tmp_path, form, hdl):
     folder, module = built(form, tmp_path / "out", hdl=hdl,
                            **({"simulator": "auto"} if hdl == "vhdl" else {}))
     values = literals((folder / f"test_{module}.py").read_text())
+    report = json.loads((folder / "report.json").read_text())
+    assert report["packaging"]["cocotb_test"] == f"test_{module}.py"
     assert values["SOURCES"] == {**({"icarus": [f"{module}.v"]} if hdl == "both" else {}),
                                  "ghdl": [f"{module}.vhd"]}
     choose = ["--simulator", "ghdl"] if hdl == "both" else []
