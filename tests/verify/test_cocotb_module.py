@@ -138,6 +138,23 @@ def run_module(folder, module, build_dir, *arguments, tools=("iverilog", "vvp"),
                           capture_output=True, text=True, timeout=600)
 
 
+def corrupt_first_result(folder, bit):
+    """Flip bit ``bit`` of the first expected word with out_valid high; returns its cycle."""
+    lines = (folder / "expected.hex").read_text().splitlines()
+    cycle = next(i for i, line in enumerate(lines) if (int(line, 16) >> 1) & 1)   # out_valid
+    lines[cycle] = f"{int(lines[cycle], 16) ^ (1 << bit):0{len(lines[cycle])}x}"
+    (folder / "expected.hex").write_text("\n".join(lines) + "\n")
+    return cycle
+
+
+def assert_fails_at(result, module, cycle, count, field):
+    """The run failed on one mismatch: ``field`` at ``cycle``, of ``count`` cycles run."""
+    output = result.stdout + result.stderr
+    assert result.returncode == 1, output[-3000:]
+    assert f"MISMATCH cycle {cycle}: {field}" in output
+    assert f"FAIL {module}: {count} cycles, 1 mismatches" in output
+
+
 @pytest.mark.icarus
 def test_the_demo_folder_passes_in_cocotb_and_a_corrupted_word_fails(tmp_path):
     # Outside reference: cocotb 2.1 driving Icarus Verilog 11 through its own runner
@@ -152,15 +169,9 @@ def test_the_demo_folder_passes_in_cocotb_and_a_corrupted_word_fails(tmp_path):
     assert f"PASS {module}: {cycles} cycles, 0 mismatches" in output
     assert sorted(path.name for path in folder.iterdir() if path.name != "__pycache__") == before
 
-    lines = (folder / "expected.hex").read_text().splitlines()
-    cycle = next(i for i, line in enumerate(lines) if (int(line, 16) >> 1) & 1)   # out_valid
-    lines[cycle] = f"{int(lines[cycle], 16) ^ (1 << 4):0{len(lines[cycle])}x}"     # score bit 0
-    (folder / "expected.hex").write_text("\n".join(lines) + "\n")
+    cycle = corrupt_first_result(folder, 4)                             # score bit 0
     failed = run_module(folder, module, tmp_path / "broken", "--cycles", str(cycle + 10))
-    output = failed.stdout + failed.stderr
-    assert failed.returncode == 1, output[-3000:]
-    assert f"MISMATCH cycle {cycle}: score" in output
-    assert f"FAIL {module}: {cycle + 10} cycles, 1 mismatches" in output
+    assert_fails_at(failed, module, cycle, cycle + 10, "score")
 
 
 @pytest.mark.icarus
@@ -174,15 +185,6 @@ def test_every_design_form_passes_in_cocotb(tmp_path, form):
     output = result.stdout + result.stderr
     assert result.returncode == 0, output[-3000:]
     assert re.search(rf"PASS {module}: \d+ cycles, 0 mismatches", output)
-
-
-def corrupt_first_result(folder, bit):
-    """Flip bit ``bit`` of the first expected word with out_valid high; returns its cycle."""
-    lines = (folder / "expected.hex").read_text().splitlines()
-    cycle = next(i for i, line in enumerate(lines) if (int(line, 16) >> 1) & 1)   # out_valid
-    lines[cycle] = f"{int(lines[cycle], 16) ^ (1 << bit):0{len(lines[cycle])}x}"
-    (folder / "expected.hex").write_text("\n".join(lines) + "\n")
-    return cycle
 
 
 @pytest.mark.icarus
@@ -199,10 +201,7 @@ def test_the_stream_folder_passes_in_cocotb_and_a_corrupted_lane_fails(tmp_path)
     # from m_axis_tdata[33:16].
     cycle = corrupt_first_result(folder, 4)
     failed = run_module(folder, module, tmp_path / "broken", "--cycles", str(cycle + 10))
-    output = failed.stdout + failed.stderr
-    assert failed.returncode == 1, output[-3000:]
-    assert f"MISMATCH cycle {cycle}: score" in output
-    assert f"FAIL {module}: {cycle + 10} cycles, 1 mismatches" in output
+    assert_fails_at(failed, module, cycle, cycle + 10, "score")
 
 
 @pytest.mark.ghdl
@@ -232,7 +231,4 @@ def test_the_vhdl_runs_in_ghdl_through_cocotb(tmp_path, form, hdl):
         cycle = corrupt_first_result(folder, 2)                          # the decision
         failed = run_module(folder, module, tmp_path / "broken", tools=("ghdl",),
                             env={"THRESH2HDL_CYCLES": str(cycle + 10)})
-        output = failed.stdout + failed.stderr
-        assert failed.returncode == 1, output[-3000:]
-        assert f"MISMATCH cycle {cycle}: fault" in output
-        assert f"FAIL {module}: {cycle + 10} cycles, 1 mismatches" in output
+        assert_fails_at(failed, module, cycle, cycle + 10, "fault")
