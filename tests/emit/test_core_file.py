@@ -1,8 +1,10 @@
 """The FuseSoC core description each build folder carries: read by FuseSoC itself, and its
 ``sim`` target run by ``fusesoc`` with Icarus Verilog."""
 
+import ast
 import json
 import os
+import re
 import shutil
 import subprocess
 import sys
@@ -113,6 +115,24 @@ def test_the_build_folder_core_lists_the_folder_files(small_folder):
     assert "/" not in (small_folder / "pump_fault.core").read_text().replace("file_type", "")
 
 
+def assert_the_core_holds_what_the_cocotb_module_reads(folder, module="pump_fault"):
+    """The cocotb module compiles the files of the core's design target for its language
+    (`default`, or `vhdl` beside the Verilog) and reads the vector files the core copies."""
+    text = (folder / f"test_{module}.py").read_text()
+    sources = ast.literal_eval(re.search(r"^SOURCES = (.*)$", text, re.M).group(1))
+    core = read_core(folder / f"{module}.core")
+    targets = ["default", "vhdl"] if len(sources) > 1 else ["default"]
+    for simulator, name in zip(sources, targets):
+        assert [file for file, _, _ in target(core, name)["files"]] == sources[simulator]
+    copied = {copyto for _, kind, copyto in target(core, "sim")["files"] if kind == "user"}
+    assert set(re.findall(r'^\w+_FILE = HERE / "([^"]+)"$', text, re.M)) == copied
+    assert copied == {"stimulus.hex", "expected.hex"}
+
+
+def test_the_core_holds_what_the_cocotb_module_reads(small_folder):
+    assert_the_core_holds_what_the_cocotb_module_reads(small_folder)
+
+
 def test_the_report_names_the_core_and_the_cocotb_module_and_reads_them_back(small_folder):
     report = json.loads((small_folder / "report.json").read_text())
     assert report["packaging"] == {"core_file": "pump_fault.core",
@@ -177,6 +197,7 @@ def test_fusesoc_runs_the_vhdl_testbench_in_ghdl(tmp_path):
         result = run("demo", "--out", folder, "--hdl", hdl, "--vectors", "300",
                      *(["--simulator", "icarus"] if hdl == "both" else []))
         assert result.returncode == 0, result.stderr
+        assert_the_core_holds_what_the_cocotb_module_reads(folder)
         for target in targets:
             tool = ("ghdl",) if hdl == "vhdl" or target == "sim_vhdl" else ("iverilog", "vvp")
             passed = run_fusesoc_sim(folder, tmp_path / f"{hdl}-{target}", target, tool)

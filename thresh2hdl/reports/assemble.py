@@ -214,8 +214,7 @@ def build_report(model, component, verilog_text, verilog_name, verified, *, seed
         testbench=Testbench(*testbench) if testbench else Testbench(
             f"{model.module}_tb.v", TestbenchFiles(model.module).run_command(verilog_name)),
         packaging=Packaging(core_file_name(model.module), core_name(model.module, __version__),
-                            cocotb_file_name(model.module)
-                            if verilog_name and component.stream is None else None),
+                            cocotb_file_name(model.module)),
         instance_template=f"{model.module}_instance.vh" if verilog_name else None,
         hdl=hdl, vhdl=None if vhdl is None else VhdlSection.from_json(Table(plain(vhdl), "vhdl")),
         netlist_proofs={name: ProofSection.from_json(Table(plain(section), "netlist_proofs"))

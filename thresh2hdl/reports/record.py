@@ -144,7 +144,7 @@ class Packaging:
     VLNV) and the cocotb test module."""
     core_file: str
     core_name: str
-    cocotb_test: str | None          # None: a VHDL-only folder (the module drives Verilog)
+    cocotb_test: str | None          # None: an older VHDL-only or AXI4-Stream folder
 
     def to_json(self):
         return {"core_file": self.core_file, "core_name": self.core_name,

@@ -1,7 +1,7 @@
 """Verification: the integer reference, vectors, stimulus, one back end per simulator."""
 
 from .backend import SimulationResult, SimulatorBackend
-from .cocotb_module import cocotb_file_name, cocotb_test_text
+from .cocotb_module import COCOTB_SIMULATORS, cocotb_file_name, cocotb_test_text
 from .compare import CompareResult, Mismatch, compare
 from .reference import ReferenceModel, cycle_model
 from .runner import (CHUNK_VECTORS, Verification, choose_simulator, chunk_vectors,
@@ -16,7 +16,7 @@ from .sim_verilator import (VerilatorBackend, find_verilator, simulate_verilator
 from .stimulus import make_reload_stimulus, make_stimulus, with_held_cycles
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
 
-__all__ = ["SimulationResult", "SimulatorBackend", "cocotb_file_name",
+__all__ = ["SimulationResult", "SimulatorBackend", "COCOTB_SIMULATORS", "cocotb_file_name",
            "cocotb_test_text", "CompareResult", "Mismatch", "compare",
            "ReferenceModel", "cycle_model", "CHUNK_VECTORS", "Verification",
            "choose_simulator", "chunk_vectors", "first_stimulus", "make_backend", "verify",
