@@ -25,6 +25,7 @@ FORMS = {   # name: (model, build options): each branch of the layout and the ti
     "async-low-enable": (demo_model, {"pipeline": 2, "reset": "async-low",
                                       "clock_enable": True}),
     "stream": (demo_model, {"interface": "axi-stream"}),
+    "axi4-lite": (demo_model, {"loadable_weights": True, "weight_port": "axi4-lite"}),
 }
 PLAIN_FORMS = sorted(set(FORMS) - {"stream"})
 
@@ -232,3 +233,31 @@ def test_the_vhdl_runs_in_ghdl_through_cocotb(tmp_path, form, hdl):
         failed = run_module(folder, module, tmp_path / "broken", tools=("ghdl",),
                             env={"THRESH2HDL_CYCLES": str(cycle + 10)})
         assert_fails_at(failed, module, cycle, cycle + 10, "fault")
+
+
+@pytest.mark.icarus
+@pytest.mark.ghdl
+def test_the_axi4_lite_folder_passes_in_icarus_and_ghdl_and_a_wrong_read_fails(tmp_path):
+    # Outside reference: cocotb 2.1 driving Icarus Verilog 11 and GHDL 2.0 (cocotb_tools.runner),
+    # judged against expected.hex; the AXI4-Lite read data counts while RVALID is expected high.
+    require_tool("ghdl")
+    folder, module = built("axi4-lite", tmp_path / "out", vectors=100, hdl="both")
+    for simulator, tools in (("icarus", ("iverilog", "vvp")), ("ghdl", ("ghdl",))):
+        passed = run_module(folder, module, tmp_path / simulator, "--simulator", simulator,
+                            tools=tools)
+        output = passed.stdout + passed.stderr
+        assert passed.returncode == 0, output[-3000:]
+        assert re.search(rf"PASS {module}: \d+ cycles, 0 mismatches", output)
+    fields = literals((folder / f"test_{module}.py").read_text())["EXPECTED_FIELDS"]
+    offsets, bit = {}, 0
+    for name, width, *_ in fields:
+        offsets[name] = bit
+        bit += width
+    lines = (folder / "expected.hex").read_text().splitlines()
+    cycle = next(i for i, line in enumerate(lines)
+                 if (int(line, 16) >> offsets["s_axi_rvalid"]) & 1)
+    lines[cycle] = f"{int(lines[cycle], 16) ^ (1 << offsets['s_axi_rdata']):0{len(lines[cycle])}x}"
+    (folder / "expected.hex").write_text("\n".join(lines) + "\n")
+    failed = run_module(folder, module, tmp_path / "broken", "--simulator", "icarus",
+                        "--cycles", str(cycle + 10))
+    assert_fails_at(failed, module, cycle, cycle + 10, "s_axi_rdata")
