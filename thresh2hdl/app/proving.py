@@ -120,6 +120,17 @@ def _statement(component, model):
                      "ranges")
     if guard.flag:
         statement += "; the out-of-range output is high exactly when a code was outside its range"
+    config = component.config
+    if config.loadable_weights:
+        statement = statement.replace(
+            "the outputs equal", "and every weight and bias their declared widths allow "
+            "(unchanged while a vector is in flight), the outputs equal") \
+            .replace("integer model's", "integer model's with the weights the registers hold")
+        statement += ("; a write stores the data's low bits in the addressed register from the "
+                      "next clock, and a reset restores the trained values"
+                      if config.weight_port == "plain" else
+                      "; the AXI4-Lite slave's writes and reads are verified in simulation, "
+                      "not proved")
     if component.config.clock_enable:
         statement += ("; shown with the clock enable high, and a cycle with it low (the reset "
                       "released) changes no register and reads in_ready and out_valid 0")

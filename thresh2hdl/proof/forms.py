@@ -17,7 +17,8 @@ __all__ = ["Value", "Plan", "check_cover"]
 class Value:
     name: str
     kind: str          # input, product, scaled, add, sub, rsub, bias, const, compare, max, pick,
-                       # flag
+                       # flag; loadable weights: mul (a feature times its weight register),
+                       # addreg (an operand plus the bias register)
     operands: tuple    # names of other values
     stage: int
     lo: int
@@ -31,6 +32,7 @@ class Value:
     last: int = 0
     register_shift: int = 0   # a shifted input's registers carry value >> register_shift
     features: tuple = ()      # a flag of the inputs: the features whose codes it tests
+    register: str | None = None   # mul, addreg: the weight or bias register it reads
 
 
 def _form_range(coeffs, constant, ranges):
@@ -54,6 +56,7 @@ class Plan:
         self.ranges = model.feature_ranges
         self.values = {}
         self.unit_scores = []     # per unit: (value name or None, sign, bias) of its score
+        self.loadable = False     # the weights and biases are registers (their forms: terms)
         self.closed = set()       # values that may be cut points
         units = component.unit_analyses
         for index, analysis in enumerate(units):
@@ -94,6 +97,9 @@ class Plan:
         digits a feature has several leaves; a cut between two of them would free values that
         are tied, and fail a true lemma). Leaves are counted through shared terms, as often
         as the unit reads them; a shared value is never a cut point."""
+        if analysis.loadable:
+            self._loadable_unit(analysis, prefix)
+            return
         nodes = analysis.nodes
         names = [node.wire_name(prefix) for node in nodes]
         leaves = {}
@@ -158,6 +164,37 @@ class Plan:
             self.unit_scores.append((names[analysis.tree_root], root.sign,
                                      0 if analysis.bias_folded else analysis.bias))
 
+    def _loadable_unit(self, analysis, prefix):
+        """A unit of loadable weights: each product a feature times its weight register, the
+        adders as planned, then the bias register. Its form is over those terms (``("w", i)``
+        for feature ``i``'s product, ``("b",)`` for the bias), each value's range the exact
+        one of the analysis (every weight and bias the declared widths allow)."""
+        nodes = analysis.nodes
+        names = [node.wire_name(prefix) for node in nodes]
+        for node in nodes:
+            name, stage = names[node.index], self.stage_of(node.level)
+            common = dict(stage=stage, lo=node.lo, hi=node.hi, signed=node.lo < 0)
+            if node.kind == "product":
+                self.add(Value(name, "mul", (), coeffs={("w", node.feature): 1},
+                               feature=node.feature,
+                               register=f"{prefix}weight{node.feature}", **common))
+                continue
+            children = [self.values[names[c]] for c in node.children]
+            if node.kind == "bias":
+                self.add(Value(name, "addreg", (children[0].name,),
+                               coeffs={**children[0].coeffs, ("b",): 1},
+                               register=f"{prefix}bias", **common))
+                continue
+            if node.kind != "add":
+                raise RuntimeError(f"a loadable unit has no {node.kind} node")
+            left, right = children
+            coeffs = dict(left.coeffs)
+            for key, c in right.coeffs.items():
+                coeffs[key] = coeffs.get(key, 0) + c
+            self.add(Value(name, "add", (left.name, right.name), coeffs=coeffs, **common))
+        self.loadable = True
+        self.unit_scores.append((names[analysis.score_node], 1, 0))
+
     def _argmax(self, plan):
         """The argmax as the circuit plans it: a tournament, left (lower index) wins ties."""
         layer = []
@@ -185,8 +222,18 @@ class Plan:
 
 
 def check_cover(plan, model):
-    """The plan's score forms must be the model's weights and bias, term for term."""
+    """The plan's score forms must be the model's weights and bias, term for term (with
+    loadable weights: each feature's product with its register and the bias register, once
+    each)."""
     units = model.units
+    if plan.loadable:
+        wanted = {("w", i): 1 for i in range(len(model.features))} | {("b",): 1}
+        for name, _, _ in plan.unit_scores:
+            value = plan.values[name]
+            if value.coeffs != wanted or value.constant:
+                raise RuntimeError(f"the adder plan of {name} does not add each product and "
+                                   f"the bias once; this is a bug in thresh2hdl")
+        return
     for (name, sign, bias), unit in zip(plan.unit_scores, units):
         coeffs, constant = ({}, 0) if name is None else (plan.values[name].coeffs,
                                                          plan.values[name].constant)

@@ -2,7 +2,7 @@
 over the netlist's own wires with its operands as the netlist computes them (see
 :mod:`thresh2hdl.proof.prover` for why that proves the whole)."""
 
-from ..names import GUARD_FLAG, register_name, valid_name
+from ..names import GUARD_FLAG, register_name, unit_prefix, valid_name
 from .clocking import reset_asserted, reset_clears
 from .query import bool_signal, bv
 
@@ -31,7 +31,34 @@ def lemmas_of(plan, query, model):
     pipeline = _Pipeline(plan, query, handshake, needed)
     pipeline.outputs(outputs)
     pipeline.registers()
+    if plan.loadable and "weight_write" in query.ports:
+        lemmas += _weight_writes(plan, query, model)
     return lemmas + pipeline.lemmas, pipeline.assumptions + query.assumptions, inputs
+
+
+def _weight_writes(plan, query, model):
+    """The plain write port: a register takes the data's low bits, from the next clock, when
+    the strobe is high at its address; it keeps its value otherwise; a reset restores the
+    trained value. (The AXI4-Lite slave's writes have no lemma: simulation covers them.)"""
+    smt, w = query.smt, query.width
+    strobe = bool_signal(smt, query.ports["weight_write"][0], "s0")
+    address = query.wide(query.ports["weight_address"][0], "s0", False)
+    data = query.ports["weight_data"][0]
+    clears = reset_clears(plan, smt, query.ports)
+    lemmas, features = [], len(model.features)
+    for u, unit in enumerate(model.units):
+        prefix = unit_prefix(u) if model.is_bank else ""
+        registers = [(f"{prefix}weight{i}", value) for i, value in enumerate(unit.weights)]
+        registers.append((f"{prefix}bias", unit.bias))
+        for offset, (name, trained) in enumerate(registers):
+            query.weight_register(name)          # undecided when the netlist lacks it
+            bits = smt.widths[name]
+            written = f"(and {strobe} (= {address} {bv(u * (features + 1) + offset, w)}))"
+            after = smt.bits(name, "s1")
+            lemmas.append((name, f"(= {after} (ite {clears} {query.low(bv(trained, w), bits)} "
+                                 f"(ite {written} ((_ extract {bits - 1} 0) "
+                                 f"{smt.bits(data, 's0')}) {smt.bits(name, 's0')})))"))
+    return lemmas
 
 
 def _value_lemmas(plan, query, needed):

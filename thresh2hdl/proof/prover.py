@@ -122,9 +122,6 @@ def _uncovered(component):
     if component.split_parts:
         return "split adders are not covered by the proof (their parts have no " \
                "registers of the plan's values)"
-    if component.config.loadable_weights:
-        return "loadable weights are not covered by the proof (it states the trained " \
-               "constants)"
     return None
 
 

@@ -184,6 +184,12 @@ class Query:
 
         if value.kind == "product":
             expr = f"(bvmul {self.feature(value.feature, state)} {bv(value.magnitude, w)})"
+        elif value.kind == "mul":
+            expr = f"(bvmul {self.feature(value.feature, state)} " \
+                   f"{self.weight_register(value.register, state)})"
+        elif value.kind == "addreg":
+            expr = f"(bvadd {operand(value.operands[0])} " \
+                   f"{self.weight_register(value.register, state)})"
         elif value.kind == "scaled":
             expr = self._shifted(operand(value.operands[0]), value.magnitude)
         elif value.kind == "const":
@@ -217,6 +223,14 @@ class Query:
         else:
             raise RuntimeError(f"value kind {value.kind} has no formula")
         return self.define(f"formula {name} {bits} {state}", self._sort(), expr)
+
+    def weight_register(self, name, state="s0"):
+        """A loadable weight or bias register's value (signed), whatever it holds: the
+        register, or (an asynchronous reset, which the export makes a synchronous register
+        behind a multiplexer) the wire of its name."""
+        if name not in self.smt.registers and not self.smt.has(name):
+            raise Undecided(f"the netlist has no register {name!r} of the loadable weights")
+        return self.define(f"{name} {state}", self._sort(), self.wide(name, state, True))
 
     def _shifted(self, expr, magnitude):
         shift = magnitude.bit_length() - 1

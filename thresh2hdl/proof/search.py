@@ -3,6 +3,7 @@ pipeline latency with the sink ready, differ from the model's. A lemma that fail
 one (the lemmas are stronger than the claim); the caller re-runs what this finds in a
 simulator before calling it one."""
 
+from ..names import unit_prefix
 from .clocking import enable_high, reset_asserted
 from .outcome import Undecided
 from .query import Query, bool_signal, bv
@@ -23,6 +24,21 @@ def _vector(values, keys, width):
     return tuple(vector)
 
 
+def _trained_weights(plan, query, model, states):
+    """Loadable weights: the registers hold the trained values in every state, so that a
+    simulator from reset replays the input found."""
+    if not plan.loadable:
+        return []
+    held, w = [], query.width
+    for u, unit in enumerate(model.units):
+        prefix = unit_prefix(u) if model.is_bank else ""
+        values = [(f"{prefix}weight{i}", v) for i, v in enumerate(unit.weights)]
+        for name, value in values + [(f"{prefix}bias", unit.bias)]:
+            held += [f"(assert (= {query.weight_register(name, s)} {bv(value, w)}))"
+                     for s in states]
+    return held
+
+
 def find_counterexample(plan, smt, width, ports, model, folder, boolector, timeout_s):
     """An input whose outputs, after the latency with the sink ready, differ from the model's."""
     latency = plan.latency
@@ -40,6 +56,7 @@ def find_counterexample(plan, smt, width, ports, model, folder, boolector, timeo
             if latency:
                 lines.append(f"(assert (not {reset_asserted(smt, ports, s)}))")
         lines += enable_high(plan, smt, ports, states)
+        lines += _trained_weights(plan, query, model, states)
         last = states[-1]
         # The reference bracketed like the plan: equal to w . x + b (see
         # forms.check_cover), and far easier for the solver to match against the netlist
