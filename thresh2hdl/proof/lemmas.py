@@ -6,7 +6,7 @@ from ..names import GUARD_FLAG, register_name, unit_prefix, valid_name
 from .clocking import reset_asserted, reset_clears
 from .query import bool_signal, bv
 
-__all__ = ["lemmas_of"]
+__all__ = ["lemmas_of", "weight_write_lemmas"]
 
 _HANDSHAKE = ("in_valid", "in_ready", "out_ready", "out_valid")
 
@@ -32,11 +32,11 @@ def lemmas_of(plan, query, model):
     pipeline.outputs(outputs)
     pipeline.registers()
     if plan.loadable and "weight_write" in query.ports:
-        lemmas += _weight_writes(plan, query, model)
+        lemmas += weight_write_lemmas(plan, query, model)
     return lemmas + pipeline.lemmas, pipeline.assumptions + query.assumptions, inputs
 
 
-def _weight_writes(plan, query, model):
+def weight_write_lemmas(plan, query, model):
     """The plain write port: a register takes the data's low bits, from the next clock, when
     the strobe is high at its address; it keeps its value otherwise; a reset restores the
     trained value. (The AXI4-Lite slave's writes have no lemma: simulation covers them.)"""

@@ -46,10 +46,11 @@ from ..names import register_name
 from ..tools import find_tool, warm_up
 from .clocking import enable_high, held_cycle
 from .forms import Plan
-from .lemmas import lemmas_of
+from .lemmas import lemmas_of, weight_write_lemmas
 from .outcome import DEFAULT_TIMEOUT_S, ProofOutcome, Undecided
 from .query import Query, port_names
 from .search import find_counterexample
+from .serial import serial_lemmas
 from .smt import SmtExport, export_smt2, wire_widths
 from .solve import solve, solve_batches
 from .structure import check_structure
@@ -83,7 +84,8 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
         return ProofOutcome("undecided", f"{uncovered}; the design is verified cycle by cycle "
                             f"in simulation", 0, (), None, versions[1], versions[0],
                             time.perf_counter() - started, 0, **tools)
-    plan = Plan(component, model)
+    serial = component.config.arch == "serial"
+    plan = _SerialPlan(component, model) if serial else Plan(component, model)
     with tempfile.TemporaryDirectory(prefix="thresh2hdl-prove-") as name:
         folder = Path(name)
         if progress is not None:
@@ -96,7 +98,17 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
             check_structure(structure, port_rows)
         except Undecided as why:
             return proof.outcome("undecided", str(why))
-        return proof.run()
+        return proof.run_serial(component) if serial else proof.run()
+
+
+class _SerialPlan:
+    """What the proof reads of a serial design's plan (its lemmas are per beat, from
+    :mod:`.serial`, not per value)."""
+
+    def __init__(self, component, model):
+        self.model, self.values, self.loadable = model, {}, component.config.loadable_weights
+        self.reset, self.clock_enable = component.config.reset, component.config.clock_enable
+        self.latency = component.latency
 
 
 def _warm_up(yosys, boolector, progress):
@@ -115,10 +127,6 @@ def _warm_up(yosys, boolector, progress):
 
 def _uncovered(component):
     """Why the method does not cover this design, or None."""
-    if component.config.arch == "serial":
-        # Its values are shared by every beat: a proof needs per-beat invariants of the
-        # accumulator, which these per-value lemmas do not state.
-        return "the serial architecture is not covered by the proof"
     if component.split_parts:
         return "split adders are not covered by the proof (their parts have no " \
                "registers of the plan's values)"
@@ -190,6 +198,54 @@ class _Proof:
                                         self.boolector, max(5, left))
         return self.outcome("counterexample", "lemma(s) fail: " + ", ".join(failing[:5])
                             + skipped, len(lemmas), failing, candidate)
+
+    def run_serial(self, component):
+        """The serial design's lemmas (:mod:`.serial`), with the write port's when the weights
+        are loadable, in one round; a failing lemma is a counterexample only once the
+        simulation search shows a mismatch."""
+        smt, plan = self.export(), self.plan
+        query = Query(plan, smt, self.width, self.ports)
+        try:
+            lemmas, assumptions = serial_lemmas(component, self.model, smt, self.ports,
+                                                self.width)
+            if plan.loadable and "weight_write" in self.ports:
+                lemmas += weight_write_lemmas(plan, query, self.model)
+        except Undecided as why:
+            return self.outcome("undecided", str(why))
+        states = ["s0", "s1"]
+        base = [smt.text, *smt.steps(states), *query.lines,
+                *(f"(assert {a})" for a in assumptions)]
+        common = base + enable_high(plan, smt, self.ports, states)
+        left = max(1, self.started + self.timeout_s - time.perf_counter())
+        alone, _ = solve(self.boolector, "\n".join(common), self.folder, "assumptions.smt2",
+                         left)
+        if alone != "sat":
+            return self.outcome("undecided", "the assumptions cannot all hold on this netlist"
+                                if alone == "unsat" else f"no answer within {self.timeout_s} s")
+        groups = [("\n".join(common), lemmas)]
+        held = held_cycle(plan, smt, self.ports)
+        if held is not None:
+            held_assumptions, lemma = held
+            lemmas = lemmas + [lemma]
+            groups.append(("\n".join(base + held_assumptions), [lemma]))
+        self._say(f"solving {len(lemmas)} lemmas with Boolector")
+        answers = [solve_batches(self.boolector, text, group, self.folder,
+                                 self.started + self.timeout_s) for text, group in groups]
+        failing = [lemma for _, found in answers for lemma in found]
+        kinds = {answer for answer, _ in answers}
+        if kinds == {"unsat"}:
+            covered = "every code the input port can carry" if \
+                component.config.guard.clamp else "every input in the declared ranges"
+            return self.outcome("proved", f"all {len(lemmas)} lemmas hold for {covered}, beat "
+                                f"by beat", len(lemmas))
+        if "sat" not in kinds:
+            return self.outcome("undecided", f"no answer within {self.timeout_s} s",
+                                len(lemmas), failing)
+        detail = "lemma(s) fail: " + ", ".join(failing[:5])
+        if self.quick_search is not None and self.quick_search() is not None:
+            return self.outcome("counterexample", detail, len(lemmas), failing)
+        return self.outcome("undecided", detail + "; no simulation found a mismatch",
+                            len(lemmas), failing)
 
     def _round(self, ignored):
         """One round with the ``ignored`` wires computed from their operands: a final
