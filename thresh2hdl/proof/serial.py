@@ -55,6 +55,12 @@ class _Terms:
         name, port_signed = self.ports[internal]
         return self.signal(name, state, port_signed if signed is None else signed)
 
+    def flag_of(self, name, state):
+        """A one-bit signal by its own name, as a Bool."""
+        if self.smt.widths.get(name) != 1:
+            raise Undecided(f"the netlist has no one-bit signal {name!r}")
+        return self.smt.raw(name, state)
+
     def flag(self, internal, state):
         return bool_signal(self.smt, self.ports[internal][0], state)
 
@@ -166,7 +172,8 @@ def serial_lemmas(component, model, smt, ports, width):
         def total(k):
             sample, fits = feature(k)
             start = bias if k == 0 else acc
-            return f"(bvadd {start} {cut or product(weights[k], sample)})", fits
+            term = cut(k) if cut else product(weights[k], sample)
+            return f"(bvadd {start} {term})", fits
 
         if count > 1:
             acc_after = t.signal(f"{prefix}accumulator", "s1", acc_signed)
@@ -203,37 +210,54 @@ def serial_lemmas(component, model, smt, ports, width):
 
 
 def _product_cut(t, component, model, prefix, u, at, feature, weights, lemmas):
-    """Loadable weights: the multiplier proved on its own (the beat's weight register on the
-    ``weight`` wire, the clamped sample on the sample wire, ``product`` their product at its
-    width, wide enough for every weight and code), so that the beat lemmas read the product
-    wire instead of multiplying again: two multipliers of different widths are hard for a
-    solver to equate, an adder is not. None (multiply in the lemmas) for constant weights or
+    """The multiplier proved on its own, so that the beat lemmas read its ``product`` wire
+    instead of multiplying again (two multipliers of different widths are hard for a solver
+    to equate; an adder is not): at beat ``k`` the ``weight`` wire carries the weight
+    register's value (loadable weights) or the ``magnitude`` and ``subtract`` wires carry
+    ``|w_k|`` and its sign (constant weights), the sample wire the clamped sample, and
+    ``product`` is their product at its width, wide enough for every weight and code (checked
+    here). Returns the term of beat ``k`` (a function), or None (multiply in the lemmas) for
     a netlist without those wires."""
-    smt, guard = t.smt, component.config.guard
-    weight, product = f"{prefix}weight", f"{prefix}product"
+    smt, guard, w = t.smt, component.config.guard, t.width
+    loadable = component.config.loadable_weights
+    factor = f"{prefix}weight" if loadable else f"{prefix}magnitude"
+    product, subtract = f"{prefix}product", f"{prefix}subtract"
     clamped = guard.needed and guard.clamp
     sample = "sample_clamped" if clamped else t.ports["x"][0]
-    if not component.config.loadable_weights or not all(
-            smt.has(name) for name in (weight, product, sample)):
+    wanted = (factor, product, sample) + (() if loadable else (subtract,))
+    if not all(smt.has(name) for name in wanted):
         return None
     bits = smt.widths[product]
     analysis = component.unit_analyses[u]
-    for k, (lo, hi) in enumerate(guard.feature_ranges if clamped else model.feature_ranges):
-        lo_p, hi_p = box_product((lo, hi), analysis.weight_range)
-        if not -(1 << (bits - 1)) <= lo_p <= hi_p < 1 << (bits - 1):
+    product_signed = analysis.node("product").lo < 0
+    lowest = -(1 << (bits - 1)) if product_signed else 0
+    highest = (1 << (bits - 1)) - 1 if product_signed else (1 << bits) - 1
+    ranges = guard.feature_ranges if clamped else model.feature_ranges
+    unit = model.units[u]
+    for k, (lo, hi) in enumerate(ranges):
+        each = analysis.weight_range if loadable else (abs(unit.weights[k]),) * 2
+        lo_p, hi_p = box_product((lo, hi), each)
+        if not lowest <= lo_p <= hi_p <= highest:
             raise Undecided(f"the wire {product!r} cannot hold every product of beat {k}")
-    weight_now = t.signal(weight, "s0", True)
-    sample_signed = t.ports["x"][1]
-    sample_now = t.signal(sample, "s0", sample_signed)
+    factor_now = t.signal(factor, "s0", loadable)
+    sample_now = t.signal(sample, "s0", t.ports["x"][1])
     for k in range(component.beats):
-        lemmas.append((f"{weight} beat {k}", f"(=> {at(k)} (= {weight_now} {weights[k]}))"))
+        wanted_factor = weights[k] if loadable else bv(abs(unit.weights[k]), w)
+        lemmas.append((f"{factor} beat {k}", f"(=> {at(k)} (= {factor_now} {wanted_factor}))"))
+        if not loadable:
+            negative = "true" if unit.weights[k] < 0 else "false"
+            lemmas.append((f"{subtract} beat {k}",
+                           f"(=> {at(k)} (= {t.flag_of(subtract, 's0')} {negative}))"))
         if clamped and u == 0:
             lemmas.append((f"{sample} beat {k}",
                            f"(=> {at(k)} (= {sample_now} {feature(k)[0]}))"))
     low = f"(_ extract {bits - 1} 0)"
-    lemmas.append((product, f"(= {smt.bits(product, 's0')} (bvmul ({low} {weight_now}) "
+    lemmas.append((product, f"(= {smt.bits(product, 's0')} (bvmul ({low} {factor_now}) "
                             f"({low} {sample_now})))"))
-    return t.signal(product, "s0", True)
+    value = t.signal(product, "s0", product_signed)
+    if loadable:
+        return lambda k: value
+    return lambda k: f"(bvneg {value})" if unit.weights[k] < 0 else value
 
 
 def _argmax(scores, w):
