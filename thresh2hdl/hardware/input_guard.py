@@ -89,7 +89,13 @@ def guard_sample(m, component, beat, first, last, finish, transfer):
         Signal(component.x.shape(), name="range_hi")
     m.d.comb += [lo_now.eq(by_beat(los)), hi_now.eq(by_beat(his))]
     below, above = Signal(name="below_range"), Signal(name="above_range")
-    m.d.comb += [below.eq(component.x < lo_now), above.eq(component.x > hi_now)]
+    # A bound that no feature tightens is the port's own: its comparison could never hold
+    # (and a comparison that cannot change is a lint warning).
+    shape = component.x.shape()
+    port_lo = -(1 << (shape.width - 1)) if shape.signed else 0
+    port_hi = (1 << (shape.width - 1)) - 1 if shape.signed else (1 << shape.width) - 1
+    m.d.comb += [below.eq(component.x < lo_now if any(lo > port_lo for lo in los) else 0),
+                 above.eq(component.x > hi_now if any(hi < port_hi for hi in his) else 0)]
     sample = component.x
     if guard.clamp:
         sample = Signal(component.x.shape(), name="sample_clamped")

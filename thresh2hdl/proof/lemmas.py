@@ -28,11 +28,20 @@ def lemmas_of(plan, query, model):
             port, signed = query.port(internal)
             lemmas.append((port, f"(= {query.wide(port, 's0', signed)} {expected})"))
         return lemmas, list(query.assumptions), inputs
+    if plan.split and model.ports.has_score:
+        # A split score's port joins the parts registered up to the last stage (no register
+        # of its own).
+        port, signed = query.port("score")
+        lemmas.append((port, f"(= {query.wide(port, 's0', signed)} "
+                             f"{query.score(0, plan.latency, needed=needed)})"))
     pipeline = _Pipeline(plan, query, handshake, needed)
     pipeline.outputs(outputs)
     pipeline.registers()
     if plan.loadable and "weight_write" in query.ports:
         lemmas += weight_write_lemmas(plan, query, model)
+    lemmas += [(f"{name} is {value}", f"(= {query.formula(name, query.width)} "
+                                      f"{bv(value, query.width)})")
+               for name, value in sorted(query.zero_values.items())]
     return lemmas + pipeline.lemmas, pipeline.assumptions + query.assumptions, inputs
 
 
@@ -75,6 +84,14 @@ def _value_lemmas(plan, query, needed):
 def _outputs(plan, query, model, needed):
     """(internal port, the value it must carry) for the decision, the flag and the scores."""
     final, w = plan.final_stage, query.width
+    if plan.split:
+        # The decision chain's last step and the flag, registered into the outputs; the
+        # score port is stated apart (lemmas_of).
+        last = plan.latency - 1
+        outputs = [("y", query.known(plan.decision, last, w, needed=needed))]
+        if plan.guard.flag:
+            outputs.append(("out_of_range", query.known(GUARD_FLAG, last, w, needed=needed)))
+        return outputs
     if model.is_bank:
         decided = query.known(plan.class_value, final, w, needed=needed) \
             if plan.class_value else bv(0, w)

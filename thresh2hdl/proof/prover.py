@@ -85,7 +85,12 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
                             f"in simulation", 0, (), None, versions[1], versions[0],
                             time.perf_counter() - started, 0, **tools)
     serial = component.config.arch == "serial"
-    plan = _SerialPlan(component, model) if serial else Plan(component, model)
+    try:
+        plan = _SerialPlan(component, model) if serial else Plan(component, model)
+    except Undecided as why:
+        return ProofOutcome("undecided", f"{why}; the design is verified cycle by cycle in "
+                            f"simulation", 0, (), None, versions[1], versions[0],
+                            time.perf_counter() - started, 0, **tools)
     with tempfile.TemporaryDirectory(prefix="thresh2hdl-prove-") as name:
         folder = Path(name)
         if progress is not None:
@@ -127,9 +132,6 @@ def _warm_up(yosys, boolector, progress):
 
 def _uncovered(component):
     """Why the method does not cover this design, or None."""
-    if component.split_parts:
-        return "split adders are not covered by the proof (their parts have no " \
-               "registers of the plan's values)"
     return None
 
 

@@ -26,6 +26,7 @@ class Query:
         self.lines = []
         self.defined = {}
         self.assumptions = []
+        self.zero_values = {}       # split values read as constants (registers dropped)
 
     def extend(self, expr, bits, signed):
         if bits == self.width:
@@ -103,14 +104,14 @@ class Query:
         return bits >= max(1, hi.bit_length())
 
     def constant_prefix(self, name, register):
-        """For a register too narrow for a non-negative value (an argmax class between two
-        indices), the high bits every value shares, which synthesis keeps as constants rather
-        than flip-flops: the register holds the low bits, all those where the values differ.
-        None when that does not explain its width. (Were it wrong, the register's own lemma
-        would fail: the proof does not rest on it.)"""
+        """For a register too narrow for a value of one sign (an argmax class between two
+        indices, a split adder's complemented part), the high bits every value shares, which
+        synthesis keeps as constants rather than flip-flops: the register holds the low bits,
+        all those where the values differ. None when that does not explain its width. (Were
+        it wrong, the register's own lemma would fail: the proof does not rest on it.)"""
         value = self.plan.values[name]
-        if value.signed or value.lo < 0 or value.register_shift or \
-                self.holds_exactly(name, register):
+        if (value.lo < 0 <= value.hi) or (value.signed and value.kind != "pnot") or \
+                value.register_shift or self.holds_exactly(name, register):
             return None
         kept = self.smt.widths[register]
         if kept < (value.lo ^ value.hi).bit_length():
@@ -128,6 +129,8 @@ class Query:
         value = self.plan.values[name]
         if self.pure:
             return self.formula(name, self.width, "s0")
+        if value.parts > 1:
+            return self._joined(name, value, stage, modulus_bits, state, needed)
         if value.kind == "scaled":
             # Wiring: its child shifted, read where the child is (its wire or registers).
             child = self.known(value.operands[0], stage, modulus_bits, state, needed)
@@ -141,6 +144,16 @@ class Query:
                                    self.wide(name, state, value.signed))
             return self.formula(name, modulus_bits, state, needed)
         register = register_name(name, stage)
+        if register not in self.smt.registers and (value.kind == "pcarry" or
+                                                   value.lo == value.hi):
+            # A value that is always the same (a carry out of a part whose operands' low
+            # bits are zeros, a part its form makes 0, a decision step decided by ranges):
+            # synthesis wires the constant and drops the flops. Read as that constant (a
+            # carry: 0), on a lemma that its formula is it for every input
+            # (:func:`~.lemmas.lemmas_of`); if the netlist wired anything else, its reader's
+            # lemma fails.
+            self.zero_values[name] = value.lo if value.lo == value.hi else 0
+            return bv(self.zero_values[name], self.width)
         if register not in self.smt.registers:
             raise Undecided(f"the netlist has no register {register!r}; the per-stage method "
                              f"needs the pipeline registers under the names thresh2hdl gives")
@@ -176,13 +189,21 @@ class Query:
         argmax compares, so its operands are known exactly)."""
         value = self.plan.values[name]
         stage, w = value.stage, self.width
-        exact = value.kind in ("compare", "max", "pick")
+        # (A top part and a complement are read modulo their consumer's width, as the
+        # netlist computes them; a low part's sum must be exact for its carry.)
+        exact = value.kind in ("compare", "max", "pick", "plow", "pcarry", "psum", "dstep")
         bits = w if exact else modulus_bits
 
         def operand(other):
             return self.known(other, stage, bits, state, needed)
 
-        if value.kind == "product":
+        if value.piece is not None:
+            expr = self._piece(value, state, needed, bits)
+        elif value.kind == "plow":
+            expr = f"(bvand {operand(value.operands[0])} {bv((1 << self.plan.split_bits) - 1, w)})"
+        elif value.kind == "pcarry":
+            expr = f"(bvlshr {operand(value.operands[0])} {bv(self.plan.split_bits, w)})"
+        elif value.kind == "product":
             expr = f"(bvmul {self.feature(value.feature, state)} {bv(value.magnitude, w)})"
         elif value.kind == "mul":
             expr = f"(bvmul {self.feature(value.feature, state)} " \
@@ -223,6 +244,101 @@ class Query:
         else:
             raise RuntimeError(f"value kind {value.kind} has no formula")
         return self.define(f"formula {name} {bits} {state}", self._sort(), expr)
+
+    def _joined(self, name, value, stage, modulus_bits, state, needed):
+        """A split adder's value from its parts as ``stage`` sees them: the low parts' bits,
+        then the top part shifted; only the parts below ``modulus_bits`` when a consumer
+        needs no more (an adder no wider than a part reads part 0 alone)."""
+        b, w = self.plan.split_bits, self.width
+        used = min(value.parts, -(-modulus_bits // b))
+        terms = []
+        for j in range(used):
+            part = self.known(f"{name}_p{j}", stage, w, state, needed)
+            terms.append(f"(bvshl {part} {bv(j * b, w)})" if j else part)
+        total = terms[0]
+        for term in terms[1:]:
+            total = f"(bvadd {total} {term})"
+        return self.define(f"joined {name} {used} {stage} {state}", self._sort(), total)
+
+    def _slice(self, name, j, top, stage, state, needed, modulus_bits=None):
+        """Part ``j`` of value ``name`` as a part-``j`` adder reads it (``trees.Parts``): the
+        bits from ``j * b`` up, whole (``top``) or ``b`` of them; of a split value, its own
+        part ``j`` (past its top part, that part's extension)."""
+        b, w = self.plan.split_bits, self.width
+        value = self.plan.values[name]
+        if value.lo >= 0 and value.hi >> (j * b) == 0:
+            # Past a non-negative value's bits: zeros, which the circuit wires as constants.
+            return bv(0, w)
+        # A top slice modulo ``modulus_bits`` needs its source modulo that many bits more
+        # than the shift; a middle one, ``b`` bits above it.
+        if value.parts > 1:
+            own = min(j, value.parts - 1)
+            shift = (j - own) * b
+        else:
+            shift = j * b
+        need = min(w, shift + (modulus_bits or w)) if top else min(w, shift + b)
+        if value.parts > 1:
+            source = self.known(f"{name}_p{own}", stage, need, state, needed)
+        else:
+            source = self.known(name, stage, need, state, needed)
+        shifted = f"(bvashr {source} {bv(shift, w)})" if shift else source
+        return shifted if top else f"(bvand {shifted} {bv((1 << b) - 1, w)})"
+
+    def _piece(self, value, state, needed, modulus_bits):
+        """A split adder's piece from what it reads (see :meth:`Plan._split`), modulo
+        ``modulus_bits`` (exact for a low part's sum)."""
+        w, b, piece, stage = self.width, self.plan.split_bits, value.piece, value.stage
+        if value.kind == "pnot":
+            part = self._slice(piece["node"], piece["j"], piece["top"], stage, state, needed,
+                               modulus_bits)
+            return f"(bvnot {part})" if piece["top"] else \
+                f"(bvsub {bv((1 << b) - 1, w)} {part})"
+        if value.kind == "dstep":
+            return self._decision_step(value, piece, stage, state, needed)
+        terms = []
+        for kind, item in piece["operands"] + [piece["carry"]]:
+            if kind == "const":
+                terms.append(bv(item, w))
+            elif kind == "value":
+                terms.append(self.known(item, stage, modulus_bits, state, needed))
+            else:
+                terms.append(self._slice(item, piece["j"], piece["top"], stage, state,
+                                         needed, modulus_bits))
+        total = terms[0]
+        for term in terms[1:]:
+            total = f"(bvadd {total} {term})"
+        return total
+
+    def _decision_step(self, value, piece, stage, state, needed):
+        """One step of a split result's decision (see :meth:`Plan._decision_chain`)."""
+        w = self.width
+
+        def part():
+            return self.known(piece["part"], stage, w, state, needed)
+
+        def below():
+            return f"(= {self.known(piece['below'], stage, w, state, needed)} {bv(1, w)})"
+
+        if "limit" in piece:
+            # Against the threshold's digit. Decided by the part's range alone where it can
+            # be, as the circuit decides it (then no part is read: a constant).
+            held, number = self.plan.values[piece["part"]], piece["limit"]
+            limit, greater = bv(number, w), piece["greater"]
+            if (held.lo > number) if greater else (held.hi < number):
+                test = "true"
+            elif (held.hi <= number) if greater else (held.lo >= number):
+                test = "false"
+            else:
+                test = f"({'bvsgt' if greater else 'bvslt'} {part()} {limit})"
+            if piece["below"] is not None and held.lo <= number <= held.hi:
+                test = f"(or {test} (and (= {part()} {limit}) {below()}))"
+        else:                       # score > 0: nonzero, and the top part not negative
+            test = f"(not (= {part()} {bv(0, w)}))"
+            if piece["below"] is not None:
+                test = f"(or {test} {below()})"
+            if piece["sign"]:
+                test = f"(and (bvsge {part()} {bv(0, w)}) {test})"
+        return f"(ite {test} {bv(1, w)} {bv(0, w)})"
 
     def weight_register(self, name, state="s0"):
         """A loadable weight or bias register's value (signed), whatever it holds: the
