@@ -46,6 +46,7 @@ CELL_FAMILIES = ("ice40", "ecp5")       # Yosys's share/<family>/cells_sim.v
 # refuses; with this define both tools leave an unconnected input undriven (not proved).
 _CELL_DEFINES = "`define NO_ICE40_DEFAULT_ASSIGNMENTS\n"
 _INCLUDE = re.compile(r'^\s*`include\s+"([^"]+)"\s*$', re.M)
+_TIMESCALE = re.compile(r"^\s*`timescale\b.*$", re.M)
 _MODULE = re.compile(r"^\s*module\s+(\\?\S+?)\s*[#(;]", re.M)
 
 
@@ -56,6 +57,7 @@ class GateNetlist:
 
     family: str | None
     cells_text: str
+    refused: str | None = None      # why the method cannot read it (cells of no library)
 
     @property
     def simulation_text(self):
@@ -82,17 +84,27 @@ def cell_models(yosys, family):
     folder = yosys_share(yosys) / family
     try:
         text = (folder / "cells_sim.v").read_text(encoding="utf-8")
-        text = _INCLUDE.sub(lambda m: (folder / m[1]).read_text(encoding="utf-8"), text)
+        seen = set()
+
+        def inline(match):      # each file once (ECP5's are included twice)
+            if match[1] in seen:
+                return ""
+            seen.add(match[1])
+            return (folder / match[1]).read_text(encoding="utf-8")
+
+        for _ in range(4):      # includes inside includes
+            text = _INCLUDE.sub(inline, text)
     except OSError as error:
         raise Undecided(f"Yosys's {family} cell models cannot be read ({error}); the "
                         f"method needs them") from None
-    return _CELL_DEFINES + text
+    # No timescale: the netlist has none, and Icarus warns when only some modules do.
+    return _CELL_DEFINES + _TIMESCALE.sub("", text)
 
 
 def read_gate_netlist(yosys, text, module, folder):
     """The netlist at gate level (:class:`GateNetlist`), or None for a word-level design (one
-    that adds, multiplies or compares words: the lemmas' kind). A cell from no library Yosys
-    ships models for is :class:`Undecided`."""
+    that adds, multiplies or compares words: the lemmas' kind). Cells from no library Yosys
+    ships models for: ``refused`` says so."""
     (folder / "probe.v").write_text(text, encoding="utf-8")
     (folder / "probe.ys").write_text("read_verilog -noautowire probe.v\nproc\n"
                                      "write_json probe.json\n", encoding="utf-8")
@@ -120,8 +132,9 @@ def read_gate_netlist(yosys, text, module, folder):
         models = cell_models(yosys, family)
         if vendor <= {name.lstrip("\\") for name in _MODULE.findall(models)}:
             return GateNetlist(family, models)
-    raise Undecided(f"the netlist instantiates cells ({', '.join(sorted(vendor)[:3])}) of no "
-                    f"library whose models Yosys ships for {' or '.join(CELL_FAMILIES)}")
+    return GateNetlist(None, "", f"the netlist instantiates cells "
+                       f"({', '.join(sorted(vendor)[:3])}) of no library whose models Yosys "
+                       f"ships for {' or '.join(CELL_FAMILIES)}; the method cannot follow it")
 
 
 def _script(module, gate):
