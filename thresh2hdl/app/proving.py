@@ -275,7 +275,7 @@ def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto
     is_own = path.resolve() == own.resolve()
     try:
         gate = None if is_own else gate_netlist(text, model.module)
-        own_file = None if gate is None else \
+        own_file = None if gate is None else (own.name, None) if gate.refused else \
             _own_proved(own, model, ports, report, component, timeout_s, simulator, progress)
         result = prove_text(text, path.name, component, model, ports, timeout_s=timeout_s,
                             simulator=simulator, progress=progress, own=is_own, gate=gate,

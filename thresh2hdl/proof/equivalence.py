@@ -27,6 +27,7 @@ goes to Icarus when a counterexample is confirmed, so solver and simulator read 
 import json
 import re
 import subprocess
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -235,7 +236,6 @@ def prove_equivalent(yosys, boolector, own_text, gate_text, gate, module, port_r
                      deadline):
     """Whether ``gate_text`` (a :class:`GateNetlist`) equals ``own_text`` cycle by cycle from
     any state in which its registers agree with the own file's (see the module's text)."""
-    import time
     (folder / "own.v").write_text(own_text, encoding="utf-8")
     (folder / "gate.v").write_text(gate_text, encoding="utf-8")
     if gate.family:
