@@ -301,10 +301,17 @@ def test_a_report_json_edited_past_showing_is_one_error_naming_the_field(built, 
                          rf".+; rebuild the folder$")
     for out in (built, bank_built[0]):
         report = json.loads((out / "report.json").read_text())
-        report.update(quantization=QUANTIZATION, proof=PROOF, netlist_proofs={"x.v": PROOF},
+        # The proof as older reports hold it (no method_kind: the value lemmas), and a
+        # gate-level netlist's proof by equivalence.
+        report.update(quantization=QUANTIZATION, proof=PROOF,
+                      netlist_proofs={"x.v": {**PROOF, "method_kind": "gate-equivalence"}},
                       estimates={"ice40": ESTIMATE})
         shown = report_files(tmp_path, report)
         assert "not placed" in shown[tmp_path / "report.md"]
+        assert "(value-lemmas, 3 lemmas" in shown[tmp_path / "report.md"]
+        assert "(gate-equivalence, 3 lemmas" in shown[tmp_path / "report.md"]
+        assert json.loads(shown[tmp_path / "report.json"])["netlist_proofs"]["x.v"][
+            "method_kind"] == "gate-equivalence"
         failures = 0
         for path in _paths(report):
             for value in (None, "x", -1, 0, 2.5, True, [], [0], {}):

@@ -11,7 +11,8 @@ import numpy as np
 from ..errors import InputError, MismatchError, UndecidedError
 from ..emit import port_table
 from ..outdir import write_files
-from ..proof import DEFAULT_TIMEOUT_S, prove_netlist
+from ..proof import (DEFAULT_TIMEOUT_S, GATE_METHOD, gate_netlist, prove_gate_netlist,
+                     prove_netlist)
 from ..tools import which_tool
 from ..verify import ReferenceModel, choose_simulator, make_backend, make_stimulus
 from .folder import load_folder, report_files
@@ -25,6 +26,11 @@ __all__ = ["ProofResult", "counterexample_file", "prove", "prove_text"]
 # The one name versions before netlist proofs were recorded gave any netlist's counterexample;
 # a folder may still hold one that its report does not name.
 LEGACY_COUNTEREXAMPLE = "counterexample.csv"
+LEMMA_METHOD = ("one lemma per datapath value and register (Yosys write_smt2, Boolector), cut "
+                "points at closed subtrees")
+# The report's method_kind: the lemmas against the model, or a gate-level netlist's
+# equivalence to the folder's own file (older reports have no key: the lemmas).
+VALUE_LEMMAS, GATE_EQUIVALENCE = "value-lemmas", "gate-equivalence"
 PROOF_STATEMENT = ("for every input in the declared feature ranges, the outputs equal the "
                    "integer model's (decision{extra}), with any handshake")
 
@@ -69,8 +75,8 @@ class ProofResult:
 
     def summary(self):
         s = self.section
-        line = (f"{s['netlist']}: {s['status']} ({s['lemmas']} lemmas, {s['solver']}, "
-                f"{s['yosys']}, {self.seconds:.1f} s)")
+        line = (f"{s['netlist']}: {s['status']} ({s.get('method_kind', VALUE_LEMMAS)}, "
+                f"{s['lemmas']} lemmas, {s['solver']}, {s['yosys']}, {self.seconds:.1f} s)")
         if self.outcome.compiled:
             line += (f"; {' and '.join(self.outcome.compiled)} compiled for first use in "
                      f"{self.outcome.warmup_seconds:.0f} s before, not counted")
@@ -138,15 +144,22 @@ def _statement(component, model):
 
 
 def prove_text(text, name, component, model, ports, *, timeout_s, simulator, progress,
-               own=True):
+               own=True, gate=None, own_file=None):
     """Prove ``text`` (file ``name``; ``own``: the folder's own Verilog) and confirm a
-    counterexample in a simulator. ``progress``: a :class:`~.progress.Progress`."""
+    counterexample in a simulator. ``progress``: a :class:`~.progress.Progress`. With ``gate``
+    (the netlist at gate level), by its equivalence to ``own_file``: ``(file name, its text
+    if proved equal to the model, else None)``; simulated with the gate's cell models."""
     clock = time.perf_counter()
     auto = simulator == "auto"
     simulator = choose_simulator(simulator)
-    if auto and simulator == "verilator" and which_tool("iverilog") and which_tool("vvp"):
-        # The search's 2,000 vectors: Icarus runs them before Verilator has compiled.
+    if (gate is not None and gate.family or auto and simulator == "verilator") and \
+            which_tool("iverilog") and which_tool("vvp"):
+        # The search's 2,000 vectors: Icarus runs them before Verilator has compiled; and
+        # it reads Yosys's cell models as they are.
         simulator = "icarus"
+    design_text = text
+    if gate is not None:
+        text = text + "\n" + gate.simulation_text       # what the simulators compile
     searched = {}
 
     def quick_search():
@@ -157,13 +170,21 @@ def prove_text(text, name, component, model, ports, *, timeout_s, simulator, pro
                 search_by_simulation(simulator, component, text, ports, model)
         return searched["result"]
 
-    outcome = prove_netlist(text, component, model, ports, timeout_s=timeout_s,
-                            progress=progress.note, quick_search=quick_search)
+    if gate is None:
+        outcome = prove_netlist(text, component, model, ports, timeout_s=timeout_s,
+                                progress=progress.note, quick_search=quick_search)
+        method, kind = LEMMA_METHOD, VALUE_LEMMAS
+    else:
+        outcome = prove_gate_netlist(design_text, gate, own_file[1], component, model, ports,
+                                     timeout_s=timeout_s, progress=progress.note,
+                                     quick_search=quick_search)
+        cells = f"; {gate.family} cells read with Yosys's {gate.family}/cells_sim.v" \
+            if gate.family else ""
+        method, kind = GATE_METHOD.format(own=own_file[0], cells=cells), GATE_EQUIVALENCE
     section = {"status": outcome.status, "netlist": name,
-               "netlist_sha256": hashlib.sha256(text.encode("utf-8")).hexdigest(),
+               "netlist_sha256": hashlib.sha256(design_text.encode("utf-8")).hexdigest(),
                "statement": _statement(component, model),
-               "method": "one lemma per datapath value and register (Yosys write_smt2, "
-                         "Boolector), cut points at closed subtrees",
+               "method": method, "method_kind": kind,
                "lemmas": outcome.lemmas, "solver": outcome.solver, "yosys": outcome.yosys,
                "arithmetic_bits": outcome.width_bits, "timeout_s": timeout_s,
                "detail": outcome.detail, "failing_lemmas": list(outcome.failing[:20]),
@@ -189,7 +210,9 @@ def prove_text(text, name, component, model, ports, *, timeout_s, simulator, pro
             csv_text = ",".join(names) + "\n" + ",".join(map(str, outcome.candidate)) + "\n"
     elif outcome.status in ("counterexample", "undecided"):
         section["status"] = "undecided"
-        if simulator == "amaranth":
+        if gate is not None and gate.refused:
+            pass                # no models of its cells for a simulator either
+        elif simulator == "amaranth":
             section["detail"] += "; no Verilog simulator to search for a counterexample"
         else:
             if "result" not in searched:
@@ -215,6 +238,25 @@ def _found(section, found, simulator, names, name, own):
                                  "file": counterexample_file(name, own),
                                  "confirmed_in": version_text, "mismatch": mismatch}
     return ",".join(names) + "\n" + (",".join(map(str, vector)) + "\n" if vector else "")
+
+
+def _own_proved(own, model, ports, report, component, timeout_s, simulator, progress):
+    """``(file name, text)`` of the folder's own file, the text None unless it is proved equal
+    to the model: by the report's proof of this very text, else by proving it now (recorded
+    in ``report`` as its proof)."""
+    text = verilog_of(own, model, ports)
+    digest = hashlib.sha256(text.encode("utf-8")).hexdigest()
+    recorded = report.get("proof")
+    if isinstance(recorded, dict) and recorded.get("status") == "proved" and \
+            recorded.get("netlist_sha256") == digest:
+        return own.name, text
+    progress.note(f"a gate-level netlist: proving the folder's own {own.name} first")
+    result = prove_text(text, own.name, component, model, ports, timeout_s=timeout_s,
+                        simulator=simulator, progress=progress)
+    report["proof"] = result.section
+    report.setdefault("timing", {}).update(
+        {key: round(value, 3) for key, value in result.timing.items()})
+    return own.name, text if result.ok else None
 
 
 def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto",
@@ -243,8 +285,12 @@ def prove(out_dir, *, netlist=None, timeout_s=DEFAULT_TIMEOUT_S, simulator="auto
     text = verilog_of(path, model, ports)     # a VHDL file: GHDL's reading of it
     is_own = path.resolve() == own.resolve()
     try:
+        gate = None if is_own else gate_netlist(text, model.module)
+        own_file = None if gate is None else (own.name, None) if gate.refused else \
+            _own_proved(own, model, ports, report, component, timeout_s, simulator, progress)
         result = prove_text(text, path.name, component, model, ports, timeout_s=timeout_s,
-                            simulator=simulator, progress=progress, own=is_own)
+                            simulator=simulator, progress=progress, own=is_own, gate=gate,
+                            own_file=own_file)
     except InputError as error:
         raise InputError(str(error), source=path) from None
     if is_own:

@@ -293,7 +293,8 @@ def _proof_html(proof):
     rows = [["netlist", proof.netlist],
             *([["netlist sha256", proof.netlist_sha256]] if proof.netlist_sha256 else []),
             ["statement", proof.statement],
-            ["method", proof.method], ["lemmas", proof.lemmas],
+            ["method", f"{proof.method_kind or 'value-lemmas'}: {proof.method}"],
+            ["lemmas", proof.lemmas],
             ["solver", f"{proof.solver}, {proof.yosys}"],
             ["arithmetic", f"{proof.arithmetic_bits} bits"],
             ["timeout", f"{proof.timeout_s} s"]]
@@ -310,7 +311,8 @@ def _netlist_proofs_html(proofs):
     """Proofs of other Verilog files (``prove --netlist``) against this folder's model."""
     if not proofs:
         return ""
-    rows = [[name, p.status, p.lemmas, p.counterexample.file if p.counterexample else "",
-             p.detail] for name, p in proofs.items()]
+    rows = [[name, p.status, p.method_kind or "value-lemmas", p.lemmas,
+             p.counterexample.file if p.counterexample else "", p.detail]
+            for name, p in proofs.items()]
     return ("<h3>Other Verilog files (prove --netlist)</h3>"
-            + _table(["file", "status", "lemmas", "counterexample", "detail"], rows))
+            + _table(["file", "status", "method", "lemmas", "counterexample", "detail"], rows))

@@ -15,7 +15,8 @@ def _cell(text):
 
 def _proof_cell(proof):
     example = proof.counterexample
-    return (f"{proof.status} ({proof.lemmas} lemmas, {proof.solver})"
+    return (f"{proof.status} ({proof.method_kind or 'value-lemmas'}, {proof.lemmas} lemmas, "
+            f"{proof.solver})"
             + (f"; counterexample in {example.file}" if example else ""))
 
 

@@ -192,11 +192,13 @@ class ProofSection:
     netlist_sha256: str | None = None        # older reports: absent
     failing_lemmas: tuple | None = None
     counterexample: Counterexample | None = None
+    method_kind: str | None = None           # older reports: absent (the value lemmas)
 
     def to_json(self):
         return {"status": self.status, "netlist": self.netlist,
                 **present([("netlist_sha256", self.netlist_sha256)]),
-                "statement": self.statement, "method": self.method, "lemmas": self.lemmas,
+                "statement": self.statement, "method": self.method,
+                **present([("method_kind", self.method_kind)]), "lemmas": self.lemmas,
                 "solver": self.solver, "yosys": self.yosys,
                 "arithmetic_bits": self.arithmetic_bits, "timeout_s": self.timeout_s,
                 "detail": self.detail,
@@ -213,7 +215,8 @@ class ProofSection:
                    table.text("yosys"), table.count("arithmetic_bits"),
                    table.number("timeout_s"), table.text("detail"),
                    table.text("netlist_sha256", None), table.texts("failing_lemmas", None),
-                   example and Counterexample.from_json(example))
+                   example and Counterexample.from_json(example),
+                   table.text("method_kind", None))
 
 
 @dataclass(frozen=True)
