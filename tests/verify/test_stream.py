@@ -22,7 +22,6 @@ from thresh2hdl.emit.verilog import emit_verilog, port_table
 from thresh2hdl.errors import InputError
 from thresh2hdl.model.records import FeatureFormat, Model, Unit
 from thresh2hdl.hardware import MAX_TDATA_BITS, UnitConfig, make_component, plan_design
-from thresh2hdl.proof.prover import prove_netlist
 from thresh2hdl.verify.runner import first_stimulus
 from thresh2hdl.verify.sim_amaranth import simulate_amaranth
 from thresh2hdl.verify.vectors import make_vectors
