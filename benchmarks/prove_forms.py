@@ -1,5 +1,5 @@
-"""Proof time of the forms an engineer picks for size or flexibility: the serial architecture,
-loadable weights (tree, every level registered) and loadable weights on the serial
+"""Proof time of the forms an engineer picks for speed, size or flexibility: split adders (8
+bits, two carry registers, every level registered), the serial architecture, loadable weights (tree, every level registered) and loadable weights on the serial
 architecture, Yosys step included.
 
     python benchmarks/prove_forms.py [--quick]
@@ -22,6 +22,7 @@ from prove_speed import model_of
 TARGETS_S = {16: 10, 64: 60}
 FORMS = {
     "tree (baseline)": {"pipeline": "full"},
+    "split adders": {"pipeline": "full", "split_bits": 8, "carry_registers": 2},
     "serial": {"arch": "serial"},
     "loadable tree": {"pipeline": "full", "loadable_weights": True, "weight_bits": 12},
     "loadable serial": {"arch": "serial", "loadable_weights": True, "weight_bits": 12},
