@@ -260,3 +260,59 @@ def digits_bank(max_digits, digit_budget=None, *, score=True):
                          in enumerate(zip(result.weights, result.biases))],
                   ports=PortNames() if score else PortNames(score=""))
     return model, x_test
+
+
+def prove_design(model, text=None, **config):
+    """The proof (``prove_netlist``) of the emitted Verilog of ``model`` built with ``config``,
+    or of ``text`` in its place."""
+    from thresh2hdl.emit.verilog import port_table
+    from thresh2hdl.hardware import make_component, plan_design
+    from thresh2hdl.proof.prover import prove_netlist
+    require_proof_tools()
+    config = UnitConfig(model, **config)
+    if text is None:
+        text = emit_verilog(make_component(config), model)
+    design = plan_design(config)       # what the proof reads: no component left unused
+    return prove_netlist(text, design, model, port_table(design, model), timeout_s=120)
+
+
+def replace_once(before, after):
+    """A mutation: the text says ``after`` where it said ``before`` (which it says once)."""
+    def mutate(text):
+        assert text.count(before) == 1
+        return text.replace(before, after)
+    return mutate
+
+
+def assert_mutant_caught(tmp_path, model, options, mutate, rows, clamped=None):
+    """A build of ``model`` with ``options`` whose Verilog ``mutate`` changes: not proved; ``prove --netlist`` finds a counterexample that Icarus
+    confirms; independently, Icarus runs the mutant on the stimulus of ``rows`` (with any
+    loads of the weights) and differs somewhere while the original does not, the expected
+    scores being plain Python sums of the codes (``clamped``: as the design clamps them);
+    and the folder's own file still proves."""
+    from thresh2hdl.app import BuildOptions, build, prove
+    from thresh2hdl.emit.verilog import port_table
+    from thresh2hdl.errors import MismatchError
+    from thresh2hdl.hardware import plan_design
+    from thresh2hdl.verify.runner import first_stimulus, make_backend
+    require_tool("iverilog", "vvp")
+    out = tmp_path / "build"
+    build(model, out, BuildOptions(simulator="icarus", vectors=200, **options))
+    text = (out / f"{model.module}.v").read_text()
+    path = tmp_path / "mutant.v"
+    path.write_text(mutate(text))
+    assert path.read_text() != text
+    assert prove_design(model, path.read_text(), **options).status != "proved"
+    with pytest.raises(MismatchError, match="counterexample"):
+        prove(out, netlist=path, timeout_s=120, simulator="icarus")
+    design = plan_design(UnitConfig(model, **options))
+    stimulus, _ = first_stimulus(design, model, rows, reload_count=100)
+    codes = rows if clamped is None else clamped
+    plain = [sum(w * x for w, x in zip(model.unit.weights, row)) + model.unit.bias
+             for row in np.asarray(codes).tolist()]
+    assert np.array_equal(stimulus.expect_scores[:len(plain)], plain)
+    ports = port_table(design, model)
+    for source, wrong in ((path.read_text(), True), (text, False)):
+        backend = make_backend("icarus", verilog_text=source, ports=ports, module=model.module)
+        assert (backend.run(stimulus).check(stimulus).mismatch_count > 0) == wrong
+    assert prove(out, timeout_s=120).status == "proved"

