@@ -49,6 +49,11 @@ class BusRun:
         source = self.inputs if order is BUS_INPUTS else self.expected
         return [source[name] for name in order]
 
+    def shown(self, order):
+        """The expected outputs of ``order`` where they count, zero elsewhere (so that a vector
+        file's rows show what is checked)."""
+        return [np.where(self.checked(name), self.expected[name], 0) for name in order]
+
 
 def bus_ports(ports):
     """The bus's ports by their short names (``awvalid``...): the logical rows named

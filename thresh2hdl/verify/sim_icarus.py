@@ -272,7 +272,7 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
         columns += list(write_columns(stimulus))
     bus = bus_ports(ports)
     if bus:
-        columns += _bus_rows(stimulus, BUS_INPUTS)
+        columns += stimulus.bus.rows(BUS_INPUTS)
     enable = [1] if any(port.internal == "ce" for port in ports) else []
     if enable:
         columns.append(enable_column(stimulus).astype(np.int64))
@@ -294,7 +294,7 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
         columns.append(np.where(valid, expect[index, unit], 0))
         widths.append(width)
     if bus:
-        columns += _bus_rows(stimulus, BUS_OUTPUTS)
+        columns += stimulus.bus.shown(BUS_OUTPUTS)
         widths += [bus[name].width for name in BUS_OUTPUTS]
     write_text(folder / files.expected, _hex_lines(columns, widths))
     if verilog_name is not None:
@@ -303,15 +303,6 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
                                   flag_checked=stimulus.expect_flags is not None,
                                   flag_masks_results=stimulus.flag_masks_results))
     return files
-
-
-def _bus_rows(stimulus, order):
-    """The AXI4-Lite port's columns (inputs, or outputs expected); the outputs only where
-    they count, zero elsewhere, so that a file's rows show what is checked."""
-    run = stimulus.bus
-    if order is BUS_INPUTS:
-        return run.rows(BUS_INPUTS)
-    return [np.where(run.checked(name), run.expected[name], 0) for name in BUS_OUTPUTS]
 
 
 def _tool(name):
