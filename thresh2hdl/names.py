@@ -5,7 +5,7 @@ import re
 
 __all__ = ["VERILOG_KEYWORDS", "VHDL_RESERVED", "check_identifier", "vhdl_name_problem", "GUARD_FLAG", "SCORE_CONST", "register_name",
            "valid_name", "unit_prefix", "argmax_names", "argmax_compare_name",
-           "flag_part_name"]
+           "flag_part_name", "weight_name", "bias_name", "weight_registers"]
 
 GUARD_FLAG = "guard_flag"     # the input guard's out-of-range flag, made at the inputs
 SCORE_CONST = "score_const"   # a bank unit's score when every weight is 0 (after its prefix)
@@ -30,6 +30,28 @@ def valid_name(stage):
 def unit_prefix(index):
     """What starts the name of every value of a bank's unit ``index``."""
     return f"u{index}_"
+
+
+def weight_name(prefix, index):
+    """A loadable weight register: feature ``index``'s weight of the unit named by
+    ``prefix`` (a bank unit's :func:`unit_prefix`, else empty)."""
+    return f"{prefix}weight{index}"
+
+
+def bias_name(prefix):
+    """A loadable bias register of the unit named by ``prefix``."""
+    return f"{prefix}bias"
+
+
+def weight_registers(model):
+    """Every loadable register's name and trained value, in the write port's address order
+    (each unit's weights, then its bias)."""
+    registers = []
+    for u, unit in enumerate(model.units):
+        prefix = unit_prefix(u) if model.is_bank else ""
+        registers += [(weight_name(prefix, i), w) for i, w in enumerate(unit.weights)]
+        registers.append((bias_name(prefix), unit.bias))
+    return registers
 
 
 def argmax_names(tag):

@@ -5,7 +5,7 @@ an AXI4-Lite slave with read-back (:mod:`.register_bus`), both with one address 
 from amaranth.hdl import Signal, signed
 from amaranth.lib.wiring import In
 
-from ..names import unit_prefix
+from ..names import bias_name, unit_prefix, weight_name
 from .register_bus import axi_lite_members, build_axi_lite
 
 __all__ = ["WeightStore", "weight_addresses", "register_file", "write_members"]
@@ -51,9 +51,9 @@ class WeightStore:
             prefix = unit_prefix(u) if model.is_bank else ""
             row = []
             for i, value in enumerate(unit.weights):
-                row.append(Signal(signed(config.weight_bits), name=f"{prefix}weight{i}",
+                row.append(Signal(signed(config.weight_bits), name=weight_name(prefix, i),
                                   init=value))
-            bias = Signal(signed(config.bias_bits), name=f"{prefix}bias", init=unit.bias)
+            bias = Signal(signed(config.bias_bits), name=bias_name(prefix), init=unit.bias)
             registers += row + [bias]
             self.weights.append(row)
             self.biases.append(bias)

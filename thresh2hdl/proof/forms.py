@@ -8,7 +8,8 @@ and bias, term for term.
 
 from dataclasses import dataclass
 
-from ..names import SCORE_CONST, argmax_compare_name, argmax_names, flag_part_name, unit_prefix
+from ..names import (SCORE_CONST, argmax_compare_name, argmax_names, bias_name,
+                     flag_part_name, unit_prefix, weight_name)
 
 __all__ = ["Value", "Plan", "check_cover"]
 
@@ -186,13 +187,13 @@ class Plan:
             if node.kind == "product":
                 self.add(Value(name, "mul", (), coeffs={("w", node.feature): 1},
                                feature=node.feature,
-                               register=f"{prefix}weight{node.feature}", **common))
+                               register=weight_name(prefix, node.feature), **common))
                 continue
             children = [self.values[names[c]] for c in node.children]
             if node.kind == "bias":
                 self.add(Value(name, "addreg", (children[0].name,),
                                coeffs={**children[0].coeffs, ("b",): 1},
-                               register=f"{prefix}bias", **common))
+                               register=bias_name(prefix), **common))
                 continue
             if node.kind != "add":
                 raise RuntimeError(f"a loadable unit has no {node.kind} node")

@@ -2,7 +2,7 @@
 over the netlist's own wires with its operands as the netlist computes them (see
 :mod:`thresh2hdl.proof.prover` for why that proves the whole)."""
 
-from ..names import GUARD_FLAG, register_name, unit_prefix, valid_name
+from ..names import GUARD_FLAG, register_name, valid_name, weight_registers
 from .clocking import reset_asserted, reset_clears
 from .query import bool_signal, bv
 
@@ -41,7 +41,7 @@ def lemmas_of(plan, query, model):
         lemmas += weight_write_lemmas(plan, query, model)
     lemmas += [(f"{name} is {value}", f"(= {query.formula(name, query.width)} "
                                       f"{bv(value, query.width)})")
-               for name, value in sorted(query.zero_values.items())]
+               for name, value in sorted(query.constant_values.items())]
     return lemmas + pipeline.lemmas, pipeline.assumptions + query.assumptions, inputs
 
 
@@ -54,19 +54,15 @@ def weight_write_lemmas(plan, query, model):
     address = query.wide(query.ports["weight_address"][0], "s0", False)
     data = query.ports["weight_data"][0]
     clears = reset_clears(plan, smt, query.ports)
-    lemmas, features = [], len(model.features)
-    for u, unit in enumerate(model.units):
-        prefix = unit_prefix(u) if model.is_bank else ""
-        registers = [(f"{prefix}weight{i}", value) for i, value in enumerate(unit.weights)]
-        registers.append((f"{prefix}bias", unit.bias))
-        for offset, (name, trained) in enumerate(registers):
-            query.weight_register(name)          # undecided when the netlist lacks it
-            bits = smt.widths[name]
-            written = f"(and {strobe} (= {address} {bv(u * (features + 1) + offset, w)}))"
-            after = smt.bits(name, "s1")
-            lemmas.append((name, f"(= {after} (ite {clears} {query.low(bv(trained, w), bits)} "
-                                 f"(ite {written} ((_ extract {bits - 1} 0) "
-                                 f"{smt.bits(data, 's0')}) {smt.bits(name, 's0')})))"))
+    lemmas = []
+    for index, (name, trained) in enumerate(weight_registers(model)):
+        query.weight_register(name)          # undecided when the netlist lacks it
+        bits = smt.widths[name]
+        written = f"(and {strobe} (= {address} {bv(index, w)}))"
+        after = smt.bits(name, "s1")
+        lemmas.append((name, f"(= {after} (ite {clears} {query.low(bv(trained, w), bits)} "
+                             f"(ite {written} ((_ extract {bits - 1} 0) "
+                             f"{smt.bits(data, 's0')}) {smt.bits(name, 's0')})))"))
     return lemmas
 
 

@@ -218,29 +218,22 @@ class _Proof:
         base = [smt.text, *smt.steps(states), *query.lines,
                 *(f"(assert {a})" for a in assumptions)]
         common = base + enable_high(plan, smt, self.ports, states)
-        left = max(1, self.started + self.timeout_s - time.perf_counter())
-        alone, _ = solve(self.boolector, "\n".join(common), self.folder, "assumptions.smt2",
-                         left)
-        if alone != "sat":
-            return self.outcome("undecided", "the assumptions cannot all hold on this netlist"
-                                if alone == "unsat" else f"no answer within {self.timeout_s} s")
+        vacuous = self._vacuous(common, "the assumptions")
+        if vacuous is not None:
+            return vacuous
         groups = [("\n".join(common), lemmas)]
         held = held_cycle(plan, smt, self.ports)
         if held is not None:
             held_assumptions, lemma = held
             lemmas = lemmas + [lemma]
             groups.append(("\n".join(base + held_assumptions), [lemma]))
-        self._say(f"solving {len(lemmas)} lemmas with Boolector")
-        answers = [solve_batches(self.boolector, text, group, self.folder,
-                                 self.started + self.timeout_s) for text, group in groups]
-        failing = [lemma for _, found in answers for lemma in found]
-        kinds = {answer for answer, _ in answers}
-        if kinds == {"unsat"}:
+        answer, failing = self._solve(lemmas, groups)
+        if answer == "unsat":
             covered = "every code the input port can carry" if \
                 component.config.guard.clamp else "every input in the declared ranges"
             return self.outcome("proved", f"all {len(lemmas)} lemmas hold for {covered}, beat "
                                 f"by beat", len(lemmas))
-        if "sat" not in kinds:
+        if answer == "unknown":
             return self.outcome("undecided", f"no answer within {self.timeout_s} s",
                                 len(lemmas), failing)
         detail = "lemma(s) fail: " + ", ".join(failing[:5])
@@ -248,6 +241,28 @@ class _Proof:
             return self.outcome("counterexample", detail, len(lemmas), failing)
         return self.outcome("undecided", detail + "; no simulation found a mismatch",
                             len(lemmas), failing)
+
+    def _vacuous(self, common, what):
+        """Undecided when nothing satisfies the assumptions (a proof under them would prove
+        anything), else None."""
+        alone, _ = solve(self.boolector, "\n".join(common), self.folder, "assumptions.smt2",
+                         max(1, self.started + self.timeout_s - time.perf_counter()))
+        if alone == "sat":
+            return None
+        return self.outcome("undecided", f"{what} cannot all hold on this netlist"
+                            if alone == "unsat" else f"no answer within {self.timeout_s} s")
+
+    def _solve(self, lemmas, groups):
+        """Every group's lemmas, in batches: 'unsat' (all hold), 'sat' or 'unknown', and the
+        failing labels."""
+        self._say(f"solving {len(lemmas)} lemmas with Boolector")
+        answers = [solve_batches(self.boolector, text, group, self.folder,
+                                 self.started + self.timeout_s) for text, group in groups
+                   if group]
+        failing = [lemma for _, found in answers for lemma in found]
+        kinds = {answer for answer, _ in answers}
+        return ("sat" if "sat" in kinds else "unknown" if "unknown" in kinds else "unsat"),\
+            failing
 
     def _round(self, ignored):
         """One round with the ``ignored`` wires computed from their operands: a final
@@ -264,20 +279,10 @@ class _Proof:
             return self.outcome("undecided", str(why))
         common, groups = self._queries(smt, query, lemmas, assumptions, inputs)
         if not ignored:
-            # A proof under assumptions that nothing satisfies would prove anything.
-            alone, _ = solve(self.boolector, "\n".join(common), self.folder,
-                             "assumptions.smt2",
-                             max(1, self.started + timeout_s - time.perf_counter()))
-            if alone != "sat":
-                return self.outcome("undecided", "the assumptions (inputs in their ranges) "
-                                    "cannot all hold on this netlist" if alone == "unsat"
-                                    else f"no answer within {timeout_s} s")
-        self._say(f"solving {len(lemmas)} lemmas with Boolector")
-        answers = [solve_batches(self.boolector, text, group, self.folder,
-                                 self.started + timeout_s) for text, group in groups if group]
-        failing = [lemma for _, found in answers for lemma in found]
-        kinds = {answer for answer, _ in answers}
-        answer = "sat" if "sat" in kinds else "unknown" if "unknown" in kinds else "unsat"
+            vacuous = self._vacuous(common, "the assumptions (inputs in their ranges)")
+            if vacuous is not None:
+                return vacuous
+        answer, failing = self._solve(lemmas, groups)
         skipped = (f"; {len(ignored)} inner wire(s) that do not follow the plan, such as "
                    f"{', '.join(sorted(ignored)[:3])}, were computed from their operands "
                    f"instead") if ignored else ""

@@ -26,7 +26,7 @@ class Query:
         self.lines = []
         self.defined = {}
         self.assumptions = []
-        self.zero_values = {}       # split values read as constants (registers dropped)
+        self.constant_values = {}   # split values read as constants (registers dropped)
 
     def extend(self, expr, bits, signed):
         if bits == self.width:
@@ -152,8 +152,8 @@ class Query:
             # carry: 0), on a lemma that its formula is it for every input
             # (:func:`~.lemmas.lemmas_of`); if the netlist wired anything else, its reader's
             # lemma fails.
-            self.zero_values[name] = value.lo if value.lo == value.hi else 0
-            return bv(self.zero_values[name], self.width)
+            self.constant_values[name] = value.lo if value.lo == value.hi else 0
+            return bv(self.constant_values[name], self.width)
         if register not in self.smt.registers:
             raise Undecided(f"the netlist has no register {register!r}; the per-stage method "
                              f"needs the pipeline registers under the names thresh2hdl gives")

@@ -3,7 +3,7 @@ pipeline latency with the sink ready, differ from the model's. A lemma that fail
 one (the lemmas are stronger than the claim); the caller re-runs what this finds in a
 simulator before calling it one."""
 
-from ..names import unit_prefix
+from ..names import weight_registers
 from .clocking import enable_high, reset_asserted
 from .outcome import Undecided
 from .query import Query, bool_signal, bv
@@ -29,14 +29,8 @@ def _trained_weights(plan, query, model, states):
     simulator from reset replays the input found."""
     if not plan.loadable:
         return []
-    held, w = [], query.width
-    for u, unit in enumerate(model.units):
-        prefix = unit_prefix(u) if model.is_bank else ""
-        values = [(f"{prefix}weight{i}", v) for i, v in enumerate(unit.weights)]
-        for name, value in values + [(f"{prefix}bias", unit.bias)]:
-            held += [f"(assert (= {query.weight_register(name, s)} {bv(value, w)}))"
-                     for s in states]
-    return held
+    return [f"(assert (= {query.weight_register(name, s)} {bv(value, query.width)}))"
+            for name, value in weight_registers(model) for s in states]
 
 
 def find_counterexample(plan, smt, width, ports, model, folder, boolector, timeout_s):

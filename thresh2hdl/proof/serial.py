@@ -26,7 +26,7 @@ accumulator after beat ``k`` holds ``b + w_0 x_0 + ... + w_k x_k``, and the outp
 from types import SimpleNamespace
 
 from ..analysis.intervals import box_product
-from ..names import GUARD_FLAG, register_name, unit_prefix
+from ..names import GUARD_FLAG, bias_name, register_name, unit_prefix, weight_name
 from .clocking import reset_clears
 from .outcome import Undecided
 from .query import bool_signal, bv
@@ -54,12 +54,6 @@ class _Terms:
     def port(self, internal, state, signed=None):
         name, port_signed = self.ports[internal]
         return self.signal(name, state, port_signed if signed is None else signed)
-
-    def flag_of(self, name, state):
-        """A one-bit signal by its own name, as a Bool."""
-        if self.smt.widths.get(name) != 1:
-            raise Undecided(f"the netlist has no one-bit signal {name!r}")
-        return self.smt.raw(name, state)
 
     def flag(self, internal, state):
         return bool_signal(self.smt, self.ports[internal][0], state)
@@ -160,8 +154,8 @@ def serial_lemmas(component, model, smt, ports, width):
         prefix = unit_prefix(u) if model.is_bank else ""
         analysis = component.unit_analyses[u]
         if config.loadable_weights:
-            weights = [t.signal(f"{prefix}weight{k}", "s0", True) for k in range(count)]
-            bias = t.signal(f"{prefix}bias", "s0", True)
+            weights = [t.signal(weight_name(prefix, k), "s0", True) for k in range(count)]
+            bias = t.signal(bias_name(prefix), "s0", True)
         else:
             weights, bias = [bv(v, w) for v in unit.weights], bv(unit.bias, w)
         acc_signed = analysis.node("accumulator").lo < 0
@@ -247,7 +241,7 @@ def _product_cut(t, component, model, prefix, u, at, feature, weights, lemmas):
         if not loadable:
             negative = "true" if unit.weights[k] < 0 else "false"
             lemmas.append((f"{subtract} beat {k}",
-                           f"(=> {at(k)} (= {t.flag_of(subtract, 's0')} {negative}))"))
+                           f"(=> {at(k)} (= {bool_signal(smt, subtract, 's0')} {negative}))"))
         if clamped and u == 0:
             lemmas.append((f"{sample} beat {k}",
                            f"(=> {at(k)} (= {sample_now} {feature(k)[0]}))"))

@@ -10,6 +10,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from ..names import weight_registers
 from .reference import ReferenceModel, cycle_model
 
 __all__ = ["Stimulus", "make_stimulus", "make_reload_stimulus", "write_columns",
@@ -195,13 +196,7 @@ def write_columns(stimulus):
 
 def _write_cycles(model):
     """(address, value) of every register of a model's weights: the write port's map."""
-    features = len(model.features)
-    writes = []
-    for u, unit in enumerate(model.units):
-        base = u * (features + 1)
-        writes += [(base + i, w) for i, w in enumerate(unit.weights)]
-        writes.append((base + features, unit.bias))
-    return writes
+    return [(address, value) for address, (_, value) in enumerate(weight_registers(model))]
 
 
 def make_reload_stimulus(first, reloads, *, latency, beats=1, seed=0, **options):
