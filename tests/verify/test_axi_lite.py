@@ -189,8 +189,8 @@ def test_every_simulator_agrees_lints_clean_and_keeps_the_handshake_rules(tmp_pa
 def test_a_slave_that_zero_extends_its_reads_is_caught(monkeypatch):
     # A mutant: reads zero-extended instead of sign-extended; the trained weight -2 shows it.
     from thresh2hdl.hardware import register_bus
-    original = register_bus._selected
-    monkeypatch.setattr(register_bus, "_selected",
+    original = register_bus.selected
+    monkeypatch.setattr(register_bus, "selected",
                         lambda words, index: original([w.as_unsigned() for w in words], index))
     model, component = _unit()
     rows = random_vectors(np.random.default_rng(1), model.feature_ranges, 100)

@@ -95,6 +95,20 @@ class BuildOptions:
         "plain", "--weight-port", "The loadable weights' port: plain (strobe, address, data) "
         "or axi4-lite (an AXI4-Lite slave, 32-bit words, with read-back).",
         choices=WEIGHT_PORTS, show_default=True)
+    on_chip_learning: bool = _option(
+        False, "--on-chip-learning", "The perceptron rule in the fabric (loadable weights "
+        "implied): an input with learn_enable high and its target on learn_target moves the "
+        "weights by --learning-rate times its codes when its decision is wrong, each weight "
+        "saturating at its declared width; learn_read_address/learn_read_data read them back.",
+        kind="switch")
+    learning_rate: str = _option(
+        "1", "--learning-rate", "eta of the on-chip rule, a power of two (1/64, 0.25, 2): "
+        "the update is a shift.", show_default=True)
+    bias_step: int | None = _option(
+        None, "--bias-step", "What the on-chip rule adds to or takes from a bias on a mistake "
+        "(default: eta S^2, S half the widest declared input span: the bias learns as a weight "
+        "on a constant input S, as fit trains it; capped at the register's largest value).",
+        kind="int")
     clamp: bool | None = _option(       # the input guard (thresh2hdl.analysis.guard)
         None, "--clamp/--no-clamp", "Clamp each feature to its declared range before the "
         "arithmetic (default: on when some declared range is tighter than its port).",

@@ -42,14 +42,18 @@ class BuildSettings:
     clock_enable: bool = False       # build's record is what it was before these existed
     interface: str = "plain"
     weight_port: str = "plain"
+    on_chip_learning: bool = False
+    learning_rate: str = "1"
+    bias_step: int | None = None
     latency_cycles: int
 
     @classmethod
     def of(cls, component, module):
         """The settings of a planned component (its config as resolved)."""
         config = component.config
-        return cls(module=module, latency_cycles=component.latency,
-                   **{key: getattr(config, key) for key in _DESIGN})
+        values = {key: getattr(config, key) for key in _DESIGN}
+        values["learning_rate"] = str(values["learning_rate"])
+        return cls(module=module, latency_cycles=component.latency, **values)
 
     def unit_config(self):
         """The keyword arguments of UnitConfig, beside the model, that rebuild the design."""
@@ -84,11 +88,16 @@ _RECORD = {
     "clock_enable": ("true or false", lambda v: isinstance(v, bool)),
     "interface": (f"one of {', '.join(INTERFACES)}", lambda v: v in INTERFACES),
     "weight_port": (f"one of {', '.join(WEIGHT_PORTS)}", lambda v: v in WEIGHT_PORTS),
+    "on_chip_learning": ("true or false", lambda v: isinstance(v, bool)),
+    "learning_rate": ("a power of two as text (\"1/64\")", lambda v: isinstance(v, str)),
+    "bias_step": ("an integer from 1 to 2^31 - 1 or null",
+                  lambda v: v is None or (type(v) is int and 1 <= v < 1 << 31)),
     "latency_cycles": (f"an integer from 0 to {MAX_SETTING}", _integer),
 }
 # Fields a record written before they existed lacks, with the value its design had.
 _ADDED_LATER = {"share_terms": False, "reset": DEFAULT_RESET, "clock_enable": False,
-                "interface": "plain", "weight_port": "plain"}
+                "interface": "plain", "weight_port": "plain", "on_chip_learning": False,
+                "learning_rate": "1", "bias_step": None}
 _DESIGN = tuple(f.name for f in dataclass_fields(BuildSettings) if f.name not in ("module",
                                                                        "latency_cycles"))
 

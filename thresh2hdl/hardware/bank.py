@@ -7,6 +7,7 @@ from ..names import GUARD_FLAG, SCORE_CONST, argmax_compare_name, argmax_names, 
 from .clocking import enabled
 from .component import PlannedComponent
 from .input_guard import guard_inputs
+from .learning import build_learning, entry_bias
 from .stages import Stages, handshake
 from .trees import Parts, build_split_tree, build_tree
 from .weights import WeightStore
@@ -40,8 +41,8 @@ class ThresholdBank(PlannedComponent):
         for index, analysis in enumerate(plan.units):
             prefix = unit_prefix(index)
             if store is not None:
-                build_tree(m, stages, analysis, features, prefix,
-                           store.weights[index], store.biases[index])
+                build_tree(m, stages, analysis, features, prefix, store.weights[index],
+                           entry_bias(stages, self.config, store.biases[index]))
                 scores.append(analysis.nodes[analysis.score_node].wire_name(prefix))
                 continue
             if analysis.score_node is None:
@@ -90,7 +91,20 @@ class ThresholdBank(PlannedComponent):
             m.d.comb += self.y.eq(stages.at(best, self.latency))
         for port, name in zip(self.score_ports, scores):
             m.d.comb += port.eq(stages.at(name, self.latency))
+        if self.config.on_chip_learning:
+            build_learning(m, self, stages, store, features,
+                           [_own_decision(m, stages, name) for name in scores])
         return enabled(self, m)
+
+
+def _own_decision(m, stages, score):
+    """A unit's own decision, ``score > 0``, made where its score is (one-vs-rest learning
+    reads it); returns its name."""
+    stage = stages.produced[score][0]
+    decision = Signal(name=f"{score}_positive")
+    m.d.comb += decision.eq(stages.at(score, stage) > 0)
+    stages.put(decision.name, decision, stage)
+    return decision.name
 
 
 def _whole_score(m, stages, view, analysis, stage):

@@ -6,13 +6,16 @@ names to its own options.
 """
 
 from dataclasses import dataclass
+from fractions import Fraction
 
 from amaranth.hdl import signed, unsigned
 
 from ..errors import InputError
 from ..model import Model
 from ..analysis import check_architecture, resolve_guard, signed_bits
+from ..train import MAX_REGISTER_BITS, OnChipRule, parse_learning_rate
 from .clocking import DEFAULT_RESET, RESET_KINDS, reset_is_low, reset_port
+from .learning import LEARN_INPUTS, LEARN_OUTPUTS, LEARN_PREFIX
 from .register_bus import AXI_LITE_DATA_BITS, WEIGHT_PORTS
 from .stream import INTERFACES
 
@@ -54,11 +57,18 @@ class UnitConfig:
     clock_enable: bool = False       # a clock enable port: every register holds while it is low
     interface: str = "plain"         # or axi-stream: the same design's ports in two streams
     weight_port: str = "plain"       # loadable weights' port: plain, or axi4-lite (read-back)
+    on_chip_learning: bool = False   # the perceptron rule on the loadable registers
+                                     # (learning.py); implies loadable weights
+    learning_rate: object = 1        # eta, a power of two (1/64, "0.25", 2...): a shift
+    bias_step: int | None = None     # the bias's move on a mistake (default: eta S^2, S half
+                                     # the widest declared span, fit's bias input)
 
     def __post_init__(self):
         if not isinstance(self.model, Model):
             raise TypeError(f"model must be a Model, not {type(self.model).__name__}")
         self._check_basics()
+        if self.on_chip_learning is True:
+            object.__setattr__(self, "loadable_weights", True)
         for key in ("weight_bits", "bias_bits"):
             self._check_register_width(key)
         if self.loadable_weights and self.pipeline == 0:
@@ -74,6 +84,7 @@ class UnitConfig:
         self._check_weight_port()
         self._resolve_guard()
         self._check_serial()
+        self._check_learning()
 
     def _check_basics(self):
         if self.pipeline != FULL_PIPELINE and (not _is_int(self.pipeline) or self.pipeline < 0):
@@ -238,6 +249,64 @@ class UnitConfig:
             raise InputError(f"the serial architecture has exactly one register stage (the "
                              f"accumulator and its result), so it must be 1, not "
                              f"{self.pipeline}", field="pipeline")
+
+    def _check_learning(self):
+        if not isinstance(self.on_chip_learning, bool):
+            raise InputError(f"must be True or False, not {self.on_chip_learning!r}",
+                             field="on_chip_learning")
+        shift = parse_learning_rate(self.learning_rate)
+        object.__setattr__(self, "learning_rate", Fraction(2) ** shift)
+        if not self.on_chip_learning:
+            if shift != 0 or self.bias_step is not None:
+                raise InputError("applies only to on-chip learning; turn it on or leave it "
+                                 "unset", field="learning_rate" if shift else "bias_step")
+            return
+        refusal = ("the serial architecture is not built with it (for now); use tree"
+                   if self.arch != "tree" else
+                   "the AXI4-Lite port is not built with it (for now); use the plain port, "
+                   "whose read-back the learning ports add"
+                   if self.weight_port != "plain" else
+                   "a clock enable is not built with it (for now); leave it off"
+                   if self.clock_enable else
+                   "the AXI4-Stream form is not built with it (for now); use plain"
+                   if self.interface != "plain" else
+                   f"a bank learns with one target bit per unit, at most {MAX_REGISTER_BITS} "
+                   f"(for now), and this one has {len(self.model.units)}"
+                   if len(self.model.units) > MAX_REGISTER_BITS else None)
+        if refusal:
+            raise InputError(f"cannot learn on chip: {refusal}", field="on_chip_learning")
+        if self.bias_step is None:
+            # As if the bias were a weight on a constant input S (half the widest declared
+            # span, fit's bias input): the rule moves it by eta S, which moves the score by
+            # eta S^2 (capped at the register's largest value).
+            spans = [f.max - f.min + 1 for f in self.model.features]
+            scale = max(1, max(spans) // 2) ** 2
+            step = scale << shift if shift >= 0 else scale >> -shift
+            most = (1 << (min(self.bias_bits, MAX_REGISTER_BITS) - 1)) - 1
+            object.__setattr__(self, "bias_step", max(1, min(step, most)))
+        rule = self.learning_rule      # validates the shift, the widths and the step
+        rule.check_holds(self.model)
+        names = {LEARN_PREFIX + name for name in LEARN_INPUTS + LEARN_OUTPUTS}
+        taken = {value for value in self.model.ports.__dict__.values() if value}
+        taken |= {f.name for f in self.model.features} | {self.model.module}
+        clash = sorted(names & taken)
+        if clash:
+            raise InputError(f"the learning port {clash[0]!r} clashes with a port, a feature "
+                             f"or the module; rename it", field="on_chip_learning")
+
+    @property
+    def learning_shift(self):
+        """``eta`` as its power of two (the update's shift)."""
+        rate = self.learning_rate
+        return rate.numerator.bit_length() - rate.denominator.bit_length()
+
+    @property
+    def learning_rule(self):
+        """The update the registers make (:class:`~thresh2hdl.train.OnChipRule`), or None."""
+        if not self.on_chip_learning:
+            return None
+        return OnChipRule(shift=self.learning_shift, bias_step=self.bias_step,
+                          weight_bits=self.weight_bits, bias_bits=self.bias_bits)
 
     def _code_ranges(self):
         """What the port carrying each feature can hold: its own format, or (serial) the

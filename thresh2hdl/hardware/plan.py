@@ -19,7 +19,8 @@ from ..names import unit_prefix
 from ..analysis import analyse, analyse_bank
 from .config import FULL_PIPELINE, UnitConfig, sample_shape
 from .stream import stream_layout
-from .weights import write_members
+from .learning import learning_members
+from .weights import weight_addresses, write_members
 
 __all__ = ["DesignPlan", "plan_design", "design_kind", "register_boundaries", "adder_parts",
            "result_node"]
@@ -251,4 +252,5 @@ def _signature(config, decision_bits, scores):
     if config.range_flag:
         members["out_of_range"] = Out(1)
     members.update({name: Out(signed(bits)) for name, bits in scores})
+    members.update(learning_members(config, weight_addresses(model)))
     return wiring.Signature(members)

@@ -21,7 +21,8 @@ from amaranth.hdl import Cat, Const, Mux, Signal
 from amaranth.lib.wiring import In, Out
 
 __all__ = ["WEIGHT_PORTS", "AXI_LITE_DATA_BITS", "AXI_PREFIX", "RESP_OKAY", "RESP_SLVERR",
-           "axi_lite_address_bits", "axi_lite_members", "build_axi_lite"]
+           "axi_lite_address_bits", "axi_lite_members", "build_axi_lite", "selected",
+           "index_known"]
 
 WEIGHT_PORTS = ("plain", "axi4-lite")
 AXI_LITE_DATA_BITS = 32
@@ -84,7 +85,7 @@ def build_axi_lite(m, component, registers):
     m.d.comb += commit.eq(aw_held & w_held)
     with m.If(commit):
         m.d.sync += [aw_held.eq(0), w_held.eq(0), bvalid.eq(1),
-                     bresp.eq(Mux(_known(aw_index, count), RESP_OKAY, RESP_SLVERR))]
+                     bresp.eq(Mux(index_known(aw_index, count), RESP_OKAY, RESP_SLVERR))]
     with m.Elif(_port(component, "bready")):
         m.d.sync += bvalid.eq(0)
     for address, register in enumerate(registers):
@@ -93,15 +94,15 @@ def build_axi_lite(m, component, registers):
     words = [register.as_signed() for register in registers]
     read_index = _port(component, "araddr")[2:]
     with m.If(arvalid & arready):
-        known = _known(read_index, count)
-        word = _selected(words, read_index)
+        known = index_known(read_index, count)
+        word = selected(words, read_index)
         m.d.sync += [rvalid.eq(1), rdata.eq(Mux(known, word, 0)),
                      rresp.eq(Mux(known, RESP_OKAY, RESP_SLVERR))]
     with m.Elif(_port(component, "rready")):
         m.d.sync += rvalid.eq(0)
 
 
-def _selected(words, index):
+def selected(words, index):
     """``words[index]`` as a tree of two-way multiplexers, one level per index bit (the
     netlist's writers print two-way multiplexers; an index past the end reads the last)."""
     level = 0
@@ -112,7 +113,7 @@ def _selected(words, index):
     return words[0]
 
 
-def _known(index, count):
+def index_known(index, count):
     """Whether a word index names a register (no comparison when every index does: a
     comparison that cannot change is a lint warning)."""
     return index < count if count < 1 << len(index) else Const(1)

@@ -16,7 +16,9 @@ def node_shape(node):
 def build_tree(m, stages, analysis, features, prefix="", weights=None, bias=None):
     """Every node of one unit's plan, each in the stage of its level, put into ``stages``
     (a shared node once for the bank; a scaled node as wiring, an alias of its child).
-    ``weights`` and ``bias``: the registers of loadable weights (else the plan's constants)."""
+    ``weights`` and ``bias``: the registers of loadable weights (else the plan's constants);
+    ``bias`` may be the name of its value in ``stages`` (on-chip learning: the bias as the
+    vector entered, carried beside it)."""
     for node in analysis.nodes:
         name = node.wire_name(prefix)
         if node.shared and stages.has(name):
@@ -30,7 +32,8 @@ def build_tree(m, stages, analysis, features, prefix="", weights=None, bias=None
         if weights is not None and node.kind == "product":
             expr = features[node.feature] * weights[node.feature]
         elif weights is not None and node.kind == "bias":
-            expr = stages.at(children[0], stage) + bias
+            expr = stages.at(children[0], stage) + \
+                (stages.at(bias, stage) if isinstance(bias, str) else bias)
         elif node.kind == "product":
             expr = constant_product(node, features)
         else:

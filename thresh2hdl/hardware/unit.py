@@ -7,6 +7,7 @@ from ..names import GUARD_FLAG
 from .clocking import enabled
 from .component import PlannedComponent
 from .input_guard import guard_inputs
+from .learning import build_learning, entry_bias
 from .plan import result_node
 from .stages import Stages, handshake
 from .trees import Parts, build_split_tree, build_tree
@@ -58,10 +59,12 @@ class ThresholdUnit(PlannedComponent):
             build_split_tree(m, stages, analysis, features, parts, bits, skew)
         else:
             store = WeightStore(m, self, config) if analysis.loadable else None
-            build_tree(m, stages, analysis, features,
-                       weights=store and store.weights[0], bias=store and store.biases[0])
+            build_tree(m, stages, analysis, features, weights=store and store.weights[0],
+                       bias=store and entry_bias(stages, config, store.biases[0]))
         view = Parts(m, stages, analysis, parts, bits)
         decision = self._decision(m, stages, view, node)
+        if config.on_chip_learning:
+            build_learning(m, self, stages, store, features, [decision])
         count = self.result_parts
         m.d.comb += self.y.eq(stages.at(decision, self.latency))
         if analysis.has_score and count == 1:

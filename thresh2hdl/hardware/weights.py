@@ -57,10 +57,18 @@ class WeightStore:
             registers += row + [bias]
             self.weights.append(row)
             self.biases.append(bias)
-        if config.weight_port == "axi4-lite":
-            build_axi_lite(m, component, registers)
+        self.registers = registers
+        self.config = config
+        if not config.on_chip_learning:
+            self.connect_port(m, component)
+
+    def connect_port(self, m, component):
+        """The write port (or slave). With on-chip learning it is connected after the
+        updates, so that a write in the same cycle wins over an update."""
+        if self.config.weight_port == "axi4-lite":
+            build_axi_lite(m, component, self.registers)
             return
-        for address, register in enumerate(registers):
+        for address, register in enumerate(self.registers):
             self._write(m, component, register, address)
 
     @staticmethod

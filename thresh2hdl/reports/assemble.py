@@ -10,6 +10,7 @@ import numpy as np
 from .. import __version__
 from ..analysis import guard_words
 from ..hardware import DEFAULT_RESET, weight_addresses
+from ..hardware.learning import LEARN_PREFIX
 from ..hardware.register_bus import AXI_LITE_DATA_BITS, AXI_PREFIX
 from ..emit import port_table
 from ..model import model_to_toml
@@ -18,7 +19,7 @@ from ..verify import ReferenceModel, TestbenchFiles, cocotb_file_name
 from .design import Datapath, FeatureRow, Sizes
 from .fields import Table, plain, present
 from .record import (ClockingSection, GuardSection, Packaging, Report, StreamSection,
-                     Testbench, Verification, WeightPort)
+                     Testbench, Verification, WeightPort, LearningSection)
 from .sections import (DataSummary, Histogram, ProofSection, QuantizationLog, TrainingLog,
                        VhdlSection)
 from .tables import (argmax_report, level_names, node_table, shared_report, stages_report,
@@ -153,6 +154,34 @@ def _stream_report(component, model):
         for p in table.logical if p.internal in table.lanes))
 
 
+def _learning_report(component, model):
+    config = component.config
+    if not config.on_chip_learning:
+        return None
+    rule = config.learning_rule
+    steps = [(max(1, f.bits + rule.shift), f.signed) for f in model.features]
+    step_bits = max(bits for bits, _ in steps)
+    # as hardware.learning sizes them: a bit wider than the register and the step (signed)
+    weight_sum = max(max(config.weight_bits, bits + (not signed)) + 1 for bits, signed in steps)
+    bias_sum = max(config.bias_bits, rule.bias_step.bit_length() + 1) + 1
+    ports = tuple(port.name for port in port_table(component, model)
+                  if port.internal.startswith(LEARN_PREFIX))
+    rule_text = (f"an input with {ports[0]} high is a labelled sample; when its result is "
+                 f"taken, each unit whose own decision (score > 0) differs from its bit of "
+                 f"{ports[1]} moves each weight by eta x (eta = {rule.learning_rate}: "
+                 f"{'x << ' + str(rule.shift) if rule.shift >= 0 else 'x >> ' + str(-rule.shift)}"
+                 f") and its bias by {rule.bias_step}, towards the target, clamped to the "
+                 f"register's range"
+                 + ("; a sample flagged out of range teaches nothing" if config.range_flag
+                    else "")
+                 + f"; a vector meets the registers as they are when it enters, so back-to-"
+                 f"back samples do not see the updates of the {component.latency} before "
+                 f"them; {ports[2]} reads any register back combinationally (past the last, "
+                 f"0); learning changes the decisions in the field: see the caution")
+    return LearningSection(str(rule.learning_rate), rule.bias_step, step_bits, weight_sum,
+                           bias_sum, component.latency, ports, rule_text)
+
+
 def _weight_port_report(component, model):
     config = component.config
     if not config.loadable_weights:
@@ -171,10 +200,12 @@ def _weight_port_report(component, model):
                           f"write while no result is in flight",
                           tuple(port.name for port in port_table(component, model)
                                 if port.internal.startswith(AXI_PREFIX)), "axi4-lite")
+    timing = ("a vector meets the registers as they are when it enters, so a write may "
+              "come at any time, and wins over an on-chip update in the same cycle"
+              if config.on_chip_learning else "write while no result is in flight")
     return WeightPort(*common, max(config.weight_bits, config.bias_bits),
                       weight_addresses(model),
-                      f"{registers}; a write takes effect from the next clock; "
-                      f"write while no result is in flight",
+                      f"{registers}; a write takes effect from the next clock; {timing}",
                       (model.ports.weight_write, model.ports.weight_address,
                        model.ports.weight_data))
 
@@ -221,6 +252,7 @@ def build_report(model, component, verilog_text, verilog_name, verified, *, seed
                         for name, section in (netlist_proofs or {}).items()},
         register_stages=component.config.pipeline, beats_per_result=component.beats,
         weight_port=_weight_port_report(component, model),
+        learning=_learning_report(component, model),
         input_guard=guard_report(component, model, chosen=chosen_guard),
         clocking=_clocking_report(component, model),
         stream=_stream_report(component, model),

@@ -6,7 +6,7 @@ from html import escape
 from ..cost import CELL_NAMES
 from .drawings import (histogram_chart, polyline_chart, score_line, tree_picture,
                        unit_histogram_panels)
-from .phrases import (clocking_text, stream_text, weight_port_text, digits_text, entry_text, levels_text, shared_text,
+from .phrases import (clocking_text, stream_text, weight_port_text, learning_text, digits_text, entry_text, levels_text, shared_text,
                       split_text, stages_text)
 from .record import report_record
 
@@ -88,7 +88,9 @@ def _sizes_html(report):
         *([["clocking", clocking_text(report.clocking)]] if report.clocking else []),
         *([["interface", stream_text(report.stream)]] if report.stream else []),
         *([["weight port", weight_port_text(report.weight_port)]]
-          if report.weight_port else [])]),
+          if report.weight_port else []),
+        *([["on-chip learning", learning_text(report.learning)]]
+          if report.learning else [])]),
         "<h3>Score range</h3>",
         score_line(sizes.score_range, report.data and report.data.score_seen, sizes.is_bank),
         "<h3>Datapath</h3>", _datapath_html(report)]

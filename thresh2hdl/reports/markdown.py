@@ -1,7 +1,7 @@
 """report.md: the report for review threads, read from the report record like report.json and
 report.html."""
 
-from .phrases import (clocking_text, stream_text, weight_port_text, cost_text, digits_text, entry_text, guard_text,
+from .phrases import (clocking_text, stream_text, weight_port_text, learning_text, cost_text, digits_text, entry_text, guard_text,
                       levels_text, shared_text, split_text, stages_text)
 from .record import report_record
 
@@ -54,6 +54,8 @@ def report_markdown(report):
              *([f"| interface | {stream_text(report.stream)} |"] if report.stream else []),
              *([f"| weight port | {weight_port_text(report.weight_port)} |"]
                if report.weight_port else []),
+             *([f"| on-chip learning | {learning_text(report.learning)} |"]
+               if report.learning else []),
              *([f"| split adders | {split} |"] if split else []),
              *([f"| shared terms | {shared_text(datapath)} |"] if datapath.shared else []),
              f"| vectors checked | {v.vectors_checked} |",

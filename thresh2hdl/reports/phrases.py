@@ -5,7 +5,7 @@ from ..cost import CELL_NAMES
 from .fields import Table
 from .estimates import CostEstimate
 
-__all__ = ["clocking_text", "stream_text", "weight_port_text", "count", "digits_text", "levels_text", "stages_text", "split_text", "shared_text",
+__all__ = ["clocking_text", "stream_text", "weight_port_text", "learning_text", "count", "digits_text", "levels_text", "stages_text", "split_text", "shared_text",
            "guard_text", "entry_text", "cost_text"]
 
 
@@ -98,6 +98,13 @@ def weight_port_text(port):
     form = "AXI4-Lite slave with read-back" if port.form == "axi4-lite" else "write port"
     return (f"{form}, {port.addresses} registers (weights {port.weight_bits} bits, biases "
             f"{port.bias_bits} bits); {port.map}")
+
+
+def learning_text(learning):
+    """On-chip learning: eta, the bias step, the update path's widths, then the rule."""
+    return (f"eta {learning.learning_rate}, bias step {learning.bias_step}; steps up to "
+            f"{learning.step_bits} bits, saturating adders of {learning.weight_sum_bits} bits "
+            f"(weights) and {learning.bias_sum_bits} (biases); {learning.rule}")
 
 
 def guard_text(guard):

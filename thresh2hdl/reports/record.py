@@ -20,7 +20,7 @@ from .fields import Table, plain, present
 from .estimates import read_estimates
 from .sections import DataSummary, ProofSection, QuantizationLog, TrainingLog, VhdlSection
 
-__all__ = ["REPORT_FORMAT", "SAFETY_CAUTION", "Report", "WeightPort", "GuardSection",
+__all__ = ["REPORT_FORMAT", "SAFETY_CAUTION", "Report", "WeightPort", "LearningSection", "GuardSection",
            "ClockingSection", "StreamSection", "Verification", "Testbench", "report_json", "report_record"]
 
 REPORT_FORMAT = 1
@@ -29,6 +29,32 @@ SAFETY_CAUTION = (
     "This is not a safety-rated function. Where its decision can act on the physical world (a "
     "shutdown trigger, a safety interlock), defer to the applicable functional-safety "
     "standards, local codes and licensed practice.")
+
+
+@dataclass(frozen=True)
+class LearningSection:
+    """On-chip learning: the rule's constants, the update path's widths and its ports."""
+    learning_rate: str          # eta, a power of two ("1/64")
+    bias_step: int
+    step_bits: int              # the widest feature step eta * x
+    weight_sum_bits: int        # a weight's saturating adder
+    bias_sum_bits: int
+    delay_cycles: int           # updates of the samples in flight, not yet seen
+    ports: tuple
+    rule: str
+
+    def to_json(self):
+        return {"learning_rate": self.learning_rate, "bias_step": self.bias_step,
+                "step_bits": self.step_bits, "weight_sum_bits": self.weight_sum_bits,
+                "bias_sum_bits": self.bias_sum_bits, "delay_cycles": self.delay_cycles,
+                "ports": list(self.ports), "rule": self.rule}
+
+    @classmethod
+    def from_json(cls, table):
+        return cls(table.text("learning_rate"), table.natural("bias_step"),
+                   table.count("step_bits"), table.count("weight_sum_bits"),
+                   table.count("bias_sum_bits"), table.natural("delay_cycles"),
+                   table.texts("ports"), table.text("rule"))
 
 
 @dataclass(frozen=True)
@@ -208,6 +234,7 @@ class Report:
     register_stages: int | None = None       # older reports: the latency
     beats_per_result: int | None = None      # older reports: one
     weight_port: WeightPort | None = None
+    learning: LearningSection | None = None  # None: no on-chip learning
     input_guard: GuardSection | None = None  # older reports were built without one
     clocking: ClockingSection | None = None  # None: synchronous active-high reset, no enable
     stream: StreamSection | None = None      # None: the plain interface
@@ -243,6 +270,7 @@ class Report:
             **present([("register_stages", self.register_stages),
                        ("beats_per_result", self.beats_per_result)]),
             "weight_port": self.weight_port and self.weight_port.to_json(),
+            **optional("on_chip_learning", self.learning),
             **optional("input_guard", self.input_guard),
             **optional("clocking", self.clocking), **optional("stream", self.stream),
             "vectors_checked": self.verification.vectors_checked,
@@ -282,6 +310,7 @@ class Report:
             register_stages=top.count("register_stages", None),
             beats_per_result=top.count("beats_per_result", None),
             weight_port=_section(top, "weight_port", WeightPort),
+            learning=_section(top, "on_chip_learning", LearningSection),
             input_guard=_section(top, "input_guard", GuardSection),
             clocking=_section(top, "clocking", ClockingSection),
             stream=_section(top, "stream", StreamSection),

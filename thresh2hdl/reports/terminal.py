@@ -1,6 +1,6 @@
 """The report's short form, for the terminal after a build."""
 
-from .phrases import clocking_text, stream_text, weight_port_text, digits_text, levels_text, shared_text, stages_text
+from .phrases import clocking_text, stream_text, weight_port_text, learning_text, digits_text, levels_text, shared_text, stages_text
 from .record import SAFETY_CAUTION, report_record
 
 __all__ = ["summary_lines"]
@@ -42,6 +42,8 @@ def summary_lines(report):
         lines.append(f"  interface: {stream_text(report.stream)}")
     if report.weight_port is not None:
         lines.append(f"  weight port: {weight_port_text(report.weight_port)}")
+    if report.learning is not None:
+        lines.append(f"  on-chip learning: {learning_text(report.learning)}")
     guard = report.input_guard
     if guard and guard.needed:
         what = " and ".join(word for word, on in (("clamped", guard.clamp),

@@ -11,7 +11,7 @@ them (``sim_icarus.packed_members``).
 
 import json
 
-from .register_bus import BUS_OUTPUTS, CHECKED_WHILE, bus_ports
+from .side import side_ports
 from .sim_icarus import _score_ports, logical_ports, stimulus_layout
 from .templates import template_text
 
@@ -59,8 +59,8 @@ def stimulus_fields(ports):
 def expected_fields(ports, *, flag_checked, flag_masks_results):
     """(name, width, when compared, port, offset) of each expected word's field, low bits
     first: in_ready, out_valid, the decision, the out-of-range flag (when checked), each
-    score, then the AXI4-Lite weight port's outputs (a response's payload compared ``while``
-    its VALID is expected high); each read from bit ``offset`` of ``port``."""
+    score, then the side channel's outputs (an AXI4-Lite response's payload compared
+    ``while`` its VALID is expected high); each read from bit ``offset`` of ``port``."""
     carriers = _carriers(ports)
     logical = logical_ports(ports)
     by_role = {port.internal: port for port in logical}
@@ -70,10 +70,11 @@ def expected_fields(ports, *, flag_checked, flag_masks_results):
     if flag_checked:
         fields.append((by_role["out_of_range"].name, 1, "valid"))
     fields += [(name, width, results) for name, width in _score_ports(logical)]
-    bus = bus_ports(logical)
-    fields += [(bus[name].name, bus[name].width,
-                f"while {bus[CHECKED_WHILE[name]].name}" if name in CHECKED_WHILE else "always")
-               for name in BUS_OUTPUTS if bus]
+    channel, side = side_ports(logical)
+    fields += [(side[name].name, side[name].width,
+                f"while {side[channel.checked_while[name]].name}"
+                if name in channel.checked_while else "always")
+               for name in channel.outputs] if channel else []
     return [(name, width, when, *carriers[name][:2]) for name, width, when in fields]
 
 

@@ -94,7 +94,8 @@ def compare(stimulus, in_ready, out_valid, decisions, scores, *, flags=None, bus
             if got.dtype == object:      # an unknown (x) value is None: never a match
                 got = np.array([-1 if g is None else g for g in got], dtype=np.int64)
             wrong = got != expected
-            note(np.flatnonzero(wrong & stimulus.bus.checked(name)), f"s_axi_{name}",
+            note(np.flatnonzero(wrong & stimulus.bus.checked(name)),
+                 stimulus.bus.channel.prefix + name,
                  expected, got, nowhere)
     mismatches.sort(key=lambda m: m.cycle)
     transfers = int(np.count_nonzero(stimulus.expect_out_valid & stimulus.out_ready))

@@ -12,54 +12,27 @@ AMBA AXI, "Handshake process"), with random delays before VALID and random READY
 response channels.
 """
 
-from dataclasses import dataclass, replace
+from dataclasses import replace
 
 import numpy as np
 
 from ..hardware.register_bus import (AXI_LITE_DATA_BITS, AXI_PREFIX, RESP_OKAY, RESP_SLVERR,
                                      axi_lite_address_bits)
+from .side import AXI_LITE, SideRun
 from .stimulus import write_columns
 
 __all__ = ["BUS_INPUTS", "BUS_OUTPUTS", "CHECKED_WHILE", "BusRun", "AxiLiteSlaveModel",
-           "with_axi_lite", "bus_ports", "READ_WINDOW"]
+           "with_axi_lite", "READ_WINDOW"]
 
-BUS_INPUTS = ("awvalid", "awaddr", "wvalid", "wdata", "wstrb", "bready", "arvalid", "araddr",
-              "rready")
-BUS_OUTPUTS = ("awready", "wready", "bvalid", "bresp", "arready", "rvalid", "rdata", "rresp")
-# A response's payload counts only while its VALID is high.
-CHECKED_WHILE = {"bresp": "bvalid", "rdata": "rvalid", "rresp": "rvalid"}
+BUS_INPUTS, BUS_OUTPUTS = AXI_LITE.inputs, AXI_LITE.outputs
+CHECKED_WHILE = AXI_LITE.checked_while
 READ_WINDOW = 48          # cycles at the start of each stretch of vectors that carry reads
 _WORD_MASK = (1 << AXI_LITE_DATA_BITS) - 1
 
 
-@dataclass(frozen=True)
-class BusRun:
-    """The bus inputs per cycle and the outputs expected, each an int64 array by name."""
-    inputs: dict
-    expected: dict
-
-    def checked(self, name):
-        """The cycles where output ``name`` is compared."""
-        when = CHECKED_WHILE.get(name)
-        cycles = len(self.expected[name])
-        return np.ones(cycles, dtype=bool) if when is None else self.expected[when] != 0
-
-    def rows(self, order):
-        """The arrays of ``order``'s names, inputs or outputs."""
-        source = self.inputs if order is BUS_INPUTS else self.expected
-        return [source[name] for name in order]
-
-    def shown(self, order):
-        """The expected outputs of ``order`` where they count, zero elsewhere (so that a vector
-        file's rows show what is checked)."""
-        return [np.where(self.checked(name), self.expected[name], 0) for name in order]
-
-
-def bus_ports(ports):
-    """The bus's ports by their short names (``awvalid``...): the logical rows named
-    ``s_axi_*``; empty for a design without the bus."""
-    return {port.internal[len(AXI_PREFIX):]: port for port in ports
-            if port.internal.startswith(AXI_PREFIX)}
+def BusRun(inputs, expected):
+    """The bus's inputs per cycle and the outputs expected (a :class:`~.side.SideRun`)."""
+    return SideRun(AXI_LITE, inputs, expected)
 
 
 def _word(value):

@@ -15,6 +15,7 @@ from .reference import ReferenceModel
 from .sim_amaranth import AmaranthBackend
 from .sim_icarus import IcarusBackend, icarus_version
 from .sim_verilator import VerilatorBackend, find_verilator, verilator_version
+from .learning import with_learning
 from .register_bus import with_axi_lite
 from .stimulus import make_reload_stimulus, make_stimulus, with_held_cycles
 from .vectors import RANDOM_GROUP, make_vectors, random_vectors, reload_sets
@@ -180,8 +181,11 @@ def _random_chunk(reference, component, size, seed, chunk):
 
 def _held(component, stimulus, seed):
     """With a clock enable, the stimulus with held cycles (enable low) among its cycles; with
-    the AXI4-Lite weight port, its writes and reads through the bus."""
+    the AXI4-Lite weight port, its writes and reads through the bus; with on-chip learning,
+    labelled vectors, read-back and the expectations of the learning registers."""
     config = component.config
+    if config.on_chip_learning:
+        return with_learning(stimulus, config, seed)
     if config.loadable_weights and config.weight_port == "axi4-lite":
         return with_axi_lite(stimulus, *register_file(config), seed)
     return with_held_cycles(stimulus, seed) if config.clock_enable else stimulus

@@ -14,8 +14,6 @@ from amaranth.sim import Simulator
 
 from ..hardware import reset_domain
 from .backend import SimulationResult, SimulatorBackend
-from ..hardware.register_bus import AXI_PREFIX
-from .register_bus import BUS_INPUTS, BUS_OUTPUTS
 from .stimulus import enable_column, write_columns
 
 __all__ = ["AmaranthBackend", "simulate_amaranth"]
@@ -66,18 +64,19 @@ def simulate_amaranth(component, stimulus, *, progress=None):
     if component.config.clock_enable:
         inputs.append(component.ce)
         columns.append(enable_column(stimulus).astype(np.int64))
-    bus_inputs = [getattr(component, AXI_PREFIX + name) for name in BUS_INPUTS] \
-        if stimulus.bus is not None else []
+    channel = stimulus.bus.channel if stimulus.bus is not None else None
+    bus_inputs = [getattr(component, channel.prefix + name) for name in channel.inputs] \
+        if channel else []
     if bus_inputs:
         inputs += bus_inputs
-        columns += stimulus.bus.rows(BUS_INPUTS)
+        columns += stimulus.bus.rows(channel.inputs)
     widths = [len(signal) for signal in inputs]
     packed = _pack_columns(columns, widths)
     score_ports = component.score_ports
     flag_ports = [component.out_of_range] if "out_of_range" in component.signature.members \
         else []
-    bus_outputs = [getattr(component, AXI_PREFIX + name) for name in BUS_OUTPUTS] \
-        if bus_inputs else []
+    bus_outputs = [getattr(component, channel.prefix + name) for name in channel.outputs] \
+        if channel else []
     outputs = [component.in_ready, component.out_valid, component.y, *flag_ports,
                *score_ports, *bus_outputs]
     input_bus = Cat(*inputs)
@@ -132,7 +131,7 @@ def simulate_amaranth(component, stimulus, *, progress=None):
     if bus_outputs:
         shift = 2 + decision_bits + len(flag_ports) + sum(len(p) for p in score_ports)
         bus = {}
-        for name, port in zip(BUS_OUTPUTS, bus_outputs):
+        for name, port in zip(channel.outputs, bus_outputs):
             bus[name] = np.array([(int(v) >> shift) & ((1 << len(port)) - 1) for v in raw],
                                  dtype=np.int64)
             shift += len(port)

@@ -16,8 +16,7 @@ from ..errors import ToolError
 from ..outdir import write_text
 from ..tools import find_tool, run, tool_version
 from .backend import SimulationResult, VerilogBackend
-from ..hardware.register_bus import AXI_PREFIX
-from .register_bus import BUS_INPUTS, BUS_OUTPUTS, CHECKED_WHILE, bus_ports
+from .side import side_ports
 from .stimulus import enable_column, write_columns
 from .templates import template_text
 
@@ -110,23 +109,23 @@ def _pad(expression, width):
 
 def stimulus_layout(ports):
     """The stimulus word's fields, low bits first: ``(port, width)`` for each feature, in_valid,
-    out_ready, then the weight write port's strobe, address and data (loadable weights) or the
-    AXI4-Lite port's inputs (:data:`~.register_bus.BUS_INPUTS`), then the clock enable (when
-    the design has one). ``ports``: the logical ports."""
+    out_ready, then the weight write port's strobe, address and data (loadable weights), the
+    side channel's inputs (:mod:`.side`: the AXI4-Lite port's, the learning ports'), then the
+    clock enable (when the design has one). ``ports``: the logical ports."""
     by_role = {port.internal: port for port in logical_ports(ports)}
     fields = [(port, port.width) for port in logical_ports(ports) if port.internal.startswith("x")]
     fields += [(by_role["in_valid"], 1), (by_role["out_ready"], 1)]
     fields += [(by_role[key], by_role[key].width) for key in
                ("weight_write", "weight_address", "weight_data") if key in by_role]
-    bus = bus_ports(logical_ports(ports))
-    fields += [(bus[name], bus[name].width) for name in BUS_INPUTS if bus]
+    channel, side = side_ports(logical_ports(ports))
+    fields += [(side[name], side[name].width) for name in channel.inputs] if channel else []
     return fields + ([(by_role["ce"], 1)] if "ce" in by_role else [])
 
 
 def expected_layout(ports, flag_checked):
     """The expected word's fields, low bits first: ``(label, port, width)`` for in_ready,
     out_valid, the decision, the out-of-range flag (``flag_checked``), each score, then the
-    AXI4-Lite port's outputs (:data:`~.register_bus.BUS_OUTPUTS`). When each counts:
+    side channel's outputs (:mod:`.side`). When each counts:
     :func:`field_conditions`."""
     ports = logical_ports(ports)
     by_role = {port.internal: port for port in ports}
@@ -137,20 +136,22 @@ def expected_layout(ports, flag_checked):
         fields.append(("range flag", by_role["out_of_range"], 1))
     fields += [(f"score {port.name}" if len(scores) > 1 else "score", port, port.width)
                for port in scores]
-    bus = bus_ports(ports)
-    return fields + [(f"axi {name}", bus[name], bus[name].width) for name in BUS_OUTPUTS
-                     if bus]
+    channel, side = side_ports(ports)
+    return fields + ([(f"{channel.label} {name}", side[name], side[name].width)
+                      for name in channel.outputs] if channel else [])
 
 
 def field_conditions(layout, flag_masks_results):
     """For each expected field, the label of the field whose expected 1 it counts under
     (None: every cycle): the results under out_valid (and, when a flag masks them, under the
-    flag expected low: ``"!range flag"``), an AXI4-Lite response's payload under its VALID."""
+    flag expected low: ``"!range flag"``), a side channel's output as the channel says (an
+    AXI4-Lite response's payload under its VALID)."""
+    channel, _ = side_ports([port for _, port, _ in layout])
     conditions = []
     for position, (label, port, _) in enumerate(layout):
-        if port.internal.startswith(AXI_PREFIX):
-            when = CHECKED_WHILE.get(port.internal[len(AXI_PREFIX):])
-            conditions.append(None if when is None else (f"axi {when}",))
+        if channel and port.internal.startswith(channel.prefix):
+            when = channel.checked_while.get(port.internal[len(channel.prefix):])
+            conditions.append(None if when is None else (f"{channel.label} {when}",))
         elif position < 2:
             conditions.append(None)
         elif flag_masks_results and label not in ("range flag",):
@@ -270,15 +271,16 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     writes = _write_ports(ports)
     if writes:
         columns += list(write_columns(stimulus))
-    bus = bus_ports(ports)
-    if bus:
-        columns += stimulus.bus.rows(BUS_INPUTS)
+    channel, side = side_ports(ports)
+    if channel:
+        columns += stimulus.bus.rows(channel.inputs)
     enable = [1] if any(port.internal == "ce" for port in ports) else []
     if enable:
         columns.append(enable_column(stimulus).astype(np.int64))
     write_text(folder / files.stimulus,
                _hex_lines(columns, features + [1, 1] + [w for _, w in writes]
-                          + [bus[name].width for name in BUS_INPUTS if bus] + enable))
+                          + [side[name].width for name in (channel.inputs if channel else ())]
+                          + enable))
     scores = _score_ports(ports)
     decision_bits = next(port.width for port in ports if port.internal == "y")
     index = np.maximum(stimulus.expect_out_index, 0)
@@ -293,9 +295,9 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     for unit, (_, width) in enumerate(scores):
         columns.append(np.where(valid, expect[index, unit], 0))
         widths.append(width)
-    if bus:
-        columns += stimulus.bus.shown(BUS_OUTPUTS)
-        widths += [bus[name].width for name in BUS_OUTPUTS]
+    if channel:
+        columns += stimulus.bus.shown(channel.outputs)
+        widths += [side[name].width for name in channel.outputs]
     write_text(folder / files.expected, _hex_lines(columns, widths))
     if verilog_name is not None:
         write_text(folder / files.testbench,
@@ -366,14 +368,15 @@ def read_responses(path, ports, stimulus, simulator):
         if len(scores_ports) == 1 and not any(port.internal.startswith("score0")
                                               for port in ports):
             scores = scores[:, 0]
-    bus = bus_ports(ports)
-    if bus:
+    channel, _ = side_ports(ports)
+    bus = None
+    if channel:
         first = first_score + len(scores_ports)
         # An unknown bit makes the value None (never a match).
         bus = {name: np.array([_decode_unsigned(row[first + k]) for row in rows],
-                              dtype=object) for k, name in enumerate(BUS_OUTPUTS)}
+                              dtype=object) for k, name in enumerate(channel.outputs)}
     return SimulationResult(simulator, in_ready, out_valid, decisions, scores, flags=flags,
-                            bus=bus or None)
+                            bus=bus)
 
 
 def _decode_unsigned(text):

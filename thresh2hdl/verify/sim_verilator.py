@@ -21,7 +21,7 @@ import numpy as np
 from ..errors import ToolError
 from ..tools import find_tool, run, tool_version, which_tool
 from .backend import SimulationResult, VerilogBackend
-from .register_bus import BUS_INPUTS, BUS_OUTPUTS, bus_ports
+from .side import side_ports
 from .stimulus import enable_column, write_columns
 from .templates import template_text
 
@@ -119,12 +119,12 @@ def wrapper_text(ports, module):
 
 
 def control_words(ports):
-    """int32 words per cycle in the control file: 3, then 4 more with a weight write port or
-    one per input of the AXI4-Lite weight port."""
+    """int32 words per cycle in the control file: 3, then 4 more with a weight write port,
+    then one per input of the side channel (the AXI4-Lite port, the learning ports)."""
     ports = getattr(ports, "logical", ports)
-    if bus_ports(ports):
-        return 3 + len(BUS_INPUTS)
-    return 7 if any(port.internal == "weight_write" for port in ports) else 3
+    channel, _ = side_ports(ports)
+    writes = 4 if any(port.internal == "weight_write" for port in ports) else 0
+    return 3 + writes + (len(channel.inputs) if channel else 0)
 
 
 def harness_text(ports, module):
@@ -156,11 +156,12 @@ def harness_text(ports, module):
                   f"        top.{by_role['weight_address'][0]} = static_cast<uint32_t>(c[4]);",
                   f"        top.{data_name} = ((static_cast<uint64_t>(static_cast<uint32_t>(c[6]))"
                   f" << 32) | static_cast<uint32_t>(c[5])) & 0x{mask:x}ull;"]
-    bus = bus_ports(ports)
-    set_bus = [f"        top.{bus[name].name} = static_cast<uint32_t>(c[{3 + k}]);"
-               for k, name in enumerate(BUS_INPUTS) if bus]
-    bus_reads = [f"        bus[t * kBus + {k}] = static_cast<uint32_t>(top.{bus[name].name});"
-                 for k, name in enumerate(BUS_OUTPUTS) if bus]
+    channel, side = side_ports(ports)
+    first = 3 + (4 if writes else 0)
+    set_bus = [f"        top.{side[name].name} = static_cast<uint32_t>(c[{first + k}]);"
+               for k, name in enumerate(channel.inputs)] if channel else []
+    bus_reads = [f"        bus[t * kBus + {k}] = static_cast<uint32_t>(top.{side[name].name});"
+                 for k, name in enumerate(channel.outputs)] if channel else []
     reads = "\n".join(f"        scores[t * kScores + {k}] = static_cast<int64_t>(top.{name});"
                       for k, name in enumerate(scores))
     values = {"MODULE": wrapper_name(module), "WRAPPER": wrapper_name(module),
@@ -173,7 +174,7 @@ def harness_text(ports, module):
               "SCORE_READS": reads, "SCORE_PORTS": str(len(scores)),
               "SET_WRITES": "\n".join(writes), "SET_ENABLE": enable,
               "SET_BUS": "\n".join(set_bus), "BUS_READS": "\n".join(bus_reads),
-              "BUS_INPUTS": str(len(BUS_INPUTS)), "BUS_OUTPUTS": str(len(bus_reads)), "CONTROL_WORDS": str(control_words(ports))}
+              "BUS_INPUTS": str(len(set_bus)), "BUS_OUTPUTS": str(len(bus_reads)), "CONTROL_WORDS": str(control_words(ports))}
     text = template_text("verilator_harness.cpp.in")
     for key, value in values.items():
         text = text.replace(f"@{key}@", value)
@@ -246,11 +247,14 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
     control[:, 0] = stimulus.in_valid | (enable_column(stimulus).astype(np.int32) << 1)
     control[:, 1] = stimulus.out_ready
     control[:, 2] = stimulus.in_index
-    bus = bus_ports(ports)
-    if bus:
-        for k, column in enumerate(stimulus.bus.rows(BUS_INPUTS)):
-            control[:, 3 + k] = np.asarray(column, dtype=np.int64).astype(np.uint32).view(np.int32)
-    elif control.shape[1] > 3:
+    channel, _ = side_ports(ports)
+    writes = any(port.internal == "weight_write" for port in ports)
+    if channel:
+        first = 7 if writes else 3
+        for k, column in enumerate(stimulus.bus.rows(channel.inputs)):
+            control[:, first + k] = \
+                np.asarray(column, dtype=np.int64).astype(np.uint32).view(np.int32)
+    if writes:
         data_width = next(port.width for port in ports if port.internal == "weight_data")
         if data_width > 64:
             raise ToolError(f"the Verilator harness writes weights of up to 64 bits, this "
@@ -289,13 +293,14 @@ def simulate_verilator(verilog_text, ports, module, stimulus, *, progress=None):
         if not any(port.internal == "score0" for port in ports):
             scores = scores[:, 0]
     has_flag = any(port.internal == "out_of_range" for port in ports)
-    if bus:
-        bus_words = bus_words.reshape(stimulus.cycles, len(BUS_OUTPUTS))
-        bus = {name: bus_words[:, k] for k, name in enumerate(BUS_OUTPUTS)}
+    bus = None
+    if channel:
+        bus_words = bus_words.reshape(stimulus.cycles, len(channel.outputs))
+        bus = {name: bus_words[:, k] for k, name in enumerate(channel.outputs)}
     return SimulationResult("verilator", (flags & 1).astype(bool), (flags & 2).astype(bool),
                             ((flags >> 2) & 0x1FFF).astype(np.int64), scores, run_seconds,
                             flags=(flags >> 15).astype(bool) if has_flag else None,
-                            bus=bus or None)
+                            bus=bus)
 
 
 class VerilatorBackend(VerilogBackend):

@@ -1,0 +1,110 @@
+"""On-chip learning: the perceptron rule on the loadable weights' registers, in the fabric.
+
+A labelled sample is an input like any other, marked by ``learn_enable`` with its target
+bit(s) on ``learn_target``; it is classified with the registers as they are when it enters.
+Its marks and each feature's step ``eta x`` (a shift) ride the pipeline beside it, and in the
+cycle its result leaves (``out_valid & out_ready``) every unit whose own decision
+(``score > 0``) differs from its target bit moves its weights by the steps and its bias by
+``bias_step``, towards the target, each sum clamped to the register's declared range. A write
+through the weight port in the same cycle wins. ``learn_read_address`` / ``learn_read_data``
+read any register back (past the last, 0), combinationally. The host-side model of all this
+is :mod:`thresh2hdl.train.on_chip`; the cycle-exact one, :mod:`thresh2hdl.verify.learning`.
+"""
+
+from amaranth.hdl import Mux, Shape, Signal, signed
+from amaranth.lib.wiring import In, Out
+
+from ..names import GUARD_FLAG
+from .register_bus import index_known, selected
+
+__all__ = ["learning_members", "build_learning", "entry_bias", "LEARN_PREFIX", "LEARN_INPUTS",
+           "LEARN_OUTPUTS"]
+
+LEARN_PREFIX = "learn_"
+LEARN_INPUTS = ("enable", "target", "read_address")
+LEARN_OUTPUTS = ("read_data",)
+
+
+def learning_members(config, addresses):
+    """The learning ports' signature members (none without on-chip learning)."""
+    if not config.on_chip_learning:
+        return {}
+    return {LEARN_PREFIX + "enable": In(1),
+            LEARN_PREFIX + "target": In(len(config.model.units)),
+            LEARN_PREFIX + "read_address": In(range(addresses)),
+            LEARN_PREFIX + "read_data": Out(signed(max(config.weight_bits, config.bias_bits)))}
+
+
+def entry_bias(stages, config, bias):
+    """The bias as the tree should add it: with on-chip learning, the register as the vector
+    entered (carried beside it, as the products take the weights when it enters), so that
+    every vector meets one set of registers; else the register itself."""
+    if not config.on_chip_learning:
+        return bias
+    name = f"{bias.name}_entered"
+    stages.put(name, bias, 0)
+    return name
+
+
+def _port(component, name):
+    return getattr(component, LEARN_PREFIX + name)
+
+
+def _saturated(m, register, step, sign_up, name):
+    """``register + step`` (``sign_up``) or ``register - step``, clamped to the register's
+    range: one adder a bit wider than both, and the two limits."""
+    width = max(len(register), len(step) + (not step.shape().signed)) + 1
+    total = Signal(signed(width), name=f"{name}_next")
+    m.d.comb += total.eq(Mux(sign_up, register + step, register - step))
+    lo, hi = -(1 << (len(register) - 1)), (1 << (len(register) - 1)) - 1
+    return Mux(total > hi, hi, Mux(total < lo, lo, total))
+
+
+def build_learning(m, component, stages, store, features, decisions):
+    """The update path and the read port. ``features``: the codes the arithmetic sees (after
+    the input guard); ``decisions``: per unit, the stage name of its own decision bit (made
+    where its score is; carried here to the last stage). The write port is connected after
+    the updates, so that a write in the same cycle wins."""
+    config = component.config
+    rule = config.learning_rule
+    latency = component.latency
+    stages.put("learn_enable_s", _port(component, "enable"), 0)
+    stages.put("learn_target_s", _port(component, "target"), 0)
+    steps = []
+    for index, feature in enumerate(features):
+        step = Signal(_step_shape(feature, rule.shift), name=f"learn_step{index}")
+        m.d.comb += step.eq(feature << rule.shift if rule.shift >= 0 else
+                            feature >> -rule.shift)
+        stages.put(step.name, step, 0)
+        steps.append(stages.at(step.name, latency))
+    fire = Signal(name="learn_fire")
+    enabled = stages.at("learn_enable_s", latency)
+    if config.range_flag:
+        # A sample with a code outside the declared ranges teaches nothing.
+        enabled = enabled & ~stages.at(GUARD_FLAG, latency)
+    m.d.comb += fire.eq(component.out_valid & component.out_ready & enabled)
+    targets = stages.at("learn_target_s", latency)
+    bias_step = Signal(range(rule.bias_step + 1), name="learn_bias_step", init=rule.bias_step)
+    m.d.comb += bias_step.eq(rule.bias_step)
+    for unit, (row, bias) in enumerate(zip(store.weights, store.biases)):
+        target = targets[unit]
+        wrong = Signal(name=f"learn_wrong{unit}")
+        m.d.comb += wrong.eq(stages.at(decisions[unit], latency) != target)
+        with m.If(fire & wrong):
+            for register, step in zip(row, steps):
+                m.d.sync += register.eq(_saturated(m, register, step, target, register.name))
+            m.d.sync += bias.eq(_saturated(m, bias, bias_step, target, bias.name))
+    store.connect_port(m, component)
+    _read_port(m, component, store.registers)
+
+
+def _step_shape(feature, shift):
+    """``x << shift`` / ``x >> -shift`` of ``feature``'s shape: its width moved by the shift."""
+    shape = feature.shape()
+    return Shape(max(1, shape.width + shift), shape.signed)
+
+
+def _read_port(m, component, registers):
+    address = _port(component, "read_address")
+    m.d.comb += _port(component, "read_data").eq(
+        Mux(index_known(address, len(registers)), selected(registers, address), 0))

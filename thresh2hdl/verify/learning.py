@@ -1,0 +1,120 @@
+"""On-chip learning in the vectors: labelled inputs among the others, the registers read back
+every cycle, and what the hardware must answer, cycle by cycle.
+
+:func:`with_learning` marks about half of a stimulus's vectors as labelled samples with
+random target bits (a random target is wrong about half the time, so the registers move, and
+reach their limits, often), drives a random read-back address every cycle, and replaces the
+expectations by those of :func:`learning_trace`: the cycle-exact model of
+:mod:`thresh2hdl.hardware.learning`, built on the rule of :mod:`thresh2hdl.train.on_chip`.
+Every simulator then checks each result against the weights its vector met and every
+register, every cycle, against the model's.
+"""
+
+from dataclasses import replace
+
+import numpy as np
+
+from ..hardware.weights import register_file
+from .side import LEARNING, SideRun
+from .stimulus import write_columns
+
+__all__ = ["with_learning", "learning_trace", "LABELLED_SHARE"]
+
+LABELLED_SHARE = 0.5
+
+
+def _signed(value, width):
+    value = int(value) & ((1 << width) - 1)
+    return value - (1 << width) if value >> (width - 1) else value
+
+
+def learning_trace(stimulus, config, labelled, targets, addresses):
+    """Replay ``stimulus``'s cycles through the registers: returns ``(scores, decisions,
+    read_data)``: each vector's scores with the registers as they were when it entered, its
+    decision, and each cycle's read-back (the port's bits, unsigned).
+
+    In a cycle, the read-back and an entering vector see the registers as they are; then the
+    vector leaving (``out_valid & out_ready``), if labelled and not flagged out of range,
+    updates every unit whose own decision (score > 0) differs from its target bit; then a
+    write through the port lands, winning over the update."""
+    rule, model = config.learning_rule, config.model
+    guard = config.guard
+    vectors = np.asarray(stimulus.vectors, dtype=np.int64)
+    codes = replace(guard, clamp=True).apply(vectors) if guard.needed else vectors
+    flagged = guard.outside(vectors) if guard.flag else np.zeros(len(vectors), dtype=bool)
+    units, features = len(model.units), len(model.features)
+    widths, values = register_file(config)
+    # int64 is exact while no score can pass 2^62; past that, Python integers.
+    widest = max(max(abs(lo), abs(hi)) for lo, hi in config.guard.feature_ranges) \
+        if features else 0
+    exact = features * (1 << (config.weight_bits - 1)) * widest + \
+        (1 << (config.bias_bits - 1)) < 1 << 62
+    kind = np.int64 if exact else object
+    w = np.array(values, dtype=object).reshape(units, features + 1)
+    weights, biases = w[:, :features].astype(kind), w[:, features].astype(kind)
+    codes = codes.astype(kind)
+    scores = np.zeros((len(vectors), units), dtype=kind)
+    entering = np.where(stimulus.in_valid & stimulus.expect_in_ready, stimulus.in_index, -1)
+    leaving = np.where(stimulus.expect_out_valid & stimulus.out_ready,
+                       stimulus.expect_out_index, -1)
+    strobes, write_addresses, data = write_columns(stimulus)
+    read_width = max(widths)
+    read_data = np.zeros(stimulus.cycles, dtype=np.int64)
+    count = len(widths)
+    for cycle in range(stimulus.cycles):
+        address = int(addresses[cycle])
+        if address < count:
+            unit, index = divmod(address, features + 1)
+            value = weights[unit, index] if index < features else biases[unit]
+            read_data[cycle] = int(value) & ((1 << read_width) - 1)
+        vector = entering[cycle]
+        if vector >= 0:
+            scores[vector] = weights @ codes[vector] + biases
+        vector = leaving[cycle]
+        if vector >= 0 and labelled[vector] and not flagged[vector]:
+            steps = rule.steps(codes[vector].astype(np.int64))
+            for unit in range(units):
+                target = (int(targets[vector]) >> unit) & 1
+                if (scores[vector, unit] > 0) != bool(target):
+                    row, bias = rule.update(weights[unit], biases[unit], steps,
+                                            1 if target else -1)
+                    weights[unit], biases[unit] = row, bias
+        if strobes[cycle] and int(write_addresses[cycle]) < count:
+            address = int(write_addresses[cycle])
+            unit, index = divmod(address, features + 1)
+            value = _signed(data[cycle], widths[address])
+            if index < features:
+                weights[unit, index] = value
+            else:
+                biases[unit] = value
+    if model.is_bank:
+        decisions = np.array([max(range(units), key=lambda u: (row[u], -u)) for row in scores],
+                             dtype=np.int64)
+        return scores, decisions, read_data
+    return scores[:, 0], (scores[:, 0] > 0).astype(np.uint8), read_data
+
+
+def with_learning(stimulus, config, seed, *, labelled=None, targets=None):
+    """``stimulus`` with labelled vectors (``labelled``/``targets`` given, or drawn: about
+    :data:`LABELLED_SHARE` of them, random target bits), a random read-back address every
+    cycle, and the expectations of :func:`learning_trace`."""
+    rng = np.random.default_rng([11, *np.atleast_1d(seed).tolist()])
+    count, units = len(stimulus.vectors), len(config.model.units)
+    if labelled is None:
+        labelled = rng.random(count) < LABELLED_SHARE
+    if targets is None:
+        targets = rng.integers(0, 1 << units, count)
+    labelled = np.asarray(labelled, dtype=bool)
+    targets = np.asarray(targets, dtype=np.int64)
+    registers = len(register_file(config)[0])
+    address_bits = max(1, (registers - 1).bit_length())
+    addresses = rng.integers(0, 1 << address_bits, stimulus.cycles)
+    scores, decisions, read_data = learning_trace(stimulus, config, labelled, targets,
+                                                  addresses)
+    presented = np.clip(stimulus.in_index // stimulus.beats, 0, max(count - 1, 0))
+    shown = presented if count else np.zeros(stimulus.cycles, dtype=np.int64)
+    inputs = {"enable": labelled[shown].astype(np.int64) if count else shown,
+              "target": targets[shown] if count else shown,
+              "read_address": addresses.astype(np.int64)}
+    run = SideRun(LEARNING, inputs, {"read_data": read_data})
+    return replace(stimulus, expect_scores=scores, expect_decisions=decisions, bus=run)
