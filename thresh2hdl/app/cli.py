@@ -20,6 +20,7 @@ from .building import build, demo_model
 from .checking import check
 from .estimating import estimate_folder
 from .fit import fit_csv, quantize_npz
+from .fit_fabric import fit_in_fabric
 from .options import SIMULATORS, BuildOptions, build_flags
 from .progress import Progress
 from .proving import prove
@@ -220,10 +221,26 @@ _DIGIT_BUDGET_HELP = ("At most N nonzero canonical signed digits over all the we
 @click.option("--digit-budget", type=int, default=None, help=_DIGIT_BUDGET_HELP)
 @click.option("--module", "module_name", default="thresh_unit", show_default=True)
 @click.option("--force", is_flag=True, help="Replace existing output files.")
+@click.option("--in-fabric", "start_file", type=click.Path(), default=None,
+              help="Learn as a unit built from START_FILE with --on-chip-learning does: rows in "
+              "file order, saturating registers (--weight-bits, --bias-bits), the same "
+              "--learning-rate and --bias-step.")
+@click.option("--learning-rate", default="1", show_default=True, help="With --in-fabric.")
+@click.option("--bias-bits", type=int, default=None, help="With --in-fabric.")
+@click.option("--bias-step", type=int, default=None, help="With --in-fabric.")
+@click.option("--latency", type=int, default=1, show_default=True,
+              help="With --in-fabric: the build's latency_cycles.")
 def fit_command(data_file, out_path, label, input_bits, signed, formats_file, rule, keep, epochs,
                 all_epochs, no_shuffle, seed, holdout, weight_bits, max_digits, digit_budget,
-                module_name, force):
+                module_name, force, start_file, learning_rate, bias_bits, bias_step, latency):
     """Train integer threshold units on raw codes in DATA_FILE (CSV with a header)."""
+    if start_file is not None:
+        for line in fit_in_fabric(data_file, out_path, start_file, label=label,
+                                  learning_rate=learning_rate, weight_bits=weight_bits,
+                                  bias_bits=bias_bits, bias_step=bias_step, latency=latency,
+                                  epochs=epochs, until_clean=not all_epochs, force=force)[3]:
+            click.echo(line)
+        return
     budget = {"weight_bits": None, "max_weight_bits": None} if weight_bits == "full" else \
         {"weight_bits": weight_bits}
     options = FitOptions(rule=rule, keep=keep or "pocket", epochs=epochs,

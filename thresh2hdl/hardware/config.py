@@ -117,7 +117,7 @@ class UnitConfig:
                              f"need {needed} bits, more than the {most} a loadable register "
                              f"may have", field=key)
         if value is None:
-            value = needed
+            value = max(needed, 2) if self.on_chip_learning else needed  # room to move
             object.__setattr__(self, key, value)
         if not _is_int(value) or not 1 <= value <= most:
             raise InputError(f"must be an integer from 1 to {most}, not {value!r}", field=key)

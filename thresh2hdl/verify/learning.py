@@ -30,8 +30,9 @@ def _signed(value, width):
 
 def learning_trace(stimulus, config, labelled, targets, addresses):
     """Replay ``stimulus``'s cycles through the registers: returns ``(scores, decisions,
-    read_data)``: each vector's scores with the registers as they were when it entered, its
-    decision, and each cycle's read-back (the port's bits, unsigned).
+    read_data, final)``: each vector's scores with the registers as they were when it
+    entered, its decision, each cycle's read-back (the port's bits, unsigned), and the
+    registers after the last cycle (weights per unit, biases).
 
     In a cycle, the read-back and an entering vector see the registers as they are; then the
     vector leaving (``out_valid & out_ready``), if labelled and not flagged out of range,
@@ -87,11 +88,12 @@ def learning_trace(stimulus, config, labelled, targets, addresses):
                 weights[unit, index] = value
             else:
                 biases[unit] = value
+    final = ([[int(v) for v in row] for row in weights], [int(v) for v in biases])
     if model.is_bank:
         decisions = np.array([max(range(units), key=lambda u: (row[u], -u)) for row in scores],
                              dtype=np.int64)
-        return scores, decisions, read_data
-    return scores[:, 0], (scores[:, 0] > 0).astype(np.uint8), read_data
+        return scores, decisions, read_data, final
+    return scores[:, 0], (scores[:, 0] > 0).astype(np.uint8), read_data, final
 
 
 def with_learning(stimulus, config, seed, *, labelled=None, targets=None):
@@ -109,8 +111,8 @@ def with_learning(stimulus, config, seed, *, labelled=None, targets=None):
     registers = len(register_file(config)[0])
     address_bits = max(1, (registers - 1).bit_length())
     addresses = rng.integers(0, 1 << address_bits, stimulus.cycles)
-    scores, decisions, read_data = learning_trace(stimulus, config, labelled, targets,
-                                                  addresses)
+    scores, decisions, read_data, _ = learning_trace(stimulus, config, labelled, targets,
+                                                     addresses)
     presented = np.clip(stimulus.in_index // stimulus.beats, 0, max(count - 1, 0))
     shown = presented if count else np.zeros(stimulus.cycles, dtype=np.int64)
     inputs = {"enable": labelled[shown].astype(np.int64) if count else shown,

@@ -1,0 +1,84 @@
+"""On-chip learning from the command line: a demo build, its exported testbench, the host's
+prediction with ``fit --in-fabric``, and bad input in one line."""
+
+import json
+
+import pytest
+
+from helpers import assert_one_line_error, exported_testbench, require_tool, run, write_csv
+from thresh2hdl.model import load_model
+
+LEARNING = ("--on-chip-learning", "--learning-rate", "1/64", "--weight-bits", "6",
+            "--bias-bits", "20")
+
+
+@pytest.fixture(scope="module")
+def learning_folder(tmp_path_factory):
+    out = tmp_path_factory.mktemp("learning") / "out"
+    result = run("demo", "--out", out, "--simulator", "icarus", "--vectors", "300",
+                 "--pipeline", "2", *LEARNING)
+    assert result.returncode == 0, result.stderr
+    return out
+
+
+@pytest.mark.icarus
+def test_the_demo_builds_with_learning_and_its_testbench_checks_the_read_back(learning_folder,
+                                                                             tmp_path):
+    # Outside reference: Icarus Verilog (11 here) runs the exported testbench and its files.
+    require_tool("iverilog", "vvp")
+    report = json.loads((learning_folder / "report.json").read_text())
+    assert report["mismatches"] == 0 and report["on_chip_learning"]["delay_cycles"] == 2
+    assert report["on_chip_learning"]["learning_rate"] == "1/64"
+    assert "learning_rate" in json.loads((learning_folder / "build_settings.json").read_text())
+    folder, run_testbench = exported_testbench(learning_folder, tmp_path)
+    assert "PASS" in run_testbench().stdout
+    # A mutant: the update never clamps at the top (the high limit compared with a bound
+    # no sum reaches), so a weight pushed past 31 wraps; the testbench's read-back sees it.
+    path = folder / "pump_fault.v"
+    text = path.read_text()
+    assert text.count("> $signed(8'd31)") >= 5       # the top limit of the 6-bit weights
+    path.write_text(text.replace("> $signed(8'd31)", "> $signed(8'd63)"))
+    assert "FAIL" in run_testbench().stdout
+
+
+def test_fit_in_fabric_predicts_the_registers_and_refuses_a_label_the_model_lacks(tmp_path):
+    rows = [[a, b] for a in range(0, 16, 3) for b in range(0, 16, 5)]
+    data = tmp_path / "rows.csv"
+    write_csv(data, ["f0", "f1", "label"], [[a, b, int(a > b)] for a, b in rows])
+    start = tmp_path / "start.toml"
+    start.write_text('model_format = 1\n[module]\nname = "u"\n[[feature]]\nname = "f0"\n'
+                     'bits = 4\n[[feature]]\nname = "f1"\nbits = 4\n[[unit]]\nname = "u"\n'
+                     'weights = [0, 0]\nbias = 0\n')
+    out = tmp_path / "learned.toml"
+    result = run("fit", data, "--out", out, "--in-fabric", start, "--learning-rate", "2",
+                 "--weight-bits", "8", "--bias-bits", "8", "--bias-step", "2", "--latency",
+                 "0", "--epochs", "50")
+    assert result.returncode == 0, result.stderr
+    learned = load_model(out).unit
+    # The rule by hand: w += 2 (t - y) x, b += 2 (t - y), rows in file order.
+    w, b = [0, 0], 0
+    for _ in range(json.loads((tmp_path / "learned.fit.json").read_text())["epochs_run"][0]):
+        for (a, c) in rows:
+            y, t = int(w[0] * a + w[1] * c + b > 0), int(a > c)
+            w = [max(-128, min(127, w[0] + 2 * (t - y) * a)),
+                 max(-128, min(127, w[1] + 2 * (t - y) * c))]
+            b = max(-128, min(127, b + 2 * (t - y)))
+    assert list(learned.weights) == w and learned.bias == b
+    write_csv(data, ["f0", "f1", "label"], [[1, 2, 0], [3, 4, 2]])
+    assert_one_line_error(run("fit", data, "--out", tmp_path / "x.toml", "--in-fabric", start),
+                          contains="label 2")
+
+
+@pytest.mark.parametrize("args, contains", [
+    (("--on-chip-learning", "--learning-rate", "3"), "--learning-rate"),
+    (("--on-chip-learning", "--learning-rate", "1/3"), "power of two"),
+    (("--on-chip-learning", "--weight-bits", "3"), "--weight-bits"),
+    (("--on-chip-learning", "--arch", "serial"), "--on-chip-learning"),
+    (("--learning-rate", "1/2"), "--learning-rate"),
+    (("--on-chip-learning", "--bias-step", "0"), "--bias-step"),
+])
+def test_bad_learning_requests_fail_in_one_line(tmp_path, args, contains):
+    result = run("demo", "--out", tmp_path / "out", "--simulator", "amaranth", "--vectors",
+                 "100", *args)
+    assert_one_line_error(result, contains=contains)
+    assert not (tmp_path / "out").exists()
