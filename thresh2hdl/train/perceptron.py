@@ -221,7 +221,9 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
     centre = np.array([(f.min + f.max) // 2 for f in formats], dtype=np.int64) \
         if options.centre else np.zeros(len(formats), dtype=np.int64)
     scale = options.bias_input or max(1, max((f.max - f.min + 1) // 2 for f in formats))
-    a = np.hstack([x - centre, np.full((len(x), 1), scale, dtype=np.int64)])
+    a = np.empty((len(x), x.shape[1] + 1), dtype=np.int64)
+    np.subtract(x, centre, out=a[:, :-1])
+    a[:, -1] = scale
 
     unit_classes = [classes[1]] if len(classes) == 2 else list(classes)
     weights, biases = [], []
@@ -283,13 +285,15 @@ def _checked_formats(dataset, formats, log):
 
 
 def _holdout_split(dataset, options):
-    """Row indices to train on and to hold out (``options.holdout`` of the rows, at random)."""
+    """Rows to train on and row indices to hold out (``options.holdout`` of the rows, at
+    random). Without a holdout, every row as a slice: the arrays' views, not copies."""
     count = len(dataset.labels)
-    rng = np.random.default_rng(options.seed)
-    order = rng.permutation(count) if options.holdout else np.arange(count)
+    if not options.holdout:
+        return slice(None), np.arange(0)
+    order = np.random.default_rng(options.seed).permutation(count)
     held = int(round(options.holdout * count))
     train_idx, held_idx = order[: count - held], order[count - held:]
-    if options.holdout and (held == 0 or len(train_idx) == 0):
+    if held == 0 or len(train_idx) == 0:
         raise InputError("the held-out split leaves no rows on one side; use more data or "
                          "another --holdout", source=dataset.source)
     return train_idx, held_idx
