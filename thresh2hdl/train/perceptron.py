@@ -17,6 +17,7 @@ from ..errors import InputError
 from ..names import check_identifier
 from .budget import check_digit_budget
 from .digits import check_max_digits, digits_per_unit
+from .kernel import epoch_walker
 from .quantize import to_integer_weights
 
 __all__ = ["FitOptions", "FitLog", "train_unit", "fit", "choice_lines", "weight_width", "RULES",
@@ -130,50 +131,25 @@ def train_unit(a, target, options, rng):
     Returns the kept weights (int64, same length as a row), the mistakes of each epoch, and
     for ``keep="averaged"`` the exact mean weights (floats) before rounding, else None.
 
-    The rule visits rows one at a time, but rows before the next mistake leave the weights
-    unchanged, so their scores are computed a block at a time with the current weights and
-    the walk jumps to the first mistake in the block. The result is the same, step for step,
-    as the one-row loop (tests compare it with a literal loop and with scikit-learn).
+    Each epoch's row order comes from ``rng`` here; the walk through the rows is
+    :func:`~thresh2hdl.train.kernel.walk_epoch`, compiled (tests compare it, compiled and not,
+    with a literal one-row loop and with scikit-learn).
     """
     a = np.ascontiguousarray(a, dtype=np.int64)
-    target = np.asarray(target).astype(bool)
+    target = np.ascontiguousarray(target, dtype=bool)
     n, d = a.shape
     w = np.zeros(d, dtype=np.int64)
     sign = np.where(target, 1, -1).astype(np.int64)
-    total = np.zeros(d, dtype=np.int64) if options.keep == "averaged" else None
+    total = np.zeros(d, dtype=np.int64)
     steps = 0
     best, best_correct = w.copy(), -1
     mistakes_log = []
-    classic = options.rule == "classic"
+    walk = epoch_walker()
+    in_file_order = np.arange(n, dtype=np.int64)
     for _ in range(options.epochs):
-        order = rng.permutation(n) if options.shuffle else np.arange(n)
-        rows, signs, targets = a[order], sign[order], target[order]
-        mistakes = 0
-        position = 0
-        block = 16
-        while position < n:
-            stop = min(n, position + block)
-            z = rows[position:stop] @ w
-            if classic:
-                wrong = (z > 0) != targets[position:stop]
-            else:
-                wrong = signs[position:stop] * z <= 0
-            hits = np.flatnonzero(wrong)
-            if len(hits) == 0:
-                if total is not None:
-                    total += (stop - position) * w
-                position = stop
-                block = min(block * 2, 4096)
-                continue
-            first = position + int(hits[0])
-            if total is not None:
-                total += (first - position) * w     # rows before the mistake, unchanged w
-            w += signs[first] * rows[first]
-            if total is not None:
-                total += w                          # the mistake's own step, after updating
-            mistakes += 1
-            position = first + 1
-            block = max(8, block // 2)
+        order = rng.permutation(n).astype(np.int64, copy=False) if options.shuffle else in_file_order
+        mistakes = int(walk(a, order, sign, target, w, total, options.rule == "classic",
+                            options.keep == "averaged"))
         steps += n
         mistakes_log.append(mistakes)
         if options.keep == "pocket":
@@ -245,7 +221,9 @@ def fit(dataset, *, formats=None, options=FitOptions(), module="thresh_unit"):
     centre = np.array([(f.min + f.max) // 2 for f in formats], dtype=np.int64) \
         if options.centre else np.zeros(len(formats), dtype=np.int64)
     scale = options.bias_input or max(1, max((f.max - f.min + 1) // 2 for f in formats))
-    a = np.hstack([x - centre, np.full((len(x), 1), scale, dtype=np.int64)])
+    a = np.empty((len(x), x.shape[1] + 1), dtype=np.int64)
+    np.subtract(x, centre, out=a[:, :-1])
+    a[:, -1] = scale
 
     unit_classes = [classes[1]] if len(classes) == 2 else list(classes)
     weights, biases = [], []
@@ -307,13 +285,15 @@ def _checked_formats(dataset, formats, log):
 
 
 def _holdout_split(dataset, options):
-    """Row indices to train on and to hold out (``options.holdout`` of the rows, at random)."""
+    """Rows to train on and row indices to hold out (``options.holdout`` of the rows, at
+    random). Without a holdout, every row as a slice: the arrays' views, not copies."""
     count = len(dataset.labels)
-    rng = np.random.default_rng(options.seed)
-    order = rng.permutation(count) if options.holdout else np.arange(count)
+    if not options.holdout:
+        return slice(None), np.arange(0)
+    order = np.random.default_rng(options.seed).permutation(count)
     held = int(round(options.holdout * count))
     train_idx, held_idx = order[: count - held], order[count - held:]
-    if options.holdout and (held == 0 or len(train_idx) == 0):
+    if held == 0 or len(train_idx) == 0:
         raise InputError("the held-out split leaves no rows on one side; use more data or "
                          "another --holdout", source=dataset.source)
     return train_idx, held_idx
