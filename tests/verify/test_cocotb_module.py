@@ -26,6 +26,8 @@ FORMS = {   # name: (model, build options): each branch of the layout and the ti
                                       "clock_enable": True}),
     "stream": (demo_model, {"interface": "axi-stream"}),
     "axi4-lite": (demo_model, {"loadable_weights": True, "weight_port": "axi4-lite"}),
+    "learning": (demo_model, {"on_chip_learning": True, "learning_rate": "1/64",
+                              "weight_bits": 6, "bias_bits": 20, "pipeline": 2}),
 }
 PLAIN_FORMS = sorted(set(FORMS) - {"stream"})
 
@@ -177,10 +179,11 @@ def test_the_demo_folder_passes_in_cocotb_and_a_corrupted_word_fails(tmp_path):
 
 @pytest.mark.icarus
 @pytest.mark.parametrize("form", ["loadable", "flag-only-combinational", "serial", "bank",
-                                  "async-low-enable"])
+                                  "async-low-enable", "learning"])
 def test_every_design_form_passes_in_cocotb(tmp_path, form):
     # Outside reference: cocotb 2.1 and Icarus Verilog 11, as above; these forms add the
-    # weight write port, a design without clock or reset, beats, and several scores.
+    # weight write port, a design without clock or reset, beats, several scores, and the
+    # learning ports (labelled inputs, every register read back every cycle).
     folder, module = built(form, tmp_path / "out", vectors=300)
     result = run_module(folder, module, tmp_path / "run")
     output = result.stdout + result.stderr

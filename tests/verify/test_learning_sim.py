@@ -191,3 +191,45 @@ def test_the_drift_example_recovers_its_accuracy_as_the_readme_says():
     assert accuracy(start, drifted, drifted_labels) == 0.8755
     assert accuracy(learned, drifted, drifted_labels) == 0.9935
     assert log.mistakes_per_epoch == [38]
+
+
+def test_a_separable_set_is_learned_in_as_many_epochs_as_fit_takes():
+    # Epochs fed back to back, each followed by an idle pipeline (as fit --in-fabric ends
+    # each epoch drained), in the Amaranth simulation: the registers equal fit_on_chip's
+    # after the same epochs, and the last epoch's decisions all equal their targets.
+    from thresh2hdl.verify.reference import cycle_model
+    from thresh2hdl.verify.stimulus import Stimulus
+    rng = np.random.default_rng(3)
+    rows = rng.integers(0, 64, (80, 3))
+    hidden = rows @ np.array([2, -3, 1]) + 20
+    keep = np.abs(hidden) > 12
+    rows, labels = rows[keep], (hidden[keep] > 0).astype(np.int64)
+    start = make_model([0, 0, 0], bias=0, bits=6)
+    config = UnitConfig(start, on_chip_learning=True, weight_bits=8, bias_bits=12,
+                        bias_step=64, pipeline=2)
+    component = make_component(config)
+    data = Dataset(x=rows, labels=labels, feature_names=("f0", "f1", "f2"), source="rows")
+    learned, log = fit_on_chip(data, start, config.learning_rule, epochs=50,
+                               delay=component.latency)
+    epochs, count = len(log.mistakes_per_epoch), len(rows)
+    assert log.mistakes_per_epoch[-1] == 0 and epochs > 2
+    period = count + component.latency + 1
+    trace = cycle_model(component.latency, count * epochs, offer=lambda t: t % period < count,
+                        accept=lambda t: True)
+    vectors = np.tile(rows, (epochs, 1))
+    zeros = np.zeros(len(vectors), dtype=np.int64)
+    stimulus = Stimulus(latency=component.latency, vectors=vectors,
+                        in_valid=trace["in_valid"], out_ready=trace["out_ready"],
+                        in_index=trace["in_index"], expect_in_ready=trace["in_ready"],
+                        expect_out_valid=trace["out_valid"],
+                        expect_out_index=trace["out_index"], expect_scores=zeros,
+                        expect_decisions=zeros.astype(np.uint8))
+    targets = np.tile(labels, epochs)
+    stimulus = with_learning(stimulus, config, 0, labelled=np.ones(len(vectors), bool),
+                             targets=targets)
+    checked = make_backend("amaranth", component=component).run(stimulus).check(stimulus)
+    assert checked.mismatch_count == 0
+    _, _, _, (weights, biases) = learning_trace(stimulus, config, np.ones(len(vectors), bool),
+                                                targets, stimulus.bus.inputs["read_address"])
+    assert weights == [list(learned.unit.weights)] and biases == [learned.unit.bias]
+    assert (stimulus.expect_decisions[-count:] == labels).all()

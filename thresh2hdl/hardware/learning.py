@@ -52,6 +52,34 @@ def _port(component, name):
 
 def _saturated(m, register, step, sign_up, name):
     """``register + step`` (``sign_up``) or ``register - step``, clamped to the register's
+    range: the step negated or not (a narrow adder), one adder a bit wider than both, and the
+    two limits."""
+    width = max(len(register), len(step) + (not step.shape().signed)) + 1
+    delta = Signal(signed(len(step) + 1), name=f"{name}_delta")
+    m.d.comb += delta.eq(Mux(sign_up, step, -step))
+    total = Signal(signed(width), name=f"{name}_next")
+    m.d.comb += total.eq(register + delta)
+    lo, hi = -(1 << (len(register) - 1)), (1 << (len(register) - 1)) - 1
+    return Mux(total > hi, hi, Mux(total < lo, lo, total))
+
+
+def entry_bias(stages, config, bias):
+    """The bias as the tree should add it: with on-chip learning, the register as the vector
+    entered (carried beside it, as the products take the weights when it enters), so that
+    every vector meets one set of registers; else the register itself."""
+    if not config.on_chip_learning:
+        return bias
+    name = f"{bias.name}_entered"
+    stages.put(name, bias, 0)
+    return name
+
+
+def _port(component, name):
+    return getattr(component, LEARN_PREFIX + name)
+
+
+def _saturated(m, register, step, sign_up, name):
+    """``register + step`` (``sign_up``) or ``register - step``, clamped to the register's
     range: one adder a bit wider than both, and the two limits."""
     width = max(len(register), len(step) + (not step.shape().signed)) + 1
     total = Signal(signed(width), name=f"{name}_next")
