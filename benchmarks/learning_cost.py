@@ -1,13 +1,14 @@
 """What on-chip learning costs, measured in the same run against the same unit with loadable
 weights alone.
 
-    python benchmarks/learning_cost.py [PIPELINE ...]   (needs pip install 'thresh2hdl[synth]')
+    python benchmarks/learning_cost.py [--dsp] [PIPELINE ...]   (needs thresh2hdl[synth])
 
 A synthetic 16-feature unit on 12-bit unsigned codes with 8-bit weights and a 24-bit bias
 (random weights, seeded), eta 1/64, on the iCE40 UP5K, for each pipeline given (default: 2 and
 full): logic cells, flip-flops and fmax of the loadable unit and of the learning unit, and the
-learning unit's logic cells against the loadable one's. A design larger than the part is
-reported with its synthesis figures. Either unit takes one input (labelled or not) per clock.
+learning unit's logic cells against the loadable one's; ``--dsp`` lets synthesis put
+multipliers into the part's eight DSP blocks. A design larger than the part is reported with
+its synthesis figures. Either unit takes one input (labelled or not) per clock.
 """
 
 import sys
@@ -29,12 +30,12 @@ def model():
     return Model(module="learn16", features=features, units=[Unit("u", weights, -30_000)])
 
 
-def measure(unit_model, **options):
+def measure(unit_model, dsp=False, **options):
     dut = make_component(UnitConfig(unit_model, weight_bits=8, bias_bits=24, **options))
     text = emit_verilog(dut, unit_model)
     try:
         figures = estimate_cost(text, unit_model.module, port_table(dut, unit_model),
-                                device="up5k", seed=SEED)
+                                device="up5k", seed=SEED, dsp=dsp)
     except DoesNotFitError as error:
         figures = error.figures
     return dut.latency, figures
@@ -48,14 +49,14 @@ def line(label, latency, figures):
             f"{figures['flip_flops']} flip-flops, {figures['lut4_equivalents']} LUT4, {placed}")
 
 
-def main(pipelines):
+def main(pipelines, dsp=False):
     unit_model = model()
     for pipeline in pipelines:
         pipeline = pipeline if pipeline == "full" else int(pipeline)
-        base_latency, base = measure(unit_model, loadable_weights=True, pipeline=pipeline)
-        latency, learning = measure(unit_model, on_chip_learning=True, learning_rate="1/64",
-                                    pipeline=pipeline)
-        print(f"pipeline {pipeline}:")
+        base_latency, base = measure(unit_model, dsp, loadable_weights=True, pipeline=pipeline)
+        latency, learning = measure(unit_model, dsp, on_chip_learning=True,
+                                    learning_rate="1/64", pipeline=pipeline)
+        print(f"pipeline {pipeline}{', DSP blocks allowed' if dsp else ''}:")
         print(line("loadable", base_latency, base))
         print(line("learning", latency, learning))
         print(f"  learning / loadable logic cells: "
@@ -65,4 +66,5 @@ def main(pipelines):
 
 
 if __name__ == "__main__":
-    main(sys.argv[1:] or ["2", "full"])
+    arguments = [a for a in sys.argv[1:] if a != "--dsp"]
+    main(arguments or ["2", "full"], dsp="--dsp" in sys.argv[1:])

@@ -63,31 +63,6 @@ def _saturated(m, register, step, sign_up, name):
     return Mux(total > hi, hi, Mux(total < lo, lo, total))
 
 
-def entry_bias(stages, config, bias):
-    """The bias as the tree should add it: with on-chip learning, the register as the vector
-    entered (carried beside it, as the products take the weights when it enters), so that
-    every vector meets one set of registers; else the register itself."""
-    if not config.on_chip_learning:
-        return bias
-    name = f"{bias.name}_entered"
-    stages.put(name, bias, 0)
-    return name
-
-
-def _port(component, name):
-    return getattr(component, LEARN_PREFIX + name)
-
-
-def _saturated(m, register, step, sign_up, name):
-    """``register + step`` (``sign_up``) or ``register - step``, clamped to the register's
-    range: one adder a bit wider than both, and the two limits."""
-    width = max(len(register), len(step) + (not step.shape().signed)) + 1
-    total = Signal(signed(width), name=f"{name}_next")
-    m.d.comb += total.eq(Mux(sign_up, register + step, register - step))
-    lo, hi = -(1 << (len(register) - 1)), (1 << (len(register) - 1)) - 1
-    return Mux(total > hi, hi, Mux(total < lo, lo, total))
-
-
 def build_learning(m, component, stages, store, features, decisions):
     """The update path and the read port. ``features``: the codes the arithmetic sees (after
     the input guard); ``decisions``: per unit, the stage name of its own decision bit (made
