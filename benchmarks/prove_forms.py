@@ -1,6 +1,8 @@
 """Proof time of the forms an engineer picks for speed, size or flexibility: split adders (8
 bits, two carry registers, every level registered), the serial architecture, loadable weights (tree, every level registered) and loadable weights on the serial
-architecture, Yosys step included.
+architecture, on-chip learning (tree, every level registered, 8-bit weights: the model's
+weights halved so that its registers hold them, rate 1/16; its update step proved too), Yosys
+step included.
 
     python benchmarks/prove_forms.py [--quick]
 
@@ -12,6 +14,7 @@ registered (the form the proof covered first); the ratio is each form's time ove
 
 import argparse
 import time
+from dataclasses import replace
 
 from thresh2hdl.emit.verilog import emit_verilog, port_table
 from thresh2hdl.hardware import UnitConfig, make_component
@@ -26,7 +29,18 @@ FORMS = {
     "serial": {"arch": "serial"},
     "loadable tree": {"pipeline": "full", "loadable_weights": True, "weight_bits": 12},
     "loadable serial": {"arch": "serial", "loadable_weights": True, "weight_bits": 12},
+    "learning tree": {"pipeline": "full", "on_chip_learning": True, "weight_bits": 8,
+                      "bias_bits": 20, "learning_rate": "1/16"},
 }
+
+
+def start_of(model, options):
+    """The model a form is built from: with on-chip learning, weights its registers hold
+    (the random model's, from -200 to 200, halved)."""
+    if not options.get("on_chip_learning"):
+        return model
+    return replace(model, units=[replace(u, weights=tuple(w // 2 for w in u.weights))
+                                 for u in model.units])
 
 
 def prove_seconds(model, options, timeout_s):
@@ -47,7 +61,8 @@ def main():
         model = model_of(features, 1)
         baseline = None
         for name, options in FORMS.items():
-            seconds, outcome = prove_seconds(model, options, 4 * TARGETS_S[features])
+            seconds, outcome = prove_seconds(start_of(model, options), options,
+                                             4 * TARGETS_S[features])
             baseline = baseline or seconds
             ok = outcome.status == "proved" and seconds <= TARGETS_S[features]
             print(f"{name:>16} {features:8d} {seconds:8.1f} {seconds / baseline:6.2f} "

@@ -5,7 +5,8 @@ import re
 
 __all__ = ["VERILOG_KEYWORDS", "VHDL_RESERVED", "check_identifier", "vhdl_name_problem", "GUARD_FLAG", "SCORE_CONST", "register_name",
            "valid_name", "unit_prefix", "argmax_names", "argmax_compare_name",
-           "flag_part_name", "weight_name", "bias_name", "weight_registers"]
+           "flag_part_name", "weight_name", "bias_name", "weight_registers", "entered_name",
+           "LEARN_ENABLE", "LEARN_TARGET", "learn_step_name", "positive_name"]
 
 GUARD_FLAG = "guard_flag"     # the input guard's out-of-range flag, made at the inputs
 SCORE_CONST = "score_const"   # a bank unit's score when every weight is 0 (after its prefix)
@@ -52,6 +53,26 @@ def weight_registers(model):
         registers += [(weight_name(prefix, i), w) for i, w in enumerate(unit.weights)]
         registers.append((bias_name(prefix), unit.bias))
     return registers
+
+
+# On-chip learning: the values carried beside a vector to where its result leaves.
+LEARN_ENABLE = "learn_enable_s"     # the sample is labelled
+LEARN_TARGET = "learn_target_s"     # its target bits, one per unit
+
+
+def entered_name(bias):
+    """The bias register ``bias`` as the vector entered, carried beside it."""
+    return f"{bias}_entered"
+
+
+def learn_step_name(index):
+    """Feature ``index``'s step of the update (``eta x``), carried beside the vector."""
+    return f"learn_step{index}"
+
+
+def positive_name(score):
+    """A bank unit's own decision, ``score > 0`` (one-vs-rest learning reads it)."""
+    return f"{score}_positive"
 
 
 def argmax_names(tag):

@@ -34,6 +34,14 @@ VALUE_LEMMAS, GATE_EQUIVALENCE = "value-lemmas", "gate-equivalence"
 PROOF_STATEMENT = ("for every input in the declared feature ranges, the outputs equal the "
                    "integer model's (decision{extra}), with any handshake")
 
+LEARNING_STATEMENT = (
+    "; the update step is covered: from any register contents, a register not reset or "
+    "written takes, when a labelled sample's result leaves (not flagged out of range) and its "
+    "unit's own decision (score > 0) differs from the target bit, itself moved by the rule's "
+    "step (eta x, or the bias step) towards the target and clamped to its signed range, and "
+    "otherwise keeps its value (a write in the same cycle wins); the read-back port gives the "
+    "addressed register, 0 past the last")
+
 
 def counterexample_file(netlist_name, own=True):
     """The name of a netlist's counterexample file in the build folder: after the netlist,
@@ -128,15 +136,19 @@ def _statement(component, model):
         statement += "; the out-of-range output is high exactly when a code was outside its range"
     config = component.config
     if config.loadable_weights:
+        held = "as the registers held them when the vector entered" \
+            if config.on_chip_learning else "unchanged while a vector is in flight"
         statement = statement.replace(
-            "the outputs equal", "and every weight and bias their declared widths allow "
-            "(unchanged while a vector is in flight), the outputs equal") \
+            "the outputs equal", f"and every weight and bias their declared widths allow "
+            f"({held}), the outputs equal") \
             .replace("integer model's", "integer model's with the weights the registers hold")
         statement += ("; a write stores the data's low bits in the addressed register from the "
                       "next clock, and a reset restores the trained values"
                       if config.weight_port == "plain" else
                       "; the AXI4-Lite slave's writes and reads are verified in simulation, "
                       "not proved")
+    if config.on_chip_learning:
+        statement += LEARNING_STATEMENT
     if component.config.clock_enable:
         statement += ("; shown with the clock enable high, and a cycle with it low (the reset "
                       "released) changes no register and reads in_ready and out_valid 0")

@@ -3,7 +3,8 @@
 
 from amaranth.hdl import Cat, Const, Module, Mux, Signal, signed
 
-from ..names import GUARD_FLAG, SCORE_CONST, argmax_compare_name, argmax_names, unit_prefix
+from ..names import (GUARD_FLAG, SCORE_CONST, argmax_compare_name, argmax_names,
+                     positive_name, unit_prefix)
 from .clocking import enabled
 from .component import PlannedComponent
 from .input_guard import guard_inputs
@@ -101,7 +102,7 @@ def _own_decision(m, stages, score):
     """A unit's own decision, ``score > 0``, made where its score is (one-vs-rest learning
     reads it); returns its name."""
     stage = stages.produced[score][0]
-    decision = Signal(name=f"{score}_positive")
+    decision = Signal(name=positive_name(score))
     m.d.comb += decision.eq(stages.at(score, stage) > 0)
     stages.put(decision.name, decision, stage)
     return decision.name

@@ -14,7 +14,7 @@ is :mod:`thresh2hdl.train.on_chip`; the cycle-exact one, :mod:`thresh2hdl.verify
 from amaranth.hdl import Mux, Shape, Signal, signed
 from amaranth.lib.wiring import In, Out
 
-from ..names import GUARD_FLAG
+from ..names import GUARD_FLAG, LEARN_ENABLE, LEARN_TARGET, entered_name, learn_step_name
 from .register_bus import index_known, selected
 
 __all__ = ["learning_members", "build_learning", "entry_bias", "LEARN_PREFIX", "LEARN_INPUTS",
@@ -41,7 +41,7 @@ def entry_bias(stages, config, bias):
     every vector meets one set of registers; else the register itself."""
     if not config.on_chip_learning:
         return bias
-    name = f"{bias.name}_entered"
+    name = entered_name(bias.name)
     stages.put(name, bias, 0)
     return name
 
@@ -71,22 +71,24 @@ def build_learning(m, component, stages, store, features, decisions):
     config = component.config
     rule = config.learning_rule
     latency = component.latency
-    stages.put("learn_enable_s", _port(component, "enable"), 0)
-    stages.put("learn_target_s", _port(component, "target"), 0)
+    stages.put(LEARN_ENABLE, _port(component, "enable"), 0)
+    stages.put(LEARN_TARGET, _port(component, "target"), 0)
     steps = []
     for index, feature in enumerate(features):
-        step = Signal(_step_shape(feature, rule.shift), name=f"learn_step{index}")
+        step = Signal(_step_shape(feature, rule.shift), name=learn_step_name(index))
         m.d.comb += step.eq(feature << rule.shift if rule.shift >= 0 else
                             feature >> -rule.shift)
-        stages.put(step.name, step, 0)
+        # A left shift's zero bits are left out of the registers, as a shifted input's are
+        # (constant flops would be dropped, and the registers' names with them).
+        stages.put(step.name, step, 0, max(rule.shift, 0))
         steps.append(stages.at(step.name, latency))
     fire = Signal(name="learn_fire")
-    enabled = stages.at("learn_enable_s", latency)
+    enabled = stages.at(LEARN_ENABLE, latency)
     if config.range_flag:
         # A sample with a code outside the declared ranges teaches nothing.
         enabled = enabled & ~stages.at(GUARD_FLAG, latency)
     m.d.comb += fire.eq(component.out_valid & component.out_ready & enabled)
-    targets = stages.at("learn_target_s", latency)
+    targets = stages.at(LEARN_TARGET, latency)
     bias_step = Signal(range(rule.bias_step + 1), name="learn_bias_step", init=rule.bias_step)
     m.d.comb += bias_step.eq(rule.bias_step)
     for unit, (row, bias) in enumerate(zip(store.weights, store.biases)):

@@ -36,8 +36,12 @@ def lemmas_of(plan, query, model):
                              f"{query.score(0, plan.latency, needed=needed)})"))
     pipeline = _Pipeline(plan, query, handshake, needed)
     pipeline.outputs(outputs)
+    learning = getattr(plan, "learning", None)
+    if learning is not None:
+        # (before the registers: the values it reads where a result leaves are carried)
+        lemmas += learning.lemmas(query, model, needed)
     pipeline.registers()
-    if plan.loadable and "weight_write" in query.ports:
+    if plan.loadable and "weight_write" in query.ports and learning is None:
         lemmas += weight_write_lemmas(plan, query, model)
     lemmas += [(f"{name} is {value}", f"(= {query.formula(name, query.width)} "
                                       f"{bv(value, query.width)})")
@@ -45,10 +49,11 @@ def lemmas_of(plan, query, model):
     return lemmas + pipeline.lemmas, pipeline.assumptions + query.assumptions, inputs
 
 
-def weight_write_lemmas(plan, query, model):
+def weight_write_lemmas(plan, query, model, otherwise=None):
     """The plain write port: a register takes the data's low bits, from the next clock, when
-    the strobe is high at its address; it keeps its value otherwise; a reset restores the
-    trained value. (The AXI4-Lite slave's writes have no lemma: simulation covers them.)"""
+    the strobe is high at its address; it keeps its value otherwise (``otherwise(name,
+    bits)``: what it takes instead, on-chip learning's update); a reset restores the trained
+    value. (The AXI4-Lite slave's writes have no lemma: simulation covers them.)"""
     smt, w = query.smt, query.width
     strobe = bool_signal(smt, query.ports["weight_write"][0], "s0")
     address = query.wide(query.ports["weight_address"][0], "s0", False)
@@ -59,10 +64,11 @@ def weight_write_lemmas(plan, query, model):
         query.weight_register(name)          # undecided when the netlist lacks it
         bits = smt.widths[name]
         written = f"(and {strobe} (= {address} {bv(index, w)}))"
+        kept = smt.bits(name, "s0") if otherwise is None else otherwise(name, bits)
         after = smt.bits(name, "s1")
         lemmas.append((name, f"(= {after} (ite {clears} {query.low(bv(trained, w), bits)} "
                              f"(ite {written} ((_ extract {bits - 1} 0) "
-                             f"{smt.bits(data, 's0')}) {smt.bits(name, 's0')})))"))
+                             f"{smt.bits(data, 's0')}) {kept})))"))
     return lemmas
 
 

@@ -46,6 +46,7 @@ from ..names import register_name
 from ..tools import find_tool, warm_up
 from .clocking import enable_high, held_cycle
 from .forms import Plan
+from .learning import LearningQuery, add_learning
 from .lemmas import lemmas_of, weight_write_lemmas
 from .outcome import DEFAULT_TIMEOUT_S, ProofOutcome, Undecided
 from .query import Query, port_names
@@ -86,7 +87,8 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
                             time.perf_counter() - started, 0, **tools)
     serial = component.config.arch == "serial"
     try:
-        plan = _SerialPlan(component, model) if serial else Plan(component, model)
+        plan = _SerialPlan(component, model) if serial else \
+            add_learning(Plan(component, model), component)
     except Undecided as why:
         return ProofOutcome("undecided", f"{why}; the design is verified cycle by cycle in "
                             f"simulation", 0, (), None, versions[1], versions[0],
@@ -146,6 +148,7 @@ class _Proof:
         self.started, self.timeout_s = started, timeout_s
         self.versions, self.tools = versions, tools
         self.quick_search = None
+        self.query_type = LearningQuery if getattr(plan, "learning", None) else Query
         widest = max([signed_bits(v.lo, v.hi) for v in plan.values.values()]
                      + wire_widths(smt2) + [1])
         self.width = max(MIN_WIDTH, widest + 2)
@@ -269,7 +272,7 @@ class _Proof:
         outcome, or what failed (the export, the lemmas, the failing labels, a note)."""
         plan, timeout_s = self.plan, self.timeout_s
         smt = self.export(frozenset(ignored))
-        query = Query(plan, smt, self.width, self.ports)
+        query = self.query_type(plan, smt, self.width, self.ports)
         # A cut wire must hold its whole range, so that its free value can be assumed in it.
         smt.cut({name for name in plan.closed
                  if smt.has(name) and query.holds_exactly(name, name)})

@@ -1,0 +1,170 @@
+"""On-chip learning in the proof: the vector's values carried beside it, and one update step.
+
+With ``build --on-chip-learning`` the loadable registers change while vectors are in flight,
+so the tree must add the bias as the vector entered (``{bias}_entered_r{k}``, as the products
+take the weights when it enters). :func:`add_learning` puts into the proof's plan the values
+the circuit (:mod:`thresh2hdl.hardware.learning`) carries to where a result leaves: the bias
+as entered, the sample's marks (``learn_enable_s``, ``learn_target_s``), each feature's step
+``eta x`` (``learn_step{i}``) and each unit's own decision (a bank's ``{score}_positive``).
+They are values like any other: their pipeline registers get the usual lemmas, so "the
+register at the last stage holds the leaving vector's value" is proved, not assumed.
+
+:class:`Learning` then states the update (``OnChipRule.update`` of
+:mod:`thresh2hdl.train.on_chip`): from any register contents of the declared widths, each
+weight and bias register's next value is the reset's trained value, else a write's data,
+else, when the leaving sample (``out_valid & out_ready``, labelled, not flagged out of range)
+finds its unit's decision differing from the target bit, ``register +/- step`` clamped to the
+register's signed range, else itself; and the read-back port equals the addressed register
+(0 past the last). :class:`LearningQuery` gives the carried values their formulas.
+"""
+
+from dataclasses import dataclass
+
+from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_TARGET, bias_name, entered_name,
+                     learn_step_name, positive_name, register_name, unit_prefix,
+                     weight_name, weight_registers)
+from .forms import Value
+from .lemmas import weight_write_lemmas
+from .query import Query, bool_signal, bv
+
+__all__ = ["add_learning", "Learning", "LearningQuery", "READ_LEMMA"]
+
+READ_LEMMA = "learn_read_data"
+# The learning's input ports each carried value is read from, by its internal name.
+_PORTS = {LEARN_ENABLE: "learn_enable", LEARN_TARGET: "learn_target"}
+
+
+@dataclass
+class Learning:
+    """What the update lemmas need of the design: the rule, the latency, and per unit the
+    names of its registers, its decision's value, and the port that may hold that decision at
+    the last stage (a unit's ``y``, which synthesis merges with the carried decision)."""
+
+    rule: object
+    latency: int
+    features: int
+    flagged: bool              # the out-of-range flag stops a flagged sample's update
+    units: tuple               # (weight names, bias name, decision value, its port or None)
+
+    def lemmas(self, query, model, needed):
+        """Each register's next value (the write port's lemma with the update in place of
+        "keeps its value"), and the read-back port's."""
+        update = self._update(query, needed)
+        lemmas = weight_write_lemmas(query.plan, query, model, otherwise=update)
+        return lemmas + [self._read_back(query, model)]
+
+    def _leaving(self, query, name, port, needed):
+        """Value ``name`` as the last stage holds it (wide): its register there, or the
+        output port synthesis merged it into (the same source, loaded on the same
+        condition: the port's own lemma states it)."""
+        if port is None or register_name(name, self.latency) in query.smt.registers:
+            return query.known(name, self.latency, query.width, needed=needed)
+        wire, signed = query.port(port)
+        return query.wide(wire, "s0", signed)
+
+    def _update(self, query, needed):
+        """``otherwise(name, bits)`` for :func:`~.lemmas.weight_write_lemmas`: the register
+        after the rule's step, when its unit is taught, else itself."""
+        smt, w, rule = query.smt, query.width, self.rule
+        one = bv(1, w)
+        fire = [bool_signal(smt, query.ports["out_valid"][0], "s0"),
+                bool_signal(smt, query.ports["out_ready"][0], "s0"),
+                f"(= {self._leaving(query, LEARN_ENABLE, None, needed)} {one})"]
+        if self.flagged:
+            fire.append(f"(not (= {self._leaving(query, GUARD_FLAG, 'out_of_range', needed)} "
+                        f"{one}))")
+        target = self._leaving(query, LEARN_TARGET, None, needed)
+        steps = [query.known(learn_step_name(i), self.latency, w, needed=needed)
+                 for i in range(self.features)]
+        moves = {}
+        for unit, (weights, bias, decision, port) in enumerate(self.units):
+            up = f"(= ((_ extract {unit} {unit}) {target}) #b1)"
+            decided = f"(= {self._leaving(query, decision, port, needed)} {one})"
+            taught = f"(and {' '.join(fire)} (not (= {decided} {up})))"
+            for name, step in zip(weights, steps):
+                moves[name] = (taught, up, step, rule.weight_range)
+            moves[bias] = (taught, up, bv(rule.bias_step, w), rule.bias_range)
+
+        def otherwise(name, bits):
+            taught, up, step, (lo, hi) = moves[name]
+            now = query.weight_register(name)
+            moved = f"(ite {up} (bvadd {now} {step}) (bvsub {now} {step}))"
+            clamped = (f"(ite (bvsgt {moved} {bv(hi, w)}) {bv(hi, w)} "
+                       f"(ite (bvslt {moved} {bv(lo, w)}) {bv(lo, w)} {moved}))")
+            return f"(ite {taught} {query.low(clamped, bits)} {smt.bits(name, 's0')})"
+
+        return otherwise
+
+    def _read_back(self, query, model):
+        """``learn_read_data`` is the register at ``learn_read_address`` (sign-extended),
+        0 past the last, within the cycle."""
+        w = query.width
+        address = query.wide(query.port("learn_read_address")[0], "s0", False)
+        expected = bv(0, w)
+        for index, (name, _) in reversed(list(enumerate(weight_registers(model)))):
+            expected = (f"(ite (= {address} {bv(index, w)}) {query.weight_register(name)} "
+                        f"{expected})")
+        port, signed = query.port("learn_read_data")
+        return READ_LEMMA, f"(= {query.wide(port, 's0', signed)} {expected})"
+
+
+def add_learning(plan, component):
+    """Put the carried values into ``plan`` and attach its :class:`Learning` (``plan.learning``,
+    which :func:`~.lemmas.lemmas_of` reads); nothing without on-chip learning."""
+    config = component.config
+    if not config.on_chip_learning:
+        return plan
+    rule, model, guard = config.learning_rule, plan.model, config.guard
+    lo, hi = rule.bias_range
+    units = []
+    for index, (score, _, _) in enumerate(plan.unit_scores):
+        prefix = unit_prefix(index) if model.is_bank else ""
+        bias = bias_name(prefix)
+        plan.add(Value(entered_name(bias), "entered", (), 0, lo, hi, True, register=bias))
+        if model.is_bank:
+            decision, port = positive_name(score), None
+            stage = plan.values[score].stage
+        else:
+            decision, port, stage = "decision", "y", plan.final_stage
+        plan.add(Value(decision, "positive", (score,), stage, 0, 1, False))
+        units.append(([weight_name(prefix, i) for i in range(len(model.features))], bias,
+                      decision, port))
+    plan.add(Value(LEARN_ENABLE, "port", (), 0, 0, 1, False))
+    plan.add(Value(LEARN_TARGET, "port", (), 0, 0, (1 << len(units)) - 1, False))
+    shift = rule.shift
+    for i in range(len(model.features)):
+        # The step of every code the arithmetic can see: clamped, or whatever the port
+        # carries (a flagged sample's step is carried too, though it teaches nothing).
+        code_lo, code_hi = (guard.feature_ranges if guard.clamp else guard.code_ranges)[i]
+        lo, hi = ((code_lo << shift, code_hi << shift) if shift >= 0 else
+                  (code_lo >> -shift, code_hi >> -shift))
+        plan.add(Value(learn_step_name(i), "step", (), 0, lo, hi, lo < 0, feature=i,
+                       register_shift=max(shift, 0)))
+    plan.learning = Learning(rule, plan.latency, len(model.features), guard.flag, tuple(units))
+    return plan
+
+
+class LearningQuery(Query):
+    """A query that knows the carried values' formulas, and adds the bias as entered."""
+
+    def formula(self, name, modulus_bits, state="s0", needed=None):
+        value, w = self.plan.values[name], self.width
+        if value.kind == "addreg":
+            entered = entered_name(value.register)
+            expr = (f"(bvadd {self.known(value.operands[0], value.stage, modulus_bits, state, needed)} "
+                    f"{self.known(entered, value.stage, modulus_bits, state, needed)})")
+        elif value.kind == "entered":
+            expr = self.weight_register(value.register, state)
+        elif value.kind == "port":
+            port, signed = self.port(_PORTS[name])
+            expr = self.wide(port, state, signed)
+        elif value.kind == "step":
+            x, shift = self.feature(value.feature, state), self.plan.learning.rule.shift
+            expr = f"(bvshl {x} {bv(shift, w)})" if shift >= 0 else \
+                f"(bvashr {x} {bv(-shift, w)})"
+        elif value.kind == "positive":
+            score = self.known(value.operands[0], value.stage, w, state, needed)
+            expr = f"(ite (bvsgt {score} {bv(0, w)}) {bv(1, w)} {bv(0, w)})"
+        else:
+            return super().formula(name, modulus_bits, state, needed)
+        return self.define(f"formula {name} {modulus_bits} {state}", self._sort(), expr)
