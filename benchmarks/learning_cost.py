@@ -1,10 +1,12 @@
 """What on-chip learning costs, measured in the same run against the same unit with loadable
 weights alone.
 
-    python benchmarks/learning_cost.py [--dsp] [PIPELINE ...]   (needs thresh2hdl[synth])
+    python benchmarks/learning_cost.py [--dsp] [--device=NAME] [PIPELINE ...]
+    (needs pip install 'thresh2hdl[synth]')
 
 A synthetic 16-feature unit on 12-bit unsigned codes with 8-bit weights and a 24-bit bias
-(random weights, seeded), eta 1/64, on the iCE40 UP5K, for each pipeline given (default: 2 and
+(random weights, seeded), eta 1/64, on the iCE40 UP5K (or --device=hx8k...), for each
+pipeline given (default: 2 and
 full): logic cells, flip-flops and fmax of the loadable unit and of the learning unit, and the
 learning unit's logic cells against the loadable one's; ``--dsp`` lets synthesis put
 multipliers into the part's eight DSP blocks. A design larger than the part is reported with
@@ -30,12 +32,15 @@ def model():
     return Model(module="learn16", features=features, units=[Unit("u", weights, -30_000)])
 
 
+DEVICE = "up5k"
+
+
 def measure(unit_model, dsp=False, **options):
     dut = make_component(UnitConfig(unit_model, weight_bits=8, bias_bits=24, **options))
     text = emit_verilog(dut, unit_model)
     try:
         figures = estimate_cost(text, unit_model.module, port_table(dut, unit_model),
-                                device="up5k", seed=SEED, dsp=dsp)
+                                device=DEVICE, seed=SEED, dsp=dsp)
     except DoesNotFitError as error:
         figures = error.figures
     return dut.latency, figures
@@ -62,9 +67,12 @@ def main(pipelines, dsp=False):
         print(f"  learning / loadable logic cells: "
               f"{learning['logic_cells'] / base['logic_cells']:.2f}x")
     tools = base["tool_versions"]
-    print(f"({tools['yosys']}, {tools['nextpnr']}, iCE40 UP5K, placement seed {SEED})")
+    print(f"({tools['yosys']}, {tools['nextpnr']}, {base['device_name']}, placement seed "
+          f"{SEED})")
 
 
 if __name__ == "__main__":
-    arguments = [a for a in sys.argv[1:] if a != "--dsp"]
+    arguments = [a for a in sys.argv[1:] if a != "--dsp" and not a.startswith("--device=")]
+    DEVICE = next((a.split("=", 1)[1] for a in sys.argv[1:] if a.startswith("--device=")),
+                  DEVICE)
     main(arguments or ["2", "full"], dsp="--dsp" in sys.argv[1:])

@@ -65,9 +65,9 @@ def _own(model, config):
 
 
 def _sign_inverted(text):
-    # weight0 moves away from the target: the multiplexer between +step and -step swapped.
-    return re.sub(r"= learn_target_s_r2 \? (n\d+) : (n\d+);",
-                  r"= learn_target_s_r2 ? \2 : \1;", text, count=1)
+    # weight0 moves away from the target: the choice between +step and -step inverted.
+    return re.sub(r"= learn_target_s_r2 \? (\{[^}]*\}|n\d+) : (n\d+);",
+                  r"= ~learn_target_s_r2 ? \1 : \2;", text, count=1)
 
 
 def _wraps(text):
