@@ -71,12 +71,12 @@ def recommend(rows, constraints):
     """The cheapest row meeting ``constraints``; an InputError naming the nearest row and what
     it misses when none does (the rows themselves are kept by the caller)."""
     if not rows:
-        raise InputError("no point of the grid finished, so none can be recommended; see the "
-                         "failed points' errors", field="grid")
+        raise InputError("no point of the grid finished, so none can be recommended; the "
+                         "failed points' errors are in the cache folder")
     meeting = [row for row in rows if not _shortfalls(row, constraints)[0]]
     if meeting:
         return min(meeting, key=_preference)
     nearest = min(rows, key=lambda row: (_shortfalls(row, constraints)[1], _preference(row)))
     missed, _ = _shortfalls(nearest, constraints)
     raise InputError(f"no point meets the constraints; nearest: {point_label(nearest)} "
-                     f"({'; '.join(missed)})", field="constraints")
+                     f"({'; '.join(missed)}); the finished points are kept for the next run")

@@ -55,15 +55,17 @@ def _scatter(rows, x_key, y_key, *, label_x, label_y, front, recommended, log_x=
     x_lo, x_hi = min(xs), max(xs)
     y_lo, y_hi = min(ys), max(ys)
     x_hi, y_hi = (x_hi if x_hi > x_lo else x_lo + 1), (y_hi if y_hi > y_lo else y_lo + 0.01)
+    x_pad, y_pad = (x_hi - x_lo) * 0.06, (y_hi - y_lo) * 0.08   # no dot on the frame
+    x_lo, x_hi, y_lo, y_hi = x_lo - x_pad, x_hi + x_pad, y_lo - y_pad, y_hi + y_pad
     px = lambda v: left + (v - x_lo) / (x_hi - x_lo) * width
     py = lambda v: top + height - (v - y_lo) / (y_hi - y_lo) * height
     parts = [f'<rect x="{left}" y="{top}" width="{width}" height="{height}" fill="none" '
              f'stroke="#999"/>']
-    for value, anchor in ((x_lo, "start"), (x_hi, "end")):
+    for value, anchor in ((x_lo + x_pad, "middle"), (x_hi - x_pad, "middle")):
         shown = 10 ** value if log_x else value
         parts.append(f'<text x="{px(value):.1f}" y="{top + height + 14}" text-anchor="{anchor}"'
                      f'>{shown:,.4g}</text>')
-    for value in (y_lo, y_hi):
+    for value in (y_lo + y_pad, y_hi - y_pad):
         parts.append(f'<text x="{left - 4}" y="{py(value) + 4:.1f}" text-anchor="end">'
                      f'{value:.4g}</text>')
     parts.append(f'<text x="{left + width / 2}" y="{top + height + 30}" text-anchor="middle">'
@@ -149,4 +151,4 @@ def _constraints_text(constraints):
     words = {"min_accuracy": "accuracy at least {}", "min_fmax_mhz": "fmax at least {} MHz",
              "device": "device {}", "max_latency_ns": "latency at most {} ns"}
     given = [words[k].format(v) for k, v in constraints.items() if v is not None]
-    return ", ".join(given) if given else "no constraint"
+    return ", ".join(given) if given else "no constraint (none was given)"

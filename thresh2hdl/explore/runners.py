@@ -7,6 +7,7 @@ runs one function on every worker, to check each has the tools before any work i
 """
 
 import os
+import re
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from multiprocessing import get_context
 
@@ -14,7 +15,9 @@ from ..errors import ToolError
 
 __all__ = ["LocalRunner", "DaskRunner", "make_runner", "CONNECT_TIMEOUT_S"]
 
-CONNECT_TIMEOUT_S = 15
+CONNECT_TIMEOUT_S = 10
+# A scheduler's address as `dask scheduler` prints it: tcp://host:port (or host:port).
+_ADDRESS = re.compile(r"^(?:(?:tcp|tls|ws|wss)://)?(?:\[[0-9a-fA-F:]+\]|[\w.-]+):\d{1,5}$")
 
 
 def _failure(error):
@@ -71,6 +74,9 @@ class DaskRunner:
             raise ToolError("running on a Dask cluster needs dask.distributed: pip install "
                             "'thresh2hdl[cluster]'") from None
         self.address = address
+        if not isinstance(address, str) or not _ADDRESS.match(address):
+            raise ToolError(f"--scheduler {address!r} is not a scheduler address; give it as "
+                            f"`dask scheduler` prints it, e.g. tcp://10.0.0.5:8786")
         try:
             self.client = Client(address, timeout=f"{timeout_s}s", set_as_default=False)
         except (OSError, TimeoutError, ValueError) as error:
@@ -107,7 +113,7 @@ class DaskRunner:
         futures = self.client.map(function, items, pure=False)
         index = {future.key: i for i, future in enumerate(futures)}
         try:
-            for future in finished(futures):
+            for future in finished(futures, loop=self.client.loop):
                 try:
                     yield index[future.key], future.result()
                 except Exception as error:          # a worker lost, or the task unpicklable
