@@ -104,7 +104,7 @@ def test_explore_locally_resumed_widened_and_on_dask_gives_one_front(tmp_path):
     assert without_run(on_dask.summary) == without_run(summary)
 
 
-@pytest.mark.icarus
+@pytest.mark.slow
 def test_a_worker_without_the_simulator_is_one_line(tmp_path):
     require_package("distributed")
     from distributed import LocalCluster

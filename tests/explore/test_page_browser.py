@@ -1,21 +1,13 @@
 """front.html in a real browser: headless Chromium loads it with no console errors."""
 
-import shutil
 import subprocess
 
 import pytest
 
-from helpers import require_tool
+from helpers import chromium
 from thresh2hdl.explore import Constraints, front_html, pareto_front, recommend
 
 pytestmark = pytest.mark.browser
-
-
-def chromium():
-    for name in ("chromium", "chromium-browser"):
-        if shutil.which(name):
-            return shutil.which(name)
-    require_tool("chromium")
 
 
 def page_summary():
