@@ -176,3 +176,28 @@ def test_a_failed_task_is_kept_apart_and_the_others_go_on(tmp_path):
 def test_a_task_that_raises_in_a_worker_is_an_error_record():
     results = dict(LocalRunner(1).map(make_model, [{}]))
     assert results[0]["error"].startswith("internal error (KeyError")
+
+
+def test_each_start_makes_a_model_within_its_weight_bits(tmp_path):
+    import tomllib
+    data, start = tiny_inputs(tmp_path)
+    rows = np.loadtxt(data, delimiter=",", skiprows=1, dtype=np.int64)
+    x, y = rows[:, :3], rows[:, 3]
+    float_file = tmp_path / "float.npz"
+    np.savez(float_file, coef=np.array([[0.9, -0.7, 0.5]]), intercept=np.array([-10.0]),
+             input_lo=np.zeros(3, int), input_hi=np.full(3, 63))
+    base = {"x": x, "labels": y, "feature_names": ("c0", "c1", "c2"), "formats": None,
+            "seed": 0, "module": "tiny", "data_name": "rows.csv", "digit_budget": None}
+    starts = {"fit": {}, "quantize": {"start": float_file.read_bytes()},
+              "model": {"start": start.read_text(), "start_name": str(start)}}
+    for kind, spec in starts.items():
+        for bits in (3, 5):
+            made = make_model({**base, **spec, "kind": kind, "weight_bits": bits})
+            assert "error" not in made, made
+            model = tomllib.loads(made["record"]["model"])
+            values = [w for unit in model["unit"] for w in unit["weights"]]
+            # B-bit two's complement holds -2^(B-1) .. 2^(B-1) - 1 (common practice).
+            assert all(-(1 << (bits - 1)) <= w < (1 << (bits - 1)) for w in values), (kind, values)
+            assert made["record"]["train_accuracy"] > 0.75, (kind, bits, made["record"])
+    own = make_model({**base, **starts["model"], "kind": "model", "weight_bits": None})
+    assert tomllib.loads(own["record"]["model"])["unit"][0]["weights"] == [9, -7, 5]
