@@ -207,8 +207,9 @@ def explore(data, out_dir, grid=DEFAULT_GRID, *, start=None, constraints=Constra
     with make_runner(scheduler, workers) as runner:
         versions = _tool_versions(runner, grid, simulator, progress)
         cache = TaskCache(out_dir / CACHE_FOLDER)
-        start_digest = hashlib.sha256(start_spec.get("start", b"") if isinstance(
-            start_spec.get("start", b""), bytes) else start_spec["start"].encode()).hexdigest()
+        start_content = start_spec.get("start", b"")      # a float model's bytes, a model's text
+        start_digest = hashlib.sha256(start_content if isinstance(start_content, bytes)
+                                      else start_content.encode("utf-8")).hexdigest()
         base = {"kind": kind, "x": x[train], "labels": labels[train], "feature_names": names,
                 "formats": formats, "seed": seed, "module": module, "data_name": data_name,
                 **start_spec}
@@ -270,12 +271,12 @@ def _points(grid, trainings, models, failed, common, versions):
     no worker is sent one)."""
     tasks, levers, skipped = [], {}, []
     failed_keys = {f["key"] for f in failed}
+    held = _digest(common["held_x"], common["held_labels"])
     for (key, spec, _), (bits, budget) in zip(trainings, grid.trainings()):
         if key in failed_keys or key not in models:
             continue
         text = models[key]["model"]
         model = parse_model(tomllib.loads(text), source="<explored model>")
-        held = _digest(common["held_x"], common["held_labels"])
         for arch, pipeline, split, device, placement in grid.builds():
             lever = {"weight_bits": bits, "digit_budget": budget, "arch": arch,
                      "pipeline": pipeline, "split_bits": split, "device": device,
