@@ -201,3 +201,31 @@ def test_each_start_makes_a_model_within_its_weight_bits(tmp_path):
             assert made["record"]["train_accuracy"] > 0.75, (kind, bits, made["record"])
     own = make_model({**base, **starts["model"], "kind": "model", "weight_bits": None})
     assert tomllib.loads(own["record"]["model"])["unit"][0]["weights"] == [9, -7, 5]
+
+
+class Workers:
+    """A runner whose workers answer the tools check as given."""
+
+    where = "test"
+
+    def __init__(self, answers):
+        self.answers = answers
+
+    def probe(self, function, argument):
+        return self.answers
+
+
+def test_workers_must_have_the_tools_and_the_same_versions():
+    from thresh2hdl.app.exploring import _tool_versions
+    from thresh2hdl.app.progress import Progress
+    from thresh2hdl.explore import Grid
+    same = {"yosys": "Yosys 0.70", "nextpnr-ice40": "nextpnr-0.11.1"}
+    assert _tool_versions(Workers({"a": {"versions": same}, "b": {"versions": same}}), Grid(),
+                          "amaranth", Progress()) == same
+    with pytest.raises(ToolError, match="worker b has .*install the same tools on every"):
+        _tool_versions(Workers({"a": {"versions": same},
+                                "b": {"versions": {**same, "yosys": "Yosys 0.69"}}}),
+                       Grid(), "amaranth", Progress())
+    with pytest.raises(ToolError, match="worker a: yosys was not found"):
+        _tool_versions(Workers({"a": {"error": "yosys was not found"}, "b": {"versions": same}}),
+                       Grid(), "amaranth", Progress())
