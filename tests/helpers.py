@@ -36,6 +36,14 @@ def require_tool(*names):
         pytest.skip(message)
 
 
+def chromium():
+    """Headless Chromium's path (Debian's package); skipped locally without it, failed in CI."""
+    for name in ("chromium", "chromium-browser"):
+        if shutil.which(name):
+            return shutil.which(name)
+    require_tool("chromium")
+
+
 def require_package(name):
     """Skip locally when a Python package of the test extra is missing; fail in CI."""
     import importlib.util

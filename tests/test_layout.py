@@ -13,7 +13,7 @@ GUIDE = ROOT / "DEVELOPERS.md"
 # The stages in the order data flows (DEVELOPERS.md "How data flows"): a module may import from
 # its own subpackage and from stages ranked below its own, never from its own rank or above.
 RANK = {"": 0, "model": 1, "train": 2, "analysis": 2, "hardware": 3, "emit": 4, "verify": 5,
-        "proof": 5, "cost": 5, "reports": 6, "app": 7}
+        "proof": 5, "cost": 5, "reports": 6, "explore": 7, "app": 8}
 MOST_LINES = 420      # "~400 lines at most" a module (DEVELOPERS.md)
 
 

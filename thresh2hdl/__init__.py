@@ -18,7 +18,8 @@ from .verify import ReferenceModel, cycle_model, make_stimulus, make_vectors, si
 from .hardware import ThresholdUnit, UnitConfig
 from .emit import emit_verilog, instance_template
 from .app import (BuildOptions, BuildResult, CheckResult, ProofResult, build, check, demo_model,
-                  estimate_folder, prove)
+                  estimate_folder, explore, ExploreResult, prove)
+from .explore import Constraints, Grid
 from .proof import ProofOutcome, prove_netlist
 
 __all__ = ["__version__", "InputError", "MismatchError", "ThreshError", "ToolError",
@@ -27,5 +28,6 @@ __all__ = ["__version__", "InputError", "MismatchError", "ThreshError", "ToolErr
            "parse_model", "Analysis", "analyse", "signed_bits", "ReferenceModel", "cycle_model",
            "ThresholdUnit", "UnitConfig", "emit_verilog", "instance_template", "make_vectors",
            "make_stimulus", "simulate_amaranth", "BuildOptions", "BuildResult", "build",
-           "demo_model", "check", "CheckResult", "estimate_folder", "prove", "ProofResult",
+           "demo_model", "check", "CheckResult", "estimate_folder", "explore", "ExploreResult",
+           "Grid", "Constraints", "prove", "ProofResult",
            "prove_netlist", "ProofOutcome"]

@@ -1,20 +1,12 @@
 """report.html in a real browser: headless Chromium loads it with no console errors."""
 
-import shutil
 import subprocess
 
 import pytest
 
-from helpers import require_tool, run
+from helpers import chromium, run
 
 pytestmark = pytest.mark.browser
-
-
-def chromium():
-    for name in ("chromium", "chromium-browser"):
-        if shutil.which(name):
-            return shutil.which(name)
-    require_tool("chromium")
 
 
 def test_report_loads_in_chromium_without_console_errors(tmp_path):

@@ -19,6 +19,7 @@ from ..train import DEFAULT_MAX_WEIGHT_BITS, KEEP, RULES, FitOptions, choice_lin
 from .building import build, demo_model
 from .checking import check
 from .estimating import estimate_folder
+from .explore_command import explore_options, run_explore
 from .fit import fit_csv, quantize_npz
 from .fit_fabric import fit_in_fabric
 from .options import SIMULATORS, BuildOptions, build_flags
@@ -366,6 +367,14 @@ def prove_command(out_dir, netlist, timeout_s, simulator):
     result = prove(out_dir, netlist=netlist, timeout_s=timeout_s, simulator=simulator,
                    progress=_progress())
     click.echo(result.summary())
+
+
+@cli.command("explore")
+@explore_options
+def explore_command(**kwargs):
+    """Explore a grid of designs on labelled rows (DATA_FILE, CSV): train or quantize, build,
+    verify, place and score each point; write the front and the recommended build folder."""
+    run_explore(kwargs, _progress())
 
 
 def _fail(message, code):
