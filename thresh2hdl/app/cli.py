@@ -21,7 +21,7 @@ from .checking import check
 from .estimating import estimate_folder
 from .explore_command import explore_options, run_explore
 from .fit import fit_csv, quantize_npz
-from .fit_fabric import fit_in_fabric
+from .fit_fabric import fabric_options, fit_in_fabric
 from .options import SIMULATORS, BuildOptions, build_flags
 from .progress import Progress
 from .proving import prove
@@ -222,15 +222,7 @@ _DIGIT_BUDGET_HELP = ("At most N nonzero canonical signed digits over all the we
 @click.option("--digit-budget", type=int, default=None, help=_DIGIT_BUDGET_HELP)
 @click.option("--module", "module_name", default="thresh_unit", show_default=True)
 @click.option("--force", is_flag=True, help="Replace existing output files.")
-@click.option("--in-fabric", "start_file", type=click.Path(), default=None,
-              help="Learn as a unit built from START_FILE with --on-chip-learning does: rows in "
-              "file order, saturating registers (--weight-bits, --bias-bits), the same "
-              "--learning-rate and --bias-step.")
-@click.option("--learning-rate", default="1", show_default=True, help="With --in-fabric.")
-@click.option("--bias-bits", type=int, default=None, help="With --in-fabric.")
-@click.option("--bias-step", type=int, default=None, help="With --in-fabric.")
-@click.option("--latency", type=int, default=1, show_default=True,
-              help="With --in-fabric: the build's latency_cycles.")
+@fabric_options
 def fit_command(data_file, out_path, label, input_bits, signed, formats_file, rule, keep, epochs,
                 all_epochs, no_shuffle, seed, holdout, weight_bits, max_digits, digit_budget,
                 module_name, force, start_file, learning_rate, bias_bits, bias_step, latency):

@@ -9,6 +9,8 @@ options give the same registers on both sides.
 import json
 from pathlib import Path
 
+import click
+
 from ..errors import InputError
 from ..hardware import UnitConfig
 from ..model import dataset_for_model, load_model, model_to_toml, read_csv
@@ -16,7 +18,7 @@ from ..outdir import write_files
 from ..train import fit_on_chip
 from .fit import check_outputs, log_path_for
 
-__all__ = ["fit_in_fabric"]
+__all__ = ["fit_in_fabric", "fabric_options"]
 
 
 def fit_in_fabric(data_path, out_path, start_path, *, label="label", learning_rate="1",
@@ -60,3 +62,20 @@ def fit_in_fabric(data_path, out_path, start_path, *, label="label", learning_ra
                f"{rule.learning_rate}, bias step {rule.bias_step}, registers "
                f"{rule.weight_bits}/{rule.bias_bits} bits)", f"wrote {out_path}"]
     return model, log, rule, summary
+
+
+def fabric_options(command):
+    """The fit command's options of the in-fabric mode (its click layer)."""
+    for option in reversed([
+            click.option("--in-fabric", "start_file", type=click.Path(), default=None,
+                         help="Learn as a unit built from START_FILE with --on-chip-learning "
+                         "does: rows in file order, saturating registers (--weight-bits, "
+                         "--bias-bits), the same --learning-rate and --bias-step."),
+            click.option("--learning-rate", default="1", show_default=True,
+                         help="With --in-fabric."),
+            click.option("--bias-bits", type=int, default=None, help="With --in-fabric."),
+            click.option("--bias-step", type=int, default=None, help="With --in-fabric."),
+            click.option("--latency", type=int, default=1, show_default=True,
+                         help="With --in-fabric: the build's latency_cycles.")]):
+        command = option(command)
+    return command
