@@ -96,3 +96,54 @@ def test_each_mutant_gives_a_counterexample_icarus_confirms(tmp_path, mutant):
     rows = np.random.default_rng(0).integers(0, 256, (300, 4))
     assert_mutant_caught(tmp_path, unit(), {"pipeline": 1, "split_bits": 4},
                          replace_once(*MUTANTS[mutant]), rows)
+
+
+def sweep_config(seed):
+    """A random split design: 1-11 features of 3-12 bits, some weights zero, a bias up to
+    +-30000 (often folded into a shift-add sum, where a part of it is constant), sometimes
+    tightened ranges (the guard) or no score port; any pipeline depth, split width and carry
+    registers."""
+    from thresh2hdl.model.records import PortNames
+    rng = np.random.default_rng([seed, 23])
+    n, bits, signed = int(rng.integers(1, 12)), int(rng.integers(3, 13)), bool(rng.integers(0, 2))
+    ranges = None
+    if rng.random() < 0.3:
+        lo, hi = (-(1 << (bits - 1)), (1 << (bits - 1)) - 1) if signed else (0, (1 << bits) - 1)
+        ranges = [tuple(sorted(int(v) for v in rng.integers(lo, hi + 1, 2))) for _ in range(n)]
+    weights = [int(w) * int(rng.random() < 0.9) for w in rng.integers(-600, 601, n)]
+    model = make_model(weights, bias=int(rng.integers(-30000, 30001)), bits=bits, signed=signed,
+                       ranges=ranges, ports=PortNames(score="") if rng.random() < 0.4 else None)
+    config = dict(pipeline=[1, 2, 3, "full"][int(rng.integers(0, 4))],
+                  split_bits=int(rng.integers(2, 9)),
+                  arch=["tree", "shiftadd"][int(rng.integers(0, 2))],
+                  carry_registers=int(rng.integers(1, 4)))
+    return model, config
+
+
+# Seeds 0, 4 and 18 hold a bias part in flops that synthesis merged into one (it loads the
+# constant only once the pipeline moves), seed 2 a decision step its part's range decides:
+# all four were undecided before the proof covered them.
+@pytest.mark.slow
+@pytest.mark.parametrize("seed", [0, 2, 4, 18, 5, 9, 13, 21])
+def test_random_split_configurations_are_proved(seed):
+    from thresh2hdl.hardware import plan_design, UnitConfig
+    model, config = sweep_config(seed)
+    assert plan_design(UnitConfig(model, **config)).split_parts, "not a split design"
+    outcome = proved(model, **config)
+    assert outcome.status == "proved", outcome.detail
+
+
+@pytest.mark.slow
+def test_a_merged_constant_flop_loading_the_wrong_constant_is_caught(tmp_path):
+    # The bias part 22759 mod 2**7 = 103 is carried by flops that Yosys merges into one
+    # (it holds 1 from the first cycle the pipeline moves); the mutant loads 0 instead.
+    import re
+    model = make_model([0, 280, 24, 111, 474, 127, -110], bias=22759, bits=5)
+
+    def mutate(text):
+        (flop,) = re.findall(r"(n\d+) <= 1'd1;", text)
+        return text.replace(f"{flop} <= 1'd1;", f"{flop} <= 1'd0;")
+
+    rows = np.random.default_rng(1).integers(0, 32, (300, 7))
+    assert_mutant_caught(tmp_path, model, {"pipeline": 2, "split_bits": 7, "arch": "shiftadd",
+                                           "carry_registers": 3}, mutate, rows)

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from ..names import (SCORE_CONST, argmax_compare_name, argmax_names, bias_name,
                      flag_part_name, unit_prefix, weight_name)
 
-__all__ = ["Value", "Plan", "check_cover"]
+__all__ = ["Value", "Plan", "check_cover", "range_test"]
 
 
 @dataclass
@@ -76,8 +76,12 @@ class Plan:
                 for k, group in enumerate(layer):
                     name = flag_part_name(j, k, j == len(layers) - 1)
                     operands = () if j == 0 else tuple(below[c] for c in group)
+                    # A part over features no tighter than their ports is 0 (its flops
+                    # dropped): read as that constant, on a lemma that it is.
+                    hi = int(any(f in self.guard.tight for f in group) if j == 0 else
+                             any(self.values[o].hi for o in operands))
                     self.add(Value(name, "flag", operands, 0 if j == 0 else self.stage_of(j),
-                                   0, 1, False, features=group if j == 0 else ()))
+                                   0, hi, False, features=group if j == 0 else ()))
                     made.append(name)
                 below = made
         self.final_stage = self.stage_of(component.final_level)
@@ -278,10 +282,14 @@ class Plan:
             part = result.name if count == 1 else f"{result.name}_p{j}"
             piece = {"part": part, "below": below,
                      "sign": top and self.values[result.name].lo < 0}
+            lo, hi = 0, 1
             if threshold is not None:
                 limit = threshold >> (j * b)
                 piece.update(limit=limit if top else limit % (1 << b), greater=greater)
-            self.add(Value(name, "dstep", (), at, 0, 1, False, piece=piece))
+                decided = decided_step(self.values[part], piece)
+                if decided is not None:     # a constant, whose flops synthesis drops
+                    lo = hi = decided
+            self.add(Value(name, "dstep", (), at, lo, hi, False, piece=piece))
             below = name
         self.decision = below
 
@@ -332,6 +340,26 @@ class Plan:
             return score, chosen, first, last
 
         return plan.tournament(layer, merge)[1]      # None for a bank of one unit: class 0
+
+
+def range_test(held, number, greater):
+    """A decision step's test of a part against the threshold's digit ``number`` (``part >
+    number`` when ``greater``, else ``<``) decided by the part's range alone: True, False, or
+    None when the part's value decides it."""
+    if (held.lo > number) if greater else (held.hi < number):
+        return True
+    if (held.hi <= number) if greater else (held.lo >= number):
+        return False
+    return None
+
+
+def decided_step(held, piece):
+    """A decision step against the threshold that the part's range decides whatever the
+    steps below: 1 or 0; else None."""
+    test = range_test(held, piece["limit"], piece["greater"])
+    if test is None or (piece["below"] is not None and held.lo <= piece["limit"] <= held.hi):
+        return None
+    return int(test)
 
 
 def _fixed_part(value, j, b):

@@ -11,10 +11,12 @@ __all__ = ["lemmas_of", "weight_write_lemmas"]
 _HANDSHAKE = ("in_valid", "in_ready", "out_ready", "out_valid")
 
 
-def lemmas_of(plan, query, model):
+def lemmas_of(plan, query, model, held=None):
     """The lemmas (label, Bool) of the whole design, per stage; the assumptions they are
     stated under; and the input ranges, assumptions too except for the out-of-range flag's
-    lemmas."""
+    lemmas. ``held``: flops that only ever load a constant (name -> constant,
+    :func:`.structure.constant_loads`), each stated to hold it while an item is in the
+    pipeline."""
     needed = set()
     inputs = query.input_ranges()
     lemmas = _value_lemmas(plan, query, needed)
@@ -37,6 +39,7 @@ def lemmas_of(plan, query, model):
     pipeline = _Pipeline(plan, query, handshake, needed)
     pipeline.outputs(outputs)
     pipeline.registers()
+    pipeline.held_constants(held or {})
     if plan.loadable and "weight_write" in query.ports:
         lemmas += weight_write_lemmas(plan, query, model)
     lemmas += [(f"{name} is {value}", f"(= {query.formula(name, query.width)} "
@@ -129,6 +132,25 @@ class _Pipeline:
             before = self.valid[k - 1] if k == 1 else self.valid[k - 1][1]
             self.lemmas.append((name, f"(= {after} (ite {clears} false "
                                       f"(ite {self.in_ready} {before} {now})))"))
+
+    def held_constants(self, held):
+        """A flop that only ever loads one constant holds it whenever some stage holds a
+        valid item (it loads whenever the pipeline moves, and an item entered with such a
+        move): assumed in ``s0``, a lemma in ``s1``. Synthesis merges a register that carries
+        a constant into such flops; were one loaded otherwise, its lemma would fail."""
+        smt, w = self.query.smt, self.query.width
+        if not held:
+            return
+        any_now = f"(or false {' '.join(now for _, now, _ in self.valid[1:])})"
+        any_after = f"(or false {' '.join(after for _, _, after in self.valid[1:])})"
+        for name, constant in sorted(held.items()):
+            if name not in smt.registers:
+                continue
+            bits = smt.widths[name]
+            value = self.query.low(bv(constant, w), bits)
+            self.assumptions.append(f"(=> {any_now} (= {smt.bits(name, 's0')} {value}))")
+            self.lemmas.append((f"{name} holds {constant}",
+                                f"(=> {any_after} (= {smt.bits(name, 's1')} {value}))"))
 
     def valid_now(self, stage):
         return self.valid[0] if stage == 0 else self.valid[stage][1]

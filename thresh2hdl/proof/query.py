@@ -3,6 +3,7 @@ registers or their operands, in arithmetic wide enough that nothing overflows.""
 
 from ..analysis import signed_bits
 from ..names import register_name
+from .forms import range_test
 from .outcome import Undecided
 
 __all__ = ["Query", "bv", "port_names", "bool_signal"]
@@ -324,12 +325,9 @@ class Query:
             # be, as the circuit decides it (then no part is read: a constant).
             held, number = self.plan.values[piece["part"]], piece["limit"]
             limit, greater = bv(number, w), piece["greater"]
-            if (held.lo > number) if greater else (held.hi < number):
-                test = "true"
-            elif (held.hi <= number) if greater else (held.lo >= number):
-                test = "false"
-            else:
-                test = f"({'bvsgt' if greater else 'bvslt'} {part()} {limit})"
+            decided = range_test(held, number, greater)
+            test = f"({'bvsgt' if greater else 'bvslt'} {part()} {limit})" \
+                if decided is None else str(decided).lower()
             if piece["below"] is not None and held.lo <= number <= held.hi:
                 test = f"(or {test} (and (= {part()} {limit}) {below()}))"
         else:                       # score > 0: nonzero, and the top part not negative
