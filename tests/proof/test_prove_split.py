@@ -147,3 +147,63 @@ def test_a_merged_constant_flop_loading_the_wrong_constant_is_caught(tmp_path):
     rows = np.random.default_rng(1).integers(0, 32, (300, 7))
     assert_mutant_caught(tmp_path, model, {"pipeline": 2, "split_bits": 7, "arch": "shiftadd",
                                            "carry_registers": 3}, mutate, rows)
+
+
+def split_bank(seed):
+    """A random bank of 2-4 units split for speed (the argmax compares whole scores, each
+    joined where its last part has arrived)."""
+    from helpers import bank_model
+    from thresh2hdl.model.records import PortNames
+    rng = np.random.default_rng([seed, 31])
+    units, n, bits = int(rng.integers(2, 5)), int(rng.integers(1, 7)), int(rng.integers(3, 9))
+    weights = (rng.integers(-300, 301, (units, n)) * (rng.random((units, n)) < 0.9)).tolist()
+    model = bank_model(weights, [int(b) for b in rng.integers(-20000, 20001, units)], bits=bits,
+                       is_signed=bool(rng.integers(0, 2)),
+                       ports=PortNames(score="") if rng.random() < 0.4 else PortNames())
+    config = dict(pipeline=[1, 2, 3, "full"][int(rng.integers(0, 4))],
+                  split_bits=int(rng.integers(2, 9)),
+                  arch=["tree", "shiftadd"][int(rng.integers(0, 2))],
+                  carry_registers=int(rng.integers(1, 4)))
+    return model, config
+
+
+@pytest.mark.parametrize("seed", [0, 4, 6, 8])
+def test_random_split_banks_are_proved(seed):
+    model, config = split_bank(seed)
+    outcome = proved(model, **config)
+    assert outcome.status == "proved", outcome.detail
+
+
+@pytest.mark.slow
+def test_a_split_bank_with_a_carry_register_dropped_gives_a_counterexample_icarus_confirms(
+        tmp_path):
+    from helpers import bank_model, require_tool
+    from thresh2hdl.app import BuildOptions, build, prove
+    from thresh2hdl.emit.verilog import port_table
+    from thresh2hdl.errors import MismatchError
+    from thresh2hdl.hardware import UnitConfig, plan_design
+    from thresh2hdl.verify.reference import ReferenceModel
+    from thresh2hdl.verify.sim_icarus import IcarusBackend
+    from thresh2hdl.verify.stimulus import make_stimulus
+    require_tool("iverilog", "vvp")
+    model = bank_model([[3, -2, 5], [-4, 6, 1], [2, 2, -7]], [-4, 3, 1], bits=8)
+    options = {"pipeline": 1, "split_bits": 4}
+    out = tmp_path / "build"
+    build(model, out, BuildOptions(simulator="icarus", vectors=100, **options))
+    text = (out / f"{model.module}.v").read_text()
+    mutant = replace_once("u1_score_sum_p1_sum = n42 + {4'd0, u1_score_sum_c0_r1};",
+                          "u1_score_sum_p1_sum = n42 + {4'd0, u1_score_sum_p0_sum[4]};")(text)
+    (tmp_path / "mutant.v").write_text(mutant)
+    with pytest.raises(MismatchError, match="counterexample"):
+        prove(out, netlist=tmp_path / "mutant.v", timeout_s=120, simulator="icarus")
+    # Independently: the plain sums' argmax (first index on ties) of random rows, and Icarus
+    # Verilog 11 running the mutant (a mismatch) and the original (none) on them.
+    rows = np.random.default_rng(2).integers(0, 256, (300, 3))
+    scores = [[sum(w * x for w, x in zip(u.weights, row)) + u.bias for u in model.units]
+              for row in rows.tolist()]
+    design = plan_design(UnitConfig(model, **options))
+    stimulus = make_stimulus(ReferenceModel.from_model(model), rows, latency=design.latency)
+    assert stimulus.expect_decisions.tolist() == [s.index(max(s)) for s in scores]
+    for source, wrong in ((mutant, True), (text, False)):
+        result = IcarusBackend(source, port_table(design, model), model.module).run(stimulus)
+        assert bool(result.check(stimulus).mismatches) == wrong

@@ -30,7 +30,7 @@ def lemmas_of(plan, query, model, held=None):
             port, signed = query.port(internal)
             lemmas.append((port, f"(= {query.wide(port, 's0', signed)} {expected})"))
         return lemmas, list(query.assumptions), inputs
-    if plan.split and model.ports.has_score:
+    if plan.decision is not None and model.ports.has_score:
         # A split score's port joins the parts registered up to the last stage (no register
         # of its own).
         port, signed = query.port("score")
@@ -83,7 +83,7 @@ def _value_lemmas(plan, query, needed):
 def _outputs(plan, query, model, needed):
     """(internal port, the value it must carry) for the decision, the flag and the scores."""
     final, w = plan.final_stage, query.width
-    if plan.split:
+    if plan.decision is not None:
         # The decision chain's last step and the flag, registered into the outputs; the
         # score port is stated apart (lemmas_of).
         last = plan.latency - 1

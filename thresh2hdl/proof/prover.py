@@ -134,9 +134,6 @@ def _warm_up(yosys, boolector, progress):
 def _uncovered(component):
     """Why the method does not cover this design, or None (each reason is listed in the
     README's "Forms the proof does not cover")."""
-    if component.config.model.is_bank and component.split_parts:
-        return ("split adders in a bank are not covered by the proof (its split-adder lemmas "
-                "follow one unit's parts and decision)")
     return None
 
 
