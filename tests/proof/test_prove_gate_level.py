@@ -106,8 +106,13 @@ def icarus_mismatches(text, vector, family="ice40", model=MODEL, options=OPTIONS
 
 def invert_a_lut(text):
     """The LUT that makes the decision, its function inverted (one LUT_INIT changed)."""
-    found = re.search(r"\.LUT_INIT\(16'h([0-9a-f]{4})\)\s*\)\s*\S+\s*\((?:(?!\);).)*"
-                      r"\.O\(decision\)", text, re.S)
+    return inverted_lut(text, r"\.LUT_INIT\(16'h([0-9a-f]{4})\)\s*\)\s*\S+\s*\((?:(?!\);).)*"
+                        r"\.O\(decision\)")
+
+
+def inverted_lut(text, pattern):
+    """``text`` with the 16-bit init that ``pattern``'s first group matches inverted."""
+    found = re.search(pattern, text, re.S)
     assert found, "the netlist has no LUT named for the decision"
     inverted = format(~int(found[1], 16) & 0xFFFF, "04x")
     return text[:found.start(1)] + inverted + text[found.end(1):]
@@ -198,11 +203,8 @@ def test_ecp5_and_generic_netlists_are_proved_equivalent(other_synthesis, tmp_pa
 
 def invert_an_ecp5_lut(text):
     """An ECP5 LUT4 that feeds the decision, its function inverted (one INIT changed)."""
-    found = re.search(r"LUT4 #\(\s*\.INIT\(16'h([0-9a-f]{4})\)\s*\)\s*\S+\s*\("
-                      r"(?:(?!\);).)*\.Z\(decision", text, re.S)
-    assert found, "the netlist has no LUT4 named for the decision"
-    inverted = format(~int(found[1], 16) & 0xFFFF, "04x")
-    return text[:found.start(1)] + inverted + text[found.end(1):]
+    return inverted_lut(text, r"LUT4 #\(\s*\.INIT\(16'h([0-9a-f]{4})\)\s*\)\s*\S+\s*\("
+                        r"(?:(?!\);).)*\.Z\(decision")
 
 
 def change_the_decision_gate(text):

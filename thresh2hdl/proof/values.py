@@ -11,8 +11,9 @@ __all__ = ["Value", "form_range"]
 class Value:
     name: str
     kind: str          # input, product, scaled, add, sub, rsub, bias, const, compare, max, pick,
-                       # flag, whole (a split score joined for the argmax); loadable weights: mul (a feature times its weight register),
-                       # addreg (an operand plus the bias register)
+                       # flag, whole (a split score joined for the argmax); loadable weights:
+                       # mul (a feature times its weight register), addreg (an operand plus
+                       # the bias register)
     operands: tuple    # names of other values
     stage: int
     lo: int
