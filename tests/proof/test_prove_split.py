@@ -124,7 +124,7 @@ def sweep_config(seed):
 # constant only once the pipeline moves), seed 2 a decision step its part's range decides:
 # all four were undecided before the proof covered them.
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [0, 2, 4, 18, 5, 9, 13, 21])
+@pytest.mark.parametrize("seed", [0, 2, 4, 18])
 def test_random_split_configurations_are_proved(seed):
     from thresh2hdl.hardware import plan_design, UnitConfig
     model, config = sweep_config(seed)
@@ -167,7 +167,7 @@ def split_bank(seed):
     return model, config
 
 
-@pytest.mark.parametrize("seed", [0, 4, 6, 8])
+@pytest.mark.parametrize("seed", [0, 6])      # (0: a merged constant flop in a unit)
 def test_random_split_banks_are_proved(seed):
     model, config = split_bank(seed)
     outcome = proved(model, **config)
