@@ -53,6 +53,9 @@ def designs():
                                         "split_bits": 9, "carry_registers": 2}
     yield "demo-serial", demo, {"arch": "serial"}
     yield "demo-loadable", demo, {"loadable_weights": True}
+    # AXI4-Lite: an 18-bit bias register written byte by byte, so its flops are split by
+    # enable and the file carries a wire of its name joining them.
+    yield "demo-axi-lite", demo, {"loadable_weights": True, "weight_port": "axi4-lite"}
     yield "demo-flag-only", demo, {"clamp": False, "pipeline": 0}
     yield "demo-unguarded", demo, {"clamp": False, "range_flag": False, "pipeline": 3}
     for seed in (1, 2, 3):

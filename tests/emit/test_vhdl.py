@@ -52,6 +52,11 @@ FORMS = {
     "async-high-bank": (3, {"pipeline": 2, "reset": "async-high", "clock_enable": True}),
     "stream": (1, {"pipeline": 2, "interface": "axi-stream"}),
     "stream-bank": (3, {"pipeline": 1, "interface": "axi-stream", "reset": "async-low"}),
+    "split-bank": (3, {"pipeline": 2, "split_bits": 4}),
+    # 12-bit weights behind the AXI4-Lite slave: registers written byte by byte, whose flops
+    # synthesis splits by enable (each file joins them under the register's name).
+    "axi-lite": (1, {"loadable_weights": True, "weight_port": "axi4-lite", "weight_bits": 12,
+                     "pipeline": FULL_PIPELINE}),
 }
 
 
@@ -126,7 +131,8 @@ def test_a_wrong_vhdl_file_is_caught_in_ghdl():
 @pytest.mark.prove
 @pytest.mark.parametrize("name", ["tree-comb", "tree-2", "shiftadd-full", "flag-only",
                                   "bank-2", "bank-shared", "async-low-enable", "sync-low",
-                                  "async-high-bank", "stream", "stream-bank"])
+                                  "async-high-bank", "stream", "stream-bank", "split",
+                                  "split-bank", "axi-lite"])
 def test_ghdl_reading_proves(name):
     # GHDL's synthesis reads the VHDL (ghdl --synth --out=verilog); that reading is proved
     # equal to the model, so an independent tool's reading of our VHDL computes the model.

@@ -157,7 +157,37 @@ class NetlistWalk:
                 self.counter += 1
             self.own(wire, bits)
             items.append((wire, cell))
+        for wire, cell in self.split_registers(kept):
+            kept.add(wire)
+            items.append((wire, cell))
         return port_kind, kept, items
+
+    def split_registers(self, kept):
+        """A register of the design whose flip-flops synthesis split into groups (an AXI4-Lite
+        register written byte by byte, one enable per byte) has no cell of its own, so no
+        wire would carry its name: ``(wire, cell)`` of a wire of that name joining the groups
+        (a ``$pos`` of their bits), so that the proof and a reader find the register."""
+        flops = {bit for cell in self.module["cells"].values() if cell["type"] in FLOPS
+                 for bit in cell["connections"]["Q"]}
+        named_wires = kept | {self.port_name(p) for p in self.ports}
+        found = []
+        for net, info in sorted(self.module["netnames"].items()):
+            bits = info["bits"]
+            if info.get("hide_name") or net in self.ports or \
+                    not all(isinstance(b, int) and b in flops for b in bits):
+                continue
+            owners = {self.owner[b][0] for b in bits}
+            if len(owners) < 2 or owners & named_wires:
+                continue
+            width = format(len(bits), "032b")
+            wire = self.fresh(self.legal(net))
+            # Bits of its own, numbered below Yosys's (which are positive).
+            alias = [-len(self.owner) - 1 - k for k in range(len(bits))]
+            self.own(wire, alias)
+            found.append((wire, {"type": "$pos", "parameters": {
+                "A_SIGNED": "0" * 32, "A_WIDTH": width, "Y_WIDTH": width},
+                "connections": {"A": bits, "Y": alias}}))
+        return found
 
     @staticmethod
     def legal(name):

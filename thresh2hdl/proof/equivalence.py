@@ -48,6 +48,9 @@ CELL_FAMILIES = ("ice40", "ecp5")       # Yosys's share/<family>/cells_sim.v
 _CELL_DEFINES = "`define NO_ICE40_DEFAULT_ASSIGNMENTS\n"
 _INCLUDE = re.compile(r'^\s*`include\s+"([^"]+)"\s*$', re.M)
 _TIMESCALE = re.compile(r"^\s*`timescale\b.*$", re.M)
+# ECP5's models report an unsupported mode with SystemVerilog's elaboration task ``$error`` in
+# a generate branch no netlist of Yosys's reaches; Icarus 11 refuses the task, so it goes.
+_ELABORATION_ERROR = re.compile(r"^\s*\$error\([^;]*\);[ \t]*$", re.M)
 _MODULE = re.compile(r"^\s*module\s+(\\?\S+?)\s*[#(;]", re.M)
 
 
@@ -99,7 +102,7 @@ def cell_models(yosys, family):
         raise Undecided(f"Yosys's {family} cell models cannot be read ({error}); the "
                         f"method needs them") from None
     # No timescale: the netlist has none, and Icarus warns when only some modules do.
-    return _CELL_DEFINES + _TIMESCALE.sub("", text)
+    return _CELL_DEFINES + _ELABORATION_ERROR.sub("", _TIMESCALE.sub("", text))
 
 
 def read_gate_netlist(yosys, text, module, folder):

@@ -6,45 +6,12 @@ The plan is built from the model and the component's adder plan, not read from t
 and bias, term for term.
 """
 
-from dataclasses import dataclass
-
 from ..names import (SCORE_CONST, argmax_compare_name, argmax_names, bias_name,
                      flag_part_name, unit_prefix, weight_name)
+from .split import plan_split
+from .values import Value, form_range
 
 __all__ = ["Value", "Plan", "check_cover"]
-
-
-@dataclass
-class Value:
-    name: str
-    kind: str          # input, product, scaled, add, sub, rsub, bias, const, compare, max, pick,
-                       # flag; loadable weights: mul (a feature times its weight register),
-                       # addreg (an operand plus the bias register)
-    operands: tuple    # names of other values
-    stage: int
-    lo: int
-    hi: int
-    signed: bool
-    coeffs: dict | None = None   # feature -> coefficient of the linear form (None: argmax)
-    constant: int = 0
-    feature: int | None = None
-    magnitude: int = 0
-    first: int = 0     # argmax values: the unit indices they cover
-    last: int = 0
-    register_shift: int = 0   # a shifted input's registers carry value >> register_shift
-    features: tuple = ()      # a flag of the inputs: the features whose codes it tests
-    register: str | None = None   # mul, addreg: the weight or bias register it reads
-    parts: int = 1            # a split adder: its part count (its value: the parts' sum)
-    piece: dict | None = None  # a split adder's piece (psum, plow, pcarry, ptop, pnot, dstep):
-                               # what its formula reads (see Plan._split)
-
-
-def _form_range(coeffs, constant, ranges):
-    lo = hi = constant
-    for feature, c in coeffs.items():
-        a, b = c * ranges[feature][0], c * ranges[feature][1]
-        lo, hi = lo + min(a, b), hi + max(a, b)
-    return lo, hi
 
 
 class Plan:
@@ -76,8 +43,12 @@ class Plan:
                 for k, group in enumerate(layer):
                     name = flag_part_name(j, k, j == len(layers) - 1)
                     operands = () if j == 0 else tuple(below[c] for c in group)
+                    # A part over features no tighter than their ports is 0 (its flops
+                    # dropped): read as that constant, on a lemma that it is.
+                    hi = int(any(f in self.guard.tight for f in group) if j == 0 else
+                             any(self.values[o].hi for o in operands))
                     self.add(Value(name, "flag", operands, 0 if j == 0 else self.stage_of(j),
-                                   0, 1, False, features=group if j == 0 else ()))
+                                   0, hi, False, features=group if j == 0 else ()))
                     made.append(name)
                 below = made
         self.final_stage = self.stage_of(component.final_level)
@@ -85,8 +56,10 @@ class Plan:
         self.split_bits = component.config.split_bits
         self.skew = component.config.carry_registers
         self.decision = None      # split: the last step of the decision chain
-        if self.split:
-            self._split(component.analysis)
+        # Split scores arrive part by part: a bank's argmax compares them whole, this many
+        # stages behind the levels it is planned at.
+        self.wait = plan_split(self, component) if self.split else 0
+        self.final_stage += self.wait
         if model.is_bank:
             self.class_value = self._argmax(component.bank)
         check_cover(self, model)
@@ -97,7 +70,7 @@ class Plan:
 
     def linear(self, name, kind, operands, stage, coeffs, constant=0, **extra):
         coeffs = {f: c for f, c in coeffs.items() if c}
-        lo, hi = _form_range(coeffs, constant, self.ranges)
+        lo, hi = form_range(coeffs, constant, self.ranges)
         return self.add(Value(name, kind, tuple(operands), stage, lo, hi, lo < 0, coeffs,
                                constant, **extra))
 
@@ -205,109 +178,6 @@ class Plan:
         self.loadable = True
         self.unit_scores.append((names[analysis.score_node], 1, 0))
 
-    def _split(self, analysis):
-        """A split adder's pieces, as :func:`~thresh2hdl.hardware.trees.build_split_tree`
-        makes them: part ``j`` at ``j * skew`` stages after the node's, a low part's sum
-        (``{N}_p{j}_sum``: A + B + the carry in, exact) giving the part (its low bits) and the
-        carry (its top bit), the top part (A + B + the carry in), a subtrahend's parts
-        complemented where they are made; then the decision chain over the result's parts (a
-        part nonzero or one below it, the top part not negative: ``score > 0`` read from the
-        top down, as digits are compared)."""
-        b, skew, nodes = self.split_bits, self.skew, analysis.nodes
-        for node in nodes:
-            count = self.split.get(node.name, 1)
-            if count == 1:
-                continue
-            self.values[node.name].parts = count
-            constant, kind = None, node.kind
-            if kind in ("offset", "bias"):
-                constant = node.constant
-                kind = "rsub" if node.kind == "bias" and nodes[node.children[0]].sign < 0 \
-                    else "add"
-            subtrahend = {"add": None, "sub": 1, "rsub": 0}[kind]
-            first = self.stage_of(node.level)
-            for j in range(count):
-                at, top = first + j * skew, j == count - 1
-                operands = []
-                for position, child in enumerate(node.children):
-                    name = nodes[child].name
-                    if position == subtrahend:
-                        name = self._complement(name, j, top)
-                        operands.append(("value", name))
-                    else:
-                        operands.append(("slice", name))
-                if constant is not None:
-                    shifted = constant >> (j * b)
-                    operands.append(("const", shifted if top else shifted % (1 << b)))
-                carry = ("const", int(kind != "add")) if j == 0 else \
-                    ("value", f"{node.name}_c{j - 1}")
-                piece = {"node": node.name, "j": j, "top": top, "operands": operands,
-                         "carry": carry}
-                if top:
-                    whole = self.values[node.name]      # its range from its form
-                    lo, hi = whole.lo >> (j * b), whole.hi >> (j * b)
-                    self.add(Value(f"{node.name}_p{j}", "ptop", (), at, lo, hi, lo < 0,
-                                   piece=piece))
-                    continue
-                total = f"{node.name}_p{j}_sum"
-                self.add(Value(total, "psum", (), at, 0, (1 << (b + 1)) - 1, False,
-                               piece=piece))
-                fixed = _fixed_part(self.values[node.name], j, b)
-                lo, hi = (0, (1 << b) - 1) if fixed is None else (fixed, fixed)
-                self.add(Value(f"{node.name}_p{j}", "plow", (total,), at, lo, hi, False))
-                self.add(Value(f"{node.name}_c{j}", "pcarry", (total,), at, 0, 1, False))
-        self._decision_chain(analysis)
-
-    def _decision_chain(self, analysis):
-        """The decision over the result's parts from the lowest up: with a score, ``score >
-        0`` (a part nonzero or one below; the top part not negative); without one, the tree's
-        root against the threshold that ``score > 0`` means (the plan's own bias and sign,
-        not the circuit's constant), a part beyond its digit of the threshold or equal to it
-        with the parts below beyond: digits compared from the top."""
-        b, skew, nodes = self.split_bits, self.skew, analysis.nodes
-        with_score = analysis.has_score or analysis.loadable
-        result = nodes[analysis.score_node if with_score else analysis.tree_root]
-        threshold, greater = None, True
-        if not with_score:
-            _, sign, extra = self.unit_scores[0]
-            threshold, greater = (-extra, True) if sign > 0 else (extra, False)
-        count, below = self.split.get(result.name, 1), None
-        for j in range(count):
-            at, top = self.final_stage + j * skew, j == count - 1
-            name = "decision" if count == 1 else f"decision_p{j}"
-            part = result.name if count == 1 else f"{result.name}_p{j}"
-            piece = {"part": part, "below": below,
-                     "sign": top and self.values[result.name].lo < 0}
-            if threshold is not None:
-                limit = threshold >> (j * b)
-                piece.update(limit=limit if top else limit % (1 << b), greater=greater)
-            self.add(Value(name, "dstep", (), at, 0, 1, False, piece=piece))
-            below = name
-        self.decision = below
-
-    def _complement(self, name, j, top):
-        """The complement of part ``j`` of value ``name``, a value of its own made where
-        that part is made (``{name}_p{j}_not``, or ``_t{j}_not`` for a top part)."""
-        own = f"{name}_{'t' if top else 'p'}{j}_not"
-        if own not in self.values:
-            source = self.values[name]
-            made = source.stage if source.parts == 1 else \
-                self.values[f"{name}_p{min(j, source.parts - 1)}"].stage
-            b = self.split_bits
-            fixed = None if top else _fixed_part(source, j, b)
-            if top:
-                lo, hi = -(source.hi >> (j * b)) - 1, -(source.lo >> (j * b)) - 1
-            elif fixed is not None:
-                lo = hi = (1 << b) - 1 - fixed
-            elif source.lo >= 0 and source.hi >> (j * b) < 1 << b:
-                # The part of a small non-negative value: its complement's high bits are 1s.
-                lo, hi = (1 << b) - 1 - (source.hi >> (j * b)), (1 << b) - 1
-            else:
-                lo, hi = 0, (1 << b) - 1
-            self.add(Value(own, "pnot", (name,), made, lo, hi, lo < 0,
-                           piece={"node": name, "j": j, "top": top}))
-        return own
-
     def _argmax(self, plan):
         """The argmax as the circuit plans it: a tournament, left (lower index) wins ties."""
         layer = []
@@ -318,13 +188,14 @@ class Plan:
 
         def merge(level, tag, left, right):
             (a, ia, first, _), (b, ib, _, last) = left, right
-            stage = self.stage_of(level + 1)
+            stage = self.stage_of(level + 1) + self.wait
             lo = min(self.values[a].lo, self.values[b].lo)
             hi = max(self.values[a].hi, self.values[b].hi)
             score, chosen = argmax_names(tag)
             compared = argmax_compare_name(tag)
             self.closed.update((score, chosen, compared))
-            self.add(Value(compared, "compare", (a, b), self.stage_of(level), 0, 1, False))
+            self.add(Value(compared, "compare", (a, b), self.stage_of(level) + self.wait, 0, 1,
+                           False))
             self.add(Value(score, "max", (compared, a, b), stage, lo, hi, True, first=first,
                            last=last))
             self.add(Value(chosen, "pick", (compared, a, b, ia, ib), stage, first, last, False,
@@ -332,17 +203,6 @@ class Plan:
             return score, chosen, first, last
 
         return plan.tournament(layer, merge)[1]      # None for a bank of one unit: class 0
-
-
-def _fixed_part(value, j, b):
-    """Part ``j`` (``b`` bits from ``j * b``) of a linear value when it is the same whatever
-    the inputs (every coefficient's low bits are zeros there, as in a shift-add sum of
-    shifted inputs: the part is the constant's), else None."""
-    if value.coeffs is None:
-        return None
-    numbers = [c for c in value.coeffs.values() if c]
-    zeros = min(((n & -n).bit_length() - 1 for n in numbers), default=1 << 30)
-    return (value.constant >> (j * b)) % (1 << b) if (j + 1) * b <= zeros else None
 
 
 def check_cover(plan, model):

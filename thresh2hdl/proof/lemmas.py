@@ -11,10 +11,12 @@ __all__ = ["lemmas_of", "weight_write_lemmas"]
 _HANDSHAKE = ("in_valid", "in_ready", "out_ready", "out_valid")
 
 
-def lemmas_of(plan, query, model):
+def lemmas_of(plan, query, model, held=None):
     """The lemmas (label, Bool) of the whole design, per stage; the assumptions they are
     stated under; and the input ranges, assumptions too except for the out-of-range flag's
-    lemmas."""
+    lemmas. ``held``: flops that only ever load a constant (name -> constant,
+    :func:`.structure.constant_loads`), each stated to hold it while an item is in the
+    pipeline."""
     needed = set()
     inputs = query.input_ranges()
     lemmas = _value_lemmas(plan, query, needed)
@@ -28,7 +30,7 @@ def lemmas_of(plan, query, model):
             port, signed = query.port(internal)
             lemmas.append((port, f"(= {query.wide(port, 's0', signed)} {expected})"))
         return lemmas, list(query.assumptions), inputs
-    if plan.split and model.ports.has_score:
+    if plan.decision is not None and model.ports.has_score:
         # A split score's port joins the parts registered up to the last stage (no register
         # of its own).
         port, signed = query.port("score")
@@ -41,6 +43,7 @@ def lemmas_of(plan, query, model):
         # (before the registers: the values it reads where a result leaves are carried)
         lemmas += learning.lemmas(query, model, needed)
     pipeline.registers()
+    pipeline.held_constants(held or {})
     if plan.loadable and "weight_write" in query.ports and learning is None:
         lemmas += weight_write_lemmas(plan, query, model)
     lemmas += [(f"{name} is {value}", f"(= {query.formula(name, query.width)} "
@@ -86,7 +89,7 @@ def _value_lemmas(plan, query, needed):
 def _outputs(plan, query, model, needed):
     """(internal port, the value it must carry) for the decision, the flag and the scores."""
     final, w = plan.final_stage, query.width
-    if plan.split:
+    if plan.decision is not None:
         # The decision chain's last step and the flag, registered into the outputs; the
         # score port is stated apart (lemmas_of).
         last = plan.latency - 1
@@ -135,6 +138,25 @@ class _Pipeline:
             before = self.valid[k - 1] if k == 1 else self.valid[k - 1][1]
             self.lemmas.append((name, f"(= {after} (ite {clears} false "
                                       f"(ite {self.in_ready} {before} {now})))"))
+
+    def held_constants(self, held):
+        """A flop that only ever loads one constant holds it whenever some stage holds a
+        valid item (it loads whenever the pipeline moves, and an item entered with such a
+        move): assumed in ``s0``, a lemma in ``s1``. Synthesis merges a register that carries
+        a constant into such flops; were one loaded otherwise, its lemma would fail."""
+        smt, w = self.query.smt, self.query.width
+        if not held:
+            return
+        any_now = f"(or false {' '.join(now for _, now, _ in self.valid[1:])})"
+        any_after = f"(or false {' '.join(after for _, _, after in self.valid[1:])})"
+        for name, constant in sorted(held.items()):
+            if name not in smt.registers:
+                continue
+            bits = smt.widths[name]
+            value = self.query.low(bv(constant, w), bits)
+            self.assumptions.append(f"(=> {any_now} (= {smt.bits(name, 's0')} {value}))")
+            self.lemmas.append((f"{name} holds {constant}",
+                                f"(=> {any_after} (= {smt.bits(name, 's1')} {value}))"))
 
     def valid_now(self, stage):
         return self.valid[0] if stage == 0 else self.valid[stage][1]

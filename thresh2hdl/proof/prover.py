@@ -54,7 +54,7 @@ from .search import find_counterexample
 from .serial import serial_lemmas
 from .smt import SmtExport, export_smt2, wire_widths
 from .solve import solve, solve_batches
-from .structure import check_structure
+from .structure import check_structure, constant_loads
 
 __all__ = ["ProofOutcome", "prove_netlist", "proof_tools", "DEFAULT_TIMEOUT_S"]
 
@@ -105,6 +105,7 @@ def prove_netlist(verilog_text, component, model, port_rows, *, timeout_s=DEFAUL
             check_structure(structure, port_rows)
         except Undecided as why:
             return proof.outcome("undecided", str(why))
+        proof.held = constant_loads(structure)
         return proof.run_serial(component) if serial else proof.run()
 
 
@@ -133,7 +134,8 @@ def _warm_up(yosys, boolector, progress):
 
 
 def _uncovered(component):
-    """Why the method does not cover this design, or None."""
+    """Why the method does not cover this design, or None (each reason is listed in the
+    README's "Forms the proof does not cover")."""
     return None
 
 
@@ -149,6 +151,7 @@ class _Proof:
         self.versions, self.tools = versions, tools
         self.quick_search = None
         self.query_type = LearningQuery if getattr(plan, "learning", None) else Query
+        self.held = {}      # flops that only load a constant: name -> it (lemmas_of)
         widest = max([signed_bits(v.lo, v.hi) for v in plan.values.values()]
                      + wire_widths(smt2) + [1])
         self.width = max(MIN_WIDTH, widest + 2)
@@ -187,8 +190,14 @@ class _Proof:
             smt, lemmas, failing, skipped = result
             inner = {lemma for lemma in failing if smt.has(lemma)
                      and lemma not in port_wires and lemma not in smt.registers}
-            if not inner:
+            # A flop taken to hold its constant that does not: no longer taken so.
+            dropped = {name for name, constant in self.held.items()
+                       if f"{name} holds {constant}" in failing}
+            self.held = {name: k for name, k in self.held.items() if name not in dropped}
+            if not inner and not dropped:
                 break
+            if not inner:
+                continue
             # Inner wires that fail may just mean something else (a netlist written
             # back by synthesis keeps some of the names, partly driven). Compute them from
             # their operands instead and try again; the wires that hold stay cut points.
@@ -277,7 +286,7 @@ class _Proof:
         smt.cut({name for name in plan.closed
                  if smt.has(name) and query.holds_exactly(name, name)})
         try:
-            lemmas, assumptions, inputs = lemmas_of(plan, query, self.model)
+            lemmas, assumptions, inputs = lemmas_of(plan, query, self.model, self.held)
         except Undecided as why:
             return self.outcome("undecided", str(why))
         common, groups = self._queries(smt, query, lemmas, assumptions, inputs)

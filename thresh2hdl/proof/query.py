@@ -4,6 +4,7 @@ registers or their operands, in arithmetic wide enough that nothing overflows.""
 from ..analysis import signed_bits
 from ..names import register_name
 from .outcome import Undecided
+from .split import range_test
 
 __all__ = ["Query", "bv", "port_names", "bool_signal"]
 
@@ -213,6 +214,8 @@ class Query:
                    f"{self.weight_register(value.register, state)})"
         elif value.kind == "scaled":
             expr = self._shifted(operand(value.operands[0]), value.magnitude)
+        elif value.kind == "whole":         # a split score joined from its parts
+            expr = operand(value.operands[0])
         elif value.kind == "const":
             expr = bv(value.constant, w)
         elif value.kind == "flag" and value.operands:      # an OR of flags below
@@ -285,7 +288,7 @@ class Query:
         return shifted if top else f"(bvand {shifted} {bv((1 << b) - 1, w)})"
 
     def _piece(self, value, state, needed, modulus_bits):
-        """A split adder's piece from what it reads (see :meth:`Plan._split`), modulo
+        """A split adder's piece from what it reads (see :mod:`.split`), modulo
         ``modulus_bits`` (exact for a low part's sum)."""
         w, b, piece, stage = self.width, self.plan.split_bits, value.piece, value.stage
         if value.kind == "pnot":
@@ -310,7 +313,7 @@ class Query:
         return total
 
     def _decision_step(self, value, piece, stage, state, needed):
-        """One step of a split result's decision (see :meth:`Plan._decision_chain`)."""
+        """One step of a split result's decision (see :func:`.split.decision_chain`)."""
         w = self.width
 
         def part():
@@ -324,12 +327,9 @@ class Query:
             # be, as the circuit decides it (then no part is read: a constant).
             held, number = self.plan.values[piece["part"]], piece["limit"]
             limit, greater = bv(number, w), piece["greater"]
-            if (held.lo > number) if greater else (held.hi < number):
-                test = "true"
-            elif (held.hi <= number) if greater else (held.lo >= number):
-                test = "false"
-            else:
-                test = f"({'bvsgt' if greater else 'bvslt'} {part()} {limit})"
+            decided = range_test(held, number, greater)
+            test = f"({'bvsgt' if greater else 'bvslt'} {part()} {limit})" \
+                if decided is None else str(decided).lower()
             if piece["below"] is not None and held.lo <= number <= held.hi:
                 test = f"(or {test} (and (= {part()} {limit}) {below()}))"
         else:                       # score > 0: nonzero, and the top part not negative

@@ -270,8 +270,9 @@ def _flag_lemmas(t, guard, count, at, clears, transfer, last, finish, x, w):
         lo, hi = guard.feature_ranges[k]
         if k in guard.tight:
             outside.append(f"(and {at(k)} (not {t.within(x, lo, hi)}))")
-    now = f"(or false {' '.join(outside)})"
-    if count > 1:
+    # (No range tighter than its port: the flag is 0, its memory of earlier beats dropped.)
+    now = f"(or false {' '.join(outside)})" if outside else "false"
+    if count > 1 and outside:
         seen = f"(= {t.signal('outside_seen', 's0', False)} {bv(1, w)})"
         now = f"(or {now} (and {seen} (not {at(0)})))"
         seen_after = f"(= {t.signal('outside_seen', 's1', False)} {bv(1, w)})"

@@ -1,12 +1,12 @@
 """What the SMT export cannot show, checked on Yosys's ``write_json`` record of the netlist:
-its ports, free inputs and clocking."""
+its ports, free inputs and clocking; and the flops that only ever load a constant."""
 
 import re
 
 from ..errors import InputError
 from .outcome import Undecided
 
-__all__ = ["check_structure"]
+__all__ = ["check_structure", "constant_loads"]
 
 # Flops with a clock polarity parameter: plain, enabled, synchronous or asynchronous reset
 # (the export reads the asynchronous ones through async2sync, see smt.export_smt2).
@@ -64,3 +64,45 @@ def check_structure(module, port_rows):
             raise Undecided(f"a register ({kind}) is not clocked by the rising edge of "
                              f"{clock or 'a clock port'} alone; the method covers only that")
 
+
+
+def constant_loads(module):
+    """Flops that only ever load one constant (``$dff`` whose D is that constant, or a
+    multiplexer between the constant and the flop's own output), by a register name that
+    holds exactly their bits: name -> the constant. Synthesis makes them where a register
+    carries a constant (a split adder's part that only the bias fills) and merges the bits
+    that are 1, which load the constant only from the first cycle that moves the pipeline:
+    free in an arbitrary state, so the proof states when they hold it (see
+    :meth:`.lemmas._Pipeline.held_constants`)."""
+    cells = module["cells"].values()
+    driven_by = {}
+    for cell in cells:
+        if cell["type"] == "$mux":
+            for position, bit in enumerate(cell["connections"]["Y"]):
+                driven_by[bit] = (cell, position)
+    names = {tuple(net["bits"]): name for name, net in sorted(module["netnames"].items())
+             if not name.startswith("$")}
+    found = {}
+    for cell in cells:
+        if cell["type"] != "$dff":
+            continue
+        q, d = cell["connections"]["Q"], cell["connections"]["D"]
+        constant = [_loaded_bit(bit, own, driven_by) for bit, own in zip(d, q)]
+        if tuple(q) in names and all(bit in ("0", "1") for bit in constant):
+            found[names[tuple(q)]] = int("".join(reversed(constant)), 2)
+    return found
+
+
+def _loaded_bit(bit, own, driven_by):
+    """The constant that flop bit ``own`` loads through ``bit`` (its D), or None."""
+    if bit in ("0", "1"):
+        return bit
+    if bit not in driven_by:
+        return None
+    cell, position = driven_by[bit]
+    a, b = (cell["connections"][side][position] for side in ("A", "B"))
+    if a == own and b in ("0", "1"):
+        return b
+    if b == own and a in ("0", "1"):
+        return a
+    return None
