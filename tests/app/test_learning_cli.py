@@ -55,7 +55,8 @@ def test_fit_in_fabric_predicts_the_registers_and_refuses_a_label_the_model_lack
                  "0", "--epochs", "50")
     assert result.returncode == 0, result.stderr
     learned = load_model(out).unit
-    # The rule by hand: w += 2 (t - y) x, b += 2 (t - y), rows in file order.
+    # The rule by hand (Rosenblatt 1958, from memory): w += 2 (t - y) x, b += 2 (t - y),
+    # rows in file order, each register clamped to 8 bits.
     w, b = [0, 0], 0
     for _ in range(json.loads((tmp_path / "learned.fit.json").read_text())["epochs_run"][0]):
         for (a, c) in rows:

@@ -12,9 +12,10 @@ from thresh2hdl.model.records import Model, Unit
 
 
 def gold_step(weights, bias, x, target, eta_shift, bias_step, weight_bits, bias_bits):
-    """The rule as written (Rosenblatt's, with a power-of-two rate and saturation): if the
-    decision w.x + b > 0 differs from the target, w += eta (t - y) x, b += (t - y) step, each
-    clamped to its signed width. Python integers, one line each."""
+    """The rule as written (Rosenblatt 1958, "The perceptron", from memory; here with a
+    power-of-two rate and saturation): if the decision w.x + b > 0 differs from the target,
+    w += eta (t - y) x, b += (t - y) step, each clamped to its signed width. Python integers,
+    one line each."""
     y = int(sum(w * v for w, v in zip(weights, x)) + bias > 0)
     if y == target:
         return list(weights), bias

@@ -54,7 +54,7 @@ def test_novikoff_bound_holds_on_separable_data():
 
 @pytest.mark.parametrize("shift", [0, 2])
 def test_unsaturated_rule_is_scikit_learn_perceptron_scaled_by_eta(shift):
-    # scikit-learn 1.x Perceptron (eta0=1, no penalty, no shuffling, tol=None) runs
+    # scikit-learn (1.9.1 here) Perceptron (eta0=1, no penalty, no shuffling, tol=None) runs
     # w += s x, b += s whenever s (w.x + b) <= 0; the classic rule differs only where a
     # class-0 row meets w.x + b == 0 exactly (tests/train/test_train.py), which this test
     # checks does not happen after the first update. From zero weights, the rule with
