@@ -15,17 +15,13 @@ from dataclasses import replace
 import numpy as np
 
 from ..hardware.weights import register_file
+from .register_bus import register_value
 from .side import LEARNING, SideRun
 from .stimulus import write_columns
 
 __all__ = ["with_learning", "learning_trace", "LABELLED_SHARE"]
 
 LABELLED_SHARE = 0.5
-
-
-def _signed(value, width):
-    value = int(value) & ((1 << width) - 1)
-    return value - (1 << width) if value >> (width - 1) else value
 
 
 def learning_trace(stimulus, config, labelled, targets, addresses):
@@ -83,7 +79,7 @@ def learning_trace(stimulus, config, labelled, targets, addresses):
         if strobes[cycle] and int(write_addresses[cycle]) < count:
             address = int(write_addresses[cycle])
             unit, index = divmod(address, features + 1)
-            value = _signed(data[cycle], widths[address])
+            value = register_value(int(data[cycle]), widths[address])
             if index < features:
                 weights[unit, index] = value
             else:

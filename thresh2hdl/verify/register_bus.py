@@ -22,7 +22,7 @@ from .side import AXI_LITE, SideRun
 from .stimulus import write_columns
 
 __all__ = ["BUS_INPUTS", "BUS_OUTPUTS", "CHECKED_WHILE", "BusRun", "AxiLiteSlaveModel",
-           "with_axi_lite", "READ_WINDOW"]
+           "with_axi_lite", "register_value", "READ_WINDOW"]
 
 BUS_INPUTS, BUS_OUTPUTS = AXI_LITE.inputs, AXI_LITE.outputs
 CHECKED_WHILE = AXI_LITE.checked_while
@@ -40,7 +40,8 @@ def _word(value):
     return int(value) & _WORD_MASK
 
 
-def _register_value(word, width):
+def register_value(word, width):
+    """The low ``width`` bits of ``word`` as a register reads them (two's complement)."""
     word &= (1 << width) - 1
     return word - (1 << width) if word >> (width - 1) else word
 
@@ -96,7 +97,7 @@ class AxiLiteSlaveModel:
             if strobe >> lane & 1:
                 mask = 0xFF << (8 * lane)
                 word = (word & ~mask) | (data & mask)
-        return _register_value(word, self.widths[index])
+        return register_value(word, self.widths[index])
 
 
 class _Master:
