@@ -6,7 +6,8 @@ import re
 __all__ = ["VERILOG_KEYWORDS", "VHDL_RESERVED", "check_identifier", "vhdl_name_problem", "GUARD_FLAG", "SCORE_CONST", "register_name",
            "valid_name", "unit_prefix", "argmax_names", "argmax_compare_name",
            "flag_part_name", "weight_name", "bias_name", "weight_registers", "entered_name",
-           "LEARN_ENABLE", "LEARN_TARGET", "learn_step_name", "positive_name"]
+           "LEARN_ENABLE", "LEARN_TARGET", "learn_step_name", "positive_name",
+           "clamped_name"]
 
 GUARD_FLAG = "guard_flag"     # the input guard's out-of-range flag, made at the inputs
 SCORE_CONST = "score_const"   # a bank unit's score when every weight is 0 (after its prefix)
@@ -16,6 +17,11 @@ def flag_part_name(layer, group, last):
     """Group ``group`` of layer ``layer`` of the out-of-range flag's OR tree; the flag itself
     when it is the ``last`` layer's one group."""
     return GUARD_FLAG if last else f"{GUARD_FLAG}{layer}_{group}"
+
+
+def clamped_name(feature):
+    """The input guard's wire that carries feature ``feature`` (a name) clamped to its range."""
+    return f"{feature}_clamped"
 
 
 def register_name(value, stage):

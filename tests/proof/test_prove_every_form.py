@@ -2,9 +2,10 @@
 `prove` answers undecided with a reason that the README lists.
 
 The options are those of the forms `build` makes (architecture, pipeline depth, split adders
-with their carry registers, loadable weights with the plain or AXI4-Lite port, the input guard,
-banks with and without shared terms, the AXI4-Stream interface, the clock enable, each reset
-kind). All their combinations are tens of thousands; the tests prove a set of the accepted ones
+with their carry registers, loadable weights with the plain or AXI4-Lite port, on-chip
+learning, declared widths over the fewest, the input guard, banks with and without shared
+terms, the AXI4-Stream interface, the clock enable, each reset kind, Verilog or VHDL: a VHDL
+design is proved as GHDL 2.0's synthesis reads it back). All their combinations are tens of thousands; the tests prove a set of the accepted ones
 that holds every pair of option values `build` accepts together (a pairwise cover: common
 practice in combinatorial testing, since most faults need one or two options to show), on the
 demo model and on random ones. The solver is Boolector 3.2.3, the export Yosys 0.70's.
@@ -18,7 +19,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from helpers import bank_model, make_model, prove_design
+from helpers import bank_model, make_model, prove_design, require_tool
 from thresh2hdl.app import demo_model
 from thresh2hdl.errors import InputError
 from thresh2hdl.hardware import RESET_KINDS, UnitConfig
@@ -28,12 +29,14 @@ DIMENSIONS = {
     "arch": ("tree", "shiftadd", "serial"),
     "pipeline": (0, 1, 2, "full"),
     "split": (None, (4, 1), (3, 2)),          # (split bits, carry registers)
-    "weights": ("constant", "plain", "axi4-lite"),
+    "weights": ("constant", "plain", "axi4-lite", "learning"),
+    "widths": ("default", "wide"),            # wide: declared widths over the fewest
     "guard": ("default", "clamp", "flag", "both"),
     "share_terms": (False, True),
     "interface": ("plain", "axi-stream"),
     "clock_enable": (False, True),
     "reset": tuple(RESET_KINDS),
+    "hdl": ("verilog", "vhdl"),               # vhdl: GHDL's synthesis reading is proved
 }
 SHARDS = 6
 
@@ -59,12 +62,16 @@ def options_of(choice):
     split = choice["split"] or (None, 1)
     guard = {"default": (None, None), "clamp": (True, False), "flag": (False, True),
              "both": (True, True)}[choice["guard"]]
+    weights = choice["weights"]
+    wide = {} if choice["widths"] == "default" else \
+        dict(score_bits=40, **({} if weights == "constant" else dict(weight_bits=12, bias_bits=28)))
+    learning = dict(on_chip_learning=True, learning_rate="1/4") if weights == "learning" else {}
     return dict(arch=choice["arch"], pipeline=choice["pipeline"], split_bits=split[0],
-                carry_registers=split[1], loadable_weights=choice["weights"] != "constant",
-                weight_port="plain" if choice["weights"] == "constant" else choice["weights"],
+                carry_registers=split[1], loadable_weights=weights != "constant",
+                weight_port="axi4-lite" if weights == "axi4-lite" else "plain",
                 clamp=guard[0], range_flag=guard[1], share_terms=choice["share_terms"],
                 interface=choice["interface"], clock_enable=choice["clock_enable"],
-                reset=choice["reset"])
+                reset=choice["reset"], **wide, **learning)
 
 
 def accepted(choice):
@@ -104,6 +111,16 @@ def listed_refusals():
             if line.startswith("- ")]
 
 
+def vhdl_reading(model, options):
+    """The design's VHDL as GHDL's synthesis reads it back (GHDL 2.0), in Verilog."""
+    from thresh2hdl.emit import emit_vhdl
+    from thresh2hdl.hardware import make_component
+    from thresh2hdl.verify import ghdl_reading
+    require_tool("ghdl")
+    return ghdl_reading(emit_vhdl(make_component(UnitConfig(model, **options)), model),
+                        model.module)
+
+
 @pytest.mark.slow       # (tens of thousands of configurations checked: seconds)
 def test_the_cover_holds_every_accepted_pair():
     chosen, accepted_count, pairs = pairwise_cover()
@@ -123,7 +140,9 @@ def test_every_accepted_combination_proves_or_is_refused_with_a_listed_reason(sh
     refusals = listed_refusals()
     failures = []
     for choice in chosen[shard::SHARDS]:
-        outcome = prove_design(model_named(choice["model"]), **options_of(choice))
+        model, options = model_named(choice["model"]), options_of(choice)
+        outcome = prove_design(model, text=vhdl_reading(model, options)
+                               if choice["hdl"] == "vhdl" else None, **options)
         if outcome.status == "proved":
             continue
         listed = outcome.status == "undecided" and any(

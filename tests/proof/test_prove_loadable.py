@@ -12,6 +12,8 @@ import numpy as np
 import pytest
 
 from helpers import assert_mutant_caught, bank_model, make_model, prove_design
+from thresh2hdl.emit.verilog import emit_verilog
+from thresh2hdl.hardware import UnitConfig, make_component
 
 pytestmark = pytest.mark.prove
 
@@ -54,6 +56,24 @@ def _random_loadable(seed):
 def test_random_loadable_models_are_proved(seed):
     outcome = proved(_random_loadable(seed), pipeline=[1, 2, "full"][seed])
     assert outcome.status == "proved", outcome.detail
+
+
+def test_a_clamped_feature_times_a_wide_weight_in_one_stage_is_proved():
+    # A product of the clamp's output and a loadable register at one register stage: the
+    # clamped wire is a cut point with a lemma of its own (the solver once spent minutes here
+    # comparing two multipliers of two multiplexers). Reading the raw code instead of the
+    # clamped one is caught: 600 exceeds the declared 510 (a counterexample, not undecided).
+    model = make_model([153, 5, 177, 191, 189], -1200, bits=10,
+                       ranges=[(1, 510)] + [(None, None)] * 4)
+    config = {"pipeline": 1, "weight_bits": 12, "bias_bits": 20}
+    outcome = proved(model, **config)
+    assert outcome.status == "proved", outcome.detail
+    text = emit_verilog(make_component(UnitConfig(model, loadable_weights=True, **config)),
+                        model)
+    raw = text.replace("{12'd0, f0_clamped} * ", "{12'd0, f0[8:0]} * ")
+    assert raw != text
+    outcome = proved(model, raw, **config)
+    assert outcome.status == "counterexample" and "p0" in outcome.detail, outcome.detail
 
 
 def _zero_extended_weight(text):

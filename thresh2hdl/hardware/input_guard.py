@@ -5,7 +5,7 @@ resolved in :mod:`thresh2hdl.analysis.guard`)."""
 from amaranth.hdl import Cat, Const, Mux, Signal, signed, unsigned
 
 from ..analysis import value_bits
-from ..names import GUARD_FLAG, flag_part_name, register_name
+from ..names import GUARD_FLAG, clamped_name, flag_part_name, register_name
 
 __all__ = ["guard_inputs", "guard_sample"]
 
@@ -33,7 +33,7 @@ def guard_inputs(m, stages, features, config):
             continue
         bits, is_signed = value_bits(lo, hi)
         value = Signal(signed(bits) if is_signed else unsigned(bits),
-                       name=f"{feature.name}_clamped")
+                       name=clamped_name(feature.name))
         clamped = port
         if above is not None:
             clamped = Mux(above, hi, clamped)

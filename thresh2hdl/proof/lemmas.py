@@ -29,7 +29,7 @@ def lemmas_of(plan, query, model, held=None):
         for internal, expected in outputs:
             port, signed = query.port(internal)
             lemmas.append((port, f"(= {query.wide(port, 's0', signed)} {expected})"))
-        return lemmas, list(query.assumptions), inputs
+        return lemmas + _clamps(query), list(query.assumptions), inputs
     if plan.decision is not None and model.ports.has_score:
         # A split score's port joins the parts registered up to the last stage (no register
         # of its own).
@@ -49,7 +49,13 @@ def lemmas_of(plan, query, model, held=None):
     lemmas += [(f"{name} is {value}", f"(= {query.formula(name, query.width)} "
                                       f"{bv(value, query.width)})")
                for name, value in sorted(query.constant_values.items())]
+    lemmas += _clamps(query)
     return lemmas + pipeline.lemmas, pipeline.assumptions + query.assumptions, inputs
+
+
+def _clamps(query):
+    """The lemmas of the clamped wires the formulas read (Query.feature)."""
+    return [(wire, lemma) for (wire, _), lemma in sorted(query.clamp_lemmas.items())]
 
 
 def weight_write_lemmas(plan, query, model, otherwise=None):

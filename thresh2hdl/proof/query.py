@@ -1,8 +1,8 @@
 """One SMT-LIB query over the exported netlist's functions: its values known from wires,
 registers or their operands, in arithmetic wide enough that nothing overflows."""
 
-from ..analysis import signed_bits
-from ..names import register_name
+from ..analysis import signed_bits, value_bits
+from ..names import clamped_name, register_name
 from .outcome import Undecided
 from .split import range_test
 
@@ -28,6 +28,7 @@ class Query:
         self.defined = {}
         self.assumptions = []
         self.constant_values = {}   # split values read as constants (registers dropped)
+        self.clamp_lemmas = {}      # (clamped wire, state) -> its lemma (see feature)
 
     def extend(self, expr, bits, signed):
         if bits == self.width:
@@ -65,9 +66,20 @@ class Query:
         if not guard.clamp or index not in guard.tight:
             return code
         (lo, hi), w = guard.feature_ranges[index], self.width
-        return self.define(f"clamped x{index} {state}", self._sort(),
-                           f"(ite (bvslt {code} {bv(lo, w)}) {bv(lo, w)} "
-                           f"(ite (bvsgt {code} {bv(hi, w)}) {bv(hi, w)} {code}))")
+        clamped = f"(ite (bvslt {code} {bv(lo, w)}) {bv(lo, w)} " \
+                  f"(ite (bvsgt {code} {bv(hi, w)}) {bv(hi, w)} {code}))"
+        wire = clamped_name(self.plan.model.features[index].name)
+        if self.pure or not self.smt.has(wire) or wire in self.smt.registers or \
+                self.smt.widths[wire] != value_bits(lo, hi)[0]:
+            return self.define(f"clamped x{index} {state}", self._sort(), clamped)
+        # The netlist's own clamped wire (as wide as the range, as the circuit makes it),
+        # on a lemma that it is the clamp of the code: a product then multiplies the same
+        # term on both sides, where a multiplier of the formula's multiplexer against one of
+        # the netlist's is a hard question for the solver.
+        bits = self.smt.widths[wire]
+        self.clamp_lemmas[(wire, state)] = \
+            f"(= {self.smt.bits(wire, state)} {self.low(clamped, bits)})"
+        return self.define(f"{wire} {state}", self._sort(), self.wide(wire, state, lo < 0))
 
     def outside(self, state="s0", features=None):
         """Bool: some feature's code (of ``features``, else of all) lies outside its declared
