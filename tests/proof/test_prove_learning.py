@@ -137,8 +137,9 @@ def test_a_flagged_sample_that_teaches_is_caught():
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("mutate", [_sign_inverted, _wraps, _shift_off_by_one, _live_bias],
-                         ids=["sign", "wraps", "shift", "live-bias"])
+@pytest.mark.parametrize("mutate", [_sign_inverted, _wraps, _shift_off_by_one, _live_bias,
+                                    _write_loses],
+                         ids=["sign", "wraps", "shift", "live-bias", "write-loses"])
 def test_each_mutant_gives_a_counterexample_icarus_confirms(tmp_path, mutate):
     from thresh2hdl.app import BuildOptions, build, prove
     from thresh2hdl.emit.verilog import port_table
@@ -155,7 +156,8 @@ def test_each_mutant_gives_a_counterexample_icarus_confirms(tmp_path, mutate):
     with pytest.raises(MismatchError, match="counterexample"):
         prove(out, netlist=path, timeout_s=120, simulator="icarus")
     # Independently: Icarus runs the build's own learning stimulus (labelled samples back to
-    # back, registers read back every cycle); the mutant differs somewhere, the original not.
+    # back, registers read back every cycle, writes in some cycles where an update lands);
+    # the mutant differs somewhere, the original not.
     design = plan_design(UnitConfig(model, **options))
     rows = np.random.default_rng(0).integers(-16, 16, (200, 3))
     stimulus, _ = first_stimulus(design, model, rows, reload_count=50)

@@ -158,7 +158,7 @@ def test_the_drift_scenario_is_learned_bit_exact_with_fit(simulators, tmp_path):
                              latency=component.latency, valid_probability=1.0,
                              ready_probability=1.0, stall_vectors=0, guard=config.guard)
     stimulus = with_learning(stimulus, config, 0, labelled=np.ones(len(labels), bool),
-                             targets=labels)
+                             targets=labels, writes_in_updates=False)
     for backend in backends(start, component, tmp_path, simulators):
         checked = backend.run(stimulus).check(stimulus)
         assert checked.mismatch_count == 0, (backend.name, checked.mismatches[:2])
@@ -226,7 +226,7 @@ def test_a_separable_set_is_learned_in_as_many_epochs_as_fit_takes():
                         expect_decisions=zeros.astype(np.uint8))
     targets = np.tile(labels, epochs)
     stimulus = with_learning(stimulus, config, 0, labelled=np.ones(len(vectors), bool),
-                             targets=targets)
+                             targets=targets, writes_in_updates=False)
     checked = make_backend("amaranth", component=component).run(stimulus).check(stimulus)
     assert checked.mismatch_count == 0
     _, _, _, (weights, biases) = learning_trace(stimulus, config, np.ones(len(vectors), bool),

@@ -268,9 +268,10 @@ class _Proof:
         """Every group's lemmas, in batches: 'unsat' (all hold), 'sat' or 'unknown', and the
         failing labels."""
         self._say(f"solving {len(lemmas)} lemmas with Boolector")
+        products = {name for name, value in self.plan.values.items() if value.kind == "mul"}
         answers = [solve_batches(self.boolector, text, group, self.folder,
-                                 self.started + self.timeout_s) for text, group in groups
-                   if group]
+                                 self.started + self.timeout_s, products)
+                   for text, group in groups if group]
         failing = [lemma for _, found in answers for lemma in found]
         kinds = {answer for answer, _ in answers}
         return ("sat" if "sat" in kinds else "unknown" if "unknown" in kinds else "unsat"),\

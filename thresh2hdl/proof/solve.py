@@ -36,12 +36,22 @@ def solve(boolector, text, folder, name, timeout_s, values=()):
     return first, found
 
 
-def solve_batches(boolector, common, lemmas, folder, deadline):
+def solve_batches(boolector, common, lemmas, folder, deadline, hard=frozenset()):
     """Check the lemmas in batches, in parallel: after the cuts each lemma reads only free
     values, so the conjunction holds exactly when every batch does, and small queries are far
     cheaper for the solver than one large one. Returns ('unsat' | 'sat' | 'unknown', the
-    labels of failing lemmas)."""
-    batches = [lemmas[i:i + BATCH_LEMMAS] for i in range(0, len(lemmas), BATCH_LEMMAS)]
+    labels of failing lemmas).
+
+    Neighbouring lemmas share a batch (their cones overlap), at least a batch a core; the
+    lemmas labelled in ``hard`` (a loadable weight's product: a multiplier the solver matches
+    bit by bit, at a cost that grows faster than the batch) are dealt round the batches."""
+    easy = [lemma for lemma in lemmas if lemma[0] not in hard]
+    count = max(-(-len(lemmas) // BATCH_LEMMAS), min(len(lemmas), os.cpu_count() or 1))
+    size = max(1, -(-len(easy) // count))
+    batches = [easy[i * size:(i + 1) * size] for i in range(count)]
+    for number, lemma in enumerate(lemma for lemma in lemmas if lemma[0] in hard):
+        batches[number % count].append(lemma)
+    batches = [batch for batch in batches if batch]
 
     def one(number):
         batch = batches[number]

@@ -19,9 +19,10 @@ from .register_bus import register_value
 from .side import LEARNING, SideRun
 from .stimulus import write_columns
 
-__all__ = ["with_learning", "learning_trace", "LABELLED_SHARE"]
+__all__ = ["with_learning", "learning_trace", "LABELLED_SHARE", "WRITE_SHARE"]
 
 LABELLED_SHARE = 0.5
+WRITE_SHARE = 0.1
 
 
 def learning_trace(stimulus, config, labelled, targets, addresses):
@@ -92,10 +93,14 @@ def learning_trace(stimulus, config, labelled, targets, addresses):
     return scores[:, 0], (scores[:, 0] > 0).astype(np.uint8), read_data, final
 
 
-def with_learning(stimulus, config, seed, *, labelled=None, targets=None):
+def with_learning(stimulus, config, seed, *, labelled=None, targets=None,
+                  writes_in_updates=True):
     """``stimulus`` with labelled vectors (``labelled``/``targets`` given, or drawn: about
     :data:`LABELLED_SHARE` of them, random target bits), a random read-back address every
-    cycle, and the expectations of :func:`learning_trace`."""
+    cycle, and the expectations of :func:`learning_trace`. ``writes_in_updates``: about
+    :data:`WRITE_SHARE` of the cycles where a labelled result leaves (an update may land)
+    also write a random register through the port, so the rule that the write wins is
+    exercised; off where a run must learn exactly what ``fit`` learns."""
     rng = np.random.default_rng([11, *np.atleast_1d(seed).tolist()])
     count, units = len(stimulus.vectors), len(config.model.units)
     if labelled is None:
@@ -104,9 +109,12 @@ def with_learning(stimulus, config, seed, *, labelled=None, targets=None):
         targets = rng.integers(0, 1 << units, count)
     labelled = np.asarray(labelled, dtype=bool)
     targets = np.asarray(targets, dtype=np.int64)
-    registers = len(register_file(config)[0])
+    widths = register_file(config)[0]
+    registers = len(widths)
     address_bits = max(1, (registers - 1).bit_length())
     addresses = rng.integers(0, 1 << address_bits, stimulus.cycles)
+    if writes_in_updates and count:
+        stimulus = _writes_in_updates(stimulus, labelled, widths, rng)
     scores, decisions, read_data, _ = learning_trace(stimulus, config, labelled, targets,
                                                      addresses)
     presented = np.clip(stimulus.in_index // stimulus.beats, 0, max(count - 1, 0))
@@ -116,3 +124,21 @@ def with_learning(stimulus, config, seed, *, labelled=None, targets=None):
               "read_address": addresses.astype(np.int64)}
     run = SideRun(LEARNING, inputs, {"read_data": read_data})
     return replace(stimulus, expect_scores=scores, expect_decisions=decisions, bus=run)
+
+
+def _writes_in_updates(stimulus, labelled, widths, rng):
+    """``stimulus`` with a write of a random register (random bits of its width) in about
+    :data:`WRITE_SHARE` of the cycles where a labelled result leaves and nothing is written."""
+    strobes, addresses, data = (np.array(c, copy=True) for c in write_columns(stimulus))
+    leaving = stimulus.expect_out_valid & stimulus.out_ready & (strobes == 0)
+    index = np.clip(stimulus.expect_out_index, 0, len(labelled) - 1)
+    cycles = np.flatnonzero(leaving & labelled[index])
+    cycles = cycles[rng.random(len(cycles)) < WRITE_SHARE]
+    if max(widths) > 62:
+        data = data.astype(object)          # (Python integers past int64)
+    for cycle in cycles:
+        address = int(rng.integers(0, len(widths)))
+        strobes[cycle], addresses[cycle] = 1, address
+        bits = widths[address]
+        data[cycle] = int.from_bytes(rng.bytes((bits + 7) // 8), "little") & ((1 << bits) - 1)
+    return replace(stimulus, writes=(strobes, addresses, data))
