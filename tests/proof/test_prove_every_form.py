@@ -4,7 +4,7 @@
 The options are those of the forms `build` makes (architecture, pipeline depth, split adders
 with their carry registers, loadable weights with the plain or AXI4-Lite port, the input guard,
 banks with and without shared terms, the AXI4-Stream interface, the clock enable, each reset
-kind). All their combinations are tens of thousands; the tests prove a set of the accepted ones
+kind, loadable products as rows). All their combinations are tens of thousands; the tests prove a set of the accepted ones
 that holds every pair of option values `build` accepts together (a pairwise cover: common
 practice in combinatorial testing, since most faults need one or two options to show), on the
 demo model and on random ones. The solver is Boolector 3.2.3, the export Yosys 0.70's.
@@ -34,6 +34,7 @@ DIMENSIONS = {
     "interface": ("plain", "axi-stream"),
     "clock_enable": (False, True),
     "reset": tuple(RESET_KINDS),
+    "dsp_products": (None, 1),                # loadable products past the first as rows
 }
 SHARDS = 6
 
@@ -64,7 +65,7 @@ def options_of(choice):
                 weight_port="plain" if choice["weights"] == "constant" else choice["weights"],
                 clamp=guard[0], range_flag=guard[1], share_terms=choice["share_terms"],
                 interface=choice["interface"], clock_enable=choice["clock_enable"],
-                reset=choice["reset"])
+                reset=choice["reset"], dsp_products=choice["dsp_products"])
 
 
 def accepted(choice):
