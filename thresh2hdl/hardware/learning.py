@@ -98,13 +98,25 @@ def build_learning(m, component, stages, store, features, decisions):
         step = Signal(_step_shape(feature, rule.shift), name=learn_step_name(index))
         m.d.comb += step.eq(feature << rule.shift if rule.shift >= 0 else
                             feature >> -rule.shift)
-        # A left shift's zero bits are left out of the registers, as a shifted input's are
-        # (constant flops would be dropped, and the registers' names with them).
         if config.dsp_products is not None:
             # Signed towards the target where the sample enters, so that the update adds it.
             step = _move(m, step, _port(component, "target")[0], learn_move_name(index))
+        # A left shift's zero bits are left out of the registers, as a shifted input's are
+        # (constant flops would be dropped, and the registers' names with them).
         stages.put(step.name, step, 0, max(rule.shift, 0))
         steps.append(stages.at(step.name, latency))
+    if config.dsp_products is None:
+        _update(m, component, stages, store, steps, decisions)
+    else:
+        _update_fast(m, component, stages, store, steps, decisions)
+    store.connect_port(m, component)
+    _read_port(m, component, store.registers)
+
+
+def _update(m, component, stages, store, steps, decisions):
+    """Each unit's registers moved by the steps when the leaving sample finds it wrong."""
+    config, latency = component.config, component.latency
+    rule = config.learning_rule
     fire = Signal(name="learn_fire")
     enabled = stages.at(LEARN_ENABLE, latency)
     if config.range_flag:
@@ -117,28 +129,31 @@ def build_learning(m, component, stages, store, features, decisions):
     for unit, (row, bias) in enumerate(zip(store.weights, store.biases)):
         target = targets[unit]
         wrong = Signal(name=f"learn_wrong{unit}")
-        if config.dsp_products is None:
-            m.d.comb += wrong.eq(stages.at(decisions[unit], latency) != target)
-        else:
-            m.d.comb += wrong.eq(stages.at(_mistake(m, stages, config, decisions[unit], unit),
-                                           latency))
-            fire = component.out_valid & component.out_ready
-        if config.dsp_products is not None:
-            # Made outside the condition, so that they are plain wires (inside, each would be
-            # 0 unless the update fires, and the enable would reach every adder).
-            moved = [_clamped_sum(m, register, move, register.name)
-                     for register, move in zip(row, steps)]
-            moved.append(_clamped_sum(m, bias, _move(m, bias_step, target, "learn_bias_move"),
-                                      bias.name))
-            with m.If(fire & wrong):
-                m.d.sync += [register.eq(value) for register, value in zip(row + [bias], moved)]
-            continue
+        m.d.comb += wrong.eq(stages.at(decisions[unit], latency) != target)
         with m.If(fire & wrong):
             for register, step in zip(row, steps):
                 m.d.sync += register.eq(_saturated(m, register, step, target, register.name))
             m.d.sync += bias.eq(_saturated(m, bias, bias_step, target, bias.name))
-    store.connect_port(m, component)
-    _read_port(m, component, store.registers)
+
+
+def _update_fast(m, component, stages, store, moves, decisions):
+    """As :func:`_update`, built for speed (``dsp_products``): the moves already signed, the
+    mistake carried from the decision's stage, and every next value made outside the update's
+    condition, so that it is a plain wire (inside, each would be 0 unless the update fires,
+    and the enable would reach every adder)."""
+    config, latency = component.config, component.latency
+    rule = config.learning_rule
+    targets = stages.at(LEARN_TARGET, latency)
+    bias_step = Signal(range(rule.bias_step + 1), name="learn_bias_step", init=rule.bias_step)
+    m.d.comb += bias_step.eq(rule.bias_step)
+    for unit, (row, bias) in enumerate(zip(store.weights, store.biases)):
+        wrong = stages.at(_mistake(m, stages, config, decisions[unit], unit), latency)
+        moved = [_clamped_sum(m, register, move, register.name)
+                 for register, move in zip(row, moves)]
+        moved.append(_clamped_sum(m, bias, _move(m, bias_step, targets[unit], "learn_bias_move"),
+                                  bias.name))
+        with m.If(component.out_valid & component.out_ready & wrong):
+            m.d.sync += [register.eq(value) for register, value in zip(row + [bias], moved)]
 
 
 def _move(m, step, up, name):
