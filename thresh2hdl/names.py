@@ -7,7 +7,7 @@ __all__ = ["VERILOG_KEYWORDS", "VHDL_RESERVED", "check_identifier", "vhdl_name_p
            "valid_name", "unit_prefix", "argmax_names", "argmax_compare_name",
            "flag_part_name", "weight_name", "bias_name", "weight_registers", "entered_name",
            "LEARN_ENABLE", "LEARN_TARGET", "learn_step_name", "positive_name",
-           "clamped_name"]
+           "learn_mistake_name", "learn_move_name", "clamped_name"]
 
 GUARD_FLAG = "guard_flag"     # the input guard's out-of-range flag, made at the inputs
 SCORE_CONST = "score_const"   # a bank unit's score when every weight is 0 (after its prefix)
@@ -69,6 +69,18 @@ LEARN_TARGET = "learn_target_s"     # its target bits, one per unit
 def entered_name(bias):
     """The bias register ``bias`` as the vector entered, carried beside it."""
     return f"{bias}_entered"
+
+
+def learn_mistake_name(unit):
+    """Unit ``unit``'s mistake on a labelled sample, made where its decision is (the
+    ``dsp_products`` form registers it, so the update's enable starts at a flip-flop)."""
+    return f"learn_mistake{unit}"
+
+
+def learn_move_name(index):
+    """Feature ``index``'s step signed towards the sample's target (the ``dsp_products``
+    form carries it in place of the step)."""
+    return f"learn_move{index}"
 
 
 def learn_step_name(index):

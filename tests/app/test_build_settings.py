@@ -61,7 +61,7 @@ def test_the_record_holds_the_resolved_choices_and_the_reload_reads_it(which, re
     # record is byte for byte what it was before they could be chosen.
     unwritten = {"reset": "sync-high", "clock_enable": False, "interface": "plain",
                  "weight_port": "plain", "on_chip_learning": False, "learning_rate": "1",
-                 "bias_step": None}
+                 "bias_step": None, "dsp_products": None}
     assert set(record) == {"settings_format"} | {f.name for f in fields(BuildSettings)} - \
         set(unwritten)
     assert {key: record.get(key, unwritten.get(key)) for key in config_of(built.component)} == \

@@ -77,9 +77,29 @@ def test_fit_in_fabric_predicts_the_registers_and_refuses_a_label_the_model_lack
     (("--on-chip-learning", "--arch", "serial"), "--on-chip-learning"),
     (("--learning-rate", "1/2"), "--learning-rate"),
     (("--on-chip-learning", "--bias-step", "0"), "--bias-step"),
+    (("--dsp-products", "2"), "--dsp-products: cannot write products as rows"),
+    (("--on-chip-learning", "--dsp-products", "-1"), "--dsp-products"),
+    (("--on-chip-learning", "--dsp-products", "many"), "--dsp-products"),
 ])
 def test_bad_learning_requests_fail_in_one_line(tmp_path, args, contains):
     result = run("demo", "--out", tmp_path / "out", "--simulator", "amaranth", "--vectors",
                  "100", *args)
     assert_one_line_error(result, contains=contains)
     assert not (tmp_path / "out").exists()
+
+
+@pytest.mark.icarus
+def test_the_demo_learns_with_rows_and_its_folder_rebuilds(tmp_path):
+    # The dsp_products form from the command line: built and verified, recorded in the
+    # folder's settings, and the folder's file re-verified by Icarus Verilog (11 here) from
+    # that record.
+    require_tool("iverilog", "vvp")
+    out = tmp_path / "rows"
+    built = run("demo", "--out", out, "--simulator", "amaranth", "--vectors", "300",
+                "--pipeline", "full", "--dsp-products", "4", *LEARNING)
+    assert built.returncode == 0, built.stderr
+    assert json.loads((out / "build_settings.json").read_text())["dsp_products"] == 4
+    text = (out / "pump_fault.v").read_text()
+    assert text.count(" * ") == 4 and "p9_b5" in text
+    checked = run("check", out, "--simulator", "icarus", "--vectors", "300")
+    assert checked.returncode == 0, checked.stderr

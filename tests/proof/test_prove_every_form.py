@@ -3,12 +3,13 @@
 
 The options are those of the forms `build` makes (architecture, pipeline depth, split adders
 with their carry registers, loadable weights with the plain or AXI4-Lite port, on-chip
-learning, declared widths over the fewest, the input guard, banks with and without shared
-terms, the AXI4-Stream interface, the clock enable, each reset kind, Verilog or VHDL: a VHDL
-design is proved as GHDL 2.0's synthesis reads it back). All their combinations are tens of thousands; the tests prove a set of the accepted ones
-that holds every pair of option values `build` accepts together (a pairwise cover: common
-practice in combinatorial testing, since most faults need one or two options to show), on the
-demo model and on random ones. The solver is Boolector 3.2.3, the export Yosys 0.70's.
+learning, loadable products as rows, declared widths over the fewest, the input guard, banks
+with and without shared terms, the AXI4-Stream interface, the clock enable, each reset kind,
+Verilog or VHDL: a VHDL design is proved as GHDL 2.0's synthesis reads it back). All their
+combinations are tens of thousands; the tests prove a set of the accepted ones that holds every
+pair of option values `build` accepts together (a pairwise cover: common practice in
+combinatorial testing, since most faults need one or two options to show), on the demo model
+and on random ones. The solver is Boolector 3.2.3, the export Yosys 0.70's.
 """
 
 import functools
@@ -37,6 +38,7 @@ DIMENSIONS = {
     "clock_enable": (False, True),
     "reset": tuple(RESET_KINDS),
     "hdl": ("verilog", "vhdl"),               # vhdl: GHDL's synthesis reading is proved
+    "dsp_products": (None, 1),                # loadable products past the first as rows
 }
 SHARDS = 6
 
@@ -71,7 +73,7 @@ def options_of(choice):
                 weight_port="axi4-lite" if weights == "axi4-lite" else "plain",
                 clamp=guard[0], range_flag=guard[1], share_terms=choice["share_terms"],
                 interface=choice["interface"], clock_enable=choice["clock_enable"],
-                reset=choice["reset"], **wide, **learning)
+                reset=choice["reset"], dsp_products=choice["dsp_products"], **wide, **learning)
 
 
 def accepted(choice):

@@ -8,14 +8,18 @@ input and some loaded weights).
 
 from .intervals import box_product, prefixes, union, witnesses
 from .records import SERIAL_NODES, Analysis, Node
+from .rows import row_tree_nodes
 from .widths import score_widths
 
 __all__ = ["analyse_loadable"]
 
 
-def analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range):
+def analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range,
+                     dsp_products=None):
     """Plan ``unit`` with loadable weights: a ``tree`` of products or one ``serial``
-    multiply-accumulate. The trained values are only where the registers start."""
+    multiply-accumulate. The trained values are only where the registers start.
+    ``dsp_products`` (tree): only the first this many products are whole multiplications;
+    the others are rows of partial products in the tree (:mod:`.rows`)."""
     ranges = model.feature_ranges
     terms = [box_product(r, weight_range) for r in ranges]
     score_lo = sum(t[0] for t in terms) + bias_range[0]
@@ -23,6 +27,10 @@ def analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range):
     if arch == "serial":
         nodes, tree_root, score_node, level = _serial_nodes(ranges, terms, weight_range,
                                                             bias_range)
+    elif dsp_products is not None:
+        weight_bits = (weight_range[1] - weight_range[0]).bit_length()
+        nodes, tree_root, score_node, level = row_tree_nodes(ranges, weight_range, weight_bits,
+                                                             dsp_products, bias_range)
     else:
         nodes, tree_root, score_node, level = _tree_nodes(terms, score_lo, score_hi)
     score_bits_min, score_bits = score_widths(
@@ -35,7 +43,7 @@ def analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range):
                     score_bits=score_bits, witness_min=witness_min, witness_max=witness_max,
                     tree_levels=level, has_score=model.ports.has_score or model.is_bank,
                     arch=arch, weight_range=tuple(weight_range),
-                    bias_range=tuple(bias_range))
+                    bias_range=tuple(bias_range), dsp_products=dsp_products)
 
 
 def _serial_nodes(ranges, terms, weight_range, bias_range):

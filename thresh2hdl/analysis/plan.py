@@ -17,7 +17,7 @@ __all__ = ["analyse"]
 
 
 def analyse(model, *, score_bits=None, arch="tree", unit_index=None, weight_range=None,
-            bias_range=None, sharing=None):
+            bias_range=None, sharing=None, dsp_products=None):
     """Plan the adder tree of ``model.unit`` and size every node exactly.
 
     ``score_bits`` (default: the model's, else the minimum) may be wider than needed; the extra
@@ -30,6 +30,7 @@ def analyse(model, *, score_bits=None, arch="tree", unit_index=None, weight_rang
     every weight and the bias may be any value in its declared range, and every width holds
     every score those allow (the trained values are only where the registers start).
     ``sharing`` (shiftadd, a bank's unit): the bank's :class:`~.shared.SharingPlan`.
+    ``dsp_products`` (loadable tree): products kept whole, the rest rows (:mod:`.rows`).
     """
     check_architecture(arch)
     if sharing is not None and arch != "shiftadd":
@@ -43,7 +44,8 @@ def analyse(model, *, score_bits=None, arch="tree", unit_index=None, weight_rang
             raise InputError("shiftadd recodes each constant weight into shifts and adds, so "
                              "its weights cannot be loaded; use arch tree or serial",
                              field="weight_range")
-        return analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range)
+        return analyse_loadable(model, unit, score_bits, arch, weight_range, bias_range,
+                                dsp_products)
     if arch == "serial":
         return analyse_serial(model, unit, score_bits)
     return analyse_constant(model, unit, score_bits, arch, sharing, unit_index)

@@ -39,7 +39,8 @@ class Node:
     index: int
     name: str
     kind: str            # "product", "add", "sub", "rsub" (right minus left), "bias", "offset",
-                         # "scaled" (the child times ``magnitude``, a power of two)
+                         # "scaled" (the child times ``magnitude``, a power of two), "row"
+                         # (loadable: the feature times its weight's bit ``magnitude``)
     children: tuple
     lo: int
     hi: int
@@ -65,9 +66,9 @@ class Node:
 
     @property
     def register_shift(self):
-        """Known zero low bits of a shifted input (a power-of-two product), which pipeline
-        registers leave out: they carry ``value >> register_shift``."""
-        if self.kind != "product" or self.magnitude <= 0 or self.magnitude & (self.magnitude - 1):
+        """Known zero low bits of a shifted input (a power-of-two product, a row), which
+        pipeline registers leave out: they carry ``value >> register_shift``."""
+        if self.kind not in ("product", "row") or self.magnitude <= 0 or self.magnitude & (self.magnitude - 1):
             return 0     # (magnitude 0: a product of loadable weights, no constant shift)
         return min(self.magnitude.bit_length() - 1, self.bits - 1)
 
@@ -92,6 +93,8 @@ class Analysis:
     arch: str = "tree"
     weight_range: tuple | None = None   # loadable weights: the declared range of each weight
     bias_range: tuple | None = None     # and of the bias; None: the weights are constants
+    dsp_products: int | None = None     # loadable tree: products kept whole (the rest rows,
+                                        # analysis/rows.py); None: every product whole
 
     @property
     def loadable(self):

@@ -109,6 +109,12 @@ class BuildOptions:
         "(default: eta S^2, S half the widest declared input span: the bias learns as a weight "
         "on a constant input S, as fit trains it; capped at the register's largest value).",
         kind="int")
+    dsp_products: int | None = _option(
+        None, "--dsp-products", "Loadable weights, one unit, tree: only the first N products "
+        "are written as multiplications (for the part's DSP blocks, estimate --dsp); each "
+        "other product is a row of partial products per weight bit in the adder tree, "
+        "registered level by level, and with on-chip learning the update is built for "
+        "speed (default: every product a multiplication).", kind="int")
     clamp: bool | None = _option(       # the input guard (thresh2hdl.analysis.guard)
         None, "--clamp/--no-clamp", "Clamp each feature to its declared range before the "
         "arithmetic (default: on when some declared range is tighter than its port).",

@@ -45,6 +45,7 @@ class BuildSettings:
     on_chip_learning: bool = False
     learning_rate: str = "1"
     bias_step: int | None = None
+    dsp_products: int | None = None
     latency_cycles: int
 
     @classmethod
@@ -92,12 +93,14 @@ _RECORD = {
     "learning_rate": ("a power of two as text (\"1/64\")", lambda v: isinstance(v, str)),
     "bias_step": ("an integer from 1 to 2^31 - 1 or null",
                   lambda v: v is None or (type(v) is int and 1 <= v < 1 << 31)),
+    "dsp_products": (f"an integer from 0 to {MAX_SETTING} or null",
+                     lambda v: _integer(v, True)),
     "latency_cycles": (f"an integer from 0 to {MAX_SETTING}", _integer),
 }
 # Fields a record written before they existed lacks, with the value its design had.
 _ADDED_LATER = {"share_terms": False, "reset": DEFAULT_RESET, "clock_enable": False,
                 "interface": "plain", "weight_port": "plain", "on_chip_learning": False,
-                "learning_rate": "1", "bias_step": None}
+                "learning_rate": "1", "bias_step": None, "dsp_products": None}
 _DESIGN = tuple(f.name for f in dataclass_fields(BuildSettings) if f.name not in ("module",
                                                                        "latency_cycles"))
 

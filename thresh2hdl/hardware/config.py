@@ -62,6 +62,9 @@ class UnitConfig:
     learning_rate: object = 1        # eta, a power of two (1/64, "0.25", 2...): a shift
     bias_step: int | None = None     # the bias's move on a mistake (default: eta S^2, S half
                                      # the widest declared span, fit's bias input)
+    dsp_products: int | None = None  # loadable tree: products written as multiplications (for
+                                     # DSP blocks); the rest rows of partial products in the
+                                     # tree (analysis/rows.py). None: every product whole
 
     def __post_init__(self):
         if not isinstance(self.model, Model):
@@ -85,6 +88,7 @@ class UnitConfig:
         self._resolve_guard()
         self._check_serial()
         self._check_learning()
+        self._check_dsp_products()
 
     def _check_basics(self):
         if self.pipeline != FULL_PIPELINE and (not _is_int(self.pipeline) or self.pipeline < 0):
@@ -293,6 +297,24 @@ class UnitConfig:
         if clash:
             raise InputError(f"the learning port {clash[0]!r} clashes with a port, a feature "
                              f"or the module; rename it", field="on_chip_learning")
+
+    def _check_dsp_products(self):
+        count = self.dsp_products
+        if count is None:
+            return
+        if not _is_int(count) or count < 0:
+            raise InputError(f"must be a non-negative integer, not {count!r}",
+                             field="dsp_products")
+        refusal = ("they are the products of loadable weights; turn loadable weights on"
+                   if not self.loadable_weights else
+                   "only the tree architecture multiplies in parallel; use tree"
+                   if self.arch != "tree" else
+                   "a bank is not built with it (for now); use it on one unit"
+                   if self.model.is_bank else
+                   "a row per weight bit needs a bit that adds: declare 2 or more weight bits"
+                   if self.weight_bits < 2 and count < len(self.model.features) else None)
+        if refusal:
+            raise InputError(f"cannot write products as rows: {refusal}", field="dsp_products")
 
     @property
     def learning_shift(self):

@@ -14,7 +14,8 @@ is :mod:`thresh2hdl.train.on_chip`; the cycle-exact one, :mod:`thresh2hdl.verify
 from amaranth.hdl import Mux, Shape, Signal, signed
 from amaranth.lib.wiring import In, Out
 
-from ..names import GUARD_FLAG, LEARN_ENABLE, LEARN_TARGET, entered_name, learn_step_name
+from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_TARGET, entered_name, learn_mistake_name,
+                     learn_move_name, learn_step_name)
 from .register_bus import index_known, selected
 
 __all__ = ["learning_members", "build_learning", "entry_bias", "LEARN_PREFIX", "LEARN_INPUTS",
@@ -63,6 +64,25 @@ def _saturated(m, register, step, sign_up, name):
     return Mux(total > hi, hi, Mux(total < lo, lo, total))
 
 
+def _clamped_sum(m, register, move, name):
+    """``register + move`` clamped to the register's range, the form built for speed
+    (``dsp_products``): the move already signed towards the target, so one adder, and the
+    clamp read from the sum's top bits (in range when they are all equal) rather than from
+    two comparisons."""
+    width = max(len(register), len(move)) + 1
+    total = Signal(signed(width), name=f"{name}_next")
+    m.d.comb += total.eq(register + move)
+    top = total[len(register) - 1:]
+    inside = (top == 0) | (top == (1 << len(top)) - 1)
+    lo, hi = -(1 << (len(register) - 1)), (1 << (len(register) - 1)) - 1
+    # A wire of its own: the register then loads it under an enable (left to itself,
+    # synthesis moves the enable into the adder's operand, onto the critical path).
+    clamped = Signal(signed(len(register)), name=f"{name}_clamped")
+    m.d.comb += clamped.eq(Mux(inside, total[:len(register)].as_signed(),
+                               Mux(total[-1], lo, hi)))
+    return clamped
+
+
 def build_learning(m, component, stages, store, features, decisions):
     """The update path and the read port. ``features``: the codes the arithmetic sees (after
     the input guard); ``decisions``: per unit, the stage name of its own decision bit (made
@@ -78,10 +98,25 @@ def build_learning(m, component, stages, store, features, decisions):
         step = Signal(_step_shape(feature, rule.shift), name=learn_step_name(index))
         m.d.comb += step.eq(feature << rule.shift if rule.shift >= 0 else
                             feature >> -rule.shift)
+        if config.dsp_products is not None:
+            # Signed towards the target where the sample enters, so that the update adds it.
+            step = _move(m, step, _port(component, "target")[0], learn_move_name(index))
         # A left shift's zero bits are left out of the registers, as a shifted input's are
         # (constant flops would be dropped, and the registers' names with them).
         stages.put(step.name, step, 0, max(rule.shift, 0))
         steps.append(stages.at(step.name, latency))
+    if config.dsp_products is None:
+        _update(m, component, stages, store, steps, decisions)
+    else:
+        _update_fast(m, component, stages, store, steps, decisions)
+    store.connect_port(m, component)
+    _read_port(m, component, store.registers)
+
+
+def _update(m, component, stages, store, steps, decisions):
+    """Each unit's registers moved by the steps when the leaving sample finds it wrong."""
+    config, latency = component.config, component.latency
+    rule = config.learning_rule
     fire = Signal(name="learn_fire")
     enabled = stages.at(LEARN_ENABLE, latency)
     if config.range_flag:
@@ -99,8 +134,48 @@ def build_learning(m, component, stages, store, features, decisions):
             for register, step in zip(row, steps):
                 m.d.sync += register.eq(_saturated(m, register, step, target, register.name))
             m.d.sync += bias.eq(_saturated(m, bias, bias_step, target, bias.name))
-    store.connect_port(m, component)
-    _read_port(m, component, store.registers)
+
+
+def _update_fast(m, component, stages, store, moves, decisions):
+    """As :func:`_update`, built for speed (``dsp_products``): the moves already signed, the
+    mistake carried from the decision's stage, and every next value made outside the update's
+    condition, so that it is a plain wire (inside, each would be 0 unless the update fires,
+    and the enable would reach every adder)."""
+    config, latency = component.config, component.latency
+    rule = config.learning_rule
+    targets = stages.at(LEARN_TARGET, latency)
+    bias_step = Signal(range(rule.bias_step + 1), name="learn_bias_step", init=rule.bias_step)
+    m.d.comb += bias_step.eq(rule.bias_step)
+    for unit, (row, bias) in enumerate(zip(store.weights, store.biases)):
+        wrong = stages.at(_mistake(m, stages, config, decisions[unit], unit), latency)
+        moved = [_clamped_sum(m, register, move, register.name)
+                 for register, move in zip(row, moves)]
+        moved.append(_clamped_sum(m, bias, _move(m, bias_step, targets[unit], "learn_bias_move"),
+                                  bias.name))
+        with m.If(component.out_valid & component.out_ready & wrong):
+            m.d.sync += [register.eq(value) for register, value in zip(row + [bias], moved)]
+
+
+def _move(m, step, up, name):
+    """``step`` or ``-step`` (``up``): a signal one bit wider than the step needs."""
+    move = Signal(signed(len(step) + 1), name=name)
+    m.d.comb += move.eq(Mux(up, step, -step))
+    return move
+
+
+def _mistake(m, stages, config, decision, unit):
+    """Whether a labelled sample (not flagged out of range) finds unit ``unit``'s decision
+    differing from its target bit, made in the decision's own stage and carried from there:
+    the update then starts at one flip-flop, not at the comparison."""
+    made = stages.produced[decision][0]
+    mistake = Signal(name=learn_mistake_name(unit))
+    taught = stages.at(LEARN_ENABLE, made)
+    if config.range_flag:
+        taught = taught & ~stages.at(GUARD_FLAG, made)
+    m.d.comb += mistake.eq(taught & (stages.at(decision, made) != stages.at(LEARN_TARGET,
+                                                                            made)[unit]))
+    stages.put(mistake.name, mistake, made)
+    return mistake.name
 
 
 def _step_shape(feature, shift):

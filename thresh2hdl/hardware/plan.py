@@ -114,7 +114,8 @@ def plan_design(config):
     return DesignPlan(
         kind=design_kind(config), config=config, unit_analyses=analyses, bank=bank,
         levels=levels, register_boundaries=register_boundaries(levels - 1, config.pipeline,
-                                                    level_weights(levels, bank, _guarded(config))),
+                                                    level_weights(levels, bank, _guarded(config),
+                                                                  config.dsp_products is not None)),
         split_parts=MappingProxyType(parts), result_parts=result_parts,
         latency=config.pipeline + (result_parts - 1) * config.carry_registers,
         beats=len(model.features) if config.arch == "serial" else 1,
@@ -136,8 +137,9 @@ def _loadable(config):
     """Keyword arguments of the range analysis for the configuration's weights."""
     if not config.loadable_weights:
         return {}
+    rows = {} if config.dsp_products is None else {"dsp_products": config.dsp_products}
     return {"weight_range": _declared(config.weight_bits),
-            "bias_range": _declared(config.bias_bits)}
+            "bias_range": _declared(config.bias_bits), **rows}
 
 
 def _check_pipeline(config, levels):
@@ -204,15 +206,27 @@ def _stages_needed(weights, bound):
     return count
 
 
-def level_weights(levels, bank, guarded=False):
+# Products as rows (``dsp_products``): level 0 weighs two, so that a register stage always
+# follows it (a row's AND then becomes its flip-flop's synchronous reset, no LUT of its own),
+# and so does the last level, the bias adder of the full score width and the decision over
+# it (19.9 ns alone on the UP5K, where a level of the rows' adders took 7 to 8 ns: measured
+# with benchmarks/learning_cost.py's unit, Yosys 0.70, nextpnr 0.11.1).
+ROWS_END_LEVEL_WEIGHT = 2
+
+
+def level_weights(levels, bank, guarded=False, rows=False):
     """The delay weight of each level: an argmax comparison :data:`ARGMAX_LEVEL_WEIGHT`, and
-    so level 0 when the input guard has logic there (``guarded``); any other level (an adder,
-    an argmax selection) one."""
+    so level 0 when the input guard has logic there (``guarded``); with products as
+    ``rows``, the first and last levels :data:`ROWS_END_LEVEL_WEIGHT`; any other level (an
+    adder, an argmax selection) one."""
     first_argmax = levels if bank is None or levels == 1 else bank.score_level + 1
     weights = [ARGMAX_LEVEL_WEIGHT if level >= first_argmax and (level - first_argmax) % 2 == 0
                else 1 for level in range(levels)]
     if guarded and levels > 1:
         weights[0] = GUARD_LEVEL_WEIGHT
+    if rows and levels > 1:
+        weights[0] = max(weights[0], ROWS_END_LEVEL_WEIGHT)
+        weights[-1] = ROWS_END_LEVEL_WEIGHT
     return weights
 
 

@@ -2,7 +2,9 @@
 whole (:func:`build_tree`), or with every adder wider than ``split_bits`` cut into parts, each
 part later than the one below (:func:`build_split_tree`, :class:`Parts`)."""
 
-from amaranth.hdl import Cat, Const, Signal, signed, unsigned
+from amaranth.hdl import Cat, Const, Mux, Signal, signed, unsigned
+
+from ..analysis import row_bit
 
 __all__ = ["node_shape", "build_tree", "build_split_tree", "Parts", "constant_product",
            "combine"]
@@ -28,9 +30,17 @@ def build_tree(m, stages, analysis, features, prefix="", weights=None, bias=None
         if node.kind == "scaled":
             stages.alias(name, children[0], node.magnitude.bit_length() - 1)
             continue
+        if weights is not None and node.kind == "product" and analysis.dsp_products is not None:
+            # Left unnamed, so that synthesis may take the register that follows into a DSP
+            # block with the multiplier (a named wire is kept, and a kept wire stops it).
+            stages.put(name, features[node.feature] * weights[node.feature], stage)
+            continue
         value = Signal(node_shape(node), name=name)
         if weights is not None and node.kind == "product":
             expr = features[node.feature] * weights[node.feature]
+        elif node.kind == "row":
+            expr = Mux(weights[node.feature][row_bit(node)], features[node.feature], 0) \
+                << row_bit(node)
         elif weights is not None and node.kind == "bias":
             expr = stages.at(children[0], stage) + \
                 (stages.at(bias, stage) if isinstance(bias, str) else bias)

@@ -8,6 +8,7 @@ and bias, term for term.
 
 from ..names import (SCORE_CONST, argmax_compare_name, argmax_names, bias_name,
                      flag_part_name, unit_prefix, weight_name)
+from .rows import row_value, rows_as_products
 from .split import plan_split
 from .values import Value, form_range
 
@@ -162,19 +163,24 @@ class Plan:
                                feature=node.feature,
                                register=weight_name(prefix, node.feature), **common))
                 continue
+            if node.kind == "row":
+                self.add(row_value(node, name, prefix, common))
+                continue
             children = [self.values[names[c]] for c in node.children]
             if node.kind == "bias":
                 self.add(Value(name, "addreg", (children[0].name,),
                                coeffs={**children[0].coeffs, ("b",): 1},
                                register=bias_name(prefix), **common))
                 continue
-            if node.kind != "add":
+            if node.kind not in ("add", "sub", "rsub"):
                 raise RuntimeError(f"a loadable unit has no {node.kind} node")
             left, right = children
-            coeffs = dict(left.coeffs)
+            fa, fb = {"add": (1, 1), "sub": (1, -1), "rsub": (-1, 1)}[node.kind]
+            coeffs = {key: fa * c for key, c in left.coeffs.items()}
             for key, c in right.coeffs.items():
-                coeffs[key] = coeffs.get(key, 0) + c
-            self.add(Value(name, "add", (left.name, right.name), coeffs=coeffs, **common))
+                coeffs[key] = coeffs.get(key, 0) + fb * c
+            self.add(Value(name, node.kind, (left.name, right.name), coeffs=coeffs, **common))
+        self.weight_bits = (analysis.weight_range[1] - analysis.weight_range[0]).bit_length()
         self.loadable = True
         self.unit_scores.append((names[analysis.score_node], 1, 0))
 
@@ -214,7 +220,7 @@ def check_cover(plan, model):
         wanted = {("w", i): 1 for i in range(len(model.features))} | {("b",): 1}
         for name, _, _ in plan.unit_scores:
             value = plan.values[name]
-            if value.coeffs != wanted or value.constant:
+            if rows_as_products(value.coeffs, plan.weight_bits) != wanted or value.constant:
                 raise RuntimeError(f"the adder plan of {name} does not add each product and "
                                    f"the bias once; this is a bug in thresh2hdl")
         return

@@ -21,11 +21,12 @@ register's signed range, else itself; and the read-back port equals the addresse
 from dataclasses import dataclass
 
 from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_TARGET, bias_name, entered_name,
-                     learn_step_name, positive_name, register_name, unit_prefix,
-                     weight_name, weight_registers)
+                     learn_move_name, learn_step_name, positive_name, register_name,
+                     unit_prefix, weight_name, weight_registers)
 from .forms import Value
 from .lemmas import weight_write_lemmas
 from .query import Query, bool_signal, bv
+from .rows import add_moves, mistake_formula, move_formula
 
 __all__ = ["add_learning", "Learning", "LearningQuery", "READ_LEMMA"]
 
@@ -45,6 +46,7 @@ class Learning:
     features: int
     flagged: bool              # the out-of-range flag stops a flagged sample's update
     units: tuple               # (weight names, bias name, decision value, its port or None)
+    mistakes: tuple = ()       # the dsp_products form: each unit's carried mistake (rows.py)
 
     def lemmas(self, query, model, needed):
         """Each register's next value (the write port's lemma with the update in place of
@@ -68,21 +70,28 @@ class Learning:
         smt, w, rule = query.smt, query.width, self.rule
         one = bv(1, w)
         fire = [bool_signal(smt, query.ports["out_valid"][0], "s0"),
-                bool_signal(smt, query.ports["out_ready"][0], "s0"),
-                f"(= {self._leaving(query, LEARN_ENABLE, None, needed)} {one})"]
-        if self.flagged:
+                bool_signal(smt, query.ports["out_ready"][0], "s0")]
+        if not self.mistakes:
+            fire.append(f"(= {self._leaving(query, LEARN_ENABLE, None, needed)} {one})")
+        if self.flagged and not self.mistakes:
             fire.append(f"(not (= {self._leaving(query, GUARD_FLAG, 'out_of_range', needed)} "
                         f"{one}))")
         target = self._leaving(query, LEARN_TARGET, None, needed)
-        steps = [query.known(learn_step_name(i), self.latency, w, needed=needed)
+        carried = learn_move_name if self.mistakes else learn_step_name
+        steps = [query.known(carried(i), self.latency, w, needed=needed)
                  for i in range(self.features)]
         moves = {}
         for unit, (weights, bias, decision, port) in enumerate(self.units):
             up = f"(= ((_ extract {unit} {unit}) {target}) #b1)"
-            decided = f"(= {self._leaving(query, decision, port, needed)} {one})"
-            taught = f"(and {' '.join(fire)} (not (= {decided} {up})))"
+            if self.mistakes:       # carried from the decision's stage, labelled and all
+                mistake = query.known(self.mistakes[unit], self.latency, w, needed=needed)
+                taught = f"(and {' '.join(fire)} (= {mistake} {one}))"
+            else:
+                decided = f"(= {self._leaving(query, decision, port, needed)} {one})"
+                taught = f"(and {' '.join(fire)} (not (= {decided} {up})))"
             for name, step in zip(weights, steps):
-                moves[name] = (taught, up, step, rule.weight_range)
+                moves[name] = (taught, up if not self.mistakes else "true", step,
+                               rule.weight_range)
             moves[bias] = (taught, up, bv(rule.bias_step, w), rule.bias_range)
 
         def otherwise(name, bits):
@@ -132,6 +141,11 @@ def add_learning(plan, component):
     plan.add(Value(LEARN_ENABLE, "port", (), 0, 0, 1, False))
     plan.add(Value(LEARN_TARGET, "port", (), 0, 0, (1 << len(units)) - 1, False))
     shift = rule.shift
+    if config.dsp_products is not None:
+        mistakes = add_moves(plan, rule, guard, [u[2] for u in units], plan.final_stage)
+        plan.learning = Learning(rule, plan.latency, len(model.features), guard.flag,
+                                 tuple(units), tuple(mistakes))
+        return plan
     for i in range(len(model.features)):
         # The step of every code the arithmetic can see: clamped, or whatever the port
         # carries (a flagged sample's step is carried too, though it teaches nothing).
@@ -162,6 +176,13 @@ class LearningQuery(Query):
             x, shift = self.feature(value.feature, state), self.plan.learning.rule.shift
             expr = f"(bvshl {x} {bv(shift, w)})" if shift >= 0 else \
                 f"(bvashr {x} {bv(-shift, w)})"
+        elif value.kind == "move":
+            x, shift = self.feature(value.feature, state), self.plan.learning.rule.shift
+            step = f"(bvshl {x} {bv(shift, w)})" if shift >= 0 else \
+                f"(bvashr {x} {bv(-shift, w)})"
+            expr = move_formula(self, value, state, step)
+        elif value.kind == "mistake":
+            expr = mistake_formula(self, value, state, needed)
         elif value.kind == "positive":
             score = self.known(value.operands[0], value.stage, w, state, needed)
             expr = f"(ite (bvsgt {score} {bv(0, w)}) {bv(1, w)} {bv(0, w)})"

@@ -4,6 +4,7 @@ registers or their operands, in arithmetic wide enough that nothing overflows.""
 from ..analysis import signed_bits, value_bits
 from ..names import clamped_name, register_name
 from .outcome import Undecided
+from .rows import row_formula
 from .split import range_test
 
 __all__ = ["Query", "bv", "port_names", "bool_signal"]
@@ -221,6 +222,8 @@ class Query:
         elif value.kind == "mul":
             expr = f"(bvmul {self.feature(value.feature, state)} " \
                    f"{self.weight_register(value.register, state)})"
+        elif value.kind == "row":
+            expr = row_formula(self, value, state)
         elif value.kind == "addreg":
             expr = f"(bvadd {operand(value.operands[0])} " \
                    f"{self.weight_register(value.register, state)})"

