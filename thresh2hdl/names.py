@@ -71,6 +71,24 @@ def entered_name(bias):
     return f"{bias}_entered"
 
 
+def learned_name(register):
+    """The update's own copy of weight or bias register ``register`` (the form built for
+    speed): the port writes it and the update moves it; ``register`` follows it a cycle
+    later."""
+    return f"{register}_learned"
+
+
+# The registered read-back (the form built for speed): a register per group of
+# READ_GROUP registers, chosen by the address's low bits, and the address's high bits.
+READ_GROUP = 4
+LEARN_READ_HIGH = "learn_read_high"
+
+
+def learn_read_group_name(group):
+    """The read-back's register of group ``group`` (registers ``4 group`` to ``4 group + 3``)."""
+    return f"learn_read_g{group}"
+
+
 def learn_mistake_name(unit):
     """Unit ``unit``'s mistake on a labelled sample, made where its decision is (the
     ``dsp_products`` form registers it, so the update's enable starts at a flip-flop)."""

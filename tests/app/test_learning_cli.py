@@ -99,6 +99,9 @@ def test_the_demo_learns_with_rows_and_its_folder_rebuilds(tmp_path):
                 "--pipeline", "full", "--dsp-products", "4", *LEARNING)
     assert built.returncode == 0, built.stderr
     assert json.loads((out / "build_settings.json").read_text())["dsp_products"] == 4
+    report = json.loads((out / "report.json").read_text())
+    # The update's copies: a cycle more before entering vectors see an update.
+    assert report["on_chip_learning"]["delay_cycles"] == report["latency_cycles"] + 1
     text = (out / "pump_fault.v").read_text()
     assert text.count(" * ") == 4 and "p9_b5" in text
     checked = run("check", out, "--simulator", "icarus", "--vectors", "300")

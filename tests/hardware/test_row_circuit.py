@@ -47,6 +47,18 @@ def test_amaranth_agrees_with_the_reference(design):
     assert checked.mismatch_count == 0 and checked.vectors_checked > 500
 
 
+def test_an_update_seen_without_its_lag_is_caught(monkeypatch):
+    # A mutant: the datapath reads the update's own registers (no copy a cycle behind), so
+    # vectors meet updates a cycle earlier than the trace says.
+    from thresh2hdl.hardware import weights
+    monkeypatch.setattr(weights.WeightStore, "_copy", staticmethod(lambda m, register: register))
+    model, component = learning_unit()
+    stimulus = stimulus_of(model, component, count=300)
+    checked = make_backend("amaranth", component=component).run(stimulus).check(stimulus)
+    assert checked.mismatch_count > 0
+    assert {"score", "decision"} & {m.signal for m in checked.mismatches}
+
+
 def test_a_row_of_the_wrong_bit_is_caught(monkeypatch):
     # A mutant: every row multiplies by the bit above its own (wrapping to bit 0).
     from thresh2hdl.analysis import rows

@@ -23,6 +23,10 @@ def guarded():
                       ranges=[(-10, 20), (0, 31), (-32, 31)])
 
 
+def five():
+    return make_model([3, -2, 1, 2, -1], bias=-5, bits=5, signed=True)
+
+
 LEARNING = {"on_chip_learning": True, "learning_rate": "1/2", "weight_bits": 4,
             "bias_bits": 8, "bias_step": 3, "pipeline": 2, "dsp_products": 1}
 
@@ -33,9 +37,12 @@ LEARNING = {"on_chip_learning": True, "learning_rate": "1/2", "weight_bits": 4,
     (unit, {"loadable_weights": True, "weight_bits": 3, "bias_bits": 7, "pipeline": 1,
             "dsp_products": 0}),
     (unit, LEARNING),
+    # Six registers: the registered read-back in two groups, chosen by the high bits.
+    (five, LEARNING),
     (guarded, {"on_chip_learning": True, "learning_rate": "1/2", "weight_bits": 5,
                "bias_bits": 8, "pipeline": "full", "dsp_products": 0}),
-], ids=["loadable-full", "loadable-one-stage", "learning", "learning-guarded"])
+], ids=["loadable-full", "loadable-one-stage", "learning", "learning-read-groups",
+        "learning-guarded"])
 def test_row_designs_are_proved(make, config):
     outcome = prove_design(make(), **config)
     assert outcome.status == "proved", outcome.detail
@@ -53,10 +60,24 @@ def _own(model, config):
                  "assign learn_mistake0 = ~learn_enable_s_r1 & "),
     # The move is not signed towards the target.
     replace_once("assign learn_move1 = learn_target ?", "assign learn_move1 = ~learn_target ?"),
-], ids=["row-bit", "mistake-inverted", "move-sign"])
+    # A register the datapath reads follows another's learning copy.
+    replace_once("rst ? 4'd3 : weight0_learned", "rst ? 4'd3 : weight1_learned"),
+    # The registered read-back reads the copies at swapped addresses.
+    replace_once("learn_read_address[0] ? weight1 : weight0",
+                 "learn_read_address[0] ? weight0 : weight1"),
+], ids=["row-bit", "mistake-inverted", "move-sign", "copy-crossed", "read-swapped"])
 def test_each_mutant_is_not_proved(mutate):
     text = _own(unit(), LEARNING)
     mutant = mutate(text)
     assert mutant != text
     outcome = prove_design(unit(), mutant, **LEARNING)
+    assert outcome.status == "counterexample", outcome.detail
+
+
+def test_the_read_back_by_the_wrong_high_bit_is_not_proved():
+    # A mutant: the group is chosen by the address's bit 1 instead of its high bit.
+    text = _own(five(), LEARNING)
+    mutant = replace_once("rst ? 1'd0 : learn_read_address[2]",
+                          "rst ? 1'd0 : learn_read_address[1]")(text)
+    outcome = prove_design(five(), mutant, **LEARNING)
     assert outcome.status == "counterexample", outcome.detail

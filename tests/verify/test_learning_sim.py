@@ -141,18 +141,20 @@ def drifted_run(module, count=600):
     return start, drifted, drifted_labels
 
 
+@pytest.mark.parametrize("form", [{}, {"dsp_products": 2}], ids=["plain", "rows"])
 @pytest.mark.parametrize("simulators", [
     ("amaranth",), pytest.param(("icarus", "verilator", "ghdl"), marks=pytest.mark.slow)],
     ids=["amaranth", "hdl-simulators"])
-def test_the_drift_scenario_is_learned_bit_exact_with_fit(simulators, tmp_path):
+def test_the_drift_scenario_is_learned_bit_exact_with_fit(simulators, form, tmp_path):
     # The synthetic drift of examples/field_drift, fed back to back as labelled samples for
     # one pass: every simulator against the cycle-exact trace, and the trace's registers at
-    # the end against the host's rule (fit_on_chip, one epoch, the build's latency).
+    # the end against the host's rule (fit_on_chip, one epoch, the build's delay: its
+    # latency, plus the learning lag of the dsp_products form).
     if simulators != ("amaranth",):
         require_tool("iverilog", "vvp", "verilator", "g++", "ghdl")
     start, drifted, labels = drifted_run(drift_example())
     config = UnitConfig(start, on_chip_learning=True, learning_rate="1/256", weight_bits=8,
-                        bias_bits=24, pipeline=2)
+                        bias_bits=24, pipeline=2, **form)
     component = make_component(config)
     stimulus = make_stimulus(ReferenceModel.from_model(start), drifted,
                              latency=component.latency, valid_probability=1.0,
@@ -167,10 +169,14 @@ def test_the_drift_scenario_is_learned_bit_exact_with_fit(simulators, tmp_path):
         stimulus.bus.inputs["read_address"])
     data = Dataset(x=drifted, labels=labels, feature_names=tuple(f.name for f in start.features),
                    source="after")
-    learned, log = fit_on_chip(data, start, config.learning_rule, epochs=1,
-                               delay=component.latency)
+    delay = component.latency + config.learning_lag
+    learned, log = fit_on_chip(data, start, config.learning_rule, epochs=1, delay=delay)
     assert weights == [list(learned.unit.weights)] and biases == [learned.unit.bias]
     assert log.mistakes_per_epoch[0] > 20        # it had something to learn
+    if config.learning_lag:     # the lag changes what is learned here: the delay must count it
+        early, _ = fit_on_chip(data, start, config.learning_rule, epochs=1,
+                               delay=component.latency)
+        assert (list(early.unit.weights), early.unit.bias) != (weights[0], biases[0])
 
 
 def test_the_drift_example_recovers_its_accuracy_as_the_readme_says():

@@ -27,11 +27,12 @@ def fit_in_fabric(data_path, out_path, start_path, *, label="label", learning_ra
     """Run the on-chip rule over ``data_path``'s rows, in file order, epoch after epoch, from
     ``start_path``'s weights (the model the hardware is built from); write the registers
     after the last epoch as ``out_path`` and the log beside it. ``latency``: the build's
-    latency in cycles (rows fed back to back do not see the updates of that many rows before
-    them); each epoch ends with the pipeline drained. ``weight_bits`` ``"full"``: the
+    delay in cycles (its report's ``delay_cycles``: the latency, plus the learning lag of the
+    form built for speed; rows fed back to back do not see the updates of that many rows
+    before them); each epoch ends with the pipeline drained. ``weight_bits`` ``"full"``: the
     default. Returns ``(model, log, rule, summary lines)``."""
     if not isinstance(latency, int) or isinstance(latency, bool) or not 0 <= latency <= 4096:
-        raise InputError(f"must be an integer from 0 to 4096 (the build's latency_cycles), "
+        raise InputError(f"must be an integer from 0 to 4096 (the build's delay_cycles), "
                          f"not {latency!r}", field="latency")
     out_path = Path(out_path)
     check_outputs(out_path, "fit", (data_path, start_path))
@@ -76,6 +77,7 @@ def fabric_options(command):
             click.option("--bias-bits", type=int, default=None, help="With --in-fabric."),
             click.option("--bias-step", type=int, default=None, help="With --in-fabric."),
             click.option("--latency", type=int, default=1, show_default=True,
-                         help="With --in-fabric: the build's latency_cycles.")]):
+                         help="With --in-fabric: the build's delay_cycles (report.json, "
+                         "on_chip_learning: latency_cycles, plus 1 with --dsp-products).")]):
         command = option(command)
     return command

@@ -323,6 +323,20 @@ class UnitConfig:
         return rate.numerator.bit_length() - rate.denominator.bit_length()
 
     @property
+    def learning_lag(self):
+        """Cycles from an update or a write landing to the registers the datapath reads taking
+        it: 1 in the form built for speed (``dsp_products``), whose update loop runs on copies
+        of its own (short and local) that the datapath's registers follow a cycle later; else
+        0. That form's read-back is registered too (:attr:`learning_read_latency`)."""
+        return int(bool(self.on_chip_learning) and self.dsp_products is not None)
+
+    @property
+    def learning_read_latency(self):
+        """Cycles from ``learn_read_address`` to its register on ``learn_read_data``: 0, or
+        2 in the form built for speed (a multiplexer in two registered steps)."""
+        return 2 * self.learning_lag
+
+    @property
     def learning_rule(self):
         """The update the registers make (:class:`~thresh2hdl.train.OnChipRule`), or None."""
         if not self.on_chip_learning:

@@ -7,14 +7,19 @@ cycle its result leaves (``out_valid & out_ready``) every unit whose own decisio
 (``score > 0``) differs from its target bit moves its weights by the steps and its bias by
 ``bias_step``, towards the target, each sum clamped to the register's declared range. A write
 through the weight port in the same cycle wins. ``learn_read_address`` / ``learn_read_data``
-read any register back (past the last, 0), combinationally. The host-side model of all this
+read any register back (past the last, 0), combinationally. In the form built for speed
+(``dsp_products``) the update and the port act on copies of the registers that the datapath's
+follow a cycle later (``UnitConfig.learning_lag``); the read-back reads the registers the
+datapath reads, in two registered steps: the update's loop then has no reader but its copy,
+and every path is local. The host-side model of all this
 is :mod:`thresh2hdl.train.on_chip`; the cycle-exact one, :mod:`thresh2hdl.verify.learning`.
 """
 
 from amaranth.hdl import Mux, Shape, Signal, signed
 from amaranth.lib.wiring import In, Out
 
-from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_TARGET, entered_name, learn_mistake_name,
+from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_READ_HIGH, LEARN_TARGET, READ_GROUP,
+                     entered_name, learn_read_group_name, learn_mistake_name,
                      learn_move_name, learn_step_name)
 from .register_bus import index_known, selected
 
@@ -110,7 +115,7 @@ def build_learning(m, component, stages, store, features, decisions):
     else:
         _update_fast(m, component, stages, store, steps, decisions)
     store.connect_port(m, component)
-    _read_port(m, component, store.registers)
+    _read_port(m, component, store.read, config.learning_read_latency)
 
 
 def _update(m, component, stages, store, steps, decisions):
@@ -126,7 +131,7 @@ def _update(m, component, stages, store, steps, decisions):
     targets = stages.at(LEARN_TARGET, latency)
     bias_step = Signal(range(rule.bias_step + 1), name="learn_bias_step", init=rule.bias_step)
     m.d.comb += bias_step.eq(rule.bias_step)
-    for unit, (row, bias) in enumerate(zip(store.weights, store.biases)):
+    for unit, (row, bias) in enumerate(zip(store.owned_weights, store.owned_biases)):
         target = targets[unit]
         wrong = Signal(name=f"learn_wrong{unit}")
         m.d.comb += wrong.eq(stages.at(decisions[unit], latency) != target)
@@ -146,7 +151,7 @@ def _update_fast(m, component, stages, store, moves, decisions):
     targets = stages.at(LEARN_TARGET, latency)
     bias_step = Signal(range(rule.bias_step + 1), name="learn_bias_step", init=rule.bias_step)
     m.d.comb += bias_step.eq(rule.bias_step)
-    for unit, (row, bias) in enumerate(zip(store.weights, store.biases)):
+    for unit, (row, bias) in enumerate(zip(store.owned_weights, store.owned_biases)):
         wrong = stages.at(_mistake(m, stages, config, decisions[unit], unit), latency)
         moved = [_clamped_sum(m, register, move, register.name)
                  for register, move in zip(row, moves)]
@@ -184,7 +189,33 @@ def _step_shape(feature, shift):
     return Shape(max(1, shape.width + shift), shape.signed)
 
 
-def _read_port(m, component, registers):
+def _read_port(m, component, registers, latency):
+    """The addressed register (0 past the last) on ``read_data``: within the cycle, or
+    (``latency`` 2) in two registered steps, so that no path crosses the part: each group of
+    :data:`READ_GROUP` registers chooses one by the address's low bits into a register of
+    its own (placed by its registers), then the group's register is chosen by the high bits
+    as they were a cycle before."""
     address = _port(component, "read_address")
-    m.d.comb += _port(component, "read_data").eq(
-        Mux(index_known(address, len(registers)), selected(registers, address), 0))
+    data = _port(component, "read_data")
+    if not latency:
+        m.d.comb += data.eq(Mux(index_known(address, len(registers)),
+                                selected(registers, address), 0))
+        return
+    assert latency == 2, latency
+    low_bits = (READ_GROUP - 1).bit_length()
+    low, high = address[:low_bits], address[low_bits:]
+    chosen = []
+    for index in range(0, len(registers), READ_GROUP):
+        group = registers[index:index + READ_GROUP]
+        register = Signal(signed(max(len(r) for r in group)),
+                          name=learn_read_group_name(len(chosen)))
+        m.d.sync += register.eq(Mux(index_known(low, len(group)), selected(group, low), 0))
+        chosen.append(register)
+    read = Signal(data.shape(), name="learn_read_r")
+    if len(chosen) == 1:
+        m.d.sync += read.eq(chosen[0])
+    else:
+        was = Signal(len(high), name=LEARN_READ_HIGH)
+        m.d.sync += was.eq(high)
+        m.d.sync += read.eq(Mux(index_known(was, len(chosen)), selected(chosen, was), 0))
+    m.d.comb += data.eq(read)

@@ -5,7 +5,7 @@ an AXI4-Lite slave with read-back (:mod:`.register_bus`), both with one address 
 from amaranth.hdl import Signal, signed
 from amaranth.lib.wiring import In
 
-from ..names import bias_name, unit_prefix, weight_name
+from ..names import bias_name, learned_name, unit_prefix, weight_name
 from .register_bus import axi_lite_members, build_axi_lite
 
 __all__ = ["WeightStore", "weight_addresses", "register_file", "write_members"]
@@ -40,7 +40,8 @@ class WeightStore:
     """Weight and bias registers of every unit, reset to the trained values, written through
     ``weight_write``/``weight_address``/``weight_data``: unit ``u``'s weight ``i`` at address
     ``u * (features + 1) + i``, its bias at ``u * (features + 1) + features``. A write takes
-    effect from the next clock; the data's low bits are kept. With ``weight_port``
+    effect from the next clock (with on-chip learning's lag, in the copies: the registers the
+    datapath reads a clock later); the data's low bits are kept. With ``weight_port``
     ``axi4-lite`` the same registers are the slave's words."""
 
     def __init__(self, m, component, config):
@@ -57,10 +58,28 @@ class WeightStore:
             registers += row + [bias]
             self.weights.append(row)
             self.biases.append(bias)
-        self.registers = registers
         self.config = config
+        # The registers the port writes (and on-chip learning moves), in address order: the
+        # datapath's own, or with a learning lag copies of them that they follow a cycle later
+        # (the update's loop then stays short and local, away from what reads the weights).
+        self.read = registers      # what the datapath (and on-chip learning's read-back) reads
+        self.registers = registers if not config.learning_lag else \
+            [self._copy(m, register) for register in registers]
+        self.owned_weights, self.owned_biases = [], []
+        start = 0
+        for row in self.weights:
+            self.owned_weights.append(self.registers[start:start + len(row)])
+            self.owned_biases.append(self.registers[start + len(row)])
+            start += len(row) + 1
         if not config.on_chip_learning:
             self.connect_port(m, component)
+
+    @staticmethod
+    def _copy(m, register):
+        """``register``'s learning copy; ``register`` takes it every clock."""
+        copy = Signal(register.shape(), name=learned_name(register.name), init=register.init)
+        m.d.sync += register.eq(copy)
+        return copy
 
     def connect_port(self, m, component):
         """The write port (or slave). With on-chip learning it is connected after the

@@ -20,11 +20,14 @@ register's signed range, else itself; and the read-back port equals the addresse
 
 from dataclasses import dataclass
 
-from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_TARGET, bias_name, entered_name,
-                     learn_move_name, learn_step_name, positive_name, register_name,
+from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_READ_HIGH, LEARN_TARGET, READ_GROUP,
+                     bias_name, entered_name, learn_move_name, learn_read_group_name,
+                     learned_name, learn_step_name, positive_name, register_name,
                      unit_prefix, weight_name, weight_registers)
+from .clocking import reset_clears
 from .forms import Value
 from .lemmas import weight_write_lemmas
+from .outcome import Undecided
 from .query import Query, bool_signal, bv
 from .rows import add_moves, mistake_formula, move_formula
 
@@ -47,13 +50,28 @@ class Learning:
     flagged: bool              # the out-of-range flag stops a flagged sample's update
     units: tuple               # (weight names, bias name, decision value, its port or None)
     mistakes: tuple = ()       # the dsp_products form: each unit's carried mistake (rows.py)
+    lag: int = 0               # the update's copies, followed a cycle later (learning_lag)
+    read_latency: int = 0      # cycles from the read-back's address to its data
 
     def lemmas(self, query, model, needed):
         """Each register's next value (the write port's lemma with the update in place of
-        "keeps its value"), and the read-back port's."""
+        "keeps its value"), and the read-back port's. With a lag, those are the update's
+        copies, and each register the datapath reads takes its copy (a reset, its trained
+        value)."""
         update = self._update(query, needed)
-        lemmas = weight_write_lemmas(query.plan, query, model, otherwise=update)
-        return lemmas + [self._read_back(query, model)]
+        lemmas = weight_write_lemmas(query.plan, query, model, otherwise=update, own=self.own)
+        if self.lag:
+            clears = reset_clears(query.plan, query.smt, query.ports)
+            for name, trained in weight_registers(model):
+                bits = query.smt.widths[name]
+                lemmas.append((name, f"(= {query.smt.bits(name, 's1')} (ite {clears} "
+                                     f"{query.low(bv(trained, query.width), bits)} "
+                                     f"{query.smt.bits(self.own(name), 's0')}))"))
+        return lemmas + self._read_back(query, model)
+
+    def own(self, name):
+        """The register the update moves and the port writes for ``name``."""
+        return learned_name(name) if self.lag else name
 
     def _leaving(self, query, name, port, needed):
         """Value ``name`` as the last stage holds it (wide): its register there, or the
@@ -96,6 +114,7 @@ class Learning:
 
         def otherwise(name, bits):
             taught, up, step, (lo, hi) = moves[name]
+            name = self.own(name)
             now = query.weight_register(name)
             moved = f"(ite {up} (bvadd {now} {step}) (bvsub {now} {step}))"
             clamped = (f"(ite (bvsgt {moved} {bv(hi, w)}) {bv(hi, w)} "
@@ -105,16 +124,55 @@ class Learning:
         return otherwise
 
     def _read_back(self, query, model):
-        """``learn_read_data`` is the register at ``learn_read_address`` (sign-extended),
-        0 past the last, within the cycle."""
-        w = query.width
+        """``learn_read_data`` is the register at ``learn_read_address`` (sign-extended; the
+        one the datapath reads), 0 past the last, within the cycle; with a read latency, step
+        by step: each group's
+        register takes its register at the address's low bits (0 past the last), the high
+        bits are registered, and the port takes the group's register they name (a reset:
+        0)."""
+        w, smt = query.width, query.smt
         address = query.wide(query.port("learn_read_address")[0], "s0", False)
-        expected = bv(0, w)
-        for index, (name, _) in reversed(list(enumerate(weight_registers(model)))):
-            expected = (f"(ite (= {address} {bv(index, w)}) {query.weight_register(name)} "
-                        f"{expected})")
+        names = [name for name, _ in weight_registers(model)]    # the datapath's registers
         port, signed = query.port("learn_read_data")
-        return READ_LEMMA, f"(= {query.wide(port, 's0', signed)} {expected})"
+        if not self.read_latency:
+            chosen = _chosen([query.weight_register(n) for n in names], address, w)
+            return [(READ_LEMMA, f"(= {query.wide(port, 's0', signed)} {chosen})")]
+        clears = reset_clears(query.plan, smt, query.ports)
+        low_bits = (READ_GROUP - 1).bit_length()
+        low = f"(bvand {address} {bv(READ_GROUP - 1, w)})"
+        lemmas, groups = [], []
+        for start in range(0, len(names), READ_GROUP):
+            group = learn_read_group_name(len(groups))
+            if not smt.has(group):
+                raise Undecided(f"the netlist has no register {group!r} of the read-back")
+            chosen = _chosen([query.weight_register(n) for n in names[start:start + READ_GROUP]],
+                             low, w)
+            lemmas.append((group, _registered(query, group, clears, chosen)))
+            groups.append(query.wide(group, "s0", True))
+        if len(groups) == 1:
+            chosen = groups[0]
+        else:
+            lemmas.append((LEARN_READ_HIGH, _registered(
+                query, LEARN_READ_HIGH, clears, f"(bvlshr {address} {bv(low_bits, w)})")))
+            chosen = _chosen(groups, query.wide(LEARN_READ_HIGH, "s0", False), w)
+        lemmas.append((READ_LEMMA, f"(= {query.wide(port, 's1', signed)} "
+                                   f"(ite {clears} {bv(0, w)} {chosen}))"))
+        return lemmas
+
+
+def _chosen(values, index, w):
+    """``values[index]`` (wide expressions), 0 past the last."""
+    expected = bv(0, w)
+    for k in reversed(range(len(values))):
+        expected = f"(ite (= {index} {bv(k, w)}) {values[k]} {expected})"
+    return expected
+
+
+def _registered(query, name, clears, value):
+    """Register ``name`` takes the low bits of ``value`` from the next clock (a reset: 0)."""
+    smt = query.smt
+    bits = smt.widths[name]
+    return f"(= {smt.bits(name, 's1')} (ite {clears} {bv(0, bits)} {query.low(value, bits)}))"
 
 
 def add_learning(plan, component):
@@ -144,7 +202,8 @@ def add_learning(plan, component):
     if config.dsp_products is not None:
         mistakes = add_moves(plan, rule, guard, [u[2] for u in units], plan.final_stage)
         plan.learning = Learning(rule, plan.latency, len(model.features), guard.flag,
-                                 tuple(units), tuple(mistakes))
+                                 tuple(units), tuple(mistakes), config.learning_lag,
+                                 config.learning_read_latency)
         return plan
     for i in range(len(model.features)):
         # The step of every code the arithmetic can see: clamped, or whatever the port

@@ -58,11 +58,14 @@ def _clamps(query):
     return [(wire, lemma) for (wire, _), lemma in sorted(query.clamp_lemmas.items())]
 
 
-def weight_write_lemmas(plan, query, model, otherwise=None):
+def weight_write_lemmas(plan, query, model, otherwise=None, own=None):
     """The plain write port: a register takes the data's low bits, from the next clock, when
     the strobe is high at its address; it keeps its value otherwise (``otherwise(name,
     bits)``: what it takes instead, on-chip learning's update); a reset restores the trained
-    value. (The AXI4-Lite slave's writes have no lemma: simulation covers them.)"""
+    value. ``own(name)``: the register the port writes for weight or bias ``name`` (on-chip
+    learning's copy; default the register itself). (The AXI4-Lite slave's writes have no
+    lemma: simulation covers them.)"""
+    own = own or (lambda name: name)
     smt, w = query.smt, query.width
     strobe = bool_signal(smt, query.ports["weight_write"][0], "s0")
     address = query.wide(query.ports["weight_address"][0], "s0", False)
@@ -70,12 +73,13 @@ def weight_write_lemmas(plan, query, model, otherwise=None):
     clears = reset_clears(plan, smt, query.ports)
     lemmas = []
     for index, (name, trained) in enumerate(weight_registers(model)):
-        query.weight_register(name)          # undecided when the netlist lacks it
-        bits = smt.widths[name]
+        register = own(name)
+        query.weight_register(register)          # undecided when the netlist lacks it
+        bits = smt.widths[register]
         written = f"(and {strobe} (= {address} {bv(index, w)}))"
-        kept = smt.bits(name, "s0") if otherwise is None else otherwise(name, bits)
-        after = smt.bits(name, "s1")
-        lemmas.append((name, f"(= {after} (ite {clears} {query.low(bv(trained, w), bits)} "
+        kept = smt.bits(register, "s0") if otherwise is None else otherwise(name, bits)
+        after = smt.bits(register, "s1")
+        lemmas.append((register, f"(= {after} (ite {clears} {query.low(bv(trained, w), bits)} "
                              f"(ite {written} ((_ extract {bits - 1} 0) "
                              f"{smt.bits(data, 's0')}) {kept})))"))
     return lemmas

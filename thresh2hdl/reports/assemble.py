@@ -166,6 +166,7 @@ def _learning_report(component, model):
     bias_sum = max(config.bias_bits, rule.bias_step.bit_length() + 1) + 1
     ports = tuple(port.name for port in port_table(component, model)
                   if port.internal.startswith(LEARN_PREFIX))
+    delay = component.latency + config.learning_lag
     rule_text = (f"an input with {ports[0]} high is a labelled sample; when its result is "
                  f"taken, each unit whose own decision (score > 0) differs from its bit of "
                  f"{ports[1]} moves each weight by eta x (eta = {rule.learning_rate}: "
@@ -175,11 +176,17 @@ def _learning_report(component, model):
                  + ("; a sample flagged out of range teaches nothing" if config.range_flag
                     else "")
                  + f"; a vector meets the registers as they are when it enters, so back-to-"
-                 f"back samples do not see the updates of the {component.latency} before "
-                 f"them; {ports[2]} reads any register back combinationally (past the last, "
-                 f"0); learning changes the decisions in the field: see the caution")
+                 f"back samples do not see the updates of the {delay} before them"
+                 + (" (the update's copies reach the registers the datapath reads a cycle "
+                    "after they change)" if config.learning_lag else "")
+                 + f"; {ports[2]} reads any register back "
+                 + (f"{config.learning_read_latency} cycles after its address, as the "
+                    "datapath reads it"
+                    if config.learning_read_latency else "combinationally")
+                 + " (past the last, 0); learning changes the decisions in the field: see "
+                 "the caution")
     return LearningSection(str(rule.learning_rate), rule.bias_step, step_bits, weight_sum,
-                           bias_sum, component.latency, ports, rule_text)
+                           bias_sum, delay, ports, rule_text)
 
 
 def _weight_port_report(component, model):

@@ -34,7 +34,10 @@ def learning_trace(stimulus, config, labelled, targets, addresses):
     In a cycle, the read-back and an entering vector see the registers as they are; then the
     vector leaving (``out_valid & out_ready``), if labelled and not flagged out of range,
     updates every unit whose own decision (score > 0) differs from its target bit; then a
-    write through the port lands, winning over the update."""
+    write through the port lands, winning over the update. With ``config.learning_lag`` (the
+    form built for speed) the update and the write land in the update's copies, and an
+    entering vector and the read-back see them as they were a cycle before; the read-back
+    then comes ``config.learning_read_latency`` cycles after its address (0 before)."""
     rule, model = config.learning_rule, config.model
     guard = config.guard
     vectors = np.asarray(stimulus.vectors, dtype=np.int64)
@@ -59,15 +62,21 @@ def learning_trace(stimulus, config, labelled, targets, addresses):
     read_width = max(widths)
     read_data = np.zeros(stimulus.cycles, dtype=np.int64)
     count = len(widths)
+    lag, read_latency = config.learning_lag, config.learning_read_latency
+    seen = (weights.copy(), biases.copy())     # the registers the datapath reads
     for cycle in range(stimulus.cycles):
         address = int(addresses[cycle])
         if address < count:
             unit, index = divmod(address, features + 1)
-            value = weights[unit, index] if index < features else biases[unit]
+            shown_w, shown_b = seen if lag else (weights, biases)
+            value = shown_w[unit, index] if index < features else shown_b[unit]
             read_data[cycle] = int(value) & ((1 << read_width) - 1)
         vector = entering[cycle]
         if vector >= 0:
-            scores[vector] = weights @ codes[vector] + biases
+            read_w, read_b = seen if lag else (weights, biases)
+            scores[vector] = read_w @ codes[vector] + read_b
+        if lag:
+            seen = (weights.copy(), biases.copy())
         vector = leaving[cycle]
         if vector >= 0 and labelled[vector] and not flagged[vector]:
             steps = rule.steps(codes[vector].astype(np.int64))
@@ -85,6 +94,9 @@ def learning_trace(stimulus, config, labelled, targets, addresses):
                 weights[unit, index] = value
             else:
                 biases[unit] = value
+    if read_latency:
+        read_data = np.concatenate([np.zeros(read_latency, dtype=np.int64),
+                                    read_data[:stimulus.cycles - read_latency]])
     final = ([[int(v) for v in row] for row in weights], [int(v) for v in biases])
     if model.is_bank:
         decisions = np.array([max(range(units), key=lambda u: (row[u], -u)) for row in scores],
