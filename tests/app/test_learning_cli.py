@@ -2,6 +2,7 @@
 prediction with ``fit --in-fabric``, and bad input in one line."""
 
 import json
+import re
 
 import pytest
 
@@ -104,5 +105,8 @@ def test_the_demo_learns_with_rows_and_its_folder_rebuilds(tmp_path):
     assert report["on_chip_learning"]["delay_cycles"] == report["latency_cycles"] + 1
     text = (out / "pump_fault.v").read_text()
     assert text.count(" * ") == 4 and "p9_b5" in text
+    # The report's step width is the carried moves' (signed towards the target), as emitted.
+    moves = [int(bits) + 1 for bits in re.findall(r"wire \[(\d+):0\] learn_move\d+;", text)]
+    assert moves and report["on_chip_learning"]["step_bits"] == max(moves)
     checked = run("check", out, "--simulator", "icarus", "--vectors", "300")
     assert checked.returncode == 0, checked.stderr

@@ -161,6 +161,8 @@ def _learning_report(component, model):
     rule = config.learning_rule
     steps = [(max(1, f.bits + rule.shift), f.signed) for f in model.features]
     step_bits = max(bits for bits, _ in steps)
+    if config.dsp_products is not None:
+        step_bits += 1      # (carried as a move signed towards the target: hardware.learning)
     # as hardware.learning sizes them: a bit wider than the register and the step (signed)
     weight_sum = max(max(config.weight_bits, bits + (not signed)) + 1 for bits, signed in steps)
     bias_sum = max(config.bias_bits, rule.bias_step.bit_length() + 1) + 1
