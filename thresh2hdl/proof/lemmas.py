@@ -37,6 +37,12 @@ def lemmas_of(plan, query, model, held=None):
         lemmas.append((port, f"(= {query.wide(port, 's0', signed)} "
                              f"{query.score(0, plan.latency, needed=needed)})"))
     pipeline = _Pipeline(plan, query, handshake, needed)
+    # A value a later stage computes from its registers is read only while that stage holds
+    # a valid item (its registers load from it only then): stated then, when the registers
+    # are known in range, not for contents only an empty stage holds (a register narrowed
+    # to the bits where an argmax class varies reads otherwise there).
+    lemmas = [(label, pipeline.while_valid(plan.values[label].stage, body))
+              if label in plan.values else (label, body) for label, body in lemmas]
     pipeline.outputs(outputs)
     learning = getattr(plan, "learning", None)
     if learning is not None:
@@ -167,6 +173,12 @@ class _Pipeline:
             self.assumptions.append(f"(=> {any_now} (= {smt.bits(name, 's0')} {value}))")
             self.lemmas.append((f"{name} holds {constant}",
                                 f"(=> {any_after} (= {smt.bits(name, 's1')} {value}))"))
+
+    def while_valid(self, stage, body):
+        """``body`` stated while stage ``stage`` (1 or later) holds a valid item."""
+        if stage < 1 or stage > self.plan.latency:
+            return body
+        return f"(=> {self.valid_now(stage)} {body})"
 
     def valid_now(self, stage):
         return self.valid[0] if stage == 0 else self.valid[stage][1]
