@@ -71,6 +71,26 @@ def entered_name(bias):
     return f"{bias}_entered"
 
 
+def zero_name(value):
+    """Whether sum ``value`` is zero, tested from its two operands (the form built for
+    speed: the decision then waits for the adder's sign alone)."""
+    return f"{value}_zero"
+
+
+# The write port's data, held a cycle (on-chip learning's form built for speed).
+HELD_WRITE_DATA = "weight_data_r"
+
+
+def held_data_name(copy):
+    """The port's data held a cycle for bias copy ``copy`` alone (beside its long adder)."""
+    return f"{copy}_data"
+
+
+def written_name(copy):
+    """Whether the port wrote learning copy ``copy`` a cycle ago (its write lands now)."""
+    return f"{copy}_written"
+
+
 def learned_name(register):
     """The update's own copy of weight or bias register ``register`` (the form built for
     speed): the port writes it and the update moves it; ``register`` follows it a cycle

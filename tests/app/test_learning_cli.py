@@ -108,5 +108,10 @@ def test_the_demo_learns_with_rows_and_its_folder_rebuilds(tmp_path):
     # The report's step width is the carried moves' (signed towards the target), as emitted.
     moves = [int(bits) + 1 for bits in re.findall(r"wire \[(\d+):0\] learn_move\d+;", text)]
     assert moves and report["on_chip_learning"]["step_bits"] == max(moves)
+    # Its adders' widths are the copies' (each holds its sum before the clamp), as emitted.
+    copies = [int(b) + 1 for b in re.findall(r"reg  \[(\d+):0\] weight\d+_learned;", text)]
+    assert copies and report["on_chip_learning"]["weight_sum_bits"] == max(copies)
+    bias_copy = re.search(r"reg  \[(\d+):0\] bias_learned;", text)
+    assert report["on_chip_learning"]["bias_sum_bits"] == int(bias_copy.group(1)) + 1
     checked = run("check", out, "--simulator", "icarus", "--vectors", "300")
     assert checked.returncode == 0, checked.stderr

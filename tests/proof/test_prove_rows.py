@@ -61,11 +61,18 @@ def _own(model, config):
     # The move is not signed towards the target.
     replace_once("assign learn_move1 = learn_target ?", "assign learn_move1 = ~learn_target ?"),
     # A register the datapath reads follows another's learning copy.
-    replace_once("rst ? 4'd3 : weight0_learned", "rst ? 4'd3 : weight1_learned"),
+    replace_once("rst ? 4'd3 : weight0_learned_clamped", "rst ? 4'd3 : weight1_learned_clamped"),
     # The registered read-back reads the copies at swapped addresses.
     replace_once("learn_read_address[0] ? weight1 : weight0",
                  "learn_read_address[0] ? weight0 : weight1"),
-], ids=["row-bit", "mistake-inverted", "move-sign", "copy-crossed", "read-swapped"])
+    # A held write is added to the copy's value instead of replacing it.
+    replace_once("weight0_learned_written ? 4'd0 : weight0_learned_clamped",
+                 "weight0_learned_clamped"),
+    # The decision's zero test, made beside the bias adder, misses a group of its terms.
+    replace_once("|{score_sum_zero_g2, score_sum_zero_g1, score_sum_zero_g0}",
+                 "|{score_sum_zero_g2, score_sum_zero_g1}"),
+], ids=["row-bit", "mistake-inverted", "move-sign", "copy-crossed", "read-swapped",
+        "write-adds", "zero-test"])
 def test_each_mutant_is_not_proved(mutate):
     text = _own(unit(), LEARNING)
     mutant = mutate(text)

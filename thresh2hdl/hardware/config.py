@@ -331,6 +331,14 @@ class UnitConfig:
         return int(bool(self.on_chip_learning) and self.dsp_products is not None)
 
     @property
+    def learning_write_latency(self):
+        """Cycles a write through the port waits, registered, before it lands in the
+        update's copies (where it wins over the update of that cycle): 1 in the form built
+        for speed (the write's registers sit beside the copies, so the update's adders read
+        only nearby flip-flops), else 0."""
+        return self.learning_lag
+
+    @property
     def learning_read_latency(self):
         """Cycles from ``learn_read_address`` to its register on ``learn_read_data``: 0, or
         2 in the form built for speed (a multiplexer in two registered steps)."""

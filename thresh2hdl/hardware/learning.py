@@ -9,22 +9,24 @@ cycle its result leaves (``out_valid & out_ready``) every unit whose own decisio
 through the weight port in the same cycle wins. ``learn_read_address`` / ``learn_read_data``
 read any register back (past the last, 0), combinationally. In the form built for speed
 (``dsp_products``) the update and the port act on copies of the registers that the datapath's
-follow a cycle later (``UnitConfig.learning_lag``); the read-back reads the registers the
-datapath reads, in two registered steps: the update's loop then has no reader but its copy,
-and every path is local. The host-side model of all this
+follow a cycle later (``UnitConfig.learning_lag``), each copy holding its sum before the
+clamp so that the loop is one LUT, a carry chain and the copy's flip-flop in the adder's own
+cells; a write is held a clock and enters through the same adder
+(``UnitConfig.learning_write_latency``); the read-back reads the registers the datapath
+reads, in two registered steps: every path is local. The host-side model of all this
 is :mod:`thresh2hdl.train.on_chip`; the cycle-exact one, :mod:`thresh2hdl.verify.learning`.
 """
 
 from amaranth.hdl import Mux, Shape, Signal, signed
 from amaranth.lib.wiring import In, Out
 
-from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_READ_HIGH, LEARN_TARGET, READ_GROUP,
-                     entered_name, learn_read_group_name, learn_mistake_name,
-                     learn_move_name, learn_step_name)
+from ..names import (GUARD_FLAG, HELD_WRITE_DATA, LEARN_ENABLE, LEARN_READ_HIGH, LEARN_TARGET,
+                     READ_GROUP, entered_name, held_data_name, learn_read_group_name,
+                     learn_mistake_name, learn_move_name, learn_step_name, written_name)
 from .register_bus import index_known, selected
 
-__all__ = ["learning_members", "build_learning", "entry_bias", "LEARN_PREFIX", "LEARN_INPUTS",
-           "LEARN_OUTPUTS"]
+__all__ = ["learning_members", "copy_bits", "build_learning", "entry_bias", "LEARN_PREFIX",
+           "LEARN_INPUTS", "LEARN_OUTPUTS"]
 
 LEARN_PREFIX = "learn_"
 LEARN_INPUTS = ("enable", "target", "read_address")
@@ -69,23 +71,19 @@ def _saturated(m, register, step, sign_up, name):
     return Mux(total > hi, hi, Mux(total < lo, lo, total))
 
 
-def _clamped_sum(m, register, move, name):
-    """``register + move`` clamped to the register's range, the form built for speed
-    (``dsp_products``): the move already signed towards the target, so one adder, and the
-    clamp read from the sum's top bits (in range when they are all equal) rather than from
-    two comparisons."""
-    width = max(len(register), len(move)) + 1
-    total = Signal(signed(width), name=f"{name}_next")
-    m.d.comb += total.eq(register + move)
-    top = total[len(register) - 1:]
-    inside = (top == 0) | (top == (1 << len(top)) - 1)
-    lo, hi = -(1 << (len(register) - 1)), (1 << (len(register) - 1)) - 1
-    # A wire of its own: the register then loads it under an enable (left to itself,
-    # synthesis moves the enable into the adder's operand, onto the critical path).
-    clamped = Signal(signed(len(register)), name=f"{name}_clamped")
-    m.d.comb += clamped.eq(Mux(inside, total[:len(register)].as_signed(),
-                               Mux(total[-1], lo, hi)))
-    return clamped
+def copy_bits(config, features):
+    """The widths of the update's copies in address order (``learning_lag``; else None): each
+    holds its register plus a move before the clamp, so one bit over the wider of the two."""
+    if not config.learning_lag:
+        return None
+    rule = config.learning_rule
+    move_bits = [_step_shape(feature, rule.shift).width + 1 for feature in features]
+    bias_move_bits = (rule.bias_step).bit_length() + 1
+    bits = []
+    for _ in config.model.units:
+        bits += [max(config.weight_bits, b) + 1 for b in move_bits]
+        bits.append(max(config.bias_bits, bias_move_bits) + 1)
+    return bits
 
 
 def build_learning(m, component, stages, store, features, decisions):
@@ -114,7 +112,8 @@ def build_learning(m, component, stages, store, features, decisions):
         _update(m, component, stages, store, steps, decisions)
     else:
         _update_fast(m, component, stages, store, steps, decisions)
-    store.connect_port(m, component)
+    if not config.learning_lag:
+        store.connect_port(m, component)
     _read_port(m, component, store.read, config.learning_read_latency)
 
 
@@ -143,22 +142,34 @@ def _update(m, component, stages, store, steps, decisions):
 
 def _update_fast(m, component, stages, store, moves, decisions):
     """As :func:`_update`, built for speed (``dsp_products``): the moves already signed, the
-    mistake carried from the decision's stage, and every next value made outside the update's
-    condition, so that it is a plain wire (inside, each would be 0 unless the update fires,
-    and the enable would reach every adder)."""
+    mistake carried from the decision's stage, and each copy loading, under one enable, its
+    value clamped plus the move, or (a write held a clock, which wins) 0 plus the data: the
+    adder's sum then feeds the copy's flip-flop directly, and they share logic cells."""
     config, latency = component.config, component.latency
     rule = config.learning_rule
     targets = stages.at(LEARN_TARGET, latency)
     bias_step = Signal(range(rule.bias_step + 1), name="learn_bias_step", init=rule.bias_step)
     m.d.comb += bias_step.eq(rule.bias_step)
+    write_data = Signal.like(component.weight_data, name=HELD_WRITE_DATA)
+    m.d.sync += write_data.eq(component.weight_data)
     for unit, (row, bias) in enumerate(zip(store.owned_weights, store.owned_biases)):
+        start = unit * (len(row) + 1)
         wrong = stages.at(_mistake(m, stages, config, decisions[unit], unit), latency)
-        moved = [_clamped_sum(m, register, move, register.name)
-                 for register, move in zip(row, moves)]
-        moved.append(_clamped_sum(m, bias, _move(m, bias_step, targets[unit], "learn_bias_move"),
-                                  bias.name))
-        with m.If(component.out_valid & component.out_ready & wrong):
-            m.d.sync += [register.eq(value) for register, value in zip(row + [bias], moved)]
+        bias_move = _move(m, bias_step, targets[unit], "learn_bias_move")
+        values = store.values[start:start + len(row) + 1]
+        taught = component.out_valid & component.out_ready & wrong
+        for offset, (copy, value, move) in enumerate(zip(row + [bias], values,
+                                                         moves + [bias_move])):
+            written = Signal(name=written_name(copy.name))
+            m.d.sync += written.eq(store.written(component, start + offset))
+            held = write_data
+            if copy is bias:
+                # The bias's adder is the longest: its own held data, placed beside it.
+                held = Signal.like(component.weight_data, name=held_data_name(copy.name))
+                m.d.sync += held.eq(component.weight_data)
+            data = held[:len(value)].as_signed()
+            with m.If(taught | written):
+                m.d.sync += copy.eq(Mux(written, 0, value) + Mux(written, data, move))
 
 
 def _move(m, step, up, name):

@@ -5,6 +5,7 @@ part later than the one below (:func:`build_split_tree`, :class:`Parts`)."""
 from amaranth.hdl import Cat, Const, Mux, Signal, signed, unsigned
 
 from ..analysis import row_bit
+from ..names import zero_name
 
 __all__ = ["node_shape", "build_tree", "build_split_tree", "Parts", "constant_product",
            "combine"]
@@ -42,8 +43,14 @@ def build_tree(m, stages, analysis, features, prefix="", weights=None, bias=None
             expr = Mux(weights[node.feature][row_bit(node)], features[node.feature], 0) \
                 << row_bit(node)
         elif weights is not None and node.kind == "bias":
-            expr = stages.at(children[0], stage) + \
+            sum_, entered = stages.at(children[0], stage), \
                 (stages.at(bias, stage) if isinstance(bias, str) else bias)
+            expr = sum_ + entered
+            if analysis.dsp_products is not None:
+                zero = Signal(name=zero_name(name))
+                m.d.comb += zero.eq(sum_is_zero(m, sum_, entered, node_shape(node).width,
+                                                zero.name))
+                stages.put(zero.name, zero, stage)
         elif node.kind == "product":
             expr = constant_product(node, features)
         else:
@@ -198,6 +205,28 @@ def build_split_tree(m, stages, analysis, features, parts, split_bits, skew, pre
             stages.put(part.name, part, at)
             stages.put(carried.name, carried, at)
             carry = stages.at(carried.name, at + skew)
+
+
+def sum_is_zero(m, a, b, width, name):
+    """Whether ``a + b`` is 0 in ``width``-bit two's complement (wide enough for the sum),
+    without its carries: ``a ^ b == (a | b) << 1`` bit by bit (a sum is zero exactly where
+    each bit of ``a ^ b`` is the carry the bits below make, and each of them carries,
+    common practice), so each bit is one LUT of four operand bits and the test runs beside
+    the adder rather than after it."""
+    def bit(value, i):
+        if i < len(value):
+            return value[i]
+        return value[-1] if value.shape().signed else Const(0, 1)
+    terms = [bit(a, 0) ^ bit(b, 0)]
+    terms += [bit(a, i) ^ bit(b, i) ^ (bit(a, i - 1) | bit(b, i - 1)) for i in range(1, width)]
+    # Four terms a wire (two LUT levels each; kept, so that synthesis keeps the test
+    # shallow), then one test of the wires.
+    groups = []
+    for start in range(0, width, 4):
+        group = Signal(name=f"{name}_g{len(groups)}")
+        m.d.comb += group.eq(Cat(*terms[start:start + 4]).any())
+        groups.append(group)
+    return ~Cat(*groups).any()
 
 
 def constant_product(node, features):

@@ -3,11 +3,11 @@ taken from the result's parts as they arrive when the adders are split."""
 
 from amaranth.hdl import Cat, Const, Module, Signal, signed
 
-from ..names import GUARD_FLAG
+from ..names import GUARD_FLAG, zero_name
 from .clocking import enabled
 from .component import PlannedComponent
 from .input_guard import guard_inputs
-from .learning import build_learning, entry_bias
+from .learning import build_learning, copy_bits, entry_bias
 from .plan import result_node
 from .stages import Stages, handshake
 from .trees import Parts, build_split_tree, build_tree
@@ -58,7 +58,8 @@ class ThresholdUnit(PlannedComponent):
         if parts:
             build_split_tree(m, stages, analysis, features, parts, bits, skew)
         else:
-            store = WeightStore(m, self, config) if analysis.loadable else None
+            store = WeightStore(m, self, config, copy_bits(config, features)) \
+                if analysis.loadable else None
             build_tree(m, stages, analysis, features, weights=store and store.weights[0],
                        bias=store and entry_bias(stages, config, store.biases[0]))
         view = Parts(m, stages, analysis, parts, bits)
@@ -94,7 +95,9 @@ class ThresholdUnit(PlannedComponent):
             step = Signal(name="decision" if count == 1 else f"decision_p{j}")
             if tests_score:
                 # the score is positive: nonzero and, at the top, not negative
-                nonzero = part.any() if below is None else below | part.any()
+                zero = zero_name(node.wire_name(""))
+                nonzero = (~stages.at(zero, at) if count == 1 and stages.has(zero) else
+                           part.any() if below is None else below | part.any())
                 m.d.comb += step.eq(~part[-1] & nonzero if is_top and node.is_signed
                                     else nonzero)
             else:

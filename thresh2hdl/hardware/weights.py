@@ -2,7 +2,7 @@
 writes them: the plain write port (``weight_write`` / ``weight_address`` / ``weight_data``) or
 an AXI4-Lite slave with read-back (:mod:`.register_bus`), both with one address map."""
 
-from amaranth.hdl import Signal, signed
+from amaranth.hdl import Mux, Signal, signed
 from amaranth.lib.wiring import In
 
 from ..names import bias_name, learned_name, unit_prefix, weight_name
@@ -44,7 +44,7 @@ class WeightStore:
     datapath reads a clock later); the data's low bits are kept. With ``weight_port``
     ``axi4-lite`` the same registers are the slave's words."""
 
-    def __init__(self, m, component, config):
+    def __init__(self, m, component, config, copy_bits=None):
         self.weights, self.biases = [], []
         registers = []
         model = config.model
@@ -63,8 +63,15 @@ class WeightStore:
         # datapath's own, or with a learning lag copies of them that they follow a cycle later
         # (the update's loop then stays short and local, away from what reads the weights).
         self.read = registers      # what the datapath (and on-chip learning's read-back) reads
+        self.widths = [len(register) for register in registers]
         self.registers = registers if not config.learning_lag else \
-            [self._copy(m, register) for register in registers]
+            [self._copy(m, register, bits) for register, bits in zip(registers, copy_bits)]
+        # What each register the port writes stands for: itself, or its copy clamped.
+        self.values = registers if not config.learning_lag else \
+            [self._clamped(m, copy, len(register))
+             for copy, register in zip(self.registers, registers)]
+        if config.learning_lag:
+            m.d.sync += [register.eq(value) for register, value in zip(registers, self.values)]
         self.owned_weights, self.owned_biases = [], []
         start = 0
         for row in self.weights:
@@ -75,11 +82,17 @@ class WeightStore:
             self.connect_port(m, component)
 
     @staticmethod
-    def _copy(m, register):
-        """``register``'s learning copy; ``register`` takes it every clock."""
-        copy = Signal(register.shape(), name=learned_name(register.name), init=register.init)
-        m.d.sync += register.eq(copy)
-        return copy
+    def _copy(m, register, bits):
+        """``register``'s learning copy, ``bits`` wide: the update's sum before its clamp
+        (the clamp is then read from the copy's own flip-flops, off the adder's path)."""
+        return Signal(signed(bits), name=learned_name(register.name), init=register.init)
+
+    @staticmethod
+    def _clamped(m, copy, bits):
+        """The value ``copy`` stands for: clamped to ``bits``, a wire of its own."""
+        value = Signal(signed(bits), name=f"{copy.name}_clamped")
+        m.d.comb += value.eq(clamped(copy, bits))
+        return value
 
     def connect_port(self, m, component):
         """The write port (or slave). With on-chip learning it is connected after the
@@ -87,10 +100,26 @@ class WeightStore:
         if self.config.weight_port == "axi4-lite":
             build_axi_lite(m, component, self.registers)
             return
-        for address, register in enumerate(self.registers):
-            self._write(m, component, register, address)
+        for address, (register, bits) in enumerate(zip(self.registers, self.widths)):
+            self._write(m, component, register, bits, address)
 
     @staticmethod
-    def _write(m, component, register, address):
-        with m.If(component.weight_write & (component.weight_address == address)):
-            m.d.sync += register.eq(component.weight_data[:len(register)])
+    def written(component, address):
+        """Whether the port writes the register at ``address`` in this cycle."""
+        return component.weight_write & (component.weight_address == address)
+
+    def _write(self, m, component, register, bits, address):
+        with m.If(self.written(component, address)):
+            m.d.sync += register.eq(component.weight_data[:bits].as_signed())
+
+
+def clamped(value, bits):
+    """``value`` clamped to ``bits``-bit two's complement: itself where its bits from
+    ``bits - 1`` up are all equal, else the limit on its sign's side (a LUT per bit, read from
+    the value's own bits)."""
+    if len(value) <= bits:
+        return value
+    top = value[bits - 1:]
+    inside = (top == 0) | (top == (1 << len(top)) - 1)
+    lo, hi = -(1 << (bits - 1)), (1 << (bits - 1)) - 1
+    return Mux(inside, value[:bits].as_signed(), Mux(value[-1], lo, hi))

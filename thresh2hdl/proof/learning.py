@@ -52,6 +52,7 @@ class Learning:
     mistakes: tuple = ()       # the dsp_products form: each unit's carried mistake (rows.py)
     lag: int = 0               # the update's copies, followed a cycle later (learning_lag)
     read_latency: int = 0      # cycles from the read-back's address to its data
+    write_latency: int = 0     # cycles a write is held before it lands (0 or 1)
 
     def lemmas(self, query, model, needed):
         """Each register's next value (the write port's lemma with the update in place of
@@ -59,14 +60,17 @@ class Learning:
         copies, and each register the datapath reads takes its copy (a reset, its trained
         value)."""
         update = self._update(query, needed)
-        lemmas = weight_write_lemmas(query.plan, query, model, otherwise=update, own=self.own)
+        lemmas = weight_write_lemmas(query.plan, query, model, otherwise=update, own=self.own,
+                                     held=bool(self.write_latency))
         if self.lag:
             clears = reset_clears(query.plan, query.smt, query.ports)
+            limits = self._limits(model)
             for name, trained in weight_registers(model):
                 bits = query.smt.widths[name]
+                now = _clamp(query.weight_register(self.own(name)), *limits[name], query.width)
                 lemmas.append((name, f"(= {query.smt.bits(name, 's1')} (ite {clears} "
                                      f"{query.low(bv(trained, query.width), bits)} "
-                                     f"{query.smt.bits(self.own(name), 's0')}))"))
+                                     f"{query.low(now, bits)}))"))
         return lemmas + self._read_back(query, model)
 
     def own(self, name):
@@ -116,12 +120,23 @@ class Learning:
             taught, up, step, (lo, hi) = moves[name]
             name = self.own(name)
             now = query.weight_register(name)
+            if self.lag:
+                # The copy holds the sum before its clamp: its value is the sum clamped (the
+                # register that follows it takes that), and it takes the next sum unclamped.
+                now = _clamp(now, lo, hi, w)
             moved = f"(ite {up} (bvadd {now} {step}) (bvsub {now} {step}))"
-            clamped = (f"(ite (bvsgt {moved} {bv(hi, w)}) {bv(hi, w)} "
-                       f"(ite (bvslt {moved} {bv(lo, w)}) {bv(lo, w)} {moved}))")
-            return f"(ite {taught} {query.low(clamped, bits)} {smt.bits(name, 's0')})"
+            after = moved if self.lag else _clamp(moved, lo, hi, w)
+            return f"(ite {taught} {query.low(after, bits)} {smt.bits(name, 's0')})"
 
         return otherwise
+
+    def _limits(self, model):
+        """Each weight and bias register's (lo, hi), by name."""
+        limits = {}
+        for weights, bias, _, _ in self.units:
+            limits.update({name: self.rule.weight_range for name in weights})
+            limits[bias] = self.rule.bias_range
+        return limits
 
     def _read_back(self, query, model):
         """``learn_read_data`` is the register at ``learn_read_address`` (sign-extended; the
@@ -158,6 +173,12 @@ class Learning:
         lemmas.append((READ_LEMMA, f"(= {query.wide(port, 's1', signed)} "
                                    f"(ite {clears} {bv(0, w)} {chosen}))"))
         return lemmas
+
+
+def _clamp(value, lo, hi, w):
+    """A wide signed ``value`` clamped to [lo, hi]."""
+    return (f"(ite (bvsgt {value} {bv(hi, w)}) {bv(hi, w)} "
+            f"(ite (bvslt {value} {bv(lo, w)}) {bv(lo, w)} {value}))")
 
 
 def _chosen(values, index, w):
@@ -203,7 +224,7 @@ def add_learning(plan, component):
         mistakes = add_moves(plan, rule, guard, [u[2] for u in units], plan.final_stage)
         plan.learning = Learning(rule, plan.latency, len(model.features), guard.flag,
                                  tuple(units), tuple(mistakes), config.learning_lag,
-                                 config.learning_read_latency)
+                                 config.learning_read_latency, config.learning_write_latency)
         return plan
     for i in range(len(model.features)):
         # The step of every code the arithmetic can see: clamped, or whatever the port

@@ -2,8 +2,10 @@
 over the netlist's own wires with its operands as the netlist computes them (see
 :mod:`thresh2hdl.proof.prover` for why that proves the whole)."""
 
-from ..names import GUARD_FLAG, register_name, valid_name, weight_registers
+from ..names import (GUARD_FLAG, HELD_WRITE_DATA, held_data_name, register_name, valid_name,
+                     weight_registers, written_name)
 from .clocking import reset_asserted, reset_clears
+from .outcome import Undecided
 from .query import bool_signal, bv
 
 __all__ = ["lemmas_of", "weight_write_lemmas"]
@@ -64,13 +66,16 @@ def _clamps(query):
     return [(wire, lemma) for (wire, _), lemma in sorted(query.clamp_lemmas.items())]
 
 
-def weight_write_lemmas(plan, query, model, otherwise=None, own=None):
+def weight_write_lemmas(plan, query, model, otherwise=None, own=None, held=False):
     """The plain write port: a register takes the data's low bits, from the next clock, when
     the strobe is high at its address; it keeps its value otherwise (``otherwise(name,
     bits)``: what it takes instead, on-chip learning's update); a reset restores the trained
     value. ``own(name)``: the register the port writes for weight or bias ``name`` (on-chip
-    learning's copy; default the register itself). (The AXI4-Lite slave's writes have no
-    lemma: simulation covers them.)"""
+    learning's copy; default the register itself). ``held``: the port is registered first
+    (on-chip learning's form built for speed): each register's "written" flip-flop and the
+    held data take the port's strobe at its address and data, and the register takes the
+    held data when its flip-flop is set. (The AXI4-Lite slave's writes have no lemma:
+    simulation covers them.)"""
     own = own or (lambda name: name)
     smt, w = query.smt, query.width
     strobe = bool_signal(smt, query.ports["weight_write"][0], "s0")
@@ -78,17 +83,45 @@ def weight_write_lemmas(plan, query, model, otherwise=None, own=None):
     data = query.ports["weight_data"][0]
     clears = reset_clears(plan, smt, query.ports)
     lemmas = []
+    port_data = smt.bits(data, "s0")
+    if held:
+        lemmas.append(_held(query, HELD_WRITE_DATA, clears, port_data))
+    row = len(model.features) + 1
     for index, (name, trained) in enumerate(weight_registers(model)):
         register = own(name)
         query.weight_register(register)          # undecided when the netlist lacks it
         bits = smt.widths[register]
         written = f"(and {strobe} (= {address} {bv(index, w)}))"
+        if held:
+            flag = written_name(register)
+            lemmas.append(_held(query, flag, clears, f"(ite {written} #b1 #b0)"))
+            written = bool_signal(smt, flag, "s0")
+            data = HELD_WRITE_DATA
+            if index % row == row - 1:          # a bias: its own held data
+                data = held_data_name(register)
+                lemmas.append(_held(query, data, clears, port_data))
         kept = smt.bits(register, "s0") if otherwise is None else otherwise(name, bits)
         after = smt.bits(register, "s1")
+        # The data's low bits as wide as the register it stands for (a learning copy wider
+        # than that, for its sum before the clamp, takes them sign-extended).
+        declared = smt.widths.get(name, bits)
+        data_bits = f"((_ extract {declared - 1} 0) {smt.bits(data, 's0')})"
+        if bits > declared:
+            data_bits = f"((_ sign_extend {bits - declared}) {data_bits})"
         lemmas.append((register, f"(= {after} (ite {clears} {query.low(bv(trained, w), bits)} "
-                             f"(ite {written} ((_ extract {bits - 1} 0) "
-                             f"{smt.bits(data, 's0')}) {kept})))"))
+                             f"(ite {written} {data_bits} {kept})))"))
     return lemmas
+
+
+def _held(query, name, clears, value):
+    """Register ``name`` takes ``value``'s low bits (synthesis may drop the high bits no
+    one reads) from the next clock (a reset: 0)."""
+    smt = query.smt
+    if not smt.has(name):
+        raise Undecided(f"the netlist has no register {name!r} of the held write")
+    bits = smt.widths[name]
+    return (name, f"(= {smt.bits(name, 's1')} (ite {clears} {bv(0, bits)} "
+                  f"((_ extract {bits - 1} 0) {value})))")
 
 
 def _value_lemmas(plan, query, needed):

@@ -163,8 +163,10 @@ def _learning_report(component, model):
     step_bits = max(bits for bits, _ in steps)
     if config.dsp_products is not None:
         step_bits += 1      # (carried as a move signed towards the target: hardware.learning)
-    # as hardware.learning sizes them: a bit wider than the register and the step (signed)
-    weight_sum = max(max(config.weight_bits, bits + (not signed)) + 1 for bits, signed in steps)
+    # as hardware.learning sizes them: a bit wider than the register and the step (signed;
+    # in the form built for speed, the copies: a bit over the register and the move)
+    weight_sum = max(max(config.weight_bits, bits + (config.dsp_products is not None or
+                                                     not signed)) + 1 for bits, signed in steps)
     bias_sum = max(config.bias_bits, rule.bias_step.bit_length() + 1) + 1
     ports = tuple(port.name for port in port_table(component, model)
                   if port.internal.startswith(LEARN_PREFIX))
@@ -181,6 +183,9 @@ def _learning_report(component, model):
                  f"back samples do not see the updates of the {delay} before them"
                  + (" (the update's copies reach the registers the datapath reads a cycle "
                     "after they change)" if config.learning_lag else "")
+                 + (f"; a write lands in the copies {config.learning_write_latency + 1} "
+                    "clocks after the port carries it, winning over the update of that cycle"
+                    if config.learning_write_latency else "")
                  + f"; {ports[2]} reads any register back "
                  + (f"{config.learning_read_latency} cycles after its address, as the "
                     "datapath reads it"
@@ -209,12 +214,17 @@ def _weight_port_report(component, model):
                           f"write while no result is in flight",
                           tuple(port.name for port in port_table(component, model)
                                 if port.internal.startswith(AXI_PREFIX)), "axi4-lite")
+    held = config.learning_write_latency
     timing = ("a vector meets the registers as they are when it enters, so a write may "
-              "come at any time, and wins over an on-chip update in the same cycle"
+              "come at any time, and wins over an on-chip update in the "
+              + ("cycle it lands" if held else "same cycle")
               if config.on_chip_learning else "write while no result is in flight")
+    lands = (f"a write is held {held} clock, then lands in the update's copies, which the "
+             f"registers the datapath reads take a clock later" if held else
+             "a write takes effect from the next clock")
     return WeightPort(*common, max(config.weight_bits, config.bias_bits),
                       weight_addresses(model),
-                      f"{registers}; a write takes effect from the next clock; {timing}",
+                      f"{registers}; {lands}; {timing}",
                       (model.ports.weight_write, model.ports.weight_address,
                        model.ports.weight_data))
 

@@ -36,8 +36,10 @@ def learning_trace(stimulus, config, labelled, targets, addresses):
     updates every unit whose own decision (score > 0) differs from its target bit; then a
     write through the port lands, winning over the update. With ``config.learning_lag`` (the
     form built for speed) the update and the write land in the update's copies, and an
-    entering vector and the read-back see them as they were a cycle before; the read-back
-    then comes ``config.learning_read_latency`` cycles after its address (0 before)."""
+    entering vector and the read-back see them as they were a cycle before; a write lands
+    ``config.learning_write_latency`` cycles after the port carries it (winning over the
+    update of the cycle it lands in); the read-back then comes
+    ``config.learning_read_latency`` cycles after its address (0 before)."""
     rule, model = config.learning_rule, config.model
     guard = config.guard
     vectors = np.asarray(stimulus.vectors, dtype=np.int64)
@@ -63,6 +65,7 @@ def learning_trace(stimulus, config, labelled, targets, addresses):
     read_data = np.zeros(stimulus.cycles, dtype=np.int64)
     count = len(widths)
     lag, read_latency = config.learning_lag, config.learning_read_latency
+    writes = [None] * config.learning_write_latency     # writes held, oldest first
     seen = (weights.copy(), biases.copy())     # the registers the datapath reads
     for cycle in range(stimulus.cycles):
         address = int(addresses[cycle])
@@ -86,10 +89,13 @@ def learning_trace(stimulus, config, labelled, targets, addresses):
                     row, bias = rule.update(weights[unit], biases[unit], steps,
                                             1 if target else -1)
                     weights[unit], biases[unit] = row, bias
-        if strobes[cycle] and int(write_addresses[cycle]) < count:
-            address = int(write_addresses[cycle])
+        writes.append((int(write_addresses[cycle]), int(data[cycle]))
+                      if strobes[cycle] else None)
+        write = writes.pop(0)
+        if write is not None and write[0] < count:
+            address = write[0]
             unit, index = divmod(address, features + 1)
-            value = register_value(int(data[cycle]), widths[address])
+            value = register_value(write[1], widths[address])
             if index < features:
                 weights[unit, index] = value
             else:
@@ -126,7 +132,8 @@ def with_learning(stimulus, config, seed, *, labelled=None, targets=None,
     address_bits = max(1, (registers - 1).bit_length())
     addresses = rng.integers(0, 1 << address_bits, stimulus.cycles)
     if writes_in_updates and count:
-        stimulus = _writes_in_updates(stimulus, labelled, widths, rng)
+        stimulus = _writes_in_updates(stimulus, labelled, widths, rng,
+                                      config.learning_write_latency)
     scores, decisions, read_data, _ = learning_trace(stimulus, config, labelled, targets,
                                                      addresses)
     presented = np.clip(stimulus.in_index // stimulus.beats, 0, max(count - 1, 0))
@@ -138,13 +145,16 @@ def with_learning(stimulus, config, seed, *, labelled=None, targets=None,
     return replace(stimulus, expect_scores=scores, expect_decisions=decisions, bus=run)
 
 
-def _writes_in_updates(stimulus, labelled, widths, rng):
+def _writes_in_updates(stimulus, labelled, widths, rng, latency=0):
     """``stimulus`` with a write of a random register (random bits of its width) in about
-    :data:`WRITE_SHARE` of the cycles where a labelled result leaves and nothing is written."""
+    :data:`WRITE_SHARE` of the cycles where a labelled result leaves ``latency`` cycles later
+    (a write's wait before it lands) and nothing is written."""
     strobes, addresses, data = (np.array(c, copy=True) for c in write_columns(stimulus))
-    leaving = stimulus.expect_out_valid & stimulus.out_ready & (strobes == 0)
+    leaving = stimulus.expect_out_valid & stimulus.out_ready
     index = np.clip(stimulus.expect_out_index, 0, len(labelled) - 1)
-    cycles = np.flatnonzero(leaving & labelled[index])
+    lands = np.flatnonzero(leaving & labelled[index])
+    cycles = lands - latency
+    cycles = cycles[(cycles >= 0) & (strobes[np.maximum(cycles, 0)] == 0)]
     cycles = cycles[rng.random(len(cycles)) < WRITE_SHARE]
     if max(widths) > 62:
         data = data.astype(object)          # (Python integers past int64)
