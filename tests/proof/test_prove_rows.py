@@ -41,8 +41,10 @@ LEARNING = {"on_chip_learning": True, "learning_rate": "1/2", "weight_bits": 4,
     (five, LEARNING),
     (guarded, {"on_chip_learning": True, "learning_rate": "1/2", "weight_bits": 5,
                "bias_bits": 8, "pipeline": "full", "dsp_products": 0}),
+    # One stage: each step signed where the sample enters, from the target port.
+    (unit, {**LEARNING, "pipeline": 1}),
 ], ids=["loadable-full", "loadable-one-stage", "learning", "learning-read-groups",
-        "learning-guarded"])
+        "learning-guarded", "learning-one-stage"])
 def test_row_designs_are_proved(make, config):
     outcome = prove_design(make(), **config)
     assert outcome.status == "proved", outcome.detail
@@ -59,7 +61,8 @@ def _own(model, config):
     replace_once("assign learn_mistake0 = learn_enable_s_r1 & ",
                  "assign learn_mistake0 = ~learn_enable_s_r1 & "),
     # The move is not signed towards the target.
-    replace_once("assign learn_move1 = learn_target ?", "assign learn_move1 = ~learn_target ?"),
+    replace_once("assign learn_move1 = learn_target_s_r1 ?",
+                 "assign learn_move1 = ~learn_target_s_r1 ?"),
     # A register the datapath reads follows another's learning copy.
     replace_once("rst ? 4'd3 : weight0_learned_clamped", "rst ? 4'd3 : weight1_learned_clamped"),
     # The registered read-back reads the copies at swapped addresses.

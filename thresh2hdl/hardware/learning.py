@@ -25,7 +25,7 @@ from ..names import (GUARD_FLAG, HELD_WRITE_DATA, LEARN_ENABLE, LEARN_READ_HIGH,
                      learn_mistake_name, learn_move_name, learn_step_name, written_name)
 from .register_bus import index_known, selected
 
-__all__ = ["learning_members", "copy_bits", "build_learning", "entry_bias", "LEARN_PREFIX",
+__all__ = ["learning_members", "copy_bits", "move_stage", "build_learning", "entry_bias", "LEARN_PREFIX",
            "LEARN_INPUTS", "LEARN_OUTPUTS"]
 
 LEARN_PREFIX = "learn_"
@@ -86,6 +86,15 @@ def copy_bits(config, features):
     return bits
 
 
+def move_stage(config, latency):
+    """Where the form built for speed signs each step towards the target (its
+    ``learn_move{i}``): a stage after entry where two or more stages follow, else where the
+    sample enters; None in the other forms (the step is carried unsigned)."""
+    if config.dsp_products is None:
+        return None
+    return 1 if latency >= 2 else 0
+
+
 def build_learning(m, component, stages, store, features, decisions):
     """The update path and the read port. ``features``: the codes the arithmetic sees (after
     the input guard); ``decisions``: per unit, the stage name of its own decision bit (made
@@ -101,12 +110,19 @@ def build_learning(m, component, stages, store, features, decisions):
         step = Signal(_step_shape(feature, rule.shift), name=learn_step_name(index))
         m.d.comb += step.eq(feature << rule.shift if rule.shift >= 0 else
                             feature >> -rule.shift)
-        if config.dsp_products is not None:
+        signed_at = move_stage(config, latency)
+        if signed_at == 0:
             # Signed towards the target where the sample enters, so that the update adds it.
             step = _move(m, step, _port(component, "target")[0], learn_move_name(index))
         # A left shift's zero bits are left out of the registers, as a shifted input's are
         # (constant flops would be dropped, and the registers' names with them).
         stages.put(step.name, step, 0, max(rule.shift, 0))
+        if signed_at == 1:
+            # Signed a stage later, from the step's and the target's registers: the negation
+            # then starts at nearby flip-flops, not at the port.
+            step = _move(m, stages.at(step.name, 1), stages.at(LEARN_TARGET, 1)[0],
+                         learn_move_name(index))
+            stages.put(step.name, step, 1, max(rule.shift, 0))
         steps.append(stages.at(step.name, latency))
     if config.dsp_products is None:
         _update(m, component, stages, store, steps, decisions)

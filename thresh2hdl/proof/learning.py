@@ -24,6 +24,7 @@ from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_READ_HIGH, LEARN_TARGET, RE
                      bias_name, entered_name, learn_move_name, learn_read_group_name,
                      learned_name, learn_step_name, positive_name, register_name,
                      unit_prefix, weight_name, weight_registers)
+from ..hardware.learning import move_stage
 from .clocking import reset_clears
 from .forms import Value
 from .lemmas import weight_write_lemmas
@@ -221,7 +222,8 @@ def add_learning(plan, component):
     plan.add(Value(LEARN_TARGET, "port", (), 0, 0, (1 << len(units)) - 1, False))
     shift = rule.shift
     if config.dsp_products is not None:
-        mistakes = add_moves(plan, rule, guard, [u[2] for u in units], plan.final_stage)
+        mistakes = add_moves(plan, rule, guard, [u[2] for u in units], plan.final_stage,
+                             move_stage(config, plan.latency))
         plan.learning = Learning(rule, plan.latency, len(model.features), guard.flag,
                                  tuple(units), tuple(mistakes), config.learning_lag,
                                  config.learning_read_latency, config.learning_write_latency)
@@ -260,7 +262,7 @@ class LearningQuery(Query):
             x, shift = self.feature(value.feature, state), self.plan.learning.rule.shift
             step = f"(bvshl {x} {bv(shift, w)})" if shift >= 0 else \
                 f"(bvashr {x} {bv(-shift, w)})"
-            expr = move_formula(self, value, state, step)
+            expr = move_formula(self, value, state, step, needed)
         elif value.kind == "mistake":
             expr = mistake_formula(self, value, state, needed)
         elif value.kind == "positive":

@@ -15,7 +15,7 @@ whose registers get the usual lemmas, so the update's lemma may read them at the
 """
 
 from ..names import (GUARD_FLAG, LEARN_ENABLE, LEARN_TARGET, learn_mistake_name,
-                     learn_move_name, weight_name)
+                     learn_move_name, learn_step_name, weight_name)
 from .values import Value
 
 __all__ = ["row_value", "row_formula", "rows_as_products", "add_moves", "move_formula",
@@ -58,17 +58,24 @@ def rows_as_products(coeffs, weight_bits):
     return folded
 
 
-def add_moves(plan, rule, guard, decisions, made):
-    """Put the form's carried moves and each unit's mistake (read at stage ``made``, the
-    decision's) into ``plan``; returns the mistakes' names, one per unit."""
+def add_moves(plan, rule, guard, decisions, made, signed_at=0):
+    """Put the form's carried moves (signed at stage ``signed_at``: at entry from the port,
+    or a stage later from the step's and the target's registers, the step then a value of
+    its own) and each unit's mistake (read at stage ``made``, the decision's) into ``plan``;
+    returns the mistakes' names, one per unit."""
     shift = rule.shift
     for i in range(len(plan.model.features)):
         code_lo, code_hi = (guard.feature_ranges if guard.clamp else guard.code_ranges)[i]
         lo, hi = ((code_lo << shift, code_hi << shift) if shift >= 0 else
                   (code_lo >> -shift, code_hi >> -shift))
+        operands = ()
+        if signed_at:
+            plan.add(Value(learn_step_name(i), "step", (), 0, lo, hi, lo < 0, feature=i,
+                           register_shift=max(shift, 0)))
+            operands = (learn_step_name(i), LEARN_TARGET)
         lo, hi = min(lo, -hi), max(hi, -lo)     # either sign: the target is its own input
-        plan.add(Value(learn_move_name(i), "move", (), 0, lo, hi, True, feature=i,
-                       register_shift=max(shift, 0)))
+        plan.add(Value(learn_move_name(i), "move", operands, signed_at, lo, hi, True,
+                       feature=i, register_shift=max(shift, 0)))
     names = []
     for unit, decision in enumerate(decisions):
         operands = (decision, LEARN_ENABLE, LEARN_TARGET) + \
@@ -78,10 +85,15 @@ def add_moves(plan, rule, guard, decisions, made):
     return names
 
 
-def move_formula(query, value, state, step):
-    """The step ``step`` (an expression) signed towards the target port's bit 0."""
-    wire, signed = query.port("learn_target")
-    target = query.wide(wire, state, signed)
+def move_formula(query, value, state, step, needed=None):
+    """The step ``step`` (an expression) signed towards the target's bit 0: the port's, or
+    (a move made a stage after entry) its operands' as that stage sees them."""
+    if value.operands:
+        step = query.known(value.operands[0], value.stage, query.width, state, needed)
+        target = query.known(value.operands[1], value.stage, query.width, state, needed)
+    else:
+        wire, signed = query.port("learn_target")
+        target = query.wide(wire, state, signed)
     return f"(ite (= ((_ extract 0 0) {target}) #b1) {step} (bvneg {step}))"
 
 
