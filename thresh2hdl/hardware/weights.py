@@ -40,8 +40,8 @@ class WeightStore:
     """Weight and bias registers of every unit, reset to the trained values, written through
     ``weight_write``/``weight_address``/``weight_data``: unit ``u``'s weight ``i`` at address
     ``u * (features + 1) + i``, its bias at ``u * (features + 1) + features``. A write takes
-    effect from the next clock (with on-chip learning's lag, in the copies: the registers the
-    datapath reads a clock later); the data's low bits are kept. With ``weight_port``
+    effect from the next clock (with on-chip learning's lag, the learning code writes the
+    copies itself: see :mod:`.learning`); the data's low bits are kept. With ``weight_port``
     ``axi4-lite`` the same registers are the slave's words."""
 
     def __init__(self, m, component, config, copy_bits=None):
@@ -63,9 +63,8 @@ class WeightStore:
         # datapath's own, or with a learning lag copies of them that they follow a cycle later
         # (the update's loop then stays short and local, away from what reads the weights).
         self.read = registers      # what the datapath (and on-chip learning's read-back) reads
-        self.widths = [len(register) for register in registers]
         self.registers = registers if not config.learning_lag else \
-            [self._copy(m, register, bits) for register, bits in zip(registers, copy_bits)]
+            [self._copy(register, bits) for register, bits in zip(registers, copy_bits)]
         # What each register the port writes stands for: itself, or its copy clamped.
         self.values = registers if not config.learning_lag else \
             [self._clamped(m, copy, len(register))
@@ -82,7 +81,7 @@ class WeightStore:
             self.connect_port(m, component)
 
     @staticmethod
-    def _copy(m, register, bits):
+    def _copy(register, bits):
         """``register``'s learning copy, ``bits`` wide: the update's sum before its clamp
         (the clamp is then read from the copy's own flip-flops, off the adder's path)."""
         return Signal(signed(bits), name=learned_name(register.name), init=register.init)
@@ -100,17 +99,18 @@ class WeightStore:
         if self.config.weight_port == "axi4-lite":
             build_axi_lite(m, component, self.registers)
             return
-        for address, (register, bits) in enumerate(zip(self.registers, self.widths)):
-            self._write(m, component, register, bits, address)
+        for address, register in enumerate(self.registers):
+            self._write(m, component, register, address)
 
     @staticmethod
     def written(component, address):
         """Whether the port writes the register at ``address`` in this cycle."""
         return component.weight_write & (component.weight_address == address)
 
-    def _write(self, m, component, register, bits, address):
-        with m.If(self.written(component, address)):
-            m.d.sync += register.eq(component.weight_data[:bits].as_signed())
+    @staticmethod
+    def _write(m, component, register, address):
+        with m.If(WeightStore.written(component, address)):
+            m.d.sync += register.eq(component.weight_data[:len(register)])
 
 
 def clamped(value, bits):
