@@ -51,7 +51,8 @@ def test_an_update_seen_without_its_lag_is_caught(monkeypatch):
     # A mutant: the datapath reads the update's own registers (no copy a cycle behind), so
     # vectors meet updates a cycle earlier than the trace says.
     from thresh2hdl.hardware import weights
-    monkeypatch.setattr(weights.WeightStore, "_copy", staticmethod(lambda register, bits: register))
+    monkeypatch.setattr(weights.WeightStore, "_copy",
+                        staticmethod(lambda register, bits: register))
     model, component = learning_unit()
     stimulus = stimulus_of(model, component, count=300)
     checked = make_backend("amaranth", component=component).run(stimulus).check(stimulus)

@@ -25,8 +25,8 @@ from ..names import (GUARD_FLAG, HELD_WRITE_DATA, LEARN_ENABLE, LEARN_READ_HIGH,
                      learn_mistake_name, learn_move_name, learn_step_name, written_name)
 from .register_bus import index_known, selected
 
-__all__ = ["learning_members", "copy_bits", "move_stage", "build_learning", "entry_bias", "LEARN_PREFIX",
-           "LEARN_INPUTS", "LEARN_OUTPUTS"]
+__all__ = ["learning_members", "copy_bits", "move_stage", "build_learning", "entry_bias",
+           "LEARN_PREFIX", "LEARN_INPUTS", "LEARN_OUTPUTS"]
 
 LEARN_PREFIX = "learn_"
 LEARN_INPUTS = ("enable", "target", "read_address")
@@ -78,7 +78,7 @@ def copy_bits(config, features):
         return None
     rule = config.learning_rule
     move_bits = [_step_shape(feature, rule.shift).width + 1 for feature in features]
-    bias_move_bits = (rule.bias_step).bit_length() + 1
+    bias_move_bits = rule.bias_step.bit_length() + 1
     bits = []
     for _ in config.model.units:
         bits += [max(config.weight_bits, b) + 1 for b in move_bits]
