@@ -1,5 +1,7 @@
 """On-chip learning in the Amaranth design, against a deliberately simple gold model."""
 
+import re
+
 import numpy as np
 import pytest
 from amaranth.hdl import Module
@@ -115,3 +117,32 @@ def test_a_learning_rate_without_learning_is_refused():
     with pytest.raises(InputError) as caught:
         UnitConfig(make_model([1], bits=4), learning_rate="1/2")
     assert caught.value.field == "learning_rate"
+
+
+@pytest.mark.parametrize("form", [{}, {"dsp_products": 1}], ids=["plain", "rows"])
+def test_the_reported_update_widths_are_the_built_ones_behind_a_clamping_guard(form):
+    # The guard clamps f0 to 0..20 and f1 to 0..15 (5 and 4 bits, not their ports' 8): the
+    # steps and the adders the report states (hardware.learning.update_widths) are those of
+    # the codes the arithmetic sees, as the emitted Verilog declares them (the copies of the
+    # form built for speed; the bias's adder above the bias step's two low zero bits).
+    from thresh2hdl.emit.verilog import emit_verilog
+    from thresh2hdl.hardware.learning import update_widths
+    model = make_model([3, -2], bias=-5, bits=8, ranges=[(0, 20), (0, 15)])
+    config = UnitConfig(model, on_chip_learning=True, learning_rate="1/2", weight_bits=6,
+                        bias_bits=10, bias_step=4, clamp=True, **form)
+    text = emit_verilog(make_component(config), model)
+    step_bits, weight_bits, bias_bits = update_widths(config)
+    assert "f0_clamped" in text
+    if form:
+        widths = {name: int(top) + 1 for top, name in
+                  re.findall(r"reg  \[(\d+):0\] (\w+_learned);", text)}
+        moves = [int(top) + 1 for top in re.findall(r"wire \[(\d+):0\] learn_move\d;", text)]
+        assert step_bits == max(moves)
+        assert weight_bits == max(widths["weight0_learned"], widths["weight1_learned"])
+        assert bias_bits == widths["bias_learned"] - 2
+    else:
+        steps = [int(top) + 1 for top in re.findall(r"reg  \[(\d+):0\] learn_step\d_r1;",
+                                                    text)]
+        adders = [int(top) + 1 for top in re.findall(r"wire \[(\d+):0\] weight\d_next;", text)]
+        assert step_bits == max(steps) and weight_bits == max(adders)
+        assert bias_bits == int(re.search(r"wire \[(\d+):0\] bias_next;", text)[1]) + 1

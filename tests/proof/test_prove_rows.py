@@ -27,8 +27,10 @@ def five():
     return make_model([3, -2, 1, 2, -1], bias=-5, bits=5, signed=True)
 
 
+# bias_step 4: the bias copy's low two bits take the value or the written data, and its
+# adder starts above them (learning-guarded's step of 1 keeps the whole adder).
 LEARNING = {"on_chip_learning": True, "learning_rate": "1/2", "weight_bits": 4,
-            "bias_bits": 8, "bias_step": 3, "pipeline": 2, "dsp_products": 1}
+            "bias_bits": 8, "bias_step": 4, "pipeline": 2, "dsp_products": 1}
 
 
 @pytest.mark.parametrize("make, config", [
@@ -71,11 +73,16 @@ def _own(model, config):
     # A held write is added to the copy's value instead of replacing it.
     replace_once("weight0_learned_written ? 4'd0 : weight0_learned_clamped",
                  "weight0_learned_clamped"),
-    # The decision's zero test, made beside the bias adder, misses a group of its terms.
-    replace_once("|{score_sum_zero_g2, score_sum_zero_g1, score_sum_zero_g0}",
-                 "|{score_sum_zero_g2, score_sum_zero_g1}"),
+    # The decision's own sum (the bias entered less one) read a bit below its sign.
+    replace_once("assign decision = ~score_sum_less1[10];",
+                 "assign decision = ~score_sum_less1[9];"),
+    # The score does not add back the one its carried bias lacks.
+    replace_once(" + 10'd1;", ";"),
+    # A write's low bits of the bias copy (below its adder) keep the old value.
+    replace_once("bias_learned_written ? bias_learned_data[1:0] : bias_learned_clamped[1:0]",
+                 "bias_learned_clamped[1:0]"),
 ], ids=["row-bit", "mistake-inverted", "move-sign", "copy-crossed", "read-swapped",
-        "write-adds", "zero-test"])
+        "write-adds", "decision-bit", "score-less-one", "write-low-bits"])
 def test_each_mutant_is_not_proved(mutate):
     text = _own(unit(), LEARNING)
     mutant = mutate(text)

@@ -125,7 +125,7 @@ def test_the_live_bias_instead_of_the_entered_one_is_caught(monkeypatch):
     # meets a bias updated after it entered.
     from thresh2hdl.hardware import unit
     checked = mutant_mismatches(monkeypatch, unit, "entry_bias",
-                                lambda stages, config, bias: bias)
+                                lambda m, stages, config, bias: bias)
     assert checked.mismatch_count > 0
     assert "score" in {m.signal for m in checked.mismatches}
 

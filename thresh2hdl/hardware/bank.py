@@ -43,7 +43,7 @@ class ThresholdBank(PlannedComponent):
             prefix = unit_prefix(index)
             if store is not None:
                 build_tree(m, stages, analysis, features, prefix, store.weights[index],
-                           entry_bias(stages, self.config, store.biases[index]))
+                           entry_bias(m, stages, self.config, store.biases[index]))
                 scores.append(analysis.nodes[analysis.score_node].wire_name(prefix))
                 continue
             if analysis.score_node is None:

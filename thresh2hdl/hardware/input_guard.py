@@ -7,7 +7,17 @@ from amaranth.hdl import Cat, Const, Mux, Signal, signed, unsigned
 from ..analysis import value_bits
 from ..names import GUARD_FLAG, clamped_name, flag_part_name, register_name
 
-__all__ = ["guard_inputs", "guard_sample"]
+__all__ = ["guard_inputs", "guard_sample", "guarded_format"]
+
+
+def guarded_format(config, index):
+    """``(bits, signed)`` of feature ``index`` as the arithmetic sees it: its declared range's
+    where the guard clamps codes outside it, else its port's format."""
+    guard, feature = config.guard, config.model.features[index]
+    (lo, hi), (code_lo, code_hi) = guard.feature_ranges[index], guard.code_ranges[index]
+    if guard.clamp and (lo > code_lo or hi < code_hi):
+        return value_bits(lo, hi)
+    return feature.bits, feature.signed
 
 
 def guard_inputs(m, stages, features, config):

@@ -11,21 +11,26 @@ read any register back (past the last, 0), combinationally. In the form built fo
 (``dsp_products``) the update and the port act on copies of the registers that the datapath's
 follow a cycle later (``UnitConfig.learning_lag``), each copy holding its sum before the
 clamp so that the loop is one LUT, a carry chain and the copy's flip-flop in the adder's own
-cells; a write is held a clock and enters through the same adder
-(``UnitConfig.learning_write_latency``); the read-back reads the registers the datapath
-reads, in two registered steps: every path is local. The host-side model of all this
-is :mod:`thresh2hdl.train.on_chip`; the cycle-exact one, :mod:`thresh2hdl.verify.learning`.
+cells (the bias's adder starts above the bias step's low zero bits, which no carry crosses);
+a write is held a clock and enters through the same adder
+(``UnitConfig.learning_write_latency``); the bias is carried less one, so that the decision
+is the sign of a sum of its own (:func:`~.trees.sum_is_positive`); the read-back reads the
+registers the datapath reads, in two registered steps: every path is local. The host-side
+model of all this is :mod:`thresh2hdl.train.on_chip`; the cycle-exact one,
+:mod:`thresh2hdl.verify.learning`.
 """
 
-from amaranth.hdl import Mux, Shape, Signal, signed
+from amaranth.hdl import Cat, Mux, Shape, Signal, signed
 from amaranth.lib.wiring import In, Out
 
 from ..names import (GUARD_FLAG, HELD_WRITE_DATA, LEARN_ENABLE, LEARN_READ_HIGH, LEARN_TARGET,
                      READ_GROUP, entered_name, held_data_name, learn_read_group_name,
                      learn_mistake_name, learn_move_name, learn_step_name, written_name)
+from .input_guard import guarded_format
 from .register_bus import index_known, selected
 
-__all__ = ["learning_members", "copy_bits", "move_stage", "build_learning", "entry_bias",
+__all__ = ["learning_members", "copy_bits", "update_widths", "move_stage", "build_learning",
+           "entry_bias",
            "LEARN_PREFIX", "LEARN_INPUTS", "LEARN_OUTPUTS"]
 
 LEARN_PREFIX = "learn_"
@@ -43,13 +48,20 @@ def learning_members(config, addresses):
             LEARN_PREFIX + "read_data": Out(signed(max(config.weight_bits, config.bias_bits)))}
 
 
-def entry_bias(stages, config, bias):
+def entry_bias(m, stages, config, bias):
     """The bias as the tree should add it: with on-chip learning, the register as the vector
     entered (carried beside it, as the products take the weights when it enters), so that
-    every vector meets one set of registers; else the register itself."""
+    every vector meets one set of registers, and in the form built for speed carried less
+    one (``build_tree``'s ``bias_less_one``); else the register itself."""
     if not config.on_chip_learning:
         return bias
     name = entered_name(bias.name)
+    if config.learning_lag:
+        # Carried less one: the score adds it back as its adder's carry in, and the
+        # decision (score > 0) is the sign of a sum of its own of the same two registers.
+        less = Signal(signed(len(bias) + 1), name=name)
+        m.d.comb += less.eq(bias - 1)
+        bias = less
     stages.put(name, bias, 0)
     return name
 
@@ -71,19 +83,40 @@ def _saturated(m, register, step, sign_up, name):
     return Mux(total > hi, hi, Mux(total < lo, lo, total))
 
 
-def copy_bits(config, features):
+def copy_bits(config):
     """The widths of the update's copies in address order (``learning_lag``; else None): each
     holds its register plus a move before the clamp, so one bit over the wider of the two."""
     if not config.learning_lag:
         return None
     rule = config.learning_rule
-    move_bits = [_step_shape(feature, rule.shift).width + 1 for feature in features]
+    move_bits = [_step_bits(config, index) + 1 for index in range(len(config.model.features))]
     bias_move_bits = rule.bias_step.bit_length() + 1
     bits = []
     for _ in config.model.units:
         bits += [max(config.weight_bits, b) + 1 for b in move_bits]
         bits.append(max(config.bias_bits, bias_move_bits) + 1)
     return bits
+
+
+def update_widths(config):
+    """``(step bits, weight bits, bias bits)`` as built: the widest carried step (a move,
+    signed towards the target, in the form built for speed), the widest weight's update
+    adder and the bias's (the report states them)."""
+    rule = config.learning_rule
+    steps = [_step_bits(config, index) for index in range(len(config.model.features))]
+    if config.learning_lag:
+        copies = copy_bits(config)
+        return max(steps) + 1, max(copies[:-1]), copies[-1] - _zero_bits(rule.bias_step)
+    signs = [guarded_format(config, index)[1] for index in range(len(steps))]
+    return (max(steps),
+            max(max(config.weight_bits, bits + (not signed)) + 1
+                for bits, signed in zip(steps, signs)),
+            max(config.bias_bits, rule.bias_step.bit_length() + 1) + 1)
+
+
+def _step_bits(config, index):
+    """Feature ``index``'s step width (:func:`_step_shape` of what the arithmetic sees)."""
+    return max(1, guarded_format(config, index)[0] + config.learning_rule.shift)
 
 
 def move_stage(config, latency):
@@ -184,8 +217,23 @@ def _update_fast(m, component, stages, store, moves, decisions):
                 held = Signal.like(component.weight_data, name=held_data_name(copy.name))
                 m.d.sync += held.eq(component.weight_data)
             data = held[:len(value)].as_signed()
+            kept = Mux(written, 0, value)
+            added = Mux(written, data, move)
+            low = _zero_bits(rule.bias_step) if copy is bias else 0
+            if low:
+                # The move's low bits are zeros, and a write adds to 0: no carry crosses bit
+                # ``low``, so those bits take the value or the data, and the adder starts there.
+                added = Cat(Mux(written, data[:low], value[:low]),
+                            (kept >> low) + (added >> low)).as_signed()
+            else:
+                added = kept + added
             with m.If(taught | written):
-                m.d.sync += copy.eq(Mux(written, 0, value) + Mux(written, data, move))
+                m.d.sync += copy.eq(added)
+
+
+def _zero_bits(number):
+    """How many low bits of ``number`` (nonzero) are zeros."""
+    return (number & -number).bit_length() - 1
 
 
 def _move(m, step, up, name):

@@ -5,10 +5,10 @@ part later than the one below (:func:`build_split_tree`, :class:`Parts`)."""
 from amaranth.hdl import Cat, Const, Mux, Signal, signed, unsigned
 
 from ..analysis import row_bit
-from ..names import zero_name
+from ..names import positive_name, zero_name
 
 __all__ = ["node_shape", "build_tree", "build_split_tree", "Parts", "constant_product",
-           "combine"]
+           "combine", "sum_is_positive", "sum_is_zero"]
 
 
 def node_shape(node):
@@ -16,12 +16,15 @@ def node_shape(node):
     return signed(node.bits) if node.is_signed else unsigned(node.bits)
 
 
-def build_tree(m, stages, analysis, features, prefix="", weights=None, bias=None):
+def build_tree(m, stages, analysis, features, prefix="", weights=None, bias=None,
+               bias_less_one=False):
     """Every node of one unit's plan, each in the stage of its level, put into ``stages``
     (a shared node once for the bank; a scaled node as wiring, an alias of its child).
     ``weights`` and ``bias``: the registers of loadable weights (else the plan's constants);
     ``bias`` may be the name of its value in ``stages`` (on-chip learning: the bias as the
-    vector entered, carried beside it)."""
+    vector entered, carried beside it), and ``bias_less_one`` says it is carried less one:
+    the score adds the one back as its carry in, and the decision is a sum of its own
+    (:func:`sum_is_positive`)."""
     for node in analysis.nodes:
         name = node.wire_name(prefix)
         if node.shared and stages.has(name):
@@ -46,7 +49,13 @@ def build_tree(m, stages, analysis, features, prefix="", weights=None, bias=None
             sum_, entered = stages.at(children[0], stage), \
                 (stages.at(bias, stage) if isinstance(bias, str) else bias)
             expr = sum_ + entered
-            if analysis.dsp_products is not None:
+            if bias_less_one:
+                expr = sum_ + entered + 1
+                positive = Signal(name=positive_name(name))
+                m.d.comb += positive.eq(sum_is_positive(m, sum_, entered, node_shape(node),
+                                                        name))
+                stages.put(positive.name, positive, stage)
+            elif analysis.dsp_products is not None:
                 zero = Signal(name=zero_name(name))
                 m.d.comb += zero.eq(sum_is_zero(m, sum_, entered, node_shape(node).width,
                                                 zero.name))
@@ -205,6 +214,15 @@ def build_split_tree(m, stages, analysis, features, parts, split_bits, skew, pre
             stages.put(part.name, part, at)
             stages.put(carried.name, carried, at)
             carry = stages.at(carried.name, at + skew)
+
+
+def sum_is_positive(m, a, less, shape, name):
+    """Whether ``a + less + 1 > 0`` (``shape``: the sum's), that is whether ``a + less`` is
+    not negative: the sign of a sum of its own, a bit wider (exact for any operands), on a
+    carry chain beside the score's with nothing between the registers and it."""
+    total = Signal(signed(shape.width + 1), name=f"{name}_less1")
+    m.d.comb += total.eq(a + less)
+    return ~total[-1]
 
 
 def sum_is_zero(m, a, b, width, name):

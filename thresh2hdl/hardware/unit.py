@@ -3,7 +3,7 @@ taken from the result's parts as they arrive when the adders are split."""
 
 from amaranth.hdl import Cat, Const, Module, Signal, signed
 
-from ..names import GUARD_FLAG, zero_name
+from ..names import GUARD_FLAG, positive_name, zero_name
 from .clocking import enabled
 from .component import PlannedComponent
 from .input_guard import guard_inputs
@@ -58,10 +58,11 @@ class ThresholdUnit(PlannedComponent):
         if parts:
             build_split_tree(m, stages, analysis, features, parts, bits, skew)
         else:
-            store = WeightStore(m, self, config, copy_bits(config, features)) \
+            store = WeightStore(m, self, config, copy_bits(config)) \
                 if analysis.loadable else None
             build_tree(m, stages, analysis, features, weights=store and store.weights[0],
-                       bias=store and entry_bias(stages, config, store.biases[0]))
+                       bias=store and entry_bias(m, stages, config, store.biases[0]),
+                       bias_less_one=bool(config.learning_lag))
         view = Parts(m, stages, analysis, parts, bits)
         decision = self._decision(m, stages, view, node)
         if config.on_chip_learning:
@@ -80,8 +81,9 @@ class ThresholdUnit(PlannedComponent):
 
     def _decision(self, m, stages, view, node):
         """The decision from the result's parts as they arrive, each compared (or tested for
-        zero) in its own stage, the parts below deciding only where it is equal. Returns the
-        name of the last part's decision."""
+        zero) in its own stage, the parts below deciding only where it is equal; or the sign
+        the bias adder made beside it (on-chip learning built for speed). Returns the name of
+        the last part's decision."""
         analysis, config = self.analysis, self.config
         bits, skew = config.split_bits or 0, config.carry_registers
         final_stage = stages.stage_of(analysis.final_level)
@@ -93,7 +95,10 @@ class ThresholdUnit(PlannedComponent):
             is_top = j == count - 1
             part = view.top(node.index, j, at) if is_top else view.middle(node.index, j, at)
             step = Signal(name="decision" if count == 1 else f"decision_p{j}")
-            if tests_score:
+            positive = positive_name(node.wire_name(""))
+            if count == 1 and stages.has(positive):
+                m.d.comb += step.eq(stages.at(positive, at))
+            elif tests_score:
                 # the score is positive: nonzero and, at the top, not negative
                 zero = zero_name(node.wire_name(""))
                 nonzero = (~stages.at(zero, at) if count == 1 and stages.has(zero) else

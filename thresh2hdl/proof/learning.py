@@ -209,7 +209,10 @@ def add_learning(plan, component):
     for index, (score, _, _) in enumerate(plan.unit_scores):
         prefix = unit_prefix(index) if model.is_bank else ""
         bias = bias_name(prefix)
-        plan.add(Value(entered_name(bias), "entered", (), 0, lo, hi, True, register=bias))
+        # The form built for speed carries it less one (the score adds the one back).
+        less = -1 if config.learning_lag else 0
+        plan.add(Value(entered_name(bias), "entered", (), 0, lo + less, hi + less, True,
+                       register=bias, constant=less))
         if model.is_bank:
             decision, port = positive_name(score), None
             stage = plan.values[score].stage
@@ -249,8 +252,13 @@ class LearningQuery(Query):
             entered = entered_name(value.register)
             expr = (f"(bvadd {self.known(value.operands[0], value.stage, modulus_bits, state, needed)} "
                     f"{self.known(entered, value.stage, modulus_bits, state, needed)})")
+            less = self.plan.values[entered].constant
+            if less:
+                expr = f"(bvsub {expr} {bv(less, w)})"
         elif value.kind == "entered":
             expr = self.weight_register(value.register, state)
+            if value.constant:
+                expr = f"(bvadd {expr} {bv(value.constant, w)})"
         elif value.kind == "port":
             port, signed = self.port(_PORTS[name])
             expr = self.wide(port, state, signed)
@@ -267,7 +275,17 @@ class LearningQuery(Query):
             expr = mistake_formula(self, value, state, needed)
         elif value.kind == "positive":
             score = self.known(value.operands[0], value.stage, w, state, needed)
+            if self._carried_less_one(value.operands[0]):
+                # Its own sum of the score's operands (the bias entered less one), read
+                # from them exactly: the score's wire holds its value only in range.
+                score = self.formula(value.operands[0], w, state, needed)
             expr = f"(ite (bvsgt {score} {bv(0, w)}) {bv(1, w)} {bv(0, w)})"
         else:
             return super().formula(name, modulus_bits, state, needed)
         return self.define(f"formula {name} {modulus_bits} {state}", self._sort(), expr)
+
+    def _carried_less_one(self, name):
+        """Whether score ``name`` adds a bias entered less one (the form built for speed)."""
+        value = self.plan.values[name]
+        return value.kind == "addreg" and \
+            bool(self.plan.values[entered_name(value.register)].constant)

@@ -155,6 +155,11 @@ def _outputs(plan, query, model, needed):
     else:
         score = query.score(0, final, needed=needed)
         decided = f"(ite (bvsgt {score} {bv(0, w)}) {bv(1, w)} {bv(0, w)})"
+        learning = getattr(plan, "learning", None)
+        if learning is not None and learning.lag:
+            # The decision is a sum of its own (the bias carried less one), proved by its
+            # lemma from the score's operands: the output is that value.
+            decided = query.known(learning.units[0][2], final, w, needed=needed)
         scores = [score]
     outputs = [("y", decided)]
     if plan.guard.flag:

@@ -10,7 +10,7 @@ import numpy as np
 from .. import __version__
 from ..analysis import guard_words
 from ..hardware import DEFAULT_RESET, weight_addresses
-from ..hardware.learning import LEARN_PREFIX
+from ..hardware.learning import LEARN_PREFIX, update_widths
 from ..hardware.register_bus import AXI_LITE_DATA_BITS, AXI_PREFIX
 from ..emit import port_table
 from ..model import model_to_toml
@@ -159,15 +159,7 @@ def _learning_report(component, model):
     if not config.on_chip_learning:
         return None
     rule = config.learning_rule
-    steps = [(max(1, f.bits + rule.shift), f.signed) for f in model.features]
-    step_bits = max(bits for bits, _ in steps)
-    if config.dsp_products is not None:
-        step_bits += 1      # (carried as a move signed towards the target: hardware.learning)
-    # as hardware.learning sizes them: a bit wider than the register and the step (signed;
-    # in the form built for speed, the copies: a bit over the register and the move)
-    weight_sum = max(max(config.weight_bits, bits + (config.dsp_products is not None or
-                                                     not signed)) + 1 for bits, signed in steps)
-    bias_sum = max(config.bias_bits, rule.bias_step.bit_length() + 1) + 1
+    step_bits, weight_sum, bias_sum = update_widths(config)
     ports = tuple(port.name for port in port_table(component, model)
                   if port.internal.startswith(LEARN_PREFIX))
     delay = component.latency + config.learning_lag
