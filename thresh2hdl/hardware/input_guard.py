@@ -7,17 +7,19 @@ from amaranth.hdl import Cat, Const, Mux, Signal, signed, unsigned
 from ..analysis import value_bits
 from ..names import GUARD_FLAG, clamped_name, flag_part_name, register_name
 
-__all__ = ["guard_inputs", "guard_sample", "guarded_format"]
+__all__ = ["guard_inputs", "guard_sample", "guarded_formats"]
 
 
-def guarded_format(config, index):
-    """``(bits, signed)`` of feature ``index`` as the arithmetic sees it: its declared range's
+def guarded_formats(config):
+    """``(bits, signed)`` of each feature as the arithmetic sees it: its declared range's
     where the guard clamps codes outside it, else its port's format."""
-    guard, feature = config.guard, config.model.features[index]
-    (lo, hi), (code_lo, code_hi) = guard.feature_ranges[index], guard.code_ranges[index]
-    if guard.clamp and (lo > code_lo or hi < code_hi):
-        return value_bits(lo, hi)
-    return feature.bits, feature.signed
+    guard = config.guard
+    formats = []
+    for feature, (lo, hi), (code_lo, code_hi) in zip(config.model.features,
+                                                     guard.feature_ranges, guard.code_ranges):
+        clamped = guard.clamp and (lo > code_lo or hi < code_hi)
+        formats.append(value_bits(lo, hi) if clamped else (feature.bits, feature.signed))
+    return formats
 
 
 def guard_inputs(m, stages, features, config):

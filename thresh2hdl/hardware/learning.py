@@ -26,7 +26,7 @@ from amaranth.lib.wiring import In, Out
 from ..names import (GUARD_FLAG, HELD_WRITE_DATA, LEARN_ENABLE, LEARN_READ_HIGH, LEARN_TARGET,
                      READ_GROUP, entered_name, held_data_name, learn_read_group_name,
                      learn_mistake_name, learn_move_name, learn_step_name, written_name)
-from .input_guard import guarded_format
+from .input_guard import guarded_formats
 from .register_bus import index_known, selected
 
 __all__ = ["learning_members", "copy_bits", "update_widths", "move_stage", "build_learning",
@@ -89,7 +89,7 @@ def copy_bits(config):
     if not config.learning_lag:
         return None
     rule = config.learning_rule
-    move_bits = [_step_bits(config, index) + 1 for index in range(len(config.model.features))]
+    move_bits = [bits + 1 for bits, _ in _steps(config)]
     bias_move_bits = rule.bias_step.bit_length() + 1
     bits = []
     for _ in config.model.units:
@@ -103,20 +103,21 @@ def update_widths(config):
     signed towards the target, in the form built for speed), the widest weight's update
     adder and the bias's (the report states them)."""
     rule = config.learning_rule
-    steps = [_step_bits(config, index) for index in range(len(config.model.features))]
+    steps = _steps(config)
+    widest = max(bits for bits, _ in steps)
     if config.learning_lag:
         copies = copy_bits(config)
-        return max(steps) + 1, max(copies[:-1]), copies[-1] - _zero_bits(rule.bias_step)
-    signs = [guarded_format(config, index)[1] for index in range(len(steps))]
-    return (max(steps),
-            max(max(config.weight_bits, bits + (not signed)) + 1
-                for bits, signed in zip(steps, signs)),
+        return widest + 1, max(copies[:-1]), copies[-1] - _zero_bits(rule.bias_step)
+    return (widest,
+            max(max(config.weight_bits, bits + (not signed)) + 1 for bits, signed in steps),
             max(config.bias_bits, rule.bias_step.bit_length() + 1) + 1)
 
 
-def _step_bits(config, index):
-    """Feature ``index``'s step width (:func:`_step_shape` of what the arithmetic sees)."""
-    return max(1, guarded_format(config, index)[0] + config.learning_rule.shift)
+def _steps(config):
+    """Each feature's step ``(bits, signed)``: :func:`_step_shape` of what the arithmetic
+    sees (the guard resolved once)."""
+    shift = config.learning_rule.shift
+    return [(max(1, bits + shift), signed) for bits, signed in guarded_formats(config)]
 
 
 def move_stage(config, latency):
